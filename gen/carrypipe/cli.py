@@ -1,0 +1,121 @@
+"""The `carrypipe` command line: thin click commands over config -> plan -> build -> emit.
+
+User mistakes (bad config, bad option, missing tool) end with one line on stderr and exit
+status 2; a failed check ends with exit status 1.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import click
+
+from . import __version__, emit, sim
+from .config import ConfigError, check_split, load
+from .plan import make_plan
+from .vectors import suite
+
+
+class UserError(click.ClickException):
+    """A one-line error caused by the user's input: exit status 2."""
+
+    exit_code = 2
+
+    def show(self, file=None):
+        click.echo(f"carrypipe: error: {self.format_message()}", err=True)
+
+
+def load_plan(config_path: str, slice_width=None, slices=None):
+    """Config file (plus command-line what-if split) -> plan, with user errors made one line."""
+    try:
+        cfg = load(config_path)
+        if slice_width is not None and slices is not None:
+            raise ConfigError("options --slice-width and --slices are both given; "
+                              "expected at most one of them")
+        if slice_width is not None:
+            cfg = cfg.with_split(check_split("--slice-width", "slice_width", slice_width,
+                                             cfg.width))
+        elif slices is not None:
+            try:
+                parts = [int(x) for x in slices.split(",")]
+            except ValueError:
+                raise ConfigError(f"--slices: key 'slices': value {slices!r} is not allowed; "
+                                  "expected comma-separated positive integers") from None
+            cfg = cfg.with_split(check_split("--slices", "slices", parts, cfg.width))
+    except ConfigError as exc:
+        raise UserError(str(exc)) from None
+    return make_plan(cfg)
+
+
+config_arg = click.argument("config", type=click.Path(dir_okay=False))
+vectors_opt = click.option("--vectors", default=emit.DEFAULT_VECTORS, show_default=True,
+                           type=click.IntRange(1, 10_000_000),
+                           help="Vectors in all: the directed corner cases, then seeded random ones.")
+seed_opt = click.option("--seed", default=emit.DEFAULT_SEED, show_default=True,
+                        type=click.IntRange(0), help="Seed of the random vectors.")
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="carrypipe")
+def main():
+    """Pipelined arithmetic units as synthesizable Verilog."""
+
+
+@main.command()
+@config_arg
+@click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False),
+              help="Output folder [default: out/<name>].")
+@vectors_opt
+@seed_opt
+def build(config, out_dir, vectors, seed):
+    """Emit the unit, its testbench and vectors, manifest and report."""
+    plan = load_plan(config)
+    files = emit.render(plan, vectors=vectors, seed=seed)
+    dest = Path(out_dir) if out_dir else Path("out") / plan.config.name
+    try:
+        emit.write(files, dest)
+    except OSError as exc:
+        raise UserError(f"cannot write into {dest}: {exc.strerror or exc}") from None
+    r = plan.registers
+    click.echo(f"{plan.config.name}: {plan.width}-bit {plan.config.cell}, "
+               f"{len(plan.slices)} slice(s), latency {plan.latency}, "
+               f"{r.total} register bits -> {dest}/")
+    for fname in sorted(files):
+        click.echo(f"  {fname}")
+
+
+@main.command()
+@config_arg
+@vectors_opt
+@seed_opt
+@click.option("--sim", "simulator", type=click.Choice(sim.SIMULATORS),
+              help="Simulator [default: icarus when iverilog is on PATH, else amaranth].")
+@click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
+              help="Give up on an external simulator after this many seconds.")
+def check(config, vectors, seed, simulator, timeout):
+    """Simulate directed and random vectors and compare with Python integer addition."""
+    plan = load_plan(config)
+    chosen = simulator or sim.default_simulator()
+    if simulator is None:
+        why = "iverilog found on PATH" if chosen == "icarus" else "iverilog not found on PATH"
+        click.echo(f"note: simulating with {chosen} ({why}; choose with --sim)")
+    vecs = suite(plan, vectors, seed)
+    try:
+        result = sim.run(plan, vecs, chosen, timeout=timeout)
+    except sim.ToolMissing as exc:
+        raise UserError(str(exc)) from None
+    click.echo(f"{plan.config.name} [{result.simulator}]: {result.message}")
+    sys.exit(0 if result.passed else 1)
+
+
+@main.command("plan")
+@config_arg
+@click.option("--slice-width", type=int, help="What-if: this slice width instead of the config's.")
+@click.option("--slices", help="What-if: this LSB-first list of slice widths, e.g. 24,20,20.")
+def plan_cmd(config, slice_width, slices):
+    """Print the plan (slices, latency, register bits, stage delays) without building."""
+    from .report import report
+
+    plan = load_plan(config, slice_width, slices)
+    click.echo(report(plan), nl=False)

@@ -1,0 +1,213 @@
+"""Read and validate a unit config (YAML) into one frozen, normalized `Config`.
+
+Every user mistake becomes a `ConfigError` whose message is one line naming the file, the
+key, the value and what is allowed; the command line turns it into exit status 2.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+from dataclasses import asdict, dataclass, fields, replace
+from pathlib import Path
+
+import yaml
+
+MAX_WIDTH = 4096
+UNITS = ("adder",)
+PREFIX_CELLS = ("kogge-stone", "brent-kung", "sklansky", "han-carlson", "ladner-fischer")
+CELLS = ("ripple", "native") + PREFIX_CELLS
+RESETS = ("none", "sync")
+MAX_CONFIG_BYTES = 1 << 20
+
+# Verilog-2005 and SystemVerilog-2017 reserved words: a module may not be named after one.
+VERILOG_KEYWORDS = frozenset("""
+accept_on alias always always_comb always_ff always_latch and assert assign assume automatic
+before begin bind bins binsof bit break buf bufif0 bufif1 byte case casex casez cell chandle
+checker class clocking cmos config const constraint context continue cover covergroup
+coverpoint cross deassign default defparam design disable dist do edge else end endcase
+endchecker endclass endclocking endconfig endfunction endgenerate endgroup endinterface
+endmodule endpackage endprimitive endprogram endproperty endspecify endsequence endtable
+endtask enum event eventually expect export extends extern final first_match for force
+foreach forever fork forkjoin function generate genvar global highz0 highz1 if iff ifnone
+ignore_bins illegal_bins implements implies import incdir include initial inout input inside
+instance int integer interconnect interface intersect join join_any join_none large let
+liblist library local localparam logic longint macromodule matches medium modport module
+nand negedge nettype new nexttime nmos nor noshowcancelled not notif0 notif1 null or output
+package packed parameter pmos posedge primitive priority program property protected pull0
+pull1 pulldown pullup pulsestyle_ondetect pulsestyle_onevent pure rand randc randcase
+randsequence rcmos real realtime ref reg reject_on release repeat restrict return rnmos
+rpmos rtran rtranif0 rtranif1 s_always s_eventually s_nexttime s_until s_until_with scalared
+sequence shortint shortreal showcancelled signed small soft solve specify specparam static
+string strong strong0 strong1 struct super supply0 supply1 sync_accept_on sync_reject_on
+table tagged task this throughout time timeprecision timeunit tran tranif0 tranif1 tri tri0
+tri1 triand trior trireg type typedef union unique unique0 unsigned until until_with untyped
+use uwire var vectored virtual void wait wait_order wand weak weak0 weak1 while wildcard
+wire with within wor xnor xor
+""".split())
+
+_IDENT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*\Z")
+MAX_NAME = 64
+
+
+class ConfigError(ValueError):
+    """A user mistake in a config or an option: the message is one line."""
+
+
+@dataclass(frozen=True)
+class Config:
+    """A validated unit description; `slices` is always the explicit LSB-first split."""
+
+    name: str
+    width: int
+    slices: tuple[int, ...]
+    unit: str = "adder"
+    cell: str = "native"
+    carry_in: bool = False
+    carry_out: bool = True
+    valid: bool = False
+    enable: bool = False
+    reset: str = "none"
+    register_inputs: bool = False
+
+    def normalized(self) -> dict:
+        """The config as plain data with every default filled in (for headers, manifests, caches)."""
+        data = asdict(self)
+        data["slices"] = list(self.slices)
+        return data
+
+    def with_split(self, slices) -> "Config":
+        """The same unit with another split (used by what-if previews and `fit`)."""
+        return replace(self, slices=tuple(slices))
+
+
+# key -> (description of what is allowed, default or REQUIRED)
+REQUIRED = object()
+KEYS = {
+    "name": ("a Verilog identifier (letters, digits, _; not starting with a digit; "
+             f"at most {MAX_NAME} characters; not a Verilog keyword)", REQUIRED),
+    "unit": ("one of " + ", ".join(UNITS), "adder"),
+    "width": (f"an integer from 1 to {MAX_WIDTH}", REQUIRED),
+    "cell": ("one of " + ", ".join(CELLS), "native"),
+    "slice_width": ("an integer from 1 to width", None),
+    "slices": ("a list of positive integers (LSB first) that sum to width", None),
+    "carry_in": ("true or false", False),
+    "carry_out": ("true or false", True),
+    "valid": ("true or false", False),
+    "enable": ("true or false", False),
+    "reset": ("one of " + ", ".join(RESETS), "none"),
+    "register_inputs": ("true or false", False),
+}
+
+
+def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
+    shown = repr(value)
+    if len(shown) > 60:
+        shown = shown[:57] + "..."
+    return ConfigError(f"{where}: key '{key}': value {shown} is not allowed; expected {allowed}")
+
+
+def _is_int(value) -> bool:
+    return isinstance(value, int) and not isinstance(value, bool)
+
+
+def check_split(where: str, key: str, value, width: int) -> tuple[int, ...]:
+    """Validate `slice_width` (an int) or `slices` (a list) against `width`; return the split."""
+    if key == "slice_width":
+        if not _is_int(value) or not 1 <= value <= width:
+            raise _fail(where, key, value, f"an integer from 1 to width ({width})")
+        full, rest = divmod(width, value)
+        return (value,) * full + ((rest,) if rest else ())
+    if (not isinstance(value, list) or not value
+            or not all(_is_int(v) and v >= 1 for v in value)):
+        raise _fail(where, key, value, KEYS["slices"][0])
+    if sum(value) != width:
+        raise _fail(where, key, value, f"slice widths that sum to width ({width}), not {sum(value)}")
+    return tuple(value)
+
+
+def from_mapping(data, where: str = "config") -> Config:
+    """Validate a parsed config mapping and return the normalized `Config`."""
+    if not isinstance(data, dict):
+        kind = "empty" if data is None else type(data).__name__
+        raise ConfigError(f"{where}: expected a mapping of keys to values, got {kind}")
+    for key in data:
+        if not isinstance(key, str) or key not in KEYS:
+            near = difflib.get_close_matches(str(key), KEYS, n=1)
+            hint = f"; did you mean '{near[0]}'?" if near else ""
+            raise ConfigError(f"{where}: unknown key {str(key)!r}{hint} "
+                              f"(allowed keys: {', '.join(KEYS)})")
+    for key, (allowed, default) in KEYS.items():
+        if default is REQUIRED and key not in data:
+            raise ConfigError(f"{where}: key '{key}' is missing; expected {allowed}")
+    values = {key: data.get(key, default) for key, (_, default) in KEYS.items()}
+
+    name = values["name"]
+    if (not isinstance(name, str) or not _IDENT.match(name) or len(name) > MAX_NAME
+            or name in VERILOG_KEYWORDS):
+        raise _fail(where, "name", name, KEYS["name"][0])
+    width = values["width"]
+    if not _is_int(width) or not 1 <= width <= MAX_WIDTH:
+        raise _fail(where, "width", width, KEYS["width"][0])
+    for key, choices in (("unit", UNITS), ("cell", CELLS), ("reset", RESETS)):
+        if values[key] not in choices:
+            raise _fail(where, key, values[key], KEYS[key][0])
+    for key in ("carry_in", "carry_out", "valid", "enable", "register_inputs"):
+        if not isinstance(values[key], bool):
+            raise _fail(where, key, values[key], "true or false")
+    if "slice_width" in data and "slices" in data:
+        raise ConfigError(f"{where}: keys 'slice_width' and 'slices' are both given; "
+                          "expected at most one of them")
+    if "slices" in data:
+        split = check_split(where, "slices", data["slices"], width)
+    elif "slice_width" in data:
+        split = check_split(where, "slice_width", data["slice_width"], width)
+    else:
+        split = (width,)
+
+    own = {f.name for f in fields(Config)}
+    kept = {k: v for k, v in values.items() if k in own and k not in ("width", "slices")}
+    return Config(width=width, slices=split, **kept)
+
+
+class _NoAliasLoader(yaml.SafeLoader):
+    """A safe loader that refuses anchors and aliases (no alias bombs, no shared nodes)."""
+
+    def compose_node(self, parent, index):
+        if self.check_event(yaml.AliasEvent):
+            event = self.peek_event()
+            raise yaml.composer.ComposerError(None, None, "aliases are not allowed",
+                                              event.start_mark)
+        return super().compose_node(parent, index)
+
+
+def parse_text(text: str, where: str) -> Config:
+    """Parse YAML text into a validated `Config`."""
+    try:
+        data = yaml.load(text, Loader=_NoAliasLoader)  # noqa: S506 - safe loader subclass
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        at = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
+        problem = getattr(exc, "problem", None) or "invalid YAML"
+        raise ConfigError(f"{where}: not valid YAML{at}: {problem}") from None
+    return from_mapping(data, where)
+
+
+def load(path: str | Path) -> Config:
+    """Read and validate a config file."""
+    path = Path(path)
+    where = path.name
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise ConfigError(f"{where}: cannot read config: {exc.strerror or exc}") from None
+    if len(raw) > MAX_CONFIG_BYTES:
+        raise ConfigError(f"{where}: config is {len(raw)} bytes; expected at most "
+                          f"{MAX_CONFIG_BYTES}")
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError:
+        raise ConfigError(f"{where}: config is not UTF-8 text") from None
+    if "\x00" in text:
+        raise ConfigError(f"{where}: config contains NUL bytes; expected YAML text")
+    return parse_text(text, where)

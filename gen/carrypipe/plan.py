@@ -1,0 +1,156 @@
+"""The plan: everything about a pipelined unit that can be known without HDL.
+
+From a validated `Config` the plan derives the slices, the cycles each operand bit waits
+before its slice adds it (input skew) and each result bit waits after (output deskew), the
+latency, the register bits of every kind, and the unit-gate delay of every stage.  Every
+number that the Verilog header, the manifest, the report, the chart and the tests show is
+read from here.
+
+Timing.  Inputs applied before rising edge n give their results right after edge n+L-1,
+with L = S (+1 with `register_inputs`) for S slices.  Slice i adds its bits in cycle i
+(counted after the input register, if any) and registers its sum and carry at the end of it.
+
+Register bits (closed forms, S slices, slice i starting at bit lsb_i, lsb_0 = 0):
+  stage   = W + (S - 1) + [carry_out]          every sum bit once, one carry between slices
+  skew    = 2 * sum_{i=1}^{S-1} (W - lsb_i)    a and b bits above slice i wait until cycle i
+  deskew  = sum_{i=1}^{S-1} lsb_i              result bits below slice i travel with it
+  input   = [register_inputs] * (2W + [carry_in])
+  control = [valid] * L                        the valid bit, delayed like the data
+For an even split into S slices of k bits (W = S*k) this gives skew = k*S*(S-1) and
+deskew = k*S*(S-1)/2: two triangles, the skew one twice as large because both operands wait.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import cached_property
+
+from . import prefix
+from .config import PREFIX_CELLS, Config
+
+
+@dataclass(frozen=True)
+class Slice:
+    """One pipeline stage's run of bits [lsb, msb] and its adder cell."""
+
+    index: int
+    lsb: int
+    width: int
+    cell: str
+    carry_in: bool  # has a carry input: from the previous slice, or `cin` for slice 0
+    carry_out: bool  # its carry is registered: for the next slice, or as `cout`
+    wait_before: int  # cycles its operand bits wait in the skew registers
+    wait_after: int  # cycles its result bits wait in the deskew registers
+    depth: int  # logic levels of its carry network (ripple: width - 1)
+    nodes: int  # carry-operator cells in its carry network
+    delay: int  # unit-gate critical path, register to register
+
+    @property
+    def msb(self) -> int:
+        return self.lsb + self.width - 1
+
+    def network(self) -> prefix.Network:
+        """The carry network that the cell style implies (ripple and native: serial)."""
+        style = self.cell if self.cell in PREFIX_CELLS else "serial"
+        return prefix.network(style, self.width)
+
+
+@dataclass(frozen=True)
+class Registers:
+    """Register bit counts by kind."""
+
+    input: int
+    stage: int
+    skew: int
+    deskew: int
+    control: int
+
+    @property
+    def total(self) -> int:
+        return self.input + self.stage + self.skew + self.deskew + self.control
+
+    def as_dict(self) -> dict:
+        return {"input": self.input, "stage": self.stage, "skew": self.skew,
+                "deskew": self.deskew, "control": self.control, "total": self.total}
+
+
+@dataclass(frozen=True)
+class Port:
+    name: str
+    direction: str  # "input" or "output"
+    width: int
+    meaning: str
+
+
+@dataclass(frozen=True)
+class Plan:
+    config: Config
+    slices: tuple[Slice, ...]
+
+    @property
+    def width(self) -> int:
+        return self.config.width
+
+    @property
+    def input_cycles(self) -> int:
+        return 1 if self.config.register_inputs else 0
+
+    @property
+    def latency(self) -> int:
+        return len(self.slices) + self.input_cycles
+
+    @cached_property
+    def registers(self) -> Registers:
+        c, w = self.config, self.width
+        inner = self.slices[1:]
+        return Registers(
+            input=(2 * w + int(c.carry_in)) if c.register_inputs else 0,
+            stage=w + len(inner) + int(c.carry_out),
+            skew=2 * sum(w - s.lsb for s in inner),
+            deskew=sum(s.lsb for s in inner),
+            control=self.latency if c.valid else 0,
+        )
+
+    @property
+    def slowest(self) -> Slice:
+        """The stage with the longest unit-gate path (the lowest index on a tie)."""
+        return max(self.slices, key=lambda s: (s.delay, -s.index))
+
+    @cached_property
+    def ports(self) -> tuple[Port, ...]:
+        c, w = self.config, self.width
+        ports = [Port("clk", "input", 1, "clock; every register updates on its rising edge")]
+        if c.reset == "sync":
+            ports.append(Port("rst", "input", 1, "synchronous reset of the valid bits only"))
+        if c.enable:
+            ports.append(Port("en", "input", 1, "clock enable: when low every register holds"))
+        ports += [Port("a", "input", w, "first operand"), Port("b", "input", w, "second operand")]
+        if c.carry_in:
+            ports.append(Port("cin", "input", 1, "carry into bit 0"))
+        if c.valid:
+            ports.append(Port("in_valid", "input", 1, "marks a, b as valid"))
+        ports.append(Port("sum", "output", w, f"(a + b{' + cin' if c.carry_in else ''}) mod 2^{w}"))
+        if c.carry_out:
+            ports.append(Port("cout", "output", 1, "carry out of the top bit"))
+        if c.valid:
+            ports.append(Port("out_valid", "output", 1, "in_valid, delayed by the latency"))
+        return tuple(ports)
+
+
+def make_plan(config: Config) -> Plan:
+    """Derive the plan of a validated config."""
+    count = len(config.slices)
+    slices, lsb = [], 0
+    for index, width in enumerate(config.slices):
+        carry_in = index > 0 or config.carry_in
+        carry_out = index < count - 1 or config.carry_out
+        style = config.cell if config.cell in PREFIX_CELLS else "serial"
+        net = prefix.network(style, width)
+        slices.append(Slice(
+            index=index, lsb=lsb, width=width, cell=config.cell,
+            carry_in=carry_in, carry_out=carry_out,
+            wait_before=index, wait_after=count - 1 - index,
+            depth=net.depth, nodes=net.nodes,
+            delay=prefix.critical_path(net, carry_in, carry_out)))
+        lsb += width
+    return Plan(config=config, slices=tuple(slices))

@@ -1,0 +1,174 @@
+"""Run vectors through a unit and compare every result with Python integers.
+
+Two simulators share one protocol (the one the emitted testbench follows): `amaranth` runs
+the Amaranth design in Python; `icarus` compiles the emitted Verilog with the emitted
+testbench.  Each returns a `Result`; a mismatch names the vector, cycle, inputs, expected
+and actual values.
+"""
+
+from __future__ import annotations
+
+import re
+import shutil
+import subprocess
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+from .plan import Plan
+from .vectors import Vector, expected
+
+SIMULATORS = ("amaranth", "icarus")
+
+
+class ToolMissing(RuntimeError):
+    """A simulator or tool the user asked for is not installed (message says how to get it)."""
+
+
+@dataclass(frozen=True)
+class Result:
+    passed: bool
+    vectors: int
+    simulator: str
+    message: str  # PASS ... or FAIL ... (one line)
+
+
+def default_simulator() -> str:
+    return "icarus" if shutil.which("iverilog") and shutil.which("vvp") else "amaranth"
+
+
+def run(plan: Plan, vecs: list[Vector], simulator: str, timeout: float | None = None,
+        unit=None) -> Result:
+    """Simulate `vecs` on the unit with `simulator`."""
+    if simulator == "amaranth":
+        return run_amaranth(plan, vecs, unit=unit)
+    if simulator == "icarus":
+        return run_icarus(plan, vecs, timeout=timeout)
+    raise ValueError(simulator)
+
+
+def _mismatch(plan: Plan, k: int, cycle: int, v: Vector, got: tuple) -> str:
+    s, cout = expected(plan, v)
+    return (f"FAIL vector {k} (cycle {cycle}): a={v.a:x} b={v.b:x} cin={v.cin} expected "
+            f"sum={s:x} cout={cout} valid={v.valid} got sum={got[0]:x} cout={got[1]} "
+            f"valid={got[2]}")
+
+
+def run_amaranth(plan: Plan, vecs: list[Vector], unit=None) -> Result:
+    """Simulate the Amaranth design itself (always available)."""
+    from amaranth.sim import Simulator
+
+    from .unit import PipelinedAdder, clock_domain
+
+    top = unit if unit is not None else PipelinedAdder(plan)
+    c, lat = plan.config, plan.latency
+    mask = (1 << plan.width) - 1
+    outcome = {}
+
+    async def bench(ctx):
+        if c.reset == "sync":
+            ctx.set(top_rst, 1)  # tick() refuses to wait while the domain is in reset
+            for _ in range(2):
+                await ctx.posedge(cd.clk)
+            ctx.set(top_rst, 0)
+        taken, nxt, cycle, gap_done = 0, 0, 0, False
+        while True:
+            en = 1
+            if nxt < len(vecs):
+                v = vecs[nxt]
+                a, b, cin, valid = v.a, v.b, v.cin, v.valid
+                if v.gap and not gap_done:
+                    a, b, cin, valid, en, gap_done = a ^ mask, b ^ mask, cin ^ 1, valid ^ 1, 0, True
+                else:
+                    gap_done = False
+            else:
+                a = b = cin = valid = 0
+            ctx.set(top.a, a)
+            ctx.set(top.b, b)
+            if top.cin is not None:
+                ctx.set(top.cin, cin)
+            if top.in_valid is not None:
+                ctx.set(top.in_valid, valid)
+            if top.en is not None:
+                ctx.set(top.en, en)
+            await ctx.tick()
+            cycle += 1
+            if en:
+                taken += 1
+                nxt = min(nxt + 1, len(vecs))
+            if taken >= lat:
+                k = taken - lat
+                if k >= len(vecs):
+                    outcome["msg"] = f"PASS {len(vecs)} vectors, latency {lat}"
+                    return
+                got = (ctx.get(top.sum),
+                       ctx.get(top.cout) if top.cout is not None else 0,
+                       ctx.get(top.out_valid) if top.out_valid is not None else 1)
+                s, cout = expected(plan, vecs[k])
+                want = (s, cout if top.cout is not None else 0, vecs[k].valid if c.valid else 1)
+                if got != want:
+                    outcome["msg"] = _mismatch(plan, k, cycle, vecs[k], got)
+                    return
+            elif c.reset == "sync" and c.valid and ctx.get(top.out_valid) != 0:
+                outcome["msg"] = f"FAIL cycle {cycle}: out_valid=1 before the first result after reset"
+                return
+
+    from amaranth.hdl import Module
+
+    harness = Module()
+    harness.domains.sync = cd = clock_domain(plan)("sync")
+    harness.submodules.unit = top
+    top_rst = cd.rst
+    sim = Simulator(harness)
+    sim.add_clock(1e-8)
+    sim.add_testbench(bench)
+    sim.run()
+    msg = outcome.get("msg", "FAIL simulation ended without a verdict")
+    return Result(msg.startswith("PASS"), len(vecs), "amaranth", msg)
+
+
+def run_icarus(plan: Plan, vecs: list[Vector], timeout: float | None = None,
+               workdir: str | Path | None = None) -> Result:
+    """Compile the emitted unit and testbench with Icarus Verilog and run them."""
+    from . import emit
+    from .testbench import testbench, vector_file
+    from .vectors import hex_lines
+
+    if not (shutil.which("iverilog") and shutil.which("vvp")):
+        raise ToolMissing("Icarus Verilog (iverilog, vvp) is not on PATH; install it "
+                          "(Debian/Ubuntu: apt-get install iverilog) or use --sim amaranth")
+    name = plan.config.name
+    with tempfile.TemporaryDirectory(prefix="carrypipe-") as tmp:
+        work = Path(workdir or tmp)
+        files = {f"{name}.v": emit.unit_verilog(plan),
+                 f"{name}_tb.v": testbench(plan, len(vecs)),
+                 vector_file(plan): hex_lines(plan, vecs)}
+        for fname, text in files.items():
+            (work / fname).write_text(text)
+        out = _tool(["iverilog", "-g2005", "-o", f"{name}_tb.vvp", f"{name}.v", f"{name}_tb.v"],
+                    work, timeout)
+        if out.returncode != 0:
+            raise RuntimeError(f"iverilog failed: {out.stdout.strip()} {out.stderr.strip()}")
+        out = _tool(["vvp", "-n", f"{name}_tb.vvp"], work, timeout)
+    return _result(out, len(vecs), "icarus")
+
+
+def _tool(cmd: list[str], cwd: Path, timeout: float | None) -> subprocess.CompletedProcess:
+    try:
+        return subprocess.run(cmd, cwd=cwd, capture_output=True, text=True, timeout=timeout)
+    except subprocess.TimeoutExpired:
+        raise ToolMissing(f"{cmd[0]} did not finish within {timeout:g} s (--timeout)") from None
+
+
+_VERDICT = re.compile(r"^(PASS|FAIL)\b.*$", re.M)
+
+
+def _result(out: subprocess.CompletedProcess, count: int, simulator: str) -> Result:
+    """Read the testbench's verdict line (the last PASS/FAIL line it printed)."""
+    found = [m.group(0) for m in _VERDICT.finditer(out.stdout)]
+    if not found:
+        tail = (out.stdout + out.stderr).strip().splitlines()[-3:]
+        return Result(False, count, simulator, "FAIL no verdict from the testbench: "
+                      + " | ".join(tail))
+    return Result(found[-1].startswith("PASS") and out.returncode == 0, count, simulator,
+                  found[-1])

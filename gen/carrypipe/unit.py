@@ -1,0 +1,100 @@
+"""The pipelined unit as Amaranth hardware, built from a plan and nothing else.
+
+Registers, with the names they carry into the Verilog:
+  a_in, b_in, cin_in   input register (with `register_inputs`)
+  a_skew_i, b_skew_i   operand bits of slices i..S-1, waiting for slice i (shrinking words)
+  sum_stage_i          the sum bits of slice i;  carry_stage_i  its carry-out
+  sum_deskew_i         finished result bits below slice i, travelling on (growing words)
+  valid_i              the valid bit after i cycles (the only registers with a reset)
+Data registers are reset-less so that synthesis may pack the delay lines into shift-register
+LUTs; with `enable` every register of the unit holds while `en` is low.
+"""
+
+from __future__ import annotations
+
+from amaranth.hdl import Cat, ClockDomain, Elaboratable, EnableInserter, Module, Signal
+
+from . import cells
+from .plan import Plan
+
+
+class PipelinedAdder(Elaboratable):
+    """{cout, sum} = a + b (+ cin), S slices, one result per clock after `plan.latency`."""
+
+    def __init__(self, plan: Plan):
+        self.plan = plan
+        c, w = plan.config, plan.width
+        self.a = Signal(w, name="a")
+        self.b = Signal(w, name="b")
+        self.sum = Signal(w, name="sum")
+        self.cin = Signal(name="cin") if c.carry_in else None
+        self.cout = Signal(name="cout") if c.carry_out else None
+        self.en = Signal(name="en") if c.enable else None
+        self.in_valid = Signal(name="in_valid") if c.valid else None
+        self.out_valid = Signal(name="out_valid") if c.valid else None
+
+    def ports(self) -> list[Signal]:
+        """The top-level signals, in the plan's port order (clk and rst come from the domain)."""
+        named = {p.name: p for p in self.plan.ports}
+        return [getattr(self, n) for n in named if n not in ("clk", "rst")]
+
+    def elaborate(self, platform):
+        m = Module()
+        plan, c = self.plan, self.plan.config
+
+        def reg(width, name):
+            return Signal(width, name=name, reset_less=True)
+
+        a, b, cin = self.a, self.b, self.cin
+        if c.register_inputs:
+            a_in, b_in = reg(plan.width, "a_in"), reg(plan.width, "b_in")
+            m.d.sync += [a_in.eq(a), b_in.eq(b)]
+            a, b = a_in, b_in
+            if cin is not None:
+                cin_in = reg(1, "cin_in")
+                m.d.sync += cin_in.eq(cin)
+                cin = cin_in
+
+        a_wait, b_wait = a, b  # operand bits of slices i.. as seen in cycle i
+        carry = cin
+        done = []  # finished result bits below slice i, registered
+        last = len(plan.slices) - 1
+        for s in plan.slices:
+            i = s.index
+            total, cout = cells.build(m, s.cell, a_wait[:s.width], b_wait[:s.width], carry,
+                                      f"slice{i}", s.network())
+            sum_stage = reg(s.width, f"sum_stage_{i}")
+            m.d.sync += sum_stage.eq(total)
+            carry = None
+            if s.carry_out:
+                carry = reg(1, f"carry_stage_{i}")
+                m.d.sync += carry.eq(cout)
+            if i < last:
+                rest = plan.width - s.lsb - s.width
+                a_next, b_next = reg(rest, f"a_skew_{i + 1}"), reg(rest, f"b_skew_{i + 1}")
+                m.d.sync += [a_next.eq(a_wait[s.width:]), b_next.eq(b_wait[s.width:])]
+                a_wait, b_wait = a_next, b_next
+                deskew = reg(s.lsb + s.width, f"sum_deskew_{i + 1}")
+                m.d.sync += deskew.eq(Cat(*done, sum_stage))
+                done = [deskew]
+            else:
+                m.d.comb += self.sum.eq(Cat(*done, sum_stage))
+                if self.cout is not None:
+                    m.d.comb += self.cout.eq(carry)
+
+        if c.valid:
+            valid = self.in_valid
+            for k in range(plan.latency):
+                nxt = Signal(name=f"valid_{k + 1}")
+                m.d.sync += nxt.eq(valid)
+                valid = nxt
+            m.d.comb += self.out_valid.eq(valid)
+
+        if self.en is not None:
+            m = EnableInserter({"sync": self.en})(m)
+        return m
+
+
+def clock_domain(plan: Plan):
+    """The `sync` domain the unit runs in: with a reset only when the config asks for one."""
+    return lambda name: ClockDomain(name, reset_less=plan.config.reset == "none")
