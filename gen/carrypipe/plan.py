@@ -75,6 +75,22 @@ class Registers:
 
 
 @dataclass(frozen=True)
+class Word:
+    """One register word of the unit, as named in the Verilog.
+
+    `lsb` is the operand/result bit position of the word's bit 0 (a carry sits at the bit
+    above its slice), and `edge` the rising edge that loads it, counted from 1 for the first
+    edge after the inputs are applied.  Charts and register counts are drawn from these.
+    """
+
+    kind: str  # input, stage, skew, deskew or control
+    name: str
+    lsb: int
+    width: int
+    edge: int
+
+
+@dataclass(frozen=True)
 class Port:
     name: str
     direction: str  # "input" or "output"
@@ -110,6 +126,28 @@ class Plan:
             deskew=sum(s.lsb for s in inner),
             control=self.latency if c.valid else 0,
         )
+
+    @cached_property
+    def words(self) -> tuple[Word, ...]:
+        """Every register word, by the edge that loads it (see the module docstring)."""
+        c, w, first = self.config, self.width, self.input_cycles
+        words = []
+        if c.register_inputs:
+            words += [Word("input", "a_in", 0, w, 1), Word("input", "b_in", 0, w, 1)]
+            if c.carry_in:
+                words.append(Word("input", "cin_in", 0, 1, 1))
+        for s in self.slices:
+            edge = first + s.index + 1
+            words.append(Word("stage", f"sum_stage_{s.index}", s.lsb, s.width, edge))
+            if s.carry_out:
+                words.append(Word("stage", f"carry_stage_{s.index}", s.lsb + s.width, 1, edge))
+            if s.index > 0:
+                words += [Word("skew", f"{op}_skew_{s.index}", s.lsb, w - s.lsb, edge - 1)
+                          for op in ("a", "b")]
+                words.append(Word("deskew", f"sum_deskew_{s.index}", 0, s.lsb, edge))
+        if c.valid:
+            words += [Word("control", f"valid_{k}", 0, 1, k) for k in range(1, self.latency + 1)]
+        return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.name)))
 
     @property
     def slowest(self) -> Slice:
