@@ -34,6 +34,8 @@ def load_plan(config_path: str, slice_width=None, slices=None):
             raise ConfigError("options --slice-width and --slices are both given; "
                               "expected at most one of them")
         if slice_width is not None:
+            if isinstance(slice_width, str):  # from the command line: reported as given
+                slice_width = int(slice_width) if slice_width.strip().isdigit() else slice_width
             cfg = cfg.with_split(check_split("--slice-width", "slice_width", slice_width,
                                              cfg.width))
         elif slices is not None:
@@ -111,11 +113,26 @@ def check(config, vectors, seed, simulator, timeout):
 
 @main.command("plan")
 @config_arg
-@click.option("--slice-width", type=int, help="What-if: this slice width instead of the config's.")
+@click.option("--slice-width", help="What-if: this slice width instead of the config's.")
 @click.option("--slices", help="What-if: this LSB-first list of slice widths, e.g. 24,20,20.")
-def plan_cmd(config, slice_width, slices):
+@click.option("--chart", "chart_path", metavar="FILE.svg",
+              help="Also draw the stage chart into this SVG file (its folder is created).")
+def plan_cmd(config, slice_width, slices, chart_path):
     """Print the plan (slices, latency, register bits, stage delays) without building."""
+    from . import chart
     from .report import report
 
     plan = load_plan(config, slice_width, slices)
+    if chart_path is not None:
+        dest = Path(chart_path)
+        if dest.suffix.lower() != ".svg" or dest.is_dir():
+            raise UserError(f"--chart: value {chart_path!r} is not allowed; expected the "
+                            "name of an SVG file ending in .svg (not a folder)")
+        try:
+            emit.write({dest.name: chart.svg(plan)}, dest.parent)
+        except OSError as exc:
+            raise UserError(f"cannot write the chart {chart_path}: "
+                            f"{exc.strerror or exc}") from None
     click.echo(report(plan), nl=False)
+    if chart_path is not None:
+        click.echo(f"Chart: {chart_path}")

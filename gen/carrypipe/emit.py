@@ -12,7 +12,7 @@ from pathlib import Path
 
 from amaranth.back import verilog
 
-from . import report
+from . import chart, report
 from .plan import Plan
 from .testbench import testbench, vector_file
 from .unit import PipelinedAdder, clock_domain
@@ -41,6 +41,7 @@ def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
         f"{name}_tb.v": testbench(plan, len(vecs)),
         vector_file(plan): hex_lines(plan, vecs),
         f"{name}.txt": report.report(plan),
+        f"{name}_chart.svg": chart.svg(plan),
     }
     files.update(extra or {})
     manifest_name = f"{name}.json"

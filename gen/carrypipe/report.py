@@ -96,7 +96,7 @@ def report(plan: Plan) -> str:
         f"{'delay':>5}  {'waits':>9}",
     ]
     for s in plan.slices:
-        mark = "  <- slowest" if s is slow and len(plan.slices) > 1 else ""
+        mark = "  <- slowest" if s.delay == slow.delay and len(delays) > 1 else ""
         lines.append(f"  {s.index:>5}  {slice_range(s):>13}  {s.width:>5}  {s.depth:>6}  "
                      f"{s.nodes:>6}  {s.delay:>5}  {s.wait_before:>3} / {s.wait_after:<3}{mark}")
     lines += ["  (waits: cycles the operand bits wait before the slice / the result bits after)",
