@@ -13,11 +13,16 @@ from pathlib import Path
 
 import yaml
 
+from . import prefix
+
 MAX_WIDTH = 4096
 UNITS = ("adder",)
 PREFIX_CELLS = ("kogge-stone", "brent-kung", "sklansky", "han-carlson", "ladner-fischer")
 CELLS = ("ripple", "native") + PREFIX_CELLS
 RESETS = ("none", "sync")
+PIPELINES = ("slices", "levels", "blocks")
+PREFIX_PIPELINES = ("levels", "blocks")  # modes pipelined by prefix levels, not by slices
+MAX_LEVELS_PER_STAGE = 64
 MAX_CONFIG_BYTES = 1 << 20
 
 # Verilog-2005 and SystemVerilog-2017 reserved words: a module may not be named after one.
@@ -69,11 +74,25 @@ class Config:
     enable: bool = False
     reset: str = "none"
     register_inputs: bool = False
+    pipeline: str = "slices"
+    levels_per_stage: int = 1
+    block_width: int = 16
+    wire_registers: int = 0
 
     def normalized(self) -> dict:
-        """The config as plain data with every default filled in (for headers, manifests, caches)."""
+        """The config as plain data with every default filled in (for headers, manifests, caches).
+
+        Keys that the unit's pipeline mode does not read are left out, and a `slices` unit
+        leaves out `pipeline` too, so configs written before the prefix modes existed keep
+        their exact normalized form.
+        """
         data = asdict(self)
         data["slices"] = list(self.slices)
+        for key, modes in MODE_KEYS.items():
+            if self.pipeline not in modes:
+                del data[key]
+        if self.pipeline == "slices":
+            del data["pipeline"]
         return data
 
     def with_split(self, slices) -> "Config":
@@ -97,6 +116,16 @@ KEYS = {
     "enable": ("true or false", False),
     "reset": ("one of " + ", ".join(RESETS), "none"),
     "register_inputs": ("true or false", False),
+    "pipeline": ("one of " + ", ".join(PIPELINES), "slices"),
+    "levels_per_stage": (f"an integer from 1 to {MAX_LEVELS_PER_STAGE}", 1),
+    "block_width": ("an integer from 1 to width", 16),
+    "wire_registers": ("an integer from 0 to the prefix network's depth", 0),
+}
+# Keys that only the prefix pipeline modes read, and the modes that read each.
+MODE_KEYS = {
+    "levels_per_stage": PREFIX_PIPELINES,
+    "block_width": ("blocks",),
+    "wire_registers": PREFIX_PIPELINES,
 }
 
 
@@ -165,9 +194,47 @@ def from_mapping(data, where: str = "config") -> Config:
     else:
         split = (width,)
 
+    check_mode(where, data, values)
     own = {f.name for f in fields(Config)}
     kept = {k: v for k, v in values.items() if k in own and k not in ("width", "slices")}
     return Config(width=width, slices=split, **kept)
+
+
+def prefix_positions(width: int, pipeline: str, block_width: int) -> int:
+    """How many positions the prefix network of a prefix pipeline mode spans: bits or blocks."""
+    return width if pipeline == "levels" else -(-width // block_width)
+
+
+def check_mode(where: str, data: dict, values: dict) -> None:
+    """Validate `pipeline` and the keys of the prefix modes, alone and in combination."""
+    mode = values["pipeline"]
+    if mode not in PIPELINES:
+        raise _fail(where, "pipeline", mode, KEYS["pipeline"][0])
+    for key, modes in MODE_KEYS.items():
+        if key in data and mode not in modes:
+            raise ConfigError(f"{where}: key '{key}' is given with pipeline {mode!r}; expected "
+                              f"it only with pipeline {' or '.join(map(repr, modes))}")
+    if mode == "slices":
+        return
+    for key in ("slice_width", "slices"):
+        if key in data:
+            raise ConfigError(f"{where}: keys '{key}' and 'pipeline' ({mode!r}) are both given; "
+                              f"expected '{key}' only with pipeline 'slices'")
+    if values["cell"] not in PREFIX_CELLS:
+        raise ConfigError(f"{where}: key 'cell': value {values['cell']!r} is not allowed with "
+                          f"key 'pipeline' {mode!r}; expected one of {', '.join(PREFIX_CELLS)}")
+    lps = values["levels_per_stage"]
+    if not _is_int(lps) or not 1 <= lps <= MAX_LEVELS_PER_STAGE:
+        raise _fail(where, "levels_per_stage", lps, KEYS["levels_per_stage"][0])
+    block = values["block_width"]
+    if mode == "blocks" and (not _is_int(block) or not 1 <= block <= values["width"]):
+        raise _fail(where, "block_width", block, f"an integer from 1 to width ({values['width']})")
+    wires = values["wire_registers"]
+    depth = prefix.network(values["cell"],
+                           prefix_positions(values["width"], mode, block)).depth
+    if not _is_int(wires) or not 0 <= wires <= depth:
+        raise _fail(where, "wire_registers", wires,
+                    f"an integer from 0 to the depth of the {values['cell']} network ({depth})")
 
 
 class _NoAliasLoader(yaml.SafeLoader):

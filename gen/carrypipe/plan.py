@@ -18,6 +18,10 @@ Register bits (closed forms, S slices, slice i starting at bit lsb_i, lsb_0 = 0)
   control = [valid] * L                        the valid bit, delayed like the data
 For an even split into S slices of k bits (W = S*k) this gives skew = k*S*(S-1) and
 deskew = k*S*(S-1)/2: two triangles, the skew one twice as large because both operands wait.
+
+The prefix modes (`pipeline: levels` or `blocks`) are planned by `schedule.py` instead: a
+`PrefixPlan` whose stages each span every bit, so L = (stages) (+1 with `register_inputs`),
+and whose register bits are exact counts from the pruned schedule (see there).
 """
 
 from __future__ import annotations
@@ -25,7 +29,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
-from . import prefix
+from . import prefix, schedule
 from .config import PREFIX_CELLS, Config
 
 
@@ -64,13 +68,21 @@ class Registers:
     skew: int
     deskew: int
     control: int
+    # Prefix modes only (None otherwise): group terms and the bit g/p feeding them, result
+    # bits on their way to the output (block sums, finished sum bits), wire-register copies.
+    prefix: int | None = None
+    result: int | None = None
+    wire: int | None = None
 
     @property
     def total(self) -> int:
-        return self.input + self.stage + self.skew + self.deskew + self.control
+        return (self.input + self.stage + self.skew + self.deskew + self.control
+                + (self.prefix or 0) + (self.result or 0) + (self.wire or 0))
 
     def as_dict(self) -> dict:
-        return {"input": self.input, "stage": self.stage, "skew": self.skew,
+        extra = {k: v for k, v in (("prefix", self.prefix), ("result", self.result),
+                                   ("wire", self.wire)) if v is not None}
+        return {"input": self.input, "stage": self.stage, **extra, "skew": self.skew,
                 "deskew": self.deskew, "control": self.control, "total": self.total}
 
 
@@ -83,7 +95,7 @@ class Word:
     edge after the inputs are applied.  Charts and register counts are drawn from these.
     """
 
-    kind: str  # input, stage, skew, deskew or control
+    kind: str  # input, stage, skew, deskew, control; prefix modes: prefix, result, wire
     name: str
     lsb: int
     width: int
@@ -130,12 +142,8 @@ class Plan:
     @cached_property
     def words(self) -> tuple[Word, ...]:
         """Every register word, by the edge that loads it (see the module docstring)."""
-        c, w, first = self.config, self.width, self.input_cycles
-        words = []
-        if c.register_inputs:
-            words += [Word("input", "a_in", 0, w, 1), Word("input", "b_in", 0, w, 1)]
-            if c.carry_in:
-                words.append(Word("input", "cin_in", 0, 1, 1))
+        w, first = self.width, self.input_cycles
+        words = list(self.io_words())
         for s in self.slices:
             edge = first + s.index + 1
             words.append(Word("stage", f"sum_stage_{s.index}", s.lsb, s.width, edge))
@@ -145,9 +153,19 @@ class Plan:
                 words += [Word("skew", f"{op}_skew_{s.index}", s.lsb, w - s.lsb, edge - 1)
                           for op in ("a", "b")]
                 words.append(Word("deskew", f"sum_deskew_{s.index}", 0, s.lsb, edge))
+        return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.name)))
+
+    def io_words(self) -> list[Word]:
+        """The input-register and valid-chain words, the same in every pipeline mode."""
+        c, w = self.config, self.width
+        words = []
+        if c.register_inputs:
+            words += [Word("input", "a_in", 0, w, 1), Word("input", "b_in", 0, w, 1)]
+            if c.carry_in:
+                words.append(Word("input", "cin_in", 0, 1, 1))
         if c.valid:
             words += [Word("control", f"valid_{k}", 0, 1, k) for k in range(1, self.latency + 1)]
-        return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.name)))
+        return words
 
     @property
     def slowest(self) -> Slice:
@@ -175,8 +193,94 @@ class Plan:
         return tuple(ports)
 
 
+@dataclass(frozen=True)
+class Stage:
+    """One stage of a prefix-mode pipeline: it spans every bit and evaluates some prefix levels.
+
+    It offers the attributes of `Slice` that reports and manifests read (lsb, width, cell,
+    depth, nodes, delay, waits: none, since all bits advance together).
+    """
+
+    index: int  # 0-based, like slices
+    lsb: int
+    width: int
+    cell: str
+    levels: tuple[int, ...]  # prefix levels evaluated here (1-based, as in the report)
+    depth: int  # prefix levels evaluated here
+    nodes: int  # prefix nodes of those levels (before pruning)
+    delay: int  # unit-gate critical path, register to register
+    logic: str
+    wait_before: int = 0
+    wait_after: int = 0
+
+    @property
+    def msb(self) -> int:
+        return self.lsb + self.width - 1
+
+
+# Register kind of every schedule term kind.
+TERM_KIND = {**{k: "prefix" for k in schedule.PREFIX_KINDS},
+             **{k: "result" for k in schedule.RESULT_KINDS}}
+
+
+@dataclass(frozen=True)
+class PrefixPlan(Plan):
+    """The plan of a `levels` or `blocks` unit; `slices` holds its stages (see `Stage`)."""
+
+    schedule: schedule.Schedule | None = None
+
+    @property
+    def stages(self) -> tuple[Stage, ...]:
+        return self.slices
+
+    @cached_property
+    def registers(self) -> Registers:
+        words = self.words
+        bits = {kind: sum(x.width for x in words if x.kind == kind)
+                for kind in ("input", "stage", "prefix", "result", "wire", "control")}
+        return Registers(skew=0, deskew=0, **bits)
+
+    @cached_property
+    def words(self) -> tuple[Word, ...]:
+        """Every register word: per rank, each kind's terms in runs of adjacent bits.
+
+        A word is named `<term kind>_<rank>_<first position>` (rank r is loaded at the end of
+        stage r, 1-based; a position is a bit in `levels`, a block in `blocks`); the last rank
+        is the output register, `sum_stage` and `carry_stage`.
+        """
+        c, w, first, sch = self.config, self.width, self.input_cycles, self.schedule
+        words = self.io_words()
+        for rank in range(1, sch.final):
+            runs: dict[str, list[list]] = {}
+            for t in sorted(sch.crossing(rank), key=lambda t: (t.kind, t.lsb)):
+                kind_runs = runs.setdefault(t.kind, [])
+                if kind_runs and kind_runs[-1][0] + kind_runs[-1][1] == t.lsb:
+                    kind_runs[-1][1] += t.width
+                else:
+                    kind_runs.append([t.lsb, t.width, t.pos])
+            for kind, found in runs.items():
+                words += [Word(TERM_KIND.get(kind, "wire"), f"{kind}_{rank}_{pos}", lsb, width,
+                               first + rank) for lsb, width, pos in found]
+        words.append(Word("stage", "sum_stage", 0, w, first + sch.final))
+        if c.carry_out:
+            words.append(Word("stage", "carry_stage", w, 1, first + sch.final))
+        return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.lsb, x.name)))
+
+
+def make_prefix_plan(config: Config) -> PrefixPlan:
+    """The plan of a `levels` or `blocks` config, from its pruned schedule."""
+    sch = schedule.make_schedule(config)
+    stages = tuple(Stage(index=st.index - 1, lsb=0, width=config.width, cell=config.cell,
+                         levels=tuple(k + 1 for k in st.levels), depth=len(st.levels),
+                         nodes=st.nodes, delay=st.delay, logic=st.logic)
+                   for st in sch.stages)
+    return PrefixPlan(config=config, slices=stages, schedule=sch)
+
+
 def make_plan(config: Config) -> Plan:
     """Derive the plan of a validated config."""
+    if config.pipeline != "slices":
+        return make_prefix_plan(config)
     count = len(config.slices)
     slices, lsb = [], 0
     for index, width in enumerate(config.slices):

@@ -1,5 +1,8 @@
 """The pipelined unit as Amaranth hardware, built from a plan and nothing else.
 
+This module builds the `slices` structure; the prefix modes (`levels`, `blocks`) share its
+ports, input register, valid chain and enable, and take their stages from `leveled.py`.
+
 Registers, with the names they carry into the Verilog:
   a_in, b_in, cin_in   input register (with `register_inputs`)
   a_skew_i, b_skew_i   operand bits of slices i..S-1, waiting for slice i (shrinking words)
@@ -14,7 +17,7 @@ from __future__ import annotations
 
 from amaranth.hdl import Cat, ClockDomain, Elaboratable, EnableInserter, Module, Signal
 
-from . import cells
+from . import cells, leveled
 from .plan import Plan
 
 
@@ -55,11 +58,13 @@ class PipelinedAdder(Elaboratable):
                 m.d.sync += cin_in.eq(cin)
                 cin = cin_in
 
+        if c.pipeline != "slices":  # prefix levels or blocks: no slices, see `leveled`
+            leveled.build(m, plan, a, b, cin, self.sum, self.cout)
         a_wait, b_wait = a, b  # operand bits of slices i.. as seen in cycle i
         carry = cin
         done = []  # finished result bits below slice i, registered
         last = len(plan.slices) - 1
-        for s in plan.slices:
+        for s in plan.slices if c.pipeline == "slices" else ():
             i = s.index
             total, cout = cells.build(m, s.cell, a_wait[:s.width], b_wait[:s.width], carry,
                                       f"slice{i}", s.network())

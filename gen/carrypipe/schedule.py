@@ -1,0 +1,254 @@
+"""Pipeline schedules for the prefix modes: which term is computed in which stage, and which
+terms cross which register rank.
+
+Both prefix modes are one prefix network over "positions" with a register rank after every
+stage; all positions advance together, so there are no skew or deskew triangles.
+
+- `levels`: a position is one bit.  Stage 1 forms the bit generate g_i = a_i & b_i and
+  propagate p_i = a_i ^ b_i (a carry-in is folded into g_0) and evaluates the first
+  `levels_per_stage` prefix levels; every later stage evaluates the next `levels_per_stage`
+  levels; the last stage forms s_i = p_i ^ G_(i-1).  When the network ends with a fill-in
+  level (every node (i, i-1): Brent-Kung, Han-Carlson, Ladner-Fischer), that level moves into
+  the sum stage: s_(i+1) = p_(i+1) ^ (G_i | P_i & G_(i-1)) has four inputs, so in a 4-input
+  LUT fabric it costs no extra logic level and saves a cycle.
+- `blocks`: a position is a block of `block_width` bits.  Stage 1 runs each block's two carry
+  chains: its sum for carry-in 0 and for carry-in 1 (block 0 takes `cin` instead and needs
+  only one).  Their carry-outs (c0, c1) are the block's group terms; the prefix operator on
+  them is c0 <- c0_i | c1_i & c0_j, c1 <- c0_i | c1_i & c1_j (carry-select form).  The
+  network over the blocks follows, `levels_per_stage` levels per stage, and the last stage
+  selects each block's sum by its carry-in.
+
+A finished result does not wait for the last stage: a sum bit (or block select) is formed in
+the stage after its carry-in is final, in parallel with that stage's prefix logic, and then
+travels on as one bit (or one block sum) instead of its inputs.  `wire_registers: n` puts a
+logic-free stage in front of the n prefix levels with the longest span; there the far
+operand of every node gets its own register (one per reading node), which placement can put
+half-way along the long wire.
+
+Every term knows the stage that computes it and the last stage that reads it (the output
+register counts as stage final + 1); terms no output needs are pruned, so a propagate term
+travels only up to its last use and complete groups drop their propagate.  A term computed
+in stage s and last read in stage t sits in the register ranks s .. t-1: register counts
+are exact counts from this pruned schedule.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from . import prefix
+from .config import Config, prefix_positions
+
+# Register kind of each term kind (see `Plan.registers`).
+PREFIX_KINDS = ("gen", "prop", "grp_gen", "grp_prop", "blk_c0", "blk_c1", "grp_c0", "grp_c1")
+RESULT_KINDS = ("sum", "blk_s0", "blk_s1")
+
+# Unit-gate delay of each operation (the model of `prefix.Gates`; a 2:1 select is an AND-OR).
+OP_DELAY = {"gen": 1, "prop": 2, "gen_cin": 4, "dot_g": 2, "dot_p": 1,
+            "wire": 0, "xor": 2, "xor_cin": 4, "select": 2}
+
+
+@dataclass(frozen=True)
+class Term:
+    """One value of the schedule: a bit, or a block's sum bits."""
+
+    index: int
+    kind: str
+    pos: int  # the prefix position (bit or block) it belongs to
+    lsb: int  # operand bit of its bit 0; group terms sit at the bit above their position
+    width: int
+    op: str  # how it is formed, from `args` (see `leveled.py`)
+    args: tuple[int, ...]
+    stage: int  # the stage whose logic forms it
+
+
+@dataclass(frozen=True)
+class StageInfo:
+    """What one stage of a prefix-mode pipeline evaluates."""
+
+    index: int  # 1-based
+    levels: tuple[int, ...]  # prefix levels (0-based) evaluated in it
+    nodes: int  # prefix nodes of those levels
+    delay: int  # unit-gate critical path, register to register
+    logic: str  # a short description
+
+
+@dataclass(frozen=True)
+class Schedule:
+    mode: str
+    network: prefix.Network
+    widths: tuple[int, ...]  # bits per position
+    lsbs: tuple[int, ...]
+    final: int  # the stage that forms the last results (the latency without input register)
+    merged: bool  # the fill-in level was moved into the sum stage
+    wired: tuple[int, ...]  # prefix levels with a wire rank in front
+    terms: tuple[Term, ...]
+    last: dict  # term index -> last stage reading it, for the terms that are kept
+    sums: tuple[int, ...]  # per position: the term holding its result bits
+    cout: int | None  # the term holding the carry-out
+    stages: tuple[StageInfo, ...]
+
+    def kept(self) -> list[Term]:
+        return [t for t in self.terms if t.index in self.last]
+
+    def crossing(self, rank: int) -> list[Term]:
+        """The terms held in register rank `rank` (loaded at the end of stage `rank`)."""
+        return [t for t in self.kept() if t.stage <= rank < self.last[t.index]]
+
+    def bits(self, kinds) -> int:
+        """Register bits of the inner ranks (before the output rank) holding these term kinds."""
+        return sum((min(self.last[t.index], self.final) - t.stage) * t.width
+                   for t in self.kept() if t.kind in kinds and t.stage < self.final)
+
+
+def _span(level) -> int:
+    return max(i - j for i, j in level)
+
+
+def _assign_stages(mode: str, net: prefix.Network, per_stage: int, wires: int):
+    """Stage of every prefix level, the stage before each wired level, and the final stage."""
+    depth = net.depth
+    by_span = sorted(range(depth), key=lambda k: (-_span(net.levels[k]), -k))
+    wired = frozenset(by_span[:wires])
+    merged = (mode == "levels" and depth > 0 and depth - 1 not in wired
+              and all(i - j == 1 for i, j in net.levels[-1]))
+    # Stage 1 always has logic: the bit generate/propagate (levels) or the chains (blocks).
+    stage, used = 1, (0 if mode == "levels" else per_stage)
+    level_stage, wire_stage = {}, {}
+    for k in range(depth - merged):
+        if k in wired:
+            wire_stage[k] = stage + 1
+            stage, used = stage + 2, 0
+        elif used >= per_stage:
+            stage, used = stage + 1, 0
+        level_stage[k] = stage
+        used += 1
+    final = 1 if (depth - merged == 0) else stage + 1
+    if merged:
+        level_stage[depth - 1] = final
+    return level_stage, wire_stage, final, merged, tuple(sorted(wired))
+
+
+def make_schedule(config: Config) -> Schedule:
+    """The pruned schedule of a `levels` or `blocks` config."""
+    mode, w = config.pipeline, config.width
+    count = prefix_positions(w, mode, config.block_width)
+    if mode == "levels":
+        widths = (1,) * w
+    else:
+        k = config.block_width
+        widths = tuple(min(k, w - k * q) for q in range(count))
+    lsbs = tuple(sum(widths[:q]) for q in range(count))
+    net = prefix.network(config.cell, count)
+    level_stage, wire_stage, final, merged, wired = _assign_stages(
+        mode, net, config.levels_per_stage, config.wire_registers)
+
+    terms: list[Term] = []
+
+    def term(kind, pos, op, args, stage, width=1, lsb=None):
+        at = lsbs[pos] + widths[pos] if lsb is None else lsb
+        terms.append(Term(len(terms), kind, pos, at, width, op, tuple(args), stage))
+        return len(terms) - 1
+
+    cin = config.carry_in
+    sums = [None] * count
+    if mode == "levels":
+        prop = [term("prop", i, "prop", (), 1, lsb=i) for i in range(w)]
+        g = [term("gen", i, "gen_cin" if cin and i == 0 else "gen", (), 1) for i in range(w)]
+        p = list(prop)
+        sums[0] = term("sum", 0, "xor_cin", (prop[0],), 1, lsb=0) if cin else prop[0]
+        g_kind, p_kind, p_op = "grp_gen", "grp_prop", "dot_p"
+    else:
+        s0 = [term("blk_s0", q, "chain0_sum", (), 1, widths[q], lsbs[q]) for q in range(count)]
+        g = [term("blk_c0", q, "chain0_carry", (), 1) for q in range(count)]
+        s1 = [None] + [term("blk_s1", q, "chain1_sum", (), 1, widths[q], lsbs[q])
+                       for q in range(1, count)]
+        p = [None] + [term("blk_c1", q, "chain1_carry", (), 1) for q in range(1, count)]
+        sums[0] = s0[0]
+        g_kind, p_kind, p_op = "grp_c0", "grp_c1", "dot_g"
+    logic_free = set(wire_stage.values())
+
+    def finish(q):
+        """Form position q's result in the stage after its carry-in g[q-1] is final."""
+        carry = terms[g[q - 1]]
+        stage = final if carry.stage == final else min(final, carry.stage + 1)
+        while stage in logic_free:
+            stage += 1
+        if mode == "levels":
+            sums[q] = term("sum", q, "xor", (prop[q], g[q - 1]), stage, lsb=q)
+        else:
+            sums[q] = term("sum", q, "select", (s0[q], s1[q], g[q - 1]), stage,
+                           widths[q], lsbs[q])
+
+    done = [True] + [False] * (count - 1)  # position q's carry-in is final
+    low = list(range(count))  # lowest position covered by the group held at each position
+    for q in range(1, count):
+        if low[q - 1] == 0:
+            finish(q)
+            done[q] = True
+    for k, level in enumerate(net.levels):
+        stage = level_stage[k]
+        new_g, new_p, before = list(g), list(p), list(low)
+        for i, j in level:
+            gj, pj = g[j], p[j]
+            if k in wire_stage:  # the far operands get their own registers, one per reader
+                gj = term("wire_" + terms[gj].kind, i, "wire", (gj,), wire_stage[k])
+                if pj is not None:
+                    pj = term("wire_" + terms[pj].kind, i, "wire", (pj,), wire_stage[k])
+            new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage)
+            # A block group reaching block 0 needs no carry-in-1 term (cin is folded in).
+            new_p[i] = None if pj is None else term(
+                p_kind, i, p_op, (p[i], pj) if p_op == "dot_p" else (g[i], p[i], pj), stage)
+            low[i] = before[j]
+        g, p = new_g, new_p
+        for q in range(1, count):
+            if not done[q] and low[q - 1] == 0:
+                finish(q)
+                done[q] = True
+    cout = g[-1] if config.carry_out else None
+
+    last: dict[int, int] = {}
+    for t in [*sums, *([cout] if cout is not None else [])]:
+        last[t] = final + 1
+    for t in reversed(terms):
+        if t.index in last:
+            for a in t.args:
+                last[a] = max(last.get(a, 0), t.stage)
+
+    arrival: dict[int, int] = {}
+    for t in terms:
+        if t.index in last:
+            inner = [arrival[a] for a in t.args if terms[a].stage == t.stage]
+            arrival[t.index] = max(inner, default=0) + _op_delay(t, widths, cin)
+    stages = []
+    for s in range(1, final + 1):
+        levels = tuple(k for k, st in sorted(level_stage.items()) if st == s)
+        delay = max([arrival[t.index] for t in terms if t.index in arrival and t.stage == s],
+                    default=0)
+        stages.append(StageInfo(s, levels, sum(len(net.levels[k]) for k in levels), delay,
+                                _describe(mode, s, final, levels, s in wire_stage.values())))
+    return Schedule(mode, net, widths, lsbs, final, merged, wired, tuple(terms), last,
+                    tuple(sums), cout, tuple(stages))
+
+
+def _op_delay(t: Term, widths, cin: bool) -> int:
+    """Unit-gate delay of forming `t` from its arguments (a carry chain as a ripple adder)."""
+    if t.op.startswith("chain"):
+        with_carry = t.op.startswith("chain1") or (cin and t.pos == 0)
+        chain = prefix.network("serial", widths[t.pos])
+        return prefix.critical_path(chain, with_carry, t.op.endswith("carry"))
+    return OP_DELAY[t.op]
+
+
+def _describe(mode: str, s: int, final: int, levels, wire: bool) -> str:
+    parts = []
+    if wire:
+        parts.append("wire registers (no logic)")
+    if s == 1:
+        parts.append("generate/propagate" if mode == "levels" else "block carry chains")
+    if levels:
+        first, end = levels[0] + 1, levels[-1] + 1
+        parts.append(f"prefix level {first}" if first == end else f"prefix levels {first}-{end}")
+    if s == final:
+        parts.append("sum" if mode == "levels" else "block select")
+    return ", ".join(parts)
