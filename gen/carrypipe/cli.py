@@ -34,8 +34,11 @@ def load_plan(config_path: str, slice_width=None, slices=None):
             raise ConfigError("options --slice-width and --slices are both given; "
                               "expected at most one of them")
         if slice_width is not None:
-            if isinstance(slice_width, str):  # from the command line: reported as given
-                slice_width = int(slice_width) if slice_width.strip().isdigit() else slice_width
+            if isinstance(slice_width, str):  # command line: a non-number is reported as given
+                try:
+                    slice_width = int(slice_width)
+                except ValueError:
+                    pass
             cfg = cfg.with_split(check_split("--slice-width", "slice_width", slice_width,
                                              cfg.width))
         elif slices is not None:
