@@ -27,9 +27,9 @@ from html import escape
 from . import report
 from .plan import Plan
 
-KINDS = ("input", "skew", "stage", "deskew", "control")
+KINDS = ("input", "skew", "stage", "deskew", "control", "prefix", "result", "wire")
 COLOURS = {"input": "#5b7db1", "skew": "#e69a28", "stage": "#2a8c6a", "deskew": "#8a63c2",
-           "control": "#c73a6f"}
+           "control": "#c73a6f", "prefix": "#3a9fc0", "result": "#9bb83a", "wire": "#b07c4f"}
 EXTRA_COLOURS = ("#7a7a7a", "#a39a2c", "#2b9fb3", "#9c5b3b")  # kinds the chart does not know
 MEANINGS = {
     "input": "input register: a, b (and cin) as they arrive",
@@ -37,6 +37,9 @@ MEANINGS = {
     "stage": "stage register: a slice's sum bits and carry",
     "deskew": "output deskew: result bits waiting for the upper slices",
     "control": "valid bit, delayed like the data",
+    "prefix": "prefix terms: group generate/propagate between levels",
+    "result": "result bits on their way to the output",
+    "wire": "wire-pipelining copies of long-span terms",
 }
 SLOW = "#d62728"
 INK, FAINT, PAPER = "#222222", "#8c8c8c", "#ffffff"
@@ -63,8 +66,8 @@ def _num(value: float) -> str:
 
 
 def _family(name: str) -> str:
-    """A register word's family: its name without the trailing stage number (a_skew_3 -> a_skew)."""
-    return re.sub(r"_\d+$", "", name)
+    """A word's family: its name without trailing numbers (a_skew_3 -> a_skew, g_2_16 -> g)."""
+    return re.sub(r"(_\d+)+$", "", name)
 
 
 def _span(lo: int, hi: int, sep: str = ":") -> str:
@@ -146,7 +149,8 @@ class _Layout:
 
 
 def _colours(plan: Plan) -> dict[str, str]:
-    extra = sorted({w.kind for w in plan.words} - set(KINDS))
+    kinds = ({w.kind for w in plan.words} | set(plan.registers.as_dict())) - {"total"}
+    extra = sorted(kinds - set(KINDS))
     return {**COLOURS, **{k: EXTRA_COLOURS[i % len(EXTRA_COLOURS)] for i, k in enumerate(extra)}}
 
 
@@ -322,10 +326,11 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
         out.add("line", x1=float(lay.x0), y1=rows_y + lay.rh, x2=lay.x0 + lay.grid_w,
                 y2=rows_y + lay.rh, stroke="#ececec", stroke_width=0.6)
 
-    # Carry hand-off: the carry register of slice i feeds slice i+1 in the next cycle.
+    # Carry hand-off: the carry register of slice i feeds slice i+1 in the next cycle (only
+    # where the next stage starts above this one: stages spanning every bit hand off none).
     if lay.edge_band == 1:
         for s, nxt in zip(plan.slices, plan.slices[1:]):
-            if s.carry_out and nxt.lsb == s.msb + 1:
+            if nxt.lsb == s.msb + 1:
                 _carry_arrow(out, lay, grid_top, plan.input_cycles + s.index, s, nxt)
 
     # Register cells.
@@ -449,7 +454,7 @@ def _legend(out: _Svg, plan: Plan, lay: _Layout, colours, regs, y, slow_text, me
         x = MARGIN + (i % per_row) * col_w
         row_y = y + (i // per_row) * 20
         out.add("rect", x=float(x), y=float(row_y), width=14.0, height=12.0,
-                fill=colours.get(kind, EXTRA_COLOURS[0]), class_="key", data_kind=kind)
+                fill=colours[kind], class_="key", data_kind=kind)
         bits = regs.get(kind, drawn.get(kind, 0))
         meaning = MEANINGS.get(kind, f"register of kind '{kind}'")
         out.text(x + 20, row_y + 10, kind, size=11, weight="bold")
