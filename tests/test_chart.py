@@ -4,6 +4,7 @@ renderer (cairosvg) turning it into a picture of the stated size."""
 
 from __future__ import annotations
 
+import dataclasses
 import io
 import math
 import xml.etree.ElementTree as ET
@@ -241,3 +242,15 @@ def test_renders_to_a_picture_of_the_stated_size(keys):
     for kind, bits in plan.registers.as_dict().items():
         if kind != "total" and bits:  # every kind that has registers shows its colour
             assert hex_rgb(chart.COLOURS[kind]) in present, kind
+
+
+def test_stages_spanning_every_bit_are_drawn_without_hand_offs():
+    # A plan whose stages each cover all bits (as the prefix-level modes do): one full-width
+    # block per cycle and no carry arrows, since no stage starts where another ends.
+    base = make(width=16, slice_width=4)
+    full = tuple(dataclasses.replace(s, lsb=0, width=16) for s in base.slices)
+    root = parse(chart.svg(Plan(config=base.config, slices=full)))
+    blocks = [e for e in root.iter(f"{SVG}rect") if e.get("class") == "slice"]
+    assert [(b.get("data-stage"), b.get("data-bits")) for b in blocks] == \
+        [(str(i), "15:0") for i in range(4)]
+    assert not [e for e in root.iter(f"{SVG}line") if e.get("class") == "carry"]
