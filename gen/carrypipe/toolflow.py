@@ -1,0 +1,175 @@
+"""Synthesize and place-and-route one candidate: Yosys, then nextpnr, once per seed.
+
+Tools come from the `yowasp-*` pip wheels (WebAssembly builds, `pip install
+'carrypipe[fit]'`) or, with `tools="system"`, from `yosys` / `nextpnr-*` on PATH.  The
+WebAssembly tools only see files under their working directory, so every run writes its
+files into one temporary folder, passes relative names and runs there.
+
+`measure` is the unit of work every executor runs: it takes plain data (a `Job`) and returns
+plain data (one `Measurement` per seed), so it can run in another process or on a cluster.
+"""
+
+from __future__ import annotations
+
+import importlib.metadata
+import shutil
+import subprocess
+import tempfile
+import time
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+
+from . import config, devices, emit, harness, timing
+from .plan import make_plan
+from .sim import ToolMissing
+
+TOOLS = ("wheel", "system")
+FLOW_VERSION = 1  # bump when the harness, scripts or arguments change what is measured
+FREQ_MHZ = 500  # the clock constraint nextpnr optimizes for, above any reachable figure
+INSTALL_HINT = "pip install 'carrypipe[fit]'"
+
+
+class ToolTimeout(RuntimeError):
+    """A tool ran longer than `--timeout` allows."""
+
+
+def executable(tool: str, tools: str) -> str:
+    """The command that runs `tool` ("yosys", "nextpnr-ice40", ...), or `ToolMissing`."""
+    if tools == "wheel":
+        name = f"yowasp-{tool}"
+        found = shutil.which(name)
+        if not found:
+            raise ToolMissing(f"{name} is not installed (the {name} wheel); install it with "
+                              f"{INSTALL_HINT}, or use --tools system with {tool} on PATH")
+        return found
+    found = shutil.which(tool)
+    if not found:
+        raise ToolMissing(f"{tool} is not on PATH; install it (Debian/Ubuntu: apt-get install "
+                          f"yosys {tool}), or use --tools wheel after {INSTALL_HINT}")
+    return found
+
+
+def versions(family: devices.Family, tools: str, timeout: float | None = None) -> dict:
+    """Versions of the two tools a device needs (part of every cache key)."""
+    out = {}
+    for tool in ("yosys", family.pnr):
+        cmd = executable(tool, tools)
+        if tools == "wheel":
+            out[tool] = f"yowasp-{tool} " + importlib.metadata.version(f"yowasp-{tool}")
+        else:
+            flag = "-V" if tool == "yosys" else "--version"
+            run = _run([cmd, flag], Path.cwd(), timeout)
+            out[tool] = (run.stdout + run.stderr).strip().splitlines()[0]
+    return out
+
+
+def _run(cmd: list[str], cwd: Path, timeout: float | None) -> subprocess.CompletedProcess:
+    try:
+        return subprocess.run(cmd, cwd=cwd, capture_output=True, text=True, timeout=timeout)
+    except subprocess.TimeoutExpired:
+        raise ToolTimeout(f"{Path(cmd[0]).name} did not finish within {timeout:g} s "
+                          "(--timeout)") from None
+
+
+@dataclass(frozen=True)
+class Job:
+    """One candidate on one device, for the seeds not yet in the cache."""
+
+    config: dict  # Config.normalized()
+    device: str
+    seeds: tuple[int, ...]
+    tools: str = "wheel"
+    timeout: float | None = None
+
+
+@dataclass
+class Measurement:
+    """What one place-and-route seed of one candidate gave (figures of the unit alone)."""
+
+    seed: int
+    status: str  # ok, no-fit, timeout or error
+    mhz: float | None = None
+    luts: int | None = None
+    carry: int | None = None
+    flip_flops: int | None = None
+    logic_used: int | None = None  # the device's LUT sites used, harness included
+    start: str = ""
+    end: str = ""
+    inside: bool | None = None  # the critical path ends inside the unit
+    message: str = ""
+    seconds: float = field(default=0.0, compare=False)
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+def scripts(plan, device: devices.Device, seed: int) -> tuple[list[str], list[str]]:
+    """The Yosys and nextpnr argument lists (relative file names, run in the work folder)."""
+    top = harness.top_name(plan)
+    name = plan.config.name
+    synth = ["-q", "-p", f"read_verilog {name}.v {top}.v; {device.family.synth} -top {top} "
+             f"-json {top}.json; tee -q -o stat.json stat -json"]
+    pnr = [*device.pnr_args, "--json", f"{top}.json", "--report", f"report_{seed}.json",
+           "--timing-allow-fail", "--seed", str(seed), "--freq", str(FREQ_MHZ)]
+    return synth, pnr
+
+
+def measure(job: Job) -> list[Measurement]:
+    """Synthesize the candidate once, then place and route it once per seed."""
+    device = devices.get(job.device)
+    fam = device.family
+    plan = make_plan(config.from_mapping(job.config))
+    n_in = sum(p.width for p in plan.ports if p.direction == "input") - 1  # less clk
+    n_out = sum(p.width for p in plan.ports if p.direction == "output")
+    yosys, pnr = executable("yosys", job.tools), executable(fam.pnr, job.tools)
+    results = []
+    with tempfile.TemporaryDirectory(prefix="carrypipe-fit-") as tmp:
+        work = Path(tmp)
+        (work / f"{plan.config.name}.v").write_text(emit.unit_verilog(plan))
+        (work / f"{harness.top_name(plan)}.v").write_text(harness.harness_verilog(plan))
+        start = time.monotonic()
+        synth_args = scripts(plan, device, 0)[0]
+        try:
+            run = _run([yosys, *synth_args], work, job.timeout)
+        except ToolTimeout as exc:
+            return [Measurement(s, "timeout", message=str(exc)) for s in job.seeds]
+        if run.returncode != 0:
+            msg = "yosys failed: " + _tail(run.stdout + run.stderr)
+            return [Measurement(s, "error", message=msg) for s in job.seeds]
+        cells = timing.cell_counts((work / "stat.json").read_text(), fam)
+        unit = dict(luts=cells.luts - n_out, carry=cells.carry,
+                    flip_flops=cells.flip_flops - n_in - n_out)
+        synth_time = time.monotonic() - start
+        for seed in job.seeds:
+            t0 = time.monotonic()
+            results.append(_place(pnr, plan, device, seed, work, job.timeout, unit))
+            results[-1].seconds = time.monotonic() - t0 + synth_time / len(job.seeds)
+    return results
+
+
+def _place(pnr, plan, device, seed, work, timeout, unit) -> Measurement:
+    args = scripts(plan, device, seed)[1]
+    try:
+        run = _run([pnr, *args], work, timeout)
+    except ToolTimeout as exc:
+        return Measurement(seed, "timeout", message=str(exc), **unit)
+    log = run.stdout + run.stderr
+    if run.returncode != 0:
+        full = timing.no_room(log)
+        if full:
+            use = timing.utilisation(log, device.family.logic_bel)
+            size = f" ({use[0]} of {use[1]} {device.family.logic_bel})" if use else ""
+            return Measurement(seed, "no-fit", message=full + size,
+                               logic_used=use[0] if use else None, **unit)
+        return Measurement(seed, "error", message="nextpnr failed: " + _tail(log), **unit)
+    rep = timing.place_report((work / f"report_{seed}.json").read_text(), device.family)
+    path = rep.path
+    return Measurement(seed, "ok", mhz=round(rep.mhz, 2), logic_used=rep.logic_used,
+                       start=path.start if path else "", end=path.end if path else "",
+                       inside=harness.inside_unit(path.end) if path else None, **unit)
+
+
+def _tail(text: str) -> str:
+    lines = [ln for ln in text.strip().splitlines() if ln.strip()]
+    errors = [ln for ln in lines if "ERROR" in ln or "rror:" in ln]
+    return " | ".join((errors or lines)[-2:])[:300]
