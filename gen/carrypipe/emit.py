@@ -49,16 +49,23 @@ def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
     return files
 
 
-def write(files: dict[str, str], out_dir: str | Path) -> list[Path]:
-    """Write all files into `out_dir`: each goes to a temporary file first, then is renamed."""
+def write(files: dict[str, str | bytes], out_dir: str | Path) -> list[Path]:
+    """Write all files into `out_dir`: each goes to a temporary file first, then is renamed.
+
+    Text is written as UTF-8 with LF line ends; bytes (images) as they are.
+    """
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     staged = []
     try:
         for fname, text in files.items():
             fd, tmp = tempfile.mkstemp(prefix=f".{fname}.", dir=out)
-            with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-                fh.write(text)
+            if isinstance(text, bytes):
+                with os.fdopen(fd, "wb") as fh:
+                    fh.write(text)
+            else:
+                with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
+                    fh.write(text)
             staged.append((tmp, out / fname))
     except BaseException:
         for tmp, _ in staged:
