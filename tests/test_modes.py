@@ -1,0 +1,278 @@
+"""The prefix pipeline modes (`levels`, `blocks`): results against Python integers, the
+networks against published counts, latency and register counts against independent counts,
+and the validation of the mode keys."""
+
+from __future__ import annotations
+
+import itertools
+import json
+import math
+
+import pytest
+
+from carrypipe import emit, sim, vectors
+from carrypipe.config import PREFIX_CELLS, ConfigError, from_mapping
+from carrypipe.unit import PipelinedAdder
+from conftest import make, needs_icarus, simulate
+from test_registers import flip_flop_bits, yosys
+
+WIDTHS = (1, 2, 5, 64, 100, 256)
+OPTION_SETS = [
+    {},
+    {"carry_in": True},
+    {"carry_out": False, "valid": True},
+    {"enable": True, "valid": True, "reset": "sync"},
+    {"register_inputs": True, "carry_in": True},
+    {"carry_in": True, "carry_out": False, "valid": True, "enable": True, "reset": "sync",
+     "register_inputs": True},
+]
+
+
+def mode_keys(mode: str, cell: str, width: int, turn: int) -> dict:
+    """A config of `mode` whose shape (levels per stage, block width, wire registers) and
+    options rotate with `turn`, so the sweep below covers each of them in several places."""
+    keys = {"pipeline": mode, "cell": cell, "width": width, "levels_per_stage": 1 + turn % 3,
+            **OPTION_SETS[turn % len(OPTION_SETS)]}
+    if mode == "blocks":
+        keys["block_width"] = max(1, min(width, (3, 8, 16, 5)[turn % 4]))
+    probe = make(**{**keys, "wire_registers": 0})
+    keys["wire_registers"] = min(turn % 2, probe.schedule.network.depth)
+    return keys
+
+
+SWEEP = [(mode, cell, width) for mode in ("levels", "blocks") for cell in PREFIX_CELLS
+         for width in WIDTHS]
+
+
+@pytest.mark.parametrize("mode, cell, width", SWEEP, ids=lambda v: str(v))
+def test_matches_python_integers(mode, cell, width):
+    """Every mode x prefix style x width, with rotating options, against Python integers."""
+    turn = SWEEP.index((mode, cell, width))
+    simulate(make(**mode_keys(mode, cell, width, turn)), count=80, seed=turn)
+
+
+@pytest.mark.parametrize("opts", OPTION_SETS, ids=lambda o: "-".join(o) or "plain")
+@pytest.mark.parametrize("mode", ["levels", "blocks"])
+def test_every_option_in_every_mode(mode, opts):
+    extra = {"block_width": 4} if mode == "blocks" else {}
+    for cell in PREFIX_CELLS:
+        simulate(make(pipeline=mode, cell=cell, width=23, wire_registers=1, **extra, **opts),
+                 count=60)
+
+
+@needs_icarus
+@pytest.mark.parametrize("keys", [
+    {"pipeline": "levels", "cell": "han-carlson", "width": 64, "carry_in": True,
+     "valid": True, "enable": True, "reset": "sync"},
+    {"pipeline": "levels", "cell": "kogge-stone", "width": 37, "levels_per_stage": 2,
+     "wire_registers": 2, "register_inputs": True},
+    {"pipeline": "blocks", "cell": "sklansky", "width": 100, "block_width": 16,
+     "carry_in": True, "carry_out": False, "valid": True},
+    {"pipeline": "blocks", "cell": "brent-kung", "width": 256, "block_width": 8,
+     "wire_registers": 1, "enable": True},
+], ids=["levels-hc64", "levels-ks37-wired", "blocks-sk100", "blocks-bk256"])
+def test_emitted_verilog_in_icarus(keys):
+    simulate(make(**keys), simulator="icarus", count=150)
+
+
+@pytest.mark.slow
+def test_small_units_every_shape():
+    """Every prefix style, width 1..16, levels per stage 1..3, wire registers 0..2, both
+    modes, block widths 1..3: all against Python integers."""
+    for cell, width, lps, wires in itertools.product(PREFIX_CELLS, range(1, 17), (1, 2, 3),
+                                                      (0, 1, 2)):
+        for extra in ({"pipeline": "levels"},
+                      *({"pipeline": "blocks", "block_width": min(k, width)} for k in (1, 2, 3))):
+            keys = {"cell": cell, "width": width, "levels_per_stage": lps, **extra,
+                    "carry_in": width % 2 == 1}
+            depth = make(**keys).schedule.network.depth
+            if wires <= depth:
+                simulate(make(**keys, wire_registers=wires), count=60)
+
+
+# Published depth and node counts for N = 2^m inputs (Harris 2003, "A Taxonomy of Parallel
+# Prefix Networks", Table 1; from memory).
+PUBLISHED = {
+    "kogge-stone": (lambda n, m: m, lambda n, m: n * m - n + 1),
+    "sklansky": (lambda n, m: m, lambda n, m: n // 2 * m),
+    "brent-kung": (lambda n, m: 2 * m - 1, lambda n, m: 2 * n - 2 - m),
+    "han-carlson": (lambda n, m: m + 1, lambda n, m: n // 2 * m),
+}
+
+
+@pytest.mark.parametrize("cell", sorted(PUBLISHED))
+@pytest.mark.parametrize("n", [8, 16, 64, 256])
+def test_levels_mode_uses_the_published_networks(cell, n):
+    """The stages of a levels unit evaluate exactly the published network, level by level."""
+    m = int(math.log2(n))
+    depth, nodes = (f(n, m) for f in PUBLISHED[cell])
+    p = make(pipeline="levels", cell=cell, width=n)
+    assert p.schedule.network.depth == depth
+    assert p.schedule.network.nodes == nodes
+    assert sum(s.depth for s in p.stages) == depth
+    assert sum(s.nodes for s in p.stages) == nodes
+    assert [k for s in p.stages for k in s.levels] == list(range(1, depth + 1))
+
+
+def expected_latency(cell: str, n: int, lps: int, wires: int, inputs: bool) -> int:
+    """Latency from the published depth (Harris 2003, as above): stage 1 forms g/p with the
+    first levels, `lps` levels per stage, one logic-free stage per wired level, a sum stage;
+    a final fill-in level (the sparse networks) rides in the sum stage."""
+    m = int(math.log2(n))
+    depth = PUBLISHED[cell][0](n, m)
+    fill_in = cell in ("brent-kung", "han-carlson")  # never the longest span, so not wired
+    return math.ceil((depth - fill_in) / lps) + 1 + wires + int(inputs)
+
+
+@pytest.mark.parametrize("cell", sorted(PUBLISHED))
+@pytest.mark.parametrize("n, lps, wires, inputs", [(16, 1, 0, False), (64, 2, 0, True),
+                                                   (32, 1, 1, False), (64, 3, 0, False)])
+def test_latency_formula_against_simulation(cell, n, lps, wires, inputs):
+    p = make(pipeline="levels", cell=cell, width=n, levels_per_stage=lps, wire_registers=wires,
+             register_inputs=inputs, valid=True)
+    assert p.latency == expected_latency(cell, n, lps, wires, inputs)
+    simulate(p, count=60)  # the simulation compares results exactly `latency` edges later
+
+
+def test_simulation_sees_a_wrong_latency():
+    """A unit checked against a latency one too long must fail: the check is exact."""
+    p = make(pipeline="levels", cell="sklansky", width=16)
+    longer = make(pipeline="levels", cell="sklansky", width=16, register_inputs=True)
+    result = sim.run_amaranth(longer, vectors.suite(longer, 40, 1), unit=PipelinedAdder(p))
+    assert not result.passed
+
+
+def test_blocks_latency():
+    # Chains, then ceil(depth / lps) prefix stages over the blocks, then the select.
+    p = make(pipeline="blocks", cell="kogge-stone", width=256, block_width=16)
+    assert p.latency == 1 + 4 + 1  # 16 blocks: Kogge-Stone depth log2(16) = 4
+    p = make(pipeline="blocks", cell="kogge-stone", width=256, block_width=16,
+             levels_per_stage=2)
+    assert p.latency == 1 + 2 + 1
+    assert make(pipeline="blocks", cell="sklansky", width=40, block_width=40).latency == 1
+
+
+def test_register_count_by_hand():
+    """A 4-bit Kogge-Stone levels unit, counted by hand from the network (nodes (1,0), (2,1),
+    (3,2), then (2,0), (3,1)): rank 1 holds p0..p3, g0, G1, G2, P2, G3, P3 (10 bits: the
+    propagate of the complete group 1..0 is not kept); rank 2 holds s0 = p0, s1, s2, p3,
+    G2..0 and G3..0 (6 bits); the output rank holds sum and cout (5 bits)."""
+    p = make(pipeline="levels", cell="kogge-stone", width=4)
+    assert p.latency == 3
+    r = p.registers
+    assert (r.prefix + r.result, r.stage, r.total) == (16, 5, 21)
+
+
+PRUNED = [
+    {"pipeline": "levels", "cell": "kogge-stone", "width": 64, "carry_in": True, "valid": True},
+    {"pipeline": "levels", "cell": "han-carlson", "width": 100, "levels_per_stage": 2,
+     "register_inputs": True, "enable": True},
+    {"pipeline": "levels", "cell": "brent-kung", "width": 33, "carry_out": False,
+     "reset": "sync", "valid": True},
+    {"pipeline": "levels", "cell": "ladner-fischer", "width": 48, "levels_per_stage": 3},
+    {"pipeline": "blocks", "cell": "sklansky", "width": 256, "block_width": 16,
+     "carry_in": True},
+    {"pipeline": "blocks", "cell": "han-carlson", "width": 70, "block_width": 6,
+     "levels_per_stage": 2, "valid": True},
+    {"pipeline": "levels", "cell": "kogge-stone", "width": 32, "wire_registers": 2},
+]
+
+
+@pytest.mark.skipif(yosys is None, reason="no Yosys (pip install 'carrypipe[fit]')")
+@pytest.mark.parametrize("keys", PRUNED, ids=lambda k: f"{k['pipeline']}-{k['cell']}-{k['width']}")
+def test_yosys_counts_the_planned_bits(keys, tmp_path):
+    p = make(**keys)
+    assert flip_flop_bits(emit.unit_verilog(p), tmp_path) == p.registers.total
+
+
+@pytest.mark.parametrize("keys", PRUNED, ids=lambda k: f"{k['pipeline']}-{k['cell']}-{k['width']}")
+def test_words_add_up_and_fit_the_unit(keys):
+    p = make(**keys)
+    by_kind = {}
+    for w in p.words:
+        by_kind[w.kind] = by_kind.get(w.kind, 0) + w.width
+        assert 1 <= w.edge <= p.latency and 0 <= w.lsb and w.lsb + w.width <= p.width + 1
+    r = p.registers.as_dict()
+    assert sum(by_kind.values()) == r["total"]
+    assert {k: v for k, v in r.items() if v and k != "total"} == by_kind
+    assert r["skew"] == r["deskew"] == 0
+    assert len({w.name for w in p.words}) == len(p.words)
+
+
+def test_pruning_saves_registers():
+    """Dropping terms past their last use beats carrying every bit's (G, P) and p through
+    every rank: that naive count is 3 bits per bit per inner rank."""
+    p = make(pipeline="levels", cell="kogge-stone", width=64)
+    inner = p.latency - 1
+    assert p.registers.prefix + p.registers.result < 3 * 64 * inner
+
+
+def test_fill_in_level_rides_in_the_sum_stage():
+    hc = make(pipeline="levels", cell="han-carlson", width=64)
+    assert hc.schedule.merged and hc.stages[-1].logic == "prefix level 7, sum"
+    ks = make(pipeline="levels", cell="kogge-stone", width=64)
+    assert not ks.schedule.merged and ks.stages[-1].logic == "sum"
+
+
+def test_build_describes_the_mode(tmp_path):
+    p = make(pipeline="levels", cell="han-carlson", width=32, valid=True)
+    files = emit.render(p, vectors=20)
+    manifest = json.loads(files["dut.json"])
+    assert manifest["pipeline"] == "levels" and manifest["latency"] == p.latency
+    assert manifest["registers"] == p.registers.as_dict()
+    assert [s["logic"] for s in manifest["stages"]] == [s.logic for s in p.stages]
+    assert "pipeline levels" in files["dut.v"].splitlines()[1]
+    assert "Prefix network  han-carlson over 32 bits" in files["dut.txt"]
+    assert emit.render(p, vectors=20) == files  # deterministic
+
+
+def base(**extra):
+    return {"name": "u", "width": 32, **extra}
+
+
+@pytest.mark.parametrize("keys, message", [
+    ({"pipeline": "stages"},
+     r"config: key 'pipeline': value 'stages' is not allowed; expected one of slices, levels, blocks\Z"),
+    ({"pipeline": "levels"},
+     r"config: key 'cell': value 'native' is not allowed with key 'pipeline' 'levels'; expected one of kogge-stone, brent-kung, sklansky, han-carlson, ladner-fischer\Z"),
+    ({"pipeline": "blocks", "cell": "ripple"},
+     r"config: key 'cell': value 'ripple' is not allowed with key 'pipeline' 'blocks'; expected one of kogge-stone"),
+    ({"pipeline": "levels", "cell": "sklansky", "slice_width": 8},
+     r"config: keys 'slice_width' and 'pipeline' \('levels'\) are both given; expected 'slice_width' only with pipeline 'slices'\Z"),
+    ({"pipeline": "blocks", "cell": "sklansky", "slices": [16, 16]},
+     r"config: keys 'slices' and 'pipeline' \('blocks'\) are both given"),
+    ({"levels_per_stage": 2},
+     r"config: key 'levels_per_stage' is given with pipeline 'slices'; expected it only with pipeline 'levels' or 'blocks'\Z"),
+    ({"pipeline": "levels", "cell": "sklansky", "block_width": 8},
+     r"config: key 'block_width' is given with pipeline 'levels'; expected it only with pipeline 'blocks'\Z"),
+    ({"wire_registers": 1},
+     r"config: key 'wire_registers' is given with pipeline 'slices'"),
+    ({"pipeline": "levels", "cell": "sklansky", "levels_per_stage": 0},
+     r"config: key 'levels_per_stage': value 0 is not allowed; expected an integer from 1 to 64\Z"),
+    ({"pipeline": "levels", "cell": "sklansky", "levels_per_stage": True},
+     r"config: key 'levels_per_stage': value True is not allowed"),
+    ({"pipeline": "blocks", "cell": "sklansky", "block_width": 33},
+     r"config: key 'block_width': value 33 is not allowed; expected an integer from 1 to width \(32\)\Z"),
+    ({"pipeline": "blocks", "cell": "sklansky", "block_width": "16"},
+     r"config: key 'block_width': value '16' is not allowed"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "wire_registers": 6},
+     r"config: key 'wire_registers': value 6 is not allowed; expected an integer from 0 to the depth of the kogge-stone network \(5\)\Z"),
+    ({"pipeline": "blocks", "cell": "kogge-stone", "block_width": 8, "wire_registers": 3},
+     r"config: key 'wire_registers': value 3 is not allowed; expected an integer from 0 to the depth of the kogge-stone network \(2\)\Z"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "wire_registers": -1},
+     r"config: key 'wire_registers': value -1 is not allowed"),
+], ids=lambda v: "-".join(f"{k}={v[k]}" for k in v)[:40] if isinstance(v, dict) else None)
+def test_bad_mode_keys(keys, message):
+    with pytest.raises(ConfigError, match="^" + message):
+        from_mapping(base(**keys))
+
+
+def test_mode_keys_in_the_normalized_config():
+    levels = from_mapping(base(pipeline="levels", cell="sklansky")).normalized()
+    assert (levels["pipeline"], levels["levels_per_stage"], levels["wire_registers"]) == \
+        ("levels", 1, 0)
+    assert "block_width" not in levels
+    blocks = from_mapping(base(pipeline="blocks", cell="sklansky")).normalized()
+    assert blocks["block_width"] == 16
+    slices = from_mapping(base(pipeline="slices")).normalized()
+    assert not {"pipeline", "levels_per_stage", "block_width", "wire_registers"} & set(slices)
