@@ -276,3 +276,19 @@ def test_mode_keys_in_the_normalized_config():
     assert blocks["block_width"] == 16
     slices = from_mapping(base(pipeline="slices")).normalized()
     assert not {"pipeline", "levels_per_stage", "block_width", "wire_registers"} & set(slices)
+
+
+@pytest.mark.skipif(yosys is None, reason="no Yosys (pip install 'carrypipe[fit]')")
+@pytest.mark.parametrize("keys", [
+    {"pipeline": "levels", "cell": "han-carlson", "width": 8, "carry_in": True, "valid": True,
+     "reset": "sync"},
+    {"pipeline": "levels", "cell": "kogge-stone", "width": 5, "levels_per_stage": 2,
+     "wire_registers": 1, "enable": True},
+    {"pipeline": "blocks", "cell": "sklansky", "width": 12, "block_width": 4, "carry_in": True,
+     "register_inputs": True},
+], ids=["levels-hc8", "levels-ks5-wired", "blocks-sk12"])
+def test_prove_small_units(keys):
+    """The formal check (Yosys sat against a + b + cin) holds for small prefix-mode units."""
+    from carrypipe import prove
+
+    assert prove.prove(make(**keys), timeout=120).proved
