@@ -139,3 +139,28 @@ def plan_cmd(config, slice_width, slices, chart_path):
     click.echo(report(plan), nl=False)
     if chart_path is not None:
         click.echo(f"Chart: {chart_path}")
+
+
+# ---- prove (formal check of the emitted Verilog; see docs/verification.md) ----
+
+@main.command()
+@config_arg
+@click.option("--depth", type=click.IntRange(1, 1000),
+              help="Cycles to unroll; results are compared from cycle latency+1 up to this "
+                   "one [default: latency + 1, which already covers every later cycle].")
+@click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
+              help="Give up on the solver after this many seconds.")
+def prove(config, depth, timeout):
+    """Prove the emitted Verilog equals a + b + cin delayed by the latency, from any state."""
+    from . import prove as proof
+
+    plan = load_plan(config)
+    if depth is not None and depth <= plan.latency:
+        raise UserError(f"--depth: value {depth} is not allowed; expected an integer above "
+                        f"the latency ({plan.latency})")
+    try:
+        result = proof.prove(plan, depth=depth, timeout=timeout)
+    except sim.ToolMissing as exc:
+        raise UserError(str(exc)) from None
+    click.echo(f"{plan.config.name}: {result.message}")
+    sys.exit(0 if result.proved else 1)

@@ -22,9 +22,12 @@ DEFAULT_VECTORS = 1000
 DEFAULT_SEED = 1
 
 
-def unit_verilog(plan: Plan) -> str:
-    """The unit as Verilog, with the plan's header on top (deterministic: no paths, no src)."""
-    top = PipelinedAdder(plan)
+def unit_verilog(plan: Plan, fault: str | None = None) -> str:
+    """The unit as Verilog, with the plan's header on top (deterministic: no paths, no src).
+
+    `fault` (tests only) plants one of `unit.FAULTS` for the proof to find.
+    """
+    top = PipelinedAdder(plan, fault=fault)
     text = verilog.convert(top, name=plan.config.name, ports=top.ports(),
                            emit_src=False, strip_internal_attrs=True,
                            missing_domain=clock_domain(plan))

@@ -15,17 +15,25 @@ LUTs; with `enable` every register of the unit holds while `en` is low.
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 from amaranth.hdl import Cat, ClockDomain, Elaboratable, EnableInserter, Module, Signal
 
 from . import cells, leveled
 from .plan import Plan
 
+# Test-only faults that `carrypipe prove` must find (tests/test_prove.py); never set by a build.
+FAULTS = ("missing-skew", "late-carry", "swapped-node")
+
 
 class PipelinedAdder(Elaboratable):
     """{cout, sum} = a + b (+ cin), S slices, one result per clock after `plan.latency`."""
 
-    def __init__(self, plan: Plan):
+    def __init__(self, plan: Plan, fault: str | None = None):
+        if fault is not None and fault not in FAULTS:
+            raise ValueError(f"fault must be one of {', '.join(FAULTS)}, not {fault!r}")
         self.plan = plan
+        self.fault = fault
         c, w = plan.config, plan.width
         self.a = Signal(w, name="a")
         self.b = Signal(w, name="b")
@@ -66,18 +74,28 @@ class PipelinedAdder(Elaboratable):
         last = len(plan.slices) - 1
         for s in plan.slices if c.pipeline == "slices" else ():
             i = s.index
+            net = s.network()
+            if self.fault == "swapped-node" and i == 0:  # last node's operands exchanged
+                hi, lo = net.levels[-1][-1]
+                net = replace(net, levels=net.levels[:-1] + (net.levels[-1][:-1] + ((lo, hi),),))
             total, cout = cells.build(m, s.cell, a_wait[:s.width], b_wait[:s.width], carry,
-                                      f"slice{i}", s.network())
+                                      f"slice{i}", net)
             sum_stage = reg(s.width, f"sum_stage_{i}")
             m.d.sync += sum_stage.eq(total)
             carry = None
             if s.carry_out:
                 carry = reg(1, f"carry_stage_{i}")
                 m.d.sync += carry.eq(cout)
+                if self.fault == "late-carry" and i == 0:  # one register too many
+                    late = reg(1, "carry_late_0")
+                    m.d.sync += late.eq(carry)
+                    carry = late
             if i < last:
                 rest = plan.width - s.lsb - s.width
                 a_next, b_next = reg(rest, f"a_skew_{i + 1}"), reg(rest, f"b_skew_{i + 1}")
-                m.d.sync += [a_next.eq(a_wait[s.width:]), b_next.eq(b_wait[s.width:])]
+                skew = m.d.comb if self.fault == "missing-skew" and i == 0 else m.d.sync
+                skew += a_next.eq(a_wait[s.width:])
+                m.d.sync += b_next.eq(b_wait[s.width:])
                 a_wait, b_wait = a_next, b_next
                 deskew = reg(s.lsb + s.width, f"sum_deskew_{i + 1}")
                 m.d.sync += deskew.eq(Cat(*done, sum_stage))
