@@ -32,6 +32,8 @@ def variant(base: Config, **keys) -> Config:
     """`base` with some keys replaced, validated again (keys of the other modes dropped)."""
     data = {k: v for k, v in base.normalized().items() if k not in config.MODE_KEYS}
     data.pop("pipeline", None)
+    if keys.get("pipeline", "slices") != "slices":
+        data.pop("slices")  # the prefix modes take no split
     data.update(keys)
     return config.from_mapping(data, where="candidate")
 
@@ -43,7 +45,23 @@ def slice_candidates(base: Config, cells: tuple[str, ...]) -> list[Config]:
             for cell in cells for s in range(1, top + 1)]
 
 
-GENERATORS = (slice_candidates,)  # each: (base config, cell styles) -> list of configs
+LEVELS_PER_STAGE = (1, 2, 3)
+BLOCK_WIDTHS = (8, 16, 32)
+
+
+def prefix_candidates(base: Config, cells: tuple[str, ...]) -> list[Config]:
+    """levels x prefix style x levels per stage; blocks x prefix style x block width.
+
+    The prefix styles among `cells` (all of them when `cells` names none)."""
+    styles = [c for c in cells if c in config.PREFIX_CELLS] or list(config.PREFIX_CELLS)
+    out = [variant(base, pipeline="levels", cell=cell, levels_per_stage=n)
+           for cell in styles for n in LEVELS_PER_STAGE]
+    out += [variant(base, pipeline="blocks", cell=cell, block_width=k)
+            for cell in styles for k in BLOCK_WIDTHS if 2 * k <= base.width]
+    return out
+
+
+GENERATORS = (slice_candidates, prefix_candidates)  # each: (base config, cells) -> configs
 
 
 def identity(cfg: Config) -> str:
@@ -94,6 +112,11 @@ class Row:
 
     @property
     def label(self) -> str:
+        c = self.config
+        if c.pipeline == "levels":
+            return f"{c.cell} levels/{c.levels_per_stage}"
+        if c.pipeline == "blocks":
+            return f"{c.cell} blocks of {c.block_width}"
         split = self.config.slices
         shape = (f"{split[0]}x{len(split)}" if len(set(split)) == 1
                  else "+".join(map(str, split)))
@@ -190,7 +213,7 @@ def uneven_rows(rows: list[Row], target: float, make_row) -> list[Row]:
     known = {identity(r.config) for r in rows}
     new = []
     for r in rows:
-        if r.origin != "even" or r.mhz is None or r.mhz >= target \
+        if r.origin != "even" or r.config.pipeline != "slices" or r.mhz is None or r.mhz >= target \
                 or r.mhz < target * (1 - JUST_MISSED) or r.spawned:
             continue
         r.spawned = True
