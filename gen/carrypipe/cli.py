@@ -6,6 +6,7 @@ status 2; a failed check ends with exit status 1.
 
 from __future__ import annotations
 
+import math
 import sys
 from pathlib import Path
 
@@ -164,3 +165,89 @@ def prove(config, depth, timeout):
         raise UserError(str(exc)) from None
     click.echo(f"{plan.config.name}: {result.message}")
     sys.exit(0 if result.proved else 1)
+
+
+# ---- fit (timing closure with synthesis and place-and-route; see docs/fit.md) ----
+
+def _option_number(option: str, text: str, kind, low: float, allowed: str):
+    """Parse a numeric option into `kind` (int or float) above `low`, or a one-line UserError."""
+    try:
+        value = kind(text)
+    except (TypeError, ValueError):
+        value = None
+    if value is None or not math.isfinite(value) or not value > low:
+        raise UserError(f"{option}: value {text!r} is not allowed; expected {allowed}")
+    return value
+
+
+@main.command()
+@config_arg
+@click.option("--target-mhz", "target", required=True, metavar="MHZ",
+              help="Clock the unit must reach, in MHz.")
+@click.option("--device", required=True, metavar="DEVICE",
+              help="Device to place and route for: ice40-hx8k, ice40-up5k, ecp5-25k, ecp5-85k.")
+@click.option("--cells", metavar="LIST", help="Comma-separated cell styles to try "
+              "[default: the config's cell].")
+@click.option("--jobs", default="1", show_default=True, metavar="N",
+              help="Candidates placed and routed at once (local worker processes).")
+@click.option("--seeds", default="1", show_default=True, metavar="N",
+              help="Place-and-route seeds per candidate (1..N); the median Fmax is reported.")
+@click.option("--no-cache", is_flag=True, help="Run the tools again even for cached results.")
+@click.option("--tools", default="wheel", show_default=True, metavar="wheel|system",
+              help="yowasp-* pip wheels, or yosys and nextpnr-* from PATH.")
+@click.option("--timeout", metavar="S", help="Give up on one tool run after S seconds.")
+@click.option("--cluster", metavar="tcp://HOST:PORT",
+              help="Run candidates on this Dask distributed scheduler instead of locally.")
+@click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False),
+              help="Output folder [default: out/<name>].")
+def fit(config, target, device, cells, jobs, seeds, no_cache, tools, timeout, cluster, out_dir):
+    """Measure candidate splits with Yosys and nextpnr; keep the least latency meeting MHZ."""
+    from . import devices, executor, fit as fitting
+    from .config import CELLS
+    from .toolflow import TOOLS
+
+    base = load_plan(config).config
+    target_mhz = _option_number("--target-mhz", target, float, 0, "a number of MHz above 0")
+    if device not in devices.DEVICES:
+        raise UserError(f"--device: value {device!r} is not allowed; expected one of "
+                        f"{', '.join(devices.DEVICES)}")
+    styles = tuple(cells.split(",")) if cells is not None else (base.cell,)
+    for style in styles:
+        if style not in CELLS:
+            raise UserError(f"--cells: value {style!r} is not allowed; expected a comma-"
+                            f"separated list of {', '.join(CELLS)}")
+    styles = tuple(dict.fromkeys(styles))
+    n_jobs = _option_number("--jobs", jobs, int, 0, "an integer of 1 or more")
+    n_seeds = _option_number("--seeds", seeds, int, 0, "an integer of 1 or more")
+    if tools not in TOOLS:
+        raise UserError(f"--tools: value {tools!r} is not allowed; expected wheel or system")
+    limit = None if timeout is None else _option_number("--timeout", timeout, float, 0,
+                                                        "a number of seconds above 0")
+    if cluster is not None and not executor.CLUSTER_ADDRESS.match(cluster):
+        raise UserError(f"--cluster: value {cluster!r} is not allowed; expected "
+                        "tcp://HOST:PORT of a Dask scheduler")
+    dest = Path(out_dir) if out_dir else Path("out") / base.name
+    if dest.exists() and not dest.is_dir():
+        raise UserError(f"-o: value {str(dest)!r} is not allowed; expected a folder")
+    settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tools, limit,
+                                not no_cache)
+    try:
+        runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)
+    except executor.ClusterUnavailable as exc:
+        raise click.ClickException(str(exc)) from None
+    try:
+        outcome = fitting.run(base, settings, runner, echo=lambda t: click.echo(t, err=True))
+    except sim.ToolMissing as exc:
+        raise UserError(str(exc)) from None
+    finally:
+        runner.close()
+    click.echo(fitting.table(outcome))
+    for note in outcome.notes:
+        click.echo(f"note: {note}")
+    click.echo(fitting.summary(outcome))
+    try:
+        written = emit.write(fitting.files(outcome), dest)
+    except OSError as exc:
+        raise click.ClickException(f"cannot write into {dest}: {exc.strerror or exc}") from None
+    click.echo(f"wrote {len(written)} files -> {dest}/")
+    sys.exit(0 if outcome.chosen else 1)

@@ -2,9 +2,9 @@
 
 Wide units have more ports than a package has pins, and port timing is not what a user's
 design sees.  The harness feeds every unit input from one shift register loaded from pin
-`si` (register -> register, no logic), and folds every unit output into a chain whose bit i
-loads `out[i] ^ chain[i-1]` (one 2-input LUT, fan-out one), read on pin `so`.  So the
-harness's own paths are single-LUT register-to-register paths and every longer path lies
+`harness_si` (bit i loads bit i-1 ^ bit i+1: one 2-input LUT), and folds every unit output
+into a chain whose bit i loads `out[i] ^ chain[i-1]` (one 2-input LUT), read on pin
+`harness_so`.  So the harness's own paths are single-LUT register-to-register paths and every longer path lies
 inside the unit; `inside_unit` tells from the path's end cell which side it sits on.
 """
 
@@ -15,22 +15,28 @@ import re
 from .plan import Plan
 
 INSTANCE = "unit"  # the unit's instance name; its cells carry this prefix after flattening
-SHIFT_IN = "harness_in"
-CAPTURE = "harness_out"
+PREFIX = "harness_"  # every harness name starts with this; unit cells never do
+SHIFT_IN = PREFIX + "in"
+CAPTURE = PREFIX + "out"
+SERIAL_IN = PREFIX + "si"
+SERIAL_OUT = PREFIX + "so"
 
 
 def top_name(plan: Plan) -> str:
     return f"{plan.config.name}_harness"
 
 
-def inside_unit(end_cell: str) -> bool:
-    """True when a path ends in a unit register, not in a harness register.
+def inside_unit(end_cell: str, logic_steps: int) -> bool:
+    """True when a critical path is the unit's: it ends in a unit register and is longer
+    than the harness's own single-LUT paths.
 
-    Harness registers are top-level names and keep them through flattening; the unit's own
-    registers carry `unit.` or, for the last stage, the harness wire they drive (`res_...`).
-    A path that ends in the harness is the capture LUT's path, so the unit was faster.
+    Harness cells are named after top-level harness nets (`harness_...`), except that a
+    shift-in register may take the name of the unit input it drives (`unit.a...`), so a
+    single-LUT path is never counted as the unit's: at that length harness and unit paths
+    are alike (the fabric limit).  Unit registers carry `unit.` or, for the last stage, the
+    harness wire they drive (`res_...`).
     """
-    return not end_cell.startswith((SHIFT_IN, CAPTURE))
+    return not end_cell.startswith(PREFIX) and logic_steps > 1
 
 
 def stage_of(cell: str, stages: int) -> int | None:
@@ -47,12 +53,28 @@ def stage_of(cell: str, stages: int) -> int | None:
     return None
 
 
+def widths(plan: Plan) -> tuple[int, int]:
+    """Bits the harness shifts in (every unit input but clk) and captures (every output)."""
+    ins = sum(p.width for p in plan.ports if p.direction == "input" and p.name != "clk")
+    return ins, sum(p.width for p in plan.ports if p.direction == "output")
+
+
+def flip_flops(plan: Plan) -> int:
+    """The harness's own flip-flops: one per shifted-in and one per captured bit."""
+    return sum(widths(plan))
+
+
+def luts(plan: Plan) -> int:
+    """The harness's own LUTs: one XOR per shift-in bit but the last, one per captured bit."""
+    n_in, n_out = widths(plan)
+    return max(n_in - 1, 0) + n_out
+
+
 def harness_verilog(plan: Plan) -> str:
-    """Verilog-2005 of the harness top (module `<name>_harness`, ports clk, si, so)."""
+    """Verilog-2005 of the harness top (module `<name>_harness`, ports clk, serial in, out)."""
     inputs = [p for p in plan.ports if p.direction == "input" and p.name != "clk"]
     outputs = [p for p in plan.ports if p.direction == "output"]
-    n_in = sum(p.width for p in inputs)
-    n_out = sum(p.width for p in outputs)
+    n_in, n_out = widths(plan)
     conns, lsb = [".clk(clk)"], 0
     for p in inputs:
         conns.append(f".{p.name}({SHIFT_IN}[{lsb + p.width - 1}:{lsb}])")
@@ -60,14 +82,17 @@ def harness_verilog(plan: Plan) -> str:
     conns += [f".{p.name}(res_{p.name})" for p in outputs]
     wires = [f"  wire [{p.width - 1}:0] res_{p.name};" for p in outputs]
     result = "{" + ", ".join(f"res_{p.name}" for p in reversed(outputs)) + "}"
-    shift_in = "si" if n_in == 1 else f"{{{SHIFT_IN}[{n_in - 2}:0], si}}"
-    shift_out = "si" if n_out == 1 else f"{{{CAPTURE}[{n_out - 2}:0], si}}"
+    # Bit i loads bit i-1 ^ bit i+1 (a 2-input LUT): no harness register shares its input
+    # with a unit register, so synthesis cannot merge the unit's input registers into it.
+    shift_in = (SERIAL_IN if n_in == 1 else f"{{{SHIFT_IN}[{n_in - 2}:0], {SERIAL_IN}}} ^ "
+                f"{{1'b0, {SHIFT_IN}[{n_in - 1}:1]}}")
+    shift_out = SERIAL_IN if n_out == 1 else f"{{{CAPTURE}[{n_out - 2}:0], {SERIAL_IN}}}"
     lines = [
         f"// Measurement harness of {plan.config.name}: serial shift-in, capture-and-shift-out.",
         f"module {top_name(plan)} (",
         "  input wire clk,",
-        "  input wire si,",
-        "  output wire so",
+        f"  input wire {SERIAL_IN},",
+        f"  output wire {SERIAL_OUT}",
         ");",
         f"  reg [{n_in - 1}:0] {SHIFT_IN};",
         f"  reg [{n_out - 1}:0] {CAPTURE};",
@@ -77,7 +102,7 @@ def harness_verilog(plan: Plan) -> str:
         "    " + ",\n    ".join(conns),
         "  );",
         f"  always @(posedge clk) {CAPTURE} <= {result} ^ {shift_out};",
-        f"  assign so = {CAPTURE}[{n_out - 1}];",
+        f"  assign {SERIAL_OUT} = {CAPTURE}[{n_out - 1}];",
         "endmodule",
         "",
     ]

@@ -19,8 +19,9 @@ from .devices import Family
 class Path:
     start: str  # cell launching the path
     end: str  # cell capturing it
-    logic_ns: float
+    logic_ns: float  # cell delays, clock-to-out and setup included
     routing_ns: float
+    luts: int  # logic steps through cells (LUTs, carry cells) between the two registers
 
     @property
     def total_ns(self) -> float:
@@ -59,7 +60,8 @@ def place_report(text: str, family: Family) -> PlaceReport:
             steps = cp["path"]
             logic = sum(s["delay"] for s in steps if s["type"] != "routing")
             routing = sum(s["delay"] for s in steps if s["type"] == "routing")
-            path = Path(steps[0]["from"]["cell"], steps[-1]["to"]["cell"], logic, routing)
+            cells = sum(1 for s in steps if s["type"] == "logic")
+            path = Path(steps[0]["from"]["cell"], steps[-1]["to"]["cell"], logic, routing, cells)
     use = data.get("utilization", {})
     return PlaceReport(mhz=float(fmax["achieved"]), path=path,
                        logic_used=use.get(family.logic_bel, {}).get("used", 0),

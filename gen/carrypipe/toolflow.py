@@ -24,7 +24,7 @@ from .plan import make_plan
 from .sim import ToolMissing
 
 TOOLS = ("wheel", "system")
-FLOW_VERSION = 1  # bump when the harness, scripts or arguments change what is measured
+FLOW_VERSION = 4  # bump when the harness, scripts or arguments change what is measured
 FREQ_MHZ = 500  # the clock constraint nextpnr optimizes for, above any reachable figure
 INSTALL_HINT = "pip install 'carrypipe[fit]'"
 
@@ -116,34 +116,38 @@ def scripts(plan, device: devices.Device, seed: int) -> tuple[list[str], list[st
 
 def measure(job: Job) -> list[Measurement]:
     """Synthesize the candidate once, then place and route it once per seed."""
-    device = devices.get(job.device)
-    fam = device.family
     plan = make_plan(config.from_mapping(job.config))
-    n_in = sum(p.width for p in plan.ports if p.direction == "input") - 1  # less clk
-    n_out = sum(p.width for p in plan.ports if p.direction == "output")
-    yosys, pnr = executable("yosys", job.tools), executable(fam.pnr, job.tools)
+    return place_and_route(plan, emit.unit_verilog(plan), devices.get(job.device), job.seeds,
+                           job.tools, job.timeout)
+
+
+def place_and_route(plan, unit_text: str, device: devices.Device, seeds, tools: str = "wheel",
+                    timeout: float | None = None) -> list[Measurement]:
+    """Measure Verilog `unit_text` (a module with `plan`'s name and ports) in the harness."""
+    fam = device.family
+    yosys, pnr = executable("yosys", tools), executable(fam.pnr, tools)
     results = []
     with tempfile.TemporaryDirectory(prefix="carrypipe-fit-") as tmp:
         work = Path(tmp)
-        (work / f"{plan.config.name}.v").write_text(emit.unit_verilog(plan))
+        (work / f"{plan.config.name}.v").write_text(unit_text)
         (work / f"{harness.top_name(plan)}.v").write_text(harness.harness_verilog(plan))
         start = time.monotonic()
         synth_args = scripts(plan, device, 0)[0]
         try:
-            run = _run([yosys, *synth_args], work, job.timeout)
+            run = _run([yosys, *synth_args], work, timeout)
         except ToolTimeout as exc:
-            return [Measurement(s, "timeout", message=str(exc)) for s in job.seeds]
+            return [Measurement(s, "timeout", message=str(exc)) for s in seeds]
         if run.returncode != 0:
             msg = "yosys failed: " + _tail(run.stdout + run.stderr)
-            return [Measurement(s, "error", message=msg) for s in job.seeds]
+            return [Measurement(s, "error", message=msg) for s in seeds]
         cells = timing.cell_counts((work / "stat.json").read_text(), fam)
-        unit = dict(luts=cells.luts - n_out, carry=cells.carry,
-                    flip_flops=cells.flip_flops - n_in - n_out)
+        unit = dict(luts=cells.luts - harness.luts(plan), carry=cells.carry,
+                    flip_flops=cells.flip_flops - harness.flip_flops(plan))
         synth_time = time.monotonic() - start
-        for seed in job.seeds:
+        for seed in seeds:
             t0 = time.monotonic()
-            results.append(_place(pnr, plan, device, seed, work, job.timeout, unit))
-            results[-1].seconds = time.monotonic() - t0 + synth_time / len(job.seeds)
+            results.append(_place(pnr, plan, device, seed, work, timeout, unit))
+            results[-1].seconds = time.monotonic() - t0 + synth_time / len(seeds)
     return results
 
 
@@ -166,7 +170,7 @@ def _place(pnr, plan, device, seed, work, timeout, unit) -> Measurement:
     path = rep.path
     return Measurement(seed, "ok", mhz=round(rep.mhz, 2), logic_used=rep.logic_used,
                        start=path.start if path else "", end=path.end if path else "",
-                       inside=harness.inside_unit(path.end) if path else None, **unit)
+                       inside=harness.inside_unit(path.end, path.luts) if path else None, **unit)
 
 
 def _tail(text: str) -> str:
