@@ -212,6 +212,14 @@ def summary(outcome: Outcome) -> str:
     return f"no candidate meets {s.target_mhz:g} MHz on {s.device.name}; none could be measured"
 
 
+def config_keys(cfg: Config) -> dict:
+    """The keys of a config file that rebuilds `cfg` (a prefix mode takes no split)."""
+    data = cfg.normalized()
+    if data.get("pipeline", "slices") != "slices":
+        data.pop("slices", None)
+    return data
+
+
 def files(outcome: Outcome) -> dict[str, str | bytes]:
     """The output folder: the chosen unit as `build` writes it, its config, the figures."""
     s = outcome.settings
@@ -224,7 +232,7 @@ def files(outcome: Outcome) -> dict[str, str | bytes]:
         out[f"{cfg.name}.yaml"] = (
             f"# Chosen by carrypipe fit: {outcome.chosen.mhz} MHz on {s.device.name} "
             f"(target {target:g} MHz).\n# Rebuild with: carrypipe build {cfg.name}.yaml\n"
-            + yaml.safe_dump(cfg.normalized(), sort_keys=False, default_flow_style=None))
+            + yaml.safe_dump(config_keys(cfg), sort_keys=False, default_flow_style=None))
     buf = io.StringIO()
     writer = csv.DictWriter(buf, fieldnames=COLUMNS, lineterminator="\n")
     writer.writeheader()

