@@ -32,12 +32,13 @@ def native(m: Module, a: Value, b: Value, cin, name: str):
     one adder (one carry chain) instead of two chained additions.
     """
     w = len(a)
-    total = Signal(w + 2, name=f"{name}_add")
+    total = Signal(w + 1, name=f"{name}_add")
+    low = Signal(name=f"{name}_add_unused")  # the forced-carry bit: not a result bit
     if cin is None:
-        m.d.comb += total.eq(Cat(Const(0, 1), a) + Cat(Const(0, 1), b))
+        m.d.comb += Cat(low, total).eq(Cat(Const(0, 1), a) + Cat(Const(0, 1), b))
     else:
-        m.d.comb += total.eq(Cat(Const(1, 1), a) + Cat(cin, b))
-    return total[1:w + 1], total[w + 1]
+        m.d.comb += Cat(low, total).eq(Cat(Const(1, 1), a) + Cat(cin, b))
+    return total[:w], total[w]
 
 
 def prefix_adder(m: Module, a: Value, b: Value, cin, name: str, net: prefix.Network):

@@ -12,7 +12,7 @@ from pathlib import Path
 
 from amaranth.back import verilog
 
-from . import chart, report
+from . import chart, report, tidy
 from .plan import Plan
 from .testbench import testbench, vector_file
 from .unit import PipelinedAdder, clock_domain
@@ -31,7 +31,7 @@ def unit_verilog(plan: Plan, fault: str | None = None) -> str:
     text = verilog.convert(top, name=plan.config.name, ports=top.ports(),
                            emit_src=False, strip_internal_attrs=True,
                            missing_domain=clock_domain(plan))
-    return report.verilog_header(plan) + text
+    return report.verilog_header(plan) + tidy.drop_unread(text)
 
 
 def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
