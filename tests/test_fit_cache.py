@@ -103,3 +103,16 @@ def test_unit_that_does_not_fit_is_marked_with_a_larger_device(counted):
     assert all(r.register_bits > 5280 - 3 * 256 - 2 for r in full)
     assert not any(r.measured for r in full)
     assert out.chosen is None and "no candidate meets" in fit.summary(out)
+
+
+def test_plot_and_tables(counted):
+    out = fit.run(BASE, settings(250), executor.Local(1))
+    files = fit.files(out)
+    assert files["fit.png"].startswith(b"\x89PNG\r\n\x1a\n")  # PNG signature (ISO/IEC 15948)
+    svg = files["fit.svg"].decode()
+    assert "target 250 MHz" in svg and "<dc:date>" not in svg
+    head, *lines = files["fit.csv"].splitlines()
+    assert head.split(",") == list(fit.COLUMNS) and len(lines) == len(out.rows)
+    doc = json.loads(files["fit.json"])
+    assert doc["chosen"] == out.chosen.label
+    assert sum(c["meets"] for c in doc["candidates"]) >= 1

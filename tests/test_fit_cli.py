@@ -121,3 +121,14 @@ def test_real_fit_writes_a_rebuildable_choice_and_reruns_from_cache(unit, tmp_pa
     assert again.exit_code == 0, again.output
     assert "WebAssembly" not in again.output
     assert {p.name: p.read_bytes() for p in out.iterdir()} == first
+
+
+@pytest.mark.slow
+def test_real_fit_ecp5_seeds_and_jobs(write_config, tmp_path, monkeypatch):
+    """A 32-bit unit on ECP5 with two worker processes and the median of three seeds."""
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "cache"))
+    cfg = write_config("name: acc32\nwidth: 32\ncell: native\ncarry_in: true\n")
+    res = run(str(cfg), "--target-mhz", "330", "--device", "ecp5-85k", "--seeds", "3",
+              "--jobs", "2", "--cells", "native,brent-kung", "-o", str(tmp_path / "o"))
+    assert res.exit_code in (0, 1), res.output
+    assert "median of 3 seeds" in res.output

@@ -21,6 +21,16 @@ def test_calibrate_recovers_a_line():
         model.calibrate([])
 
 
+def test_table_model_interpolates_and_extends():
+    pts = [[2, 3.0], [4, 4.0], [8, 10.0]]
+    assert model.interpolate(pts, 4) == 4.0
+    assert model.interpolate(pts, 6) == 7.0  # halfway between (4, 4) and (8, 10)
+    assert model.interpolate(pts, 10) == 13.0  # the last segment extended
+    assert model.interpolate(pts, 1) == 2.5  # the first segment extended
+    table = model.calibrate_points([(2, 250), (2, 500), (2, 200), (4, 125)])
+    assert table == {"points": [[2, 4.0], [4, 8.0]]}  # median period per x
+
+
 def test_every_device_has_a_model():
     assert set(model.models()) == set(devices.DEVICES)
 

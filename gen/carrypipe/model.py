@@ -1,10 +1,15 @@
 """A per-device delay model that predicts a candidate's Fmax before it is placed and routed.
 
-Model: period = base_ns + per_unit_ns * x, per cell style, where x is read from the plan's
-slowest stage: its width for `native` (the carry chain grows with every bit) and its
-unit-gate delay for the other styles (LUT logic grows with logic levels).  The constants
-per device live in `data/delay_models.json`, fitted by least squares (`calibrate`) to
-measurements of `tests/bench_fit.py`; the file names the run they come from.  A plan of a
+Model, per cell style: x is read from the plan's slowest stage (its width for `native`,
+where the carry chain grows with every bit; its unit-gate delay for the other styles, whose
+LUT logic grows with logic levels), and the period is either
+  - linear: base_ns + per_unit_ns * x (`calibrate`, least squares), or
+  - a table of measured (x, period_ns) points, interpolated piecewise linearly and
+    extrapolated along the end segments (`calibrate_points`), for styles whose LUT mapping
+    is not linear in x;
+never below the device's floor_ns (register -> one LUT -> register).  The constants per
+device live in `data/delay_models.json`, fitted to measurements of `tests/bench_fit.py`;
+the file names the run they come from.  A plan of a
 pipeline mode the model does not describe gets no prediction, and `fit` measures it.
 """
 
@@ -39,7 +44,19 @@ def predict(plan: Plan, device: str) -> float | None:
     coef = styles.get(plan.config.cell) or styles.get("default")
     if x is None or coef is None:
         return None
-    return round(1000.0 / (coef["base_ns"] + coef["per_unit_ns"] * x), 1)
+    period = (interpolate(coef["points"], x) if "points" in coef
+              else coef["base_ns"] + coef["per_unit_ns"] * x)
+    return round(1000.0 / max(period, models()[device].get("floor_ns", 0.0)), 1)
+
+
+def interpolate(points: list, x: float) -> float:
+    """Piecewise-linear through sorted (x, y) points, extended along the end segments."""
+    pts = sorted(points)
+    if len(pts) == 1:
+        return pts[0][1]
+    k = next((i for i in range(1, len(pts) - 1) if x < pts[i][0]), len(pts) - 1)
+    (x0, y0), (x1, y1) = pts[k - 1], pts[k]
+    return y0 + (y1 - y0) * (x - x0) / (x1 - x0) if x1 != x0 else y0
 
 
 def calibrate(points: list[tuple[float, float]]) -> dict:
@@ -54,3 +71,11 @@ def calibrate(points: list[tuple[float, float]]) -> dict:
     slope = max(slope, 0.0)
     base = my - slope * mx
     return {"base_ns": round(base, 4), "per_unit_ns": round(slope, 5), "points": n}
+
+
+def calibrate_points(points: list[tuple[float, float]]) -> dict:
+    """A table model from (x, measured MHz) points: the median period at each x."""
+    by_x: dict[float, list[float]] = {}
+    for x, mhz in points:
+        by_x.setdefault(x, []).append(1000.0 / mhz)
+    return {"points": [[x, round(sorted(v)[len(v) // 2], 4)] for x, v in sorted(by_x.items())]}
