@@ -18,7 +18,7 @@ from pathlib import Path
 from .plan import Plan
 from .vectors import Vector, expected
 
-SIMULATORS = ("amaranth", "icarus")
+SIMULATORS = ("amaranth", "icarus", "verilator")
 
 
 class ToolMissing(RuntimeError):
@@ -44,6 +44,8 @@ def run(plan: Plan, vecs: list[Vector], simulator: str, timeout: float | None = 
         return run_amaranth(plan, vecs, unit=unit)
     if simulator == "icarus":
         return run_icarus(plan, vecs, timeout=timeout)
+    if simulator == "verilator":
+        return run_verilator(plan, vecs, timeout=timeout)
     raise ValueError(simulator)
 
 
@@ -151,6 +153,34 @@ def run_icarus(plan: Plan, vecs: list[Vector], timeout: float | None = None,
             raise RuntimeError(f"iverilog failed: {out.stdout.strip()} {out.stderr.strip()}")
         out = _tool(["vvp", "-n", f"{name}_tb.vvp"], work, timeout)
     return _result(out, len(vecs), "icarus")
+
+
+def run_verilator(plan: Plan, vecs: list[Vector], timeout: float | None = None,
+                  workdir: str | Path | None = None) -> Result:
+    """Compile the emitted unit and testbench with Verilator (--binary --timing) and run them."""
+    from . import emit
+    from .testbench import testbench, vector_file
+    from .vectors import hex_lines
+
+    if not shutil.which("verilator"):
+        raise ToolMissing("Verilator (5.x) is not on PATH; install it (Debian/Ubuntu: "
+                          "apt-get install verilator) or use --sim icarus / --sim amaranth")
+    name = plan.config.name
+    with tempfile.TemporaryDirectory(prefix="carrypipe-") as tmp:
+        work = Path(workdir or tmp)
+        files = {f"{name}.v": emit.unit_verilog(plan),
+                 f"{name}_tb.v": testbench(plan, len(vecs)),
+                 vector_file(plan): hex_lines(plan, vecs)}
+        for fname, text in files.items():
+            (work / fname).write_text(text)
+        out = _tool(["verilator", "--binary", "--timing", "-Wno-fatal", "-O1",
+                     "--top-module", f"{name}_tb", "-o", f"{name}_tb", f"{name}.v",
+                     f"{name}_tb.v"], work, timeout)
+        if out.returncode != 0:
+            raise RuntimeError(f"verilator failed: {out.stdout.strip()[-500:]} "
+                               f"{out.stderr.strip()[-500:]}")
+        out = _tool([str(work / "obj_dir" / f"{name}_tb")], work, timeout)
+    return _result(out, len(vecs), "verilator")
 
 
 def _tool(cmd: list[str], cwd: Path, timeout: float | None) -> subprocess.CompletedProcess:

@@ -36,7 +36,8 @@ def testbench(plan: Plan, count: int) -> str:
         f"// Self-checking testbench for {name} (carrypipe).",
         f"// Reads {vector_file(plan)} (or +vectors=FILE), {count} vectors; +vcd writes {name}_tb.vcd.",
         f"//   iverilog -g2005 -o {name}_tb.vvp {name}.v {name}_tb.v && vvp {name}_tb.vvp",
-        f"//   verilator --binary --timing -Wno-fatal --top-module {name}_tb {name}.v {name}_tb.v"
+        f"//   Or with Verilator 5: verilator --binary --timing -Wno-fatal --top-module {name}_tb"
+        f" {name}.v {name}_tb.v"
         f" && obj_dir/V{name}_tb",
         "// The last line printed starts with PASS or FAIL.",
         "`timescale 1ns / 1ps",
