@@ -116,12 +116,12 @@ def test_levels_mode_uses_the_published_networks(cell, n):
 
 def expected_latency(cell: str, n: int, lps: int, wires: int, inputs: bool) -> int:
     """Latency from the published depth (Harris 2003, as above): stage 1 forms g/p with the
-    first levels, `lps` levels per stage, one logic-free stage per wired level, a sum stage;
-    a final fill-in level (the sparse networks) rides in the sum stage."""
+    first levels, `lps` levels per stage, one logic-free stage per wired level, a sum stage
+    that also evaluates the last level (valid for lps = 1 or wires = 0: a wire stage restarts
+    the count of levels per stage)."""
     m = int(math.log2(n))
     depth = PUBLISHED[cell][0](n, m)
-    fill_in = cell in ("brent-kung", "han-carlson")  # never the longest span, so not wired
-    return math.ceil((depth - fill_in) / lps) + 1 + wires + int(inputs)
+    return math.ceil((depth - 1) / lps) + 1 + wires + int(inputs)
 
 
 @pytest.mark.parametrize("cell", sorted(PUBLISHED))
@@ -154,13 +154,13 @@ def test_blocks_latency():
 
 def test_register_count_by_hand():
     """A 4-bit Kogge-Stone levels unit, counted by hand from the network (nodes (1,0), (2,1),
-    (3,2), then (2,0), (3,1)): rank 1 holds p0..p3, g0, G1, G2, P2, G3, P3 (10 bits: the
-    propagate of the complete group 1..0 is not kept); rank 2 holds s0 = p0, s1, s2, p3,
-    G2..0 and G3..0 (6 bits); the output rank holds sum and cout (5 bits)."""
+    (3,2), then (2,0), (3,1)); the second level rides in the sum stage, so there are two
+    stages.  Rank 1 holds p0..p3, g0, G1, G2, P2, G3, P3 (10 bits: the propagate of the
+    complete group 1..0 is not kept); the output rank holds sum and cout (5 bits)."""
     p = make(pipeline="levels", cell="kogge-stone", width=4)
-    assert p.latency == 3
+    assert p.latency == 2
     r = p.registers
-    assert (r.prefix + r.result, r.stage, r.total) == (16, 5, 21)
+    assert (r.prefix + r.result, r.stage, r.total) == (10, 5, 15)
 
 
 PRUNED = [
@@ -207,11 +207,18 @@ def test_pruning_saves_registers():
     assert p.registers.prefix + p.registers.result < 3 * 64 * inner
 
 
-def test_fill_in_level_rides_in_the_sum_stage():
+def test_last_level_rides_in_the_sum_stage():
+    """s_i = p_i ^ (G_h | P_h & G_l) is one 4-input function of the last level's node h =
+    i - 1, for every network (the fill-in level of the sparse ones, the longest-span level
+    of Kogge-Stone and Sklansky), wired in front or not."""
     hc = make(pipeline="levels", cell="han-carlson", width=64)
     assert hc.schedule.merged and hc.stages[-1].logic == "prefix level 7, sum"
     ks = make(pipeline="levels", cell="kogge-stone", width=64)
-    assert not ks.schedule.merged and ks.stages[-1].logic == "sum"
+    assert ks.schedule.merged and ks.stages[-1].logic == "prefix level 6, sum"
+    wired = make(pipeline="levels", cell="kogge-stone", width=64, wire_registers=1)
+    assert [s.logic for s in wired.stages[-2:]] == ["wire registers (no logic)",
+                                                    "prefix level 6, sum"]
+    assert wired.latency == ks.latency + 1
 
 
 def test_build_describes_the_mode(tmp_path):

@@ -3,8 +3,14 @@ schedule and register words and nothing else (see `schedule.py` for the structur
 
 Every schedule term becomes one expression in the stage that forms it; every register word
 of `plan.words` becomes one reset-less register, and a term crossing rank r sits in the
-word of its kind at rank r that covers its bit position.  Wire-register words carry the
-`keep` attribute so that synthesis does not merge a far operand's copy with the local one.
+word of its kind at rank r that covers its bit position.
+
+A wire-register word (a far operand's own copy) loads the same value in the same cycle as
+the local copy of that term, so synthesis would merge the two (Yosys `opt_merge` merges
+equal flip-flops whatever `keep` says on their wires; it spares only cells that carry
+`keep` themselves, which Verilog attributes on a `reg` do not give).  Far copies therefore
+power up as ones, local copies as zeros: flip-flops with different initial values are not
+equal, so both survive, and no data register's power-up value is part of the port contract.
 """
 
 from __future__ import annotations
@@ -23,8 +29,8 @@ def build(m: Module, plan: PrefixPlan, a: Value, b: Value, cin, sum_out: Value, 
     for word in plan.words:
         if word.kind in ("input", "control"):
             continue
-        attrs = {"keep": 1} if word.kind == "wire" else {}
-        reg = Signal(word.width, name=word.name, reset_less=True, attrs=attrs)
+        init = (1 << word.width) - 1 if word.kind == "wire" else 0
+        reg = Signal(word.width, name=word.name, reset_less=True, init=init)
         words.setdefault(word.name.rsplit("_", 1)[0], []).append((word, reg))
 
     def slot(t, rank):

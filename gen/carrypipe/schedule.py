@@ -110,8 +110,9 @@ def _assign_stages(mode: str, net: prefix.Network, per_stage: int, wires: int):
     depth = net.depth
     by_span = sorted(range(depth), key=lambda k: (-_span(net.levels[k]), -k))
     wired = frozenset(by_span[:wires])
-    merged = (mode == "levels" and depth > 0 and depth - 1 not in wired
-              and all(i - j == 1 for i, j in net.levels[-1]))
+    # Every sum bit reads one node of the last level: s_i = p_i ^ (G_h | P_h & G_l) has four
+    # inputs, so in `levels` mode that level always rides in the sum stage.
+    merged = mode == "levels" and depth > 0
     # Stage 1 always has logic: the bit generate/propagate (levels) or the chains (blocks).
     stage, used = 1, (0 if mode == "levels" else per_stage)
     level_stage, wire_stage = {}, {}
@@ -124,6 +125,9 @@ def _assign_stages(mode: str, net: prefix.Network, per_stage: int, wires: int):
         level_stage[k] = stage
         used += 1
     final = 1 if (depth - merged == 0) else stage + 1
+    if merged and depth - 1 in wired:  # a wire rank between the last prefix stage and the sum
+        wire_stage[depth - 1] = stage + 1
+        final = stage + 2
     if merged:
         level_stage[depth - 1] = final
     return level_stage, wire_stage, final, merged, tuple(sorted(wired))
