@@ -63,13 +63,13 @@ def write(files: dict[str, str | bytes], out_dir: str | Path) -> list[Path]:
     try:
         for fname, text in files.items():
             fd, tmp = tempfile.mkstemp(prefix=f".{fname}.", dir=out)
+            staged.append((tmp, out / fname))  # before writing: a failed write is cleaned up too
             if isinstance(text, bytes):
                 with os.fdopen(fd, "wb") as fh:
                     fh.write(text)
             else:
                 with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
                     fh.write(text)
-            staged.append((tmp, out / fname))
     except BaseException:
         for tmp, _ in staged:
             os.unlink(tmp)
