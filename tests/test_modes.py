@@ -7,6 +7,8 @@ from __future__ import annotations
 import itertools
 import json
 import math
+import re
+import subprocess
 
 import pytest
 
@@ -221,6 +223,62 @@ def test_last_level_rides_in_the_sum_stage():
     assert wired.latency == ks.latency + 1
 
 
+LOCAL = [("kogge-stone", 64, 16), ("sklansky", 100, 16), ("han-carlson", 37, 8),
+         ("brent-kung", 256, 32), ("ladner-fischer", 23, 3), ("kogge-stone", 5, 2),
+         ("sklansky", 9, 9)]
+
+
+@pytest.mark.parametrize("cell, width, local", LOCAL, ids=lambda v: str(v))
+def test_local_networks_match_python_integers(cell, width, local):
+    turn = LOCAL.index((cell, width, local))
+    keys = mode_keys("levels", cell, width, turn)
+    simulate(make(**keys, local_width=local), count=80, seed=turn)
+
+
+@pytest.mark.parametrize("cell", sorted(PUBLISHED))
+@pytest.mark.parametrize("n, local", [(64, 16), (256, 16), (256, 8), (128, 32)])
+def test_local_network_depth(cell, n, local):
+    """The network within a block of `local` bits, then over the n / local block tops, then
+    one fill-in level: depth d(local) + d(n / local) + 1 from the published depths (as
+    above), and the last level rides in the sum stage."""
+    d = PUBLISHED[cell][0]
+    depth = d(local, int(math.log2(local))) + d(n // local, int(math.log2(n // local))) + 1
+    p = make(pipeline="levels", cell=cell, width=n, local_width=local)
+    assert p.schedule.network.depth == depth
+    assert p.latency == depth  # (depth - 1) prefix stages, the first with g/p, then the sum
+    within = {(i // local, j // local) for level in p.schedule.network.levels[:-1]
+              for i, j in level if i % local != local - 1}
+    assert all(a == b for a, b in within)  # only block tops reach across blocks, but the fill-in
+
+
+def test_local_width_zero_or_full_is_the_plain_network():
+    plain = make(pipeline="levels", cell="sklansky", width=40)
+    for local in (0, 40):
+        p = make(pipeline="levels", cell="sklansky", width=40, local_width=local)
+        assert p.schedule.network == plain.schedule.network
+        assert p.registers == plain.registers
+
+
+ECP5_WIRED = [{"cell": "kogge-stone", "width": 32, "wire_registers": 2},
+              {"cell": "sklansky", "width": 32, "wire_registers": 2, "enable": True},
+              {"cell": "han-carlson", "width": 24, "wire_registers": 1, "local_width": 8}]
+
+
+@pytest.mark.skipif(yosys is None, reason="no Yosys (pip install 'carrypipe[fit]')")
+@pytest.mark.parametrize("keys", ECP5_WIRED, ids=lambda k: f"{k['cell']}-{k['width']}")
+def test_wire_copies_survive_synthesis(keys, tmp_path):
+    """A full FPGA synthesis (`synth_ecp5`, which merges equal flip-flops) keeps every planned
+    register, the far-operand copies included (they power up as ones, the local ones as
+    zeros, so the two are not equal)."""
+    p = make(pipeline="levels", **keys)
+    assert p.registers.wire
+    (tmp_path / "u.v").write_text(emit.unit_verilog(p))
+    subprocess.run([yosys, "-q", "-p", "read_verilog u.v; synth_ecp5 -top dut; "
+                    "tee -q -o stat.txt stat"], cwd=tmp_path, check=True, capture_output=True)
+    found = re.search(r"^\s+(\d+)\s+TRELLIS_FF$", (tmp_path / "stat.txt").read_text(), re.M)
+    assert int(found.group(1)) == p.registers.total
+
+
 def test_build_describes_the_mode(tmp_path):
     p = make(pipeline="levels", cell="han-carlson", width=32, valid=True)
     files = emit.render(p, vectors=20)
@@ -268,6 +326,14 @@ def base(**extra):
      r"config: key 'wire_registers': value 3 is not allowed; expected an integer from 0 to the depth of the kogge-stone network \(2\)\Z"),
     ({"pipeline": "levels", "cell": "kogge-stone", "wire_registers": -1},
      r"config: key 'wire_registers': value -1 is not allowed"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "local_width": 33},
+     r"config: key 'local_width': value 33 is not allowed; expected an integer from 0 to width \(32\); 0: one network\Z"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "local_width": 1.5},
+     r"config: key 'local_width': value 1.5 is not allowed"),
+    ({"pipeline": "blocks", "cell": "kogge-stone", "local_width": 8},
+     r"config: key 'local_width' is given with pipeline 'blocks'; expected it only with pipeline 'levels'\Z"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "local_width": 8, "wire_registers": 7},
+     r"config: key 'wire_registers': value 7 is not allowed; expected an integer from 0 to the depth of the kogge-stone network \(6\)\Z"),
 ], ids=lambda v: "-".join(f"{k}={v[k]}" for k in v)[:40] if isinstance(v, dict) else None)
 def test_bad_mode_keys(keys, message):
     with pytest.raises(ConfigError, match="^" + message):
@@ -282,7 +348,9 @@ def test_mode_keys_in_the_normalized_config():
     blocks = from_mapping(base(pipeline="blocks", cell="sklansky")).normalized()
     assert blocks["block_width"] == 16
     slices = from_mapping(base(pipeline="slices")).normalized()
-    assert not {"pipeline", "levels_per_stage", "block_width", "wire_registers"} & set(slices)
+    assert not {"pipeline", "levels_per_stage", "block_width", "wire_registers",
+                "local_width"} & set(slices)
+    assert levels["local_width"] == 0 and "local_width" not in blocks
 
 
 @pytest.mark.skipif(yosys is None, reason="no Yosys (pip install 'carrypipe[fit]')")
@@ -293,7 +361,9 @@ def test_mode_keys_in_the_normalized_config():
      "wire_registers": 1, "enable": True},
     {"pipeline": "blocks", "cell": "sklansky", "width": 12, "block_width": 4, "carry_in": True,
      "register_inputs": True},
-], ids=["levels-hc8", "levels-ks5-wired", "blocks-sk12"])
+    {"pipeline": "levels", "cell": "kogge-stone", "width": 10, "local_width": 4,
+     "wire_registers": 1, "carry_in": True, "valid": True},
+], ids=["levels-hc8", "levels-ks5-wired", "blocks-sk12", "levels-ks10-local4-wired"])
 def test_prove_small_units(keys):
     """The formal check (Yosys sat against a + b + cin) holds for small prefix-mode units."""
     from carrypipe import prove

@@ -78,6 +78,7 @@ class Config:
     levels_per_stage: int = 1
     block_width: int = 16
     wire_registers: int = 0
+    local_width: int = 0
 
     def normalized(self) -> dict:
         """The config as plain data with every default filled in (for headers, manifests, caches).
@@ -120,12 +121,14 @@ KEYS = {
     "levels_per_stage": (f"an integer from 1 to {MAX_LEVELS_PER_STAGE}", 1),
     "block_width": ("an integer from 1 to width", 16),
     "wire_registers": ("an integer from 0 to the prefix network's depth", 0),
+    "local_width": ("an integer from 0 to width (0: one prefix network over every bit)", 0),
 }
 # Keys that only the prefix pipeline modes read, and the modes that read each.
 MODE_KEYS = {
     "levels_per_stage": PREFIX_PIPELINES,
     "block_width": ("blocks",),
     "wire_registers": PREFIX_PIPELINES,
+    "local_width": ("levels",),
 }
 
 
@@ -229,9 +232,13 @@ def check_mode(where: str, data: dict, values: dict) -> None:
     block = values["block_width"]
     if mode == "blocks" and (not _is_int(block) or not 1 <= block <= values["width"]):
         raise _fail(where, "block_width", block, f"an integer from 1 to width ({values['width']})")
+    local = values["local_width"]
+    if mode == "levels" and (not _is_int(local) or not 0 <= local <= values["width"]):
+        raise _fail(where, "local_width", local,
+                    f"an integer from 0 to width ({values['width']}); 0: one network")
     wires = values["wire_registers"]
-    depth = prefix.network(values["cell"],
-                           prefix_positions(values["width"], mode, block)).depth
+    depth = prefix.local_network(values["cell"], prefix_positions(values["width"], mode, block),
+                                 local if mode == "levels" else 0).depth
     if not _is_int(wires) or not 0 <= wires <= depth:
         raise _fail(where, "wire_registers", wires,
                     f"an integer from 0 to the depth of the {values['cell']} network ({depth})")

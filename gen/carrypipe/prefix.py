@@ -110,6 +110,27 @@ def network(style: str, width: int) -> Network:
     return net
 
 
+def local_network(style: str, width: int, local: int) -> Network:
+    """The `style` network within each block of `local` bits, then over the blocks' top bits,
+    then one fill-in level joining every other bit to the top of the block below.
+
+    The sparse-tree arrangement (a carry network over block carries, each block completing its
+    bits from its carry-in): all but the last two parts are wired within a block.  `local` 0
+    (or at least `width`) is the plain network.
+    """
+    if not 0 < local < width:
+        return network(style, width)
+    blocks = -(-width // local)
+    tops = [min(local * (q + 1), width) - 1 for q in range(blocks)]
+    levels = [[(local * q + i, local * q + j) for q in range(blocks) for i, j in level
+               if local * q + i < width] for level in network(style, local).levels]
+    levels += [[(tops[i], tops[j]) for i, j in level] for level in network(style, blocks).levels]
+    levels.append([(i, local * q - 1) for q in range(1, blocks) for i in range(local * q, tops[q])])
+    net = Network(style, width, tuple(tuple(level) for level in levels if level))
+    validate(net)
+    return net
+
+
 def validate(net: Network) -> None:
     """Check that every node joins adjacent groups and every bit ends with its full prefix."""
     low = list(range(net.width))  # low[i]: lowest bit covered by the group held at bit i

@@ -22,7 +22,8 @@ A finished result does not wait for the last stage: a sum bit (or block select) 
 the stage after its carry-in is final, in parallel with that stage's prefix logic, and then
 travels on as one bit (or one block sum) instead of its inputs.  `wire_registers: n` puts a
 logic-free stage in front of the n prefix levels with the longest span; there the far
-operand of every node gets its own register (one per reading node), which placement can put
+operand of every node gets its own register, apart from the local copy of that term (one
+copy per term and level, shared by the term's far readers), which placement can put
 half-way along the long wire.
 
 Every term knows the stage that computes it and the last stage that reads it (the output
@@ -143,7 +144,8 @@ def make_schedule(config: Config) -> Schedule:
         k = config.block_width
         widths = tuple(min(k, w - k * q) for q in range(count))
     lsbs = tuple(sum(widths[:q]) for q in range(count))
-    net = prefix.network(config.cell, count)
+    net = prefix.local_network(config.cell, count,
+                               config.local_width if mode == "levels" else 0)
     level_stage, wire_stage, final, merged, wired = _assign_stages(
         mode, net, config.levels_per_stage, config.wire_registers)
 
@@ -193,12 +195,20 @@ def make_schedule(config: Config) -> Schedule:
     for k, level in enumerate(net.levels):
         stage = level_stage[k]
         new_g, new_p, before = list(g), list(p), list(low)
+        copies: dict[int, int] = {}  # far operand -> its wire copy at this level
+
+        def far(x, reader):
+            """The wire copy of far operand `x`, placed with its first reader."""
+            if x not in copies:
+                copies[x] = term("wire_" + terms[x].kind, reader, "wire", (x,), wire_stage[k])
+            return copies[x]
+
         for i, j in level:
             gj, pj = g[j], p[j]
-            if k in wire_stage:  # the far operands get their own registers, one per reader
-                gj = term("wire_" + terms[gj].kind, i, "wire", (gj,), wire_stage[k])
+            if k in wire_stage:  # the far operands get their own registers
+                gj = far(gj, i)
                 if pj is not None:
-                    pj = term("wire_" + terms[pj].kind, i, "wire", (pj,), wire_stage[k])
+                    pj = far(pj, i)
             new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage)
             # A block group reaching block 0 needs no carry-in-1 term (cin is folded in).
             new_p[i] = None if pj is None else term(

@@ -1,0 +1,101 @@
+"""Benchmark of the prefix pipeline modes (issue 6 goals) beside the peer and the fabric limit.
+
+Not a test (pytest does not collect it): it places and routes real designs with `fit`'s flow
+(`toolflow.place_and_route`, the serial-in / captured-out harness, results cached like
+`fit`'s) through `bench_fit.measure`, and prints one table: latency, MHz (median over the
+seeds), LUTs, carry cells, flip-flops, the ratio to the fabric limit (register -> one LUT4
+-> register) and the critical path's end cells of the first seed.
+
+    python tests/bench_modes.py --width 64 --seeds 3
+    python tests/bench_modes.py --width 256 --seeds 3 --only han-carlson/0,kogge-stone/2
+
+A design is `<cell>/<wire_registers>[/<local_width>]` (levels mode, one prefix level per
+stage, registered inputs); with `--blocks <k>` the designs are blocks mode, block width k.
+"""
+
+from __future__ import annotations
+
+import argparse
+import re
+import sys
+import time
+
+import bench_fit
+from carrypipe import cache, config, devices, emit, harness, toolflow
+from carrypipe.plan import make_plan
+
+DESIGNS = ("kogge-stone/0", "kogge-stone/1", "kogge-stone/2", "han-carlson/0",
+           "han-carlson/1", "sklansky/0", "brent-kung/0")
+
+
+def unit_config(width: int, design: str, blocks: int | None) -> config.Config:
+    cell, wires, *local = design.split("/")
+    keys = {"name": "gen", "width": width, "pipeline": "blocks" if blocks else "levels",
+            "cell": cell, "wire_registers": int(wires), "register_inputs": True}
+    if blocks:
+        keys["block_width"] = blocks
+    if local:
+        keys["local_width"] = int(local[0])
+    return config.from_mapping(keys)
+
+
+def critical(store, versions, device, plan, text, seed):
+    """The first seed's critical path (start -> end cell) and whether it ends in the unit,
+    read back from the cache.  Every stage of a levels unit is one LUT, so the harness's
+    rule (`harness.inside_unit`: a unit path has more than one LUT) does not apply; the end
+    cell's name tells: harness cells start with `harness_`, or are the shift-in registers
+    named after a unit input port (`unit.a_<CELL TYPE>...`; the unit's own input register
+    is `a_in`)."""
+    hit = store.get(cache.key({"bench": "generated", "verilog": text}, device.name, seed,
+                              versions))
+    if not hit or hit.status != "ok":
+        return "", None
+    ports = "|".join(p.name for p in plan.ports if p.direction == "input")
+    shift_in = re.match(rf"{harness.INSTANCE}\.({ports})(\[|_[A-Z]|$)", hit.end)
+    return f"{hit.start} -> {hit.end}", not (hit.end.startswith(harness.PREFIX) or shift_in)
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--device", default="ecp5-85k")
+    ap.add_argument("--width", type=int, default=64)
+    ap.add_argument("--seeds", type=int, default=1)
+    ap.add_argument("--only", help="comma-separated designs <cell>/<wire_registers>[/<local_width>]")
+    ap.add_argument("--blocks", type=int, help="measure blocks mode with this block width")
+    ap.add_argument("--no-peer", action="store_true", help="leave out the registered a + b")
+    args = ap.parse_args(argv)
+    seeds = tuple(range(1, args.seeds + 1))
+    device = devices.get(args.device)
+    versions = toolflow.versions(device.family, "wheel")
+    store = cache.Cache()
+    t0 = time.monotonic()
+    fab_cfg = config.from_mapping({"name": "fabric", "width": 32, "register_inputs": True})
+    fabric = bench_fit.measure(store, versions, device, "fabric limit", fab_cfg,
+                               bench_fit.fabric_verilog("fabric", 32), seeds, "fabric")
+    rows = [fabric]
+    if not args.no_peer:
+        peer_cfg = config.from_mapping({"name": "peer", "width": args.width,
+                                        "register_inputs": True})
+        rows.append(bench_fit.measure(store, versions, device, f"peer {args.width}", peer_cfg,
+                                      bench_fit.peer_verilog("peer", args.width), seeds, "peer"))
+    paths = {}
+    for design in (args.only.split(",") if args.only else DESIGNS):
+        cfg = unit_config(args.width, design, args.blocks)
+        plan = make_plan(cfg)
+        text = emit.unit_verilog(plan)
+        mode = f"blocks{args.blocks}" if args.blocks else "levels"
+        name = f"{mode} {design}"
+        row = bench_fit.measure(store, versions, device, name, cfg, text, seeds, "generated")
+        rows.append(row)
+        paths[name], row["inside"] = critical(store, versions, device, plan, text, seeds[0])
+        print(f"  measured {name}: {row['mhz']} MHz, plan {plan.registers.total} register "
+              f"bits ({time.monotonic() - t0:.0f} s)", file=sys.stderr, flush=True)
+    bench_fit.print_table(device, versions, seeds, rows, fabric)
+    print("critical paths (first seed):")
+    for name, path in paths.items():
+        print(f"  {name:<24} {path}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
