@@ -108,3 +108,34 @@ def test_plan_what_if(write_config):
     assert r.exit_code == 2 and "slice widths that sum to width (24), not 14" in r.output
     r = run("plan", cfg, "--slice-width", 0)
     assert r.exit_code == 2 and "key 'slice_width': value 0" in r.output
+
+
+def test_a_failed_write_into_a_new_folder_leaves_nothing(tmp_path, monkeypatch):
+    from carrypipe import emit
+
+    calls = []
+    real = emit.os.replace
+
+    def flaky(src, dst):
+        calls.append(dst)
+        if len(calls) == 2:
+            raise OSError(28, "No space left on device")
+        real(src, dst)
+    monkeypatch.setattr(emit.os, "replace", flaky)
+    with pytest.raises(OSError):
+        emit.write({"a.v": "x\n", "b.v": "y\n", "c.v": "z\n"}, tmp_path / "new")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_written_files_have_ordinary_permissions(tmp_path):
+    from carrypipe import emit
+
+    old = emit.os.umask(0o022)
+    try:
+        emit.write({"a.v": "x\n"}, tmp_path / "fresh")
+        (tmp_path / "fresh" / "b.v").write_text("")
+        emit.write({"b.v": "y\n"}, tmp_path / "fresh")
+    finally:
+        emit.os.umask(old)
+    for name in ("a.v", "b.v"):
+        assert (tmp_path / "fresh" / name).stat().st_mode & 0o777 == 0o644

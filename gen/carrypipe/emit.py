@@ -7,6 +7,7 @@ the output folder as it was; `write` then puts each file in place with an atomic
 from __future__ import annotations
 
 import os
+import shutil
 import tempfile
 from pathlib import Path
 
@@ -53,27 +54,58 @@ def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
 
 
 def write(files: dict[str, str | bytes], out_dir: str | Path) -> list[Path]:
-    """Write all files into `out_dir`: each goes to a temporary file first, then is renamed.
+    """Write all files into `out_dir`, so that a failure leaves it as it was.
 
-    Text is written as UTF-8 with LF line ends; bytes (images) as they are.
+    A new folder is filled under a temporary name beside it and renamed into place at the
+    end; in an existing folder each file goes to a temporary file first and all are renamed
+    once every one is written.  Text is written as UTF-8 with LF line ends; bytes (images)
+    as they are.
     """
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
+    if not out.exists():
+        out.parent.mkdir(parents=True, exist_ok=True)
+        fresh = out.parent / f".{out.name}.{os.getpid()}.tmp"
+        fresh.mkdir()
+        try:
+            for tmp, dest in _stage(files, fresh):
+                os.replace(tmp, dest)
+            os.rename(fresh, out)
+        except BaseException:
+            shutil.rmtree(fresh, ignore_errors=True)
+            raise
+        return [out / fname for fname in files]
+    staged = _stage(files, out)
+    for tmp, dest in staged:
+        os.replace(tmp, dest)
+    return [dest for _, dest in staged]
+
+
+def _stage(files: dict[str, str | bytes], folder: Path) -> list[tuple[str, Path]]:
+    """Write each file to a temporary name in `folder`; return (temporary, final) pairs.
+
+    On a failure the temporary files written so far are removed before the error goes on.
+    """
     staged = []
+    mode = 0o666 & ~_umask()  # what a plain open() would give, not mkstemp's 0600
     try:
         for fname, text in files.items():
-            fd, tmp = tempfile.mkstemp(prefix=f".{fname}.", dir=out)
-            staged.append((tmp, out / fname))  # before writing: a failed write is cleaned up too
+            fd, tmp = tempfile.mkstemp(prefix=f".{fname}.", dir=folder)
+            staged.append((tmp, folder / fname))  # before writing: a failed write is cleaned up
             if isinstance(text, bytes):
                 with os.fdopen(fd, "wb") as fh:
                     fh.write(text)
             else:
                 with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
                     fh.write(text)
+            os.chmod(tmp, mode)
     except BaseException:
         for tmp, _ in staged:
             os.unlink(tmp)
         raise
-    for tmp, dest in staged:
-        os.replace(tmp, dest)
-    return [dest for _, dest in staged]
+    return staged
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
