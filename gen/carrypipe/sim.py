@@ -1,8 +1,8 @@
 """Run vectors through a unit and compare every result with Python integers.
 
-Two simulators share one protocol (the one the emitted testbench follows): `amaranth` runs
-the Amaranth design in Python; `icarus` compiles the emitted Verilog with the emitted
-testbench.  Each returns a `Result`; a mismatch names the vector, cycle, inputs, expected
+Every simulator follows one protocol (the one the emitted testbench follows): `amaranth`
+runs the Amaranth design in Python; `icarus` and `verilator` compile the emitted Verilog with
+the emitted testbench.  Each returns a `Result`; a mismatch names the vector, cycle, inputs, expected
 and actual values.
 """
 
@@ -42,11 +42,7 @@ def run(plan: Plan, vecs: list[Vector], simulator: str, timeout: float | None = 
     """Simulate `vecs` on the unit with `simulator`."""
     if simulator == "amaranth":
         return run_amaranth(plan, vecs, unit=unit)
-    if simulator == "icarus":
-        return run_icarus(plan, vecs, timeout=timeout)
-    if simulator == "verilator":
-        return run_verilator(plan, vecs, timeout=timeout)
-    raise ValueError(simulator)
+    return run_external(plan, vecs, simulator, timeout=timeout)
 
 
 def _mismatch(plan: Plan, k: int, cycle: int, v: Vector, got: tuple) -> str:
@@ -129,58 +125,69 @@ def run_amaranth(plan: Plan, vecs: list[Vector], unit=None) -> Result:
     return Result(msg.startswith("PASS"), len(vecs), "amaranth", msg)
 
 
-def run_icarus(plan: Plan, vecs: list[Vector], timeout: float | None = None,
-               workdir: str | Path | None = None) -> Result:
-    """Compile the emitted unit and testbench with Icarus Verilog and run them."""
+@dataclass(frozen=True)
+class _External:
+    """How one event-driven simulator compiles and runs the emitted unit and testbench."""
+
+    binaries: tuple[str, ...]
+    missing: str  # what to tell the user when a binary is not on PATH
+    compile: tuple[str, ...]  # {name} stands for the module name
+    execute: tuple[str, ...]
+
+
+EXTERNAL = {
+    "icarus": _External(
+        ("iverilog", "vvp"),
+        "Icarus Verilog (iverilog, vvp) is not on PATH; install it "
+        "(Debian/Ubuntu: apt-get install iverilog) or use --sim amaranth",
+        ("iverilog", "-g2005", "-o", "{name}_tb.vvp", "{name}.v", "{name}_tb.v"),
+        ("vvp", "-n", "{name}_tb.vvp")),
+    "verilator": _External(
+        ("verilator",),
+        "Verilator (5.x) is not on PATH; install it (Debian/Ubuntu: apt-get install "
+        "verilator) or use --sim icarus / --sim amaranth",
+        ("verilator", "--binary", "--timing", "-Wno-fatal", "-O1", "--top-module",
+         "{name}_tb", "-o", "{name}_tb", "{name}.v", "{name}_tb.v"),
+        ("obj_dir/{name}_tb",)),
+}
+
+
+def run_external(plan: Plan, vecs: list[Vector], simulator: str,
+                 timeout: float | None = None) -> Result:
+    """Compile the emitted unit and testbench with `simulator` (a key of EXTERNAL), run them
+    in a temporary folder, and read the testbench's verdict."""
     from . import emit
     from .testbench import testbench, vector_file
     from .vectors import hex_lines
 
-    if not (shutil.which("iverilog") and shutil.which("vvp")):
-        raise ToolMissing("Icarus Verilog (iverilog, vvp) is not on PATH; install it "
-                          "(Debian/Ubuntu: apt-get install iverilog) or use --sim amaranth")
+    tool = EXTERNAL[simulator]
+    if not all(shutil.which(b) for b in tool.binaries):
+        raise ToolMissing(tool.missing)
     name = plan.config.name
     with tempfile.TemporaryDirectory(prefix="carrypipe-") as tmp:
-        work = Path(workdir or tmp)
+        work = Path(tmp)
         files = {f"{name}.v": emit.unit_verilog(plan),
                  f"{name}_tb.v": testbench(plan, len(vecs)),
                  vector_file(plan): hex_lines(plan, vecs)}
         for fname, text in files.items():
             (work / fname).write_text(text)
-        out = _tool(["iverilog", "-g2005", "-o", f"{name}_tb.vvp", f"{name}.v", f"{name}_tb.v"],
-                    work, timeout)
+        out = _tool([arg.format(name=name) for arg in tool.compile], work, timeout)
         if out.returncode != 0:
-            raise RuntimeError(f"iverilog failed: {out.stdout.strip()} {out.stderr.strip()}")
-        out = _tool(["vvp", "-n", f"{name}_tb.vvp"], work, timeout)
-    return _result(out, len(vecs), "icarus")
-
-
-def run_verilator(plan: Plan, vecs: list[Vector], timeout: float | None = None,
-                  workdir: str | Path | None = None) -> Result:
-    """Compile the emitted unit and testbench with Verilator (--binary --timing) and run them."""
-    from . import emit
-    from .testbench import testbench, vector_file
-    from .vectors import hex_lines
-
-    if not shutil.which("verilator"):
-        raise ToolMissing("Verilator (5.x) is not on PATH; install it (Debian/Ubuntu: "
-                          "apt-get install verilator) or use --sim icarus / --sim amaranth")
-    name = plan.config.name
-    with tempfile.TemporaryDirectory(prefix="carrypipe-") as tmp:
-        work = Path(workdir or tmp)
-        files = {f"{name}.v": emit.unit_verilog(plan),
-                 f"{name}_tb.v": testbench(plan, len(vecs)),
-                 vector_file(plan): hex_lines(plan, vecs)}
-        for fname, text in files.items():
-            (work / fname).write_text(text)
-        out = _tool(["verilator", "--binary", "--timing", "-Wno-fatal", "-O1",
-                     "--top-module", f"{name}_tb", "-o", f"{name}_tb", f"{name}.v",
-                     f"{name}_tb.v"], work, timeout)
-        if out.returncode != 0:
-            raise RuntimeError(f"verilator failed: {out.stdout.strip()[-500:]} "
+            raise RuntimeError(f"{tool.compile[0]} failed: {out.stdout.strip()[-500:]} "
                                f"{out.stderr.strip()[-500:]}")
-        out = _tool([str(work / "obj_dir" / f"{name}_tb")], work, timeout)
-    return _result(out, len(vecs), "verilator")
+        cmd = [arg.format(name=name) for arg in tool.execute]
+        if "/" in cmd[0]:
+            cmd[0] = str(work / cmd[0])
+        out = _tool(cmd, work, timeout)
+    return _result(out, len(vecs), simulator)
+
+
+def run_icarus(plan: Plan, vecs: list[Vector], timeout: float | None = None) -> Result:
+    return run_external(plan, vecs, "icarus", timeout)
+
+
+def run_verilator(plan: Plan, vecs: list[Vector], timeout: float | None = None) -> Result:
+    return run_external(plan, vecs, "verilator", timeout)
 
 
 def _tool(cmd: list[str], cwd: Path, timeout: float | None) -> subprocess.CompletedProcess:
