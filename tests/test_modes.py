@@ -72,7 +72,9 @@ def test_every_option_in_every_mode(mode, opts):
      "carry_in": True, "carry_out": False, "valid": True},
     {"pipeline": "blocks", "cell": "brent-kung", "width": 256, "block_width": 8,
      "wire_registers": 1, "enable": True},
-], ids=["levels-hc64", "levels-ks37-wired", "blocks-sk100", "blocks-bk256"])
+    {"pipeline": "levels", "cell": "kogge-stone", "width": 256, "local_width": 16,
+     "wire_registers": 2, "register_inputs": True, "valid": True},
+], ids=["levels-hc64", "levels-ks37-wired", "blocks-sk100", "blocks-bk256", "levels-ks256-local"])
 def test_emitted_verilog_in_icarus(keys):
     simulate(make(**keys), simulator="icarus", count=150)
 
@@ -177,6 +179,8 @@ PRUNED = [
     {"pipeline": "blocks", "cell": "han-carlson", "width": 70, "block_width": 6,
      "levels_per_stage": 2, "valid": True},
     {"pipeline": "levels", "cell": "kogge-stone", "width": 32, "wire_registers": 2},
+    {"pipeline": "levels", "cell": "sklansky", "width": 40, "local_width": 8, "carry_in": True,
+     "valid": True, "wire_registers": 1},
 ]
 
 
@@ -249,6 +253,18 @@ def test_local_network_depth(cell, n, local):
     within = {(i // local, j // local) for level in p.schedule.network.levels[:-1]
               for i, j in level if i % local != local - 1}
     assert all(a == b for a, b in within)  # only block tops reach across blocks, but the fill-in
+
+
+def test_local_blocks_wait_with_two_sum_bits():
+    """A 64-bit Kogge-Stone with 16-bit local blocks: bit i+1 of block q >= 1 (offset r = i -
+    16q, 0..14) holds its group i..16q after ceil(log2(r + 1)) levels (Kogge-Stone's doubling,
+    Harris 2003), forms its sums for block carry 0 and 1 in the next stage and carries those
+    two bits to the last stage (7) instead of p, G, P.  Counted by hand from that rule."""
+    p = make(pipeline="levels", cell="kogge-stone", width=64, local_width=16)
+    formed = [max(1, math.ceil(math.log2(r + 1))) + 1 for r in range(15)]
+    by_hand = 3 * sum(2 * (p.latency - st) for st in formed)
+    assert by_hand == 264
+    assert sum(w.width for w in p.words if w.name.startswith(("blk_s0_", "blk_s1_"))) == by_hand
 
 
 def test_local_width_zero_or_full_is_the_plain_network():
