@@ -126,9 +126,7 @@ def main(argv=None) -> int:
             styles = {}
             for cell in sorted({r["cell"] for r in gen}):
                 pts = [(r["x"], r["mhz"]) for r in gen if r["cell"] == cell]
-                # The carry chain is linear in the slice width; LUT logic is not (a table).
-                styles[cell] = (model.calibrate(pts) if cell == "native"
-                                else model.calibrate_points(pts))
+                styles[cell] = model.calibrate(pts)
             entry = {"floor_ns": round(1000 / fabric["mhz"], 4), "styles": styles}
             print(f"delay model for {device.name}: {json.dumps(entry, sort_keys=True)}")
         print(f"({time.monotonic() - t0:.0f} s)\n")

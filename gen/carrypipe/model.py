@@ -2,15 +2,12 @@
 
 Model, per cell style: x is read from the plan's slowest stage (its width for `native`,
 where the carry chain grows with every bit; its unit-gate delay for the other styles, whose
-LUT logic grows with logic levels), and the period is either
-  - linear: base_ns + per_unit_ns * x (`calibrate`, least squares), or
-  - a table of measured (x, period_ns) points, interpolated piecewise linearly and
-    extrapolated along the end segments (`calibrate_points`), for styles whose LUT mapping
-    is not linear in x;
-never below the device's floor_ns (register -> one LUT -> register).  The constants per
-device live in `data/delay_models.json`, fitted to measurements of `tests/bench_fit.py`;
-the file names the run they come from.  A plan of a
-pipeline mode the model does not describe gets no prediction, and `fit` measures it.
+LUT logic grows with logic levels), and the period is read from a table of measured
+(x, period_ns) points, interpolated piecewise linearly and extended along the end segments,
+never below the device's floor_ns (register -> one LUT -> register).  The tables per device
+live in `data/delay_models.json`, made by `calibrate` from the measurements of
+`tests/bench_fit.py`; the file names the run they come from.  A plan of a pipeline mode
+the model does not describe gets no prediction, and `fit` measures it.
 """
 
 from __future__ import annotations
@@ -44,10 +41,8 @@ def predict(plan: Plan, device: str) -> float | None:
     coef = styles.get(plan.config.cell) or styles.get("default")
     if x is None or coef is None:
         return None
-    period = (interpolate(coef["points"], x) if "points" in coef
-              else coef["base_ns"] + coef["per_unit_ns"] * x)
+    period = interpolate(coef["points"], x)
     return round(1000.0 / max(period, models()[device].get("floor_ns", 0.0)), 1)
-
 
 def interpolate(points: list, x: float) -> float:
     """Piecewise-linear through sorted (x, y) points, extended along the end segments."""
@@ -60,20 +55,6 @@ def interpolate(points: list, x: float) -> float:
 
 
 def calibrate(points: list[tuple[float, float]]) -> dict:
-    """Least-squares base_ns, per_unit_ns from (x, measured MHz) points of one style."""
-    if not points:
-        raise ValueError("calibrate needs at least one point")
-    xs = [x for x, _ in points]
-    ys = [1000.0 / mhz for _, mhz in points]
-    n, mx, my = len(xs), sum(xs) / len(xs), sum(ys) / len(ys)
-    sxx = sum((x - mx) ** 2 for x in xs)
-    slope = sum((x - mx) * (y - my) for x, y in zip(xs, ys)) / sxx if sxx else 0.0
-    slope = max(slope, 0.0)
-    base = my - slope * mx
-    return {"base_ns": round(base, 4), "per_unit_ns": round(slope, 5), "points": n}
-
-
-def calibrate_points(points: list[tuple[float, float]]) -> dict:
     """A table model from (x, measured MHz) points: the median period at each x."""
     by_x: dict[float, list[float]] = {}
     for x, mhz in points:
