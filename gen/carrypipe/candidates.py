@@ -64,6 +64,14 @@ def prefix_candidates(base: Config, cells: tuple[str, ...]) -> list[Config]:
 GENERATORS = (slice_candidates, prefix_candidates)  # each: (base config, cells) -> configs
 
 
+def config_keys(cfg: Config) -> dict:
+    """The keys of a config file that gives `cfg` back (a prefix mode takes no split)."""
+    data = cfg.normalized()
+    if data.get("pipeline", "slices") != "slices":
+        data.pop("slices", None)
+    return data
+
+
 def identity(cfg: Config) -> str:
     """A stable text key of a candidate (its normalized config)."""
     return json.dumps(cfg.normalized(), sort_keys=True)

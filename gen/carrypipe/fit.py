@@ -76,8 +76,8 @@ class Progress:
         self.done += 1
         self.spent += seconds
         eta = self.spent / self.done * left
-        self.echo(f"[{self.done} run, {left} queued] {label}: "
-                  f"elapsed {_clock(time.monotonic() - self.start)}, ETA {_clock(eta)}")
+        self.echo(f"[{self.done} run, up to {left} more] {label}: "
+                  f"elapsed {_clock(time.monotonic() - self.start)}, ETA at most {_clock(eta)}")
 
 
 def _clock(seconds: float) -> str:
@@ -105,8 +105,8 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                     row.measured.append(hit)
             missing = tuple(s for s in seeds if all(m.seed != s for m in row.measured))
             if missing:
-                jobs[id(row)] = (row, toolflow.Job(norm, dev.name, missing, settings.tools,
-                                                   settings.timeout))
+                jobs[id(row)] = (row, toolflow.Job(candidates.config_keys(row.config), dev.name,
+                                                   missing, settings.tools, settings.timeout))
         if jobs and settings.tools == "wheel" and not warned:
             echo(WARMUP_NOTE)
             warned = True
@@ -181,13 +181,14 @@ def record(row: Row, target: float, factors: dict[str, float]) -> dict:
 def table(outcome: Outcome) -> str:
     """The table printed on screen."""
     target = outcome.settings.target_mhz
-    head = (f"{'lat':>3}  {'candidate':<24} {'regs':>6} {'pred':>6} {'MHz':>7} {'LUTs':>6} "
+    wide = max([24, *(len(r.label) for r in outcome.rows)])
+    head = (f"{'lat':>3}  {'candidate':<{wide}} {'regs':>6} {'pred':>6} {'MHz':>7} {'LUTs':>6} "
             f"{'carry':>5} {'FFs':>6}  {'':4} note")
     lines, factors = [head], candidates.scale(outcome.rows)
     for row in ordered(outcome.rows):
         r = record(row, target, factors)
         mark = ("<- " if row is outcome.chosen else "") + ("ok" if r["meets"] else "")
-        lines.append(f"{r['latency']:>3}  {r['candidate']:<24} {r['register_bits']:>6} "
+        lines.append(f"{r['latency']:>3}  {r['candidate']:<{wide}} {r['register_bits']:>6} "
                      f"{_num(r['predicted_mhz'])} {_num(r['measured_mhz'], 7)} "
                      f"{_num(r['luts'])} {_num(r['carry'], 5)} {_num(r['flip_flops'])}  "
                      f"{mark:<4} {r['note']}")
@@ -212,14 +213,6 @@ def summary(outcome: Outcome) -> str:
     return f"no candidate meets {s.target_mhz:g} MHz on {s.device.name}; none could be measured"
 
 
-def config_keys(cfg: Config) -> dict:
-    """The keys of a config file that rebuilds `cfg` (a prefix mode takes no split)."""
-    data = cfg.normalized()
-    if data.get("pipeline", "slices") != "slices":
-        data.pop("slices", None)
-    return data
-
-
 def files(outcome: Outcome) -> dict[str, str | bytes]:
     """The output folder: the chosen unit as `build` writes it, its config, the figures."""
     s = outcome.settings
@@ -232,7 +225,7 @@ def files(outcome: Outcome) -> dict[str, str | bytes]:
         out[f"{cfg.name}.yaml"] = (
             f"# Chosen by carrypipe fit: {outcome.chosen.mhz} MHz on {s.device.name} "
             f"(target {target:g} MHz).\n# Rebuild with: carrypipe build {cfg.name}.yaml\n"
-            + yaml.safe_dump(config_keys(cfg), sort_keys=False, default_flow_style=None))
+            + yaml.safe_dump(candidates.config_keys(cfg), sort_keys=False, default_flow_style=None))
     buf = io.StringIO()
     writer = csv.DictWriter(buf, fieldnames=COLUMNS, lineterminator="\n")
     writer.writeheader()
