@@ -255,18 +255,6 @@ def test_local_network_depth(cell, n, local):
     assert all(a == b for a, b in within)  # only block tops reach across blocks, but the fill-in
 
 
-def test_local_blocks_wait_with_two_sum_bits():
-    """A 64-bit Kogge-Stone with 16-bit local blocks: bit i+1 of block q >= 1 (offset r = i -
-    16q, 0..14) holds its group i..16q after ceil(log2(r + 1)) levels (Kogge-Stone's doubling,
-    Harris 2003), forms its sums for block carry 0 and 1 in the next stage and carries those
-    two bits to the last stage (7) instead of p, G, P.  Counted by hand from that rule."""
-    p = make(pipeline="levels", cell="kogge-stone", width=64, local_width=16)
-    formed = [max(1, math.ceil(math.log2(r + 1))) + 1 for r in range(15)]
-    by_hand = 3 * sum(2 * (p.latency - st) for st in formed)
-    assert by_hand == 264
-    assert sum(w.width for w in p.words if w.name.startswith(("blk_s0_", "blk_s1_"))) == by_hand
-
-
 def test_local_width_zero_or_full_is_the_plain_network():
     plain = make(pipeline="levels", cell="sklansky", width=40)
     for local in (0, 40):

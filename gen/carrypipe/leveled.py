@@ -73,8 +73,6 @@ def build(m: Module, plan: PrefixPlan, a: Value, b: Value, cin, sum_out: Value, 
             v = args[0] ^ cin
         elif t.op == "xor":
             v = args[0] ^ args[1]
-        elif t.op == "xor_or":
-            v = args[0] ^ (args[1] | args[2])
         elif t.op == "dot_g":
             v = args[0] | (args[1] & args[2])
         elif t.op == "dot_p":

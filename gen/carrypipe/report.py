@@ -143,8 +143,10 @@ def stage_table(plan: Plan, slow, marked: bool) -> list[str]:
     lines = [f"Prefix network  {c.cell} over {len(sch.widths)} {what}: {sch.network.depth} "
              f"level(s), {sch.network.nodes} nodes",
              f"Stages    {len(plan.slices)}, every one spanning all bits (no skew or deskew)"]
+    if c.pipeline == "levels" and 0 < c.local_width < c.width:
+        lines.append(f"          within local blocks of {c.local_width} bits, then across them")
     if sch.merged:
-        lines.append("          the final fill-in level is merged into the sum stage")
+        lines.append("          the last prefix level is merged into the sum stage")
     if sch.wired:
         lines.append("          wire registers in front of prefix level(s) "
                      + ", ".join(str(k + 1) for k in sch.wired))

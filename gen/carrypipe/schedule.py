@@ -46,7 +46,7 @@ RESULT_KINDS = ("sum", "blk_s0", "blk_s1")
 
 # Unit-gate delay of each operation (the model of `prefix.Gates`; a 2:1 select is an AND-OR).
 OP_DELAY = {"gen": 1, "prop": 2, "gen_cin": 4, "dot_g": 2, "dot_p": 1,
-            "wire": 0, "xor": 2, "xor_or": 3, "xor_cin": 4, "select": 2}
+            "wire": 0, "xor": 2, "xor_cin": 4, "select": 2}
 
 
 @dataclass(frozen=True)
@@ -157,7 +157,6 @@ def make_schedule(config: Config) -> Schedule:
         return len(terms) - 1
 
     cin = config.carry_in
-    select = mode == "levels" and 0 < config.local_width < w
     sums = [None] * count
     if mode == "levels":
         prop = [term("prop", i, "prop", (), 1, lsb=i) for i in range(w)]
@@ -174,24 +173,14 @@ def make_schedule(config: Config) -> Schedule:
         sums[0] = s0[0]
         g_kind, p_kind, p_op = "grp_c0", "grp_c1", "dot_g"
     logic_free = set(wire_stage.values())
-    # In a local network a bit waits for its block's carry-in with its sum for carry-in 0
-    # and for 1 (two bits) instead of p, G, P (three): position -> (s0, s1, block carry).
-    chosen: dict[int, tuple[int, int, int]] = {}
-
-    def after(*xs):
-        """The first stage with logic after the terms `xs` are formed."""
-        stage = max(terms[x].stage for x in xs) + 1
-        while stage in logic_free:
-            stage += 1
-        return stage
 
     def finish(q):
         """Form position q's result in the stage after its carry-in g[q-1] is final."""
         carry = terms[g[q - 1]]
-        stage = final if carry.stage == final else min(final, after(g[q - 1]))
-        if q in chosen:
-            sums[q] = term("sum", q, "select", chosen[q], stage, lsb=q)
-        elif mode == "levels":
+        stage = final if carry.stage == final else min(final, carry.stage + 1)
+        while stage in logic_free:
+            stage += 1
+        if mode == "levels":
             sums[q] = term("sum", q, "xor", (prop[q], g[q - 1]), stage, lsb=q)
         else:
             sums[q] = term("sum", q, "select", (s0[q], s1[q], g[q - 1]), stage,
@@ -220,12 +209,6 @@ def make_schedule(config: Config) -> Schedule:
                 gj = far(gj, i)
                 if pj is not None:
                     pj = far(pj, i)
-            if select and k == net.depth - 1 and after(prop[i + 1], g[i], p[i]) < final:
-                st = after(prop[i + 1], g[i], p[i])
-                chosen[i + 1] = (
-                    term("blk_s0", i + 1, "xor", (prop[i + 1], g[i]), st, lsb=i + 1),
-                    term("blk_s1", i + 1, "xor_or", (prop[i + 1], g[i], p[i]), st, lsb=i + 1),
-                    gj)
             new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage)
             # A block group reaching block 0 needs no carry-in-1 term (cin is folded in).
             new_p[i] = None if pj is None else term(
