@@ -21,6 +21,7 @@ def figures(rows: list[Row], target: float, chosen: Row | None, title: str) -> d
     matplotlib.use("Agg")
     from matplotlib import pyplot as plt
     from matplotlib.figure import Figure
+    from matplotlib.ticker import MaxNLocator
 
     with plt.rc_context({"svg.hashsalt": "carrypipe", "svg.fonttype": "none"}):
         fig = Figure(figsize=(7.5, 4.8), dpi=100)
@@ -41,6 +42,7 @@ def figures(rows: list[Row], target: float, chosen: Row | None, title: str) -> d
         if chosen is not None and chosen.mhz is not None:
             ax.plot([chosen.latency], [chosen.mhz], "o", markersize=14, markerfacecolor="none",
                     markeredgecolor="red", label=f"chosen: {chosen.label}")
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
         ax.set_xlabel("latency (cycles)")
         ax.set_ylabel("achieved Fmax (MHz), median of seeds")
         ax.set_title(title, fontsize=10)
