@@ -85,3 +85,13 @@ def test_errors_are_one_line():
     with pytest.raises(ConfigError) as info:
         parse_text("name: u\nwidth: 8\ncell: |\n  two\n  lines\n", "x.yaml")
     assert "\n" not in str(info.value)
+
+
+@pytest.mark.parametrize("keys", [
+    {"slice_width": 3, "carry_in": True},
+    {"pipeline": "levels", "cell": "sklansky", "levels_per_stage": 2},
+    {"pipeline": "blocks", "cell": "kogge-stone", "block_width": 4, "valid": True},
+], ids=["slices", "levels", "blocks"])
+def test_normalized_config_reads_back(keys):
+    cfg = from_mapping(base(**keys))
+    assert from_mapping(cfg.normalized()) == cfg

@@ -103,3 +103,17 @@ def test_uneven_variants_only_for_near_misses():
     assert [r.config.slices for r in new] == [(17, 16, 15, 16), (17, 17, 14, 16)]
     assert all(r.forced and r.origin == "uneven of native 16x4" for r in new)
     assert candidates.uneven_rows([near, far, met], 250, lambda c, o: Row(c, 4, 0, o)) == []
+
+
+def test_prefix_mode_candidates():
+    moded = lambda cfgs: sorted((c.pipeline, c.cell, c.levels_per_stage if c.pipeline == "levels"
+                                 else c.block_width) for c in cfgs if c.pipeline != "slices")
+    # `--cells native` names no prefix style: the default pair is tried in the prefix modes.
+    got = moded(candidates.generate(base(width=64), ("native",)))
+    styles = {cell for _, cell, _ in got}
+    assert styles == set(candidates.DEFAULT_PREFIX_STYLES)
+    # 64 bits in 32-bit blocks is two blocks: one prefix node whatever the style, tried once.
+    assert [g for g in got if g[0] == "blocks" and g[2] == 32] == [("blocks", "kogge-stone", 32)]
+    assert len([g for g in got if g[0] == "blocks" and g[2] == 16]) == 2
+    got = moded(candidates.generate(base(width=64), ("sklansky",)))
+    assert {cell for _, cell, _ in got} == {"sklansky"}

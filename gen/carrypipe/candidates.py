@@ -30,10 +30,8 @@ def balanced(width: int, stages: int) -> tuple[int, ...]:
 
 def variant(base: Config, **keys) -> Config:
     """`base` with some keys replaced, validated again (keys of the other modes dropped)."""
-    data = {k: v for k, v in base.normalized().items() if k not in config.MODE_KEYS}
-    data.pop("pipeline", None)
-    if keys.get("pipeline", "slices") != "slices":
-        data.pop("slices")  # the prefix modes take no split
+    data = {k: v for k, v in base.normalized().items()
+            if k not in config.MODE_KEYS and k not in ("pipeline", "slices")}
     data.update(keys)
     return config.from_mapping(data, where="candidate")
 
@@ -49,27 +47,28 @@ LEVELS_PER_STAGE = (1, 2, 3)
 BLOCK_WIDTHS = (8, 16, 32)
 
 
+# Prefix styles tried in the prefix modes when `--cells` names none: the two that measured
+# fastest in `levels` mode on ECP5-85F at 64 and 256 bits (docs/modes.md).
+DEFAULT_PREFIX_STYLES = ("kogge-stone", "han-carlson")
+
+
 def prefix_candidates(base: Config, cells: tuple[str, ...]) -> list[Config]:
     """levels x prefix style x levels per stage; blocks x prefix style x block width.
 
-    The prefix styles among `cells` (all of them when `cells` names none)."""
-    styles = [c for c in cells if c in config.PREFIX_CELLS] or list(config.PREFIX_CELLS)
+    The prefix styles among `cells`, else DEFAULT_PREFIX_STYLES.  Over two blocks every
+    style is the same single node, so such a block width is tried with one style only."""
+    styles = [c for c in cells if c in config.PREFIX_CELLS] or list(DEFAULT_PREFIX_STYLES)
     out = [variant(base, pipeline="levels", cell=cell, levels_per_stage=n)
            for cell in styles for n in LEVELS_PER_STAGE]
-    out += [variant(base, pipeline="blocks", cell=cell, block_width=k)
-            for cell in styles for k in BLOCK_WIDTHS if 2 * k <= base.width]
+    for k in BLOCK_WIDTHS:
+        blocks = -(-base.width // k)
+        if blocks >= 2:
+            out += [variant(base, pipeline="blocks", cell=cell, block_width=k)
+                    for cell in (styles if blocks > 2 else styles[:1])]
     return out
 
 
 GENERATORS = (slice_candidates, prefix_candidates)  # each: (base config, cells) -> configs
-
-
-def config_keys(cfg: Config) -> dict:
-    """The keys of a config file that gives `cfg` back (a prefix mode takes no split)."""
-    data = cfg.normalized()
-    if data.get("pipeline", "slices") != "slices":
-        data.pop("slices", None)
-    return data
 
 
 def identity(cfg: Config) -> str:

@@ -83,12 +83,15 @@ class Config:
     def normalized(self) -> dict:
         """The config as plain data with every default filled in (for headers, manifests, caches).
 
-        Keys that the unit's pipeline mode does not read are left out, and a `slices` unit
-        leaves out `pipeline` too, so configs written before the prefix modes existed keep
-        their exact normalized form.
+        Keys that the unit's pipeline mode does not read are left out (a prefix mode takes no
+        split), and a `slices` unit leaves out `pipeline` too, so configs written before the
+        prefix modes existed keep their exact normalized form.  `from_mapping` of the result
+        gives the same config back.
         """
         data = asdict(self)
         data["slices"] = list(self.slices)
+        if self.pipeline != "slices":
+            del data["slices"]
         for key, modes in MODE_KEYS.items():
             if self.pipeline not in modes:
                 del data[key]

@@ -105,7 +105,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                     row.measured.append(hit)
             missing = tuple(s for s in seeds if all(m.seed != s for m in row.measured))
             if missing:
-                jobs[id(row)] = (row, toolflow.Job(candidates.config_keys(row.config), dev.name,
+                jobs[id(row)] = (row, toolflow.Job(row.config.normalized(), dev.name,
                                                    missing, settings.tools, settings.timeout))
         if jobs and settings.tools == "wheel" and not warned:
             echo(WARMUP_NOTE)
@@ -225,7 +225,7 @@ def files(outcome: Outcome) -> dict[str, str | bytes]:
         out[f"{cfg.name}.yaml"] = (
             f"# Chosen by carrypipe fit: {outcome.chosen.mhz} MHz on {s.device.name} "
             f"(target {target:g} MHz).\n# Rebuild with: carrypipe build {cfg.name}.yaml\n"
-            + yaml.safe_dump(candidates.config_keys(cfg), sort_keys=False, default_flow_style=None))
+            + yaml.safe_dump(cfg.normalized(), sort_keys=False, default_flow_style=None))
     buf = io.StringIO()
     writer = csv.DictWriter(buf, fieldnames=COLUMNS, lineterminator="\n")
     writer.writeheader()
