@@ -12,7 +12,7 @@ from pathlib import Path
 
 import click
 
-from . import __version__, emit, sim
+from . import __version__, emit, report, sim
 from .config import ConfigError, check_split, load
 from .plan import make_plan
 from .vectors import suite
@@ -85,7 +85,7 @@ def build(config, out_dir, vectors, seed):
         raise UserError(f"cannot write into {dest}: {exc.strerror or exc}") from None
     r = plan.registers
     click.echo(f"{plan.config.name}: {plan.width}-bit {plan.config.cell}, "
-               f"{len(plan.slices)} slice(s), latency {plan.latency}, "
+               f"{report.structure_phrase(plan)}, latency {plan.latency}, "
                f"{r.total} register bits -> {dest}/")
     for fname in sorted(files):
         click.echo(f"  {fname}")
@@ -124,7 +124,6 @@ def check(config, vectors, seed, simulator, timeout):
 def plan_cmd(config, slice_width, slices, chart_path):
     """Print the plan (slices, latency, register bits, stage delays) without building."""
     from . import chart
-    from .report import report
 
     plan = load_plan(config, slice_width, slices)
     if chart_path is not None:
@@ -137,7 +136,7 @@ def plan_cmd(config, slice_width, slices, chart_path):
         except OSError as exc:
             raise UserError(f"cannot write the chart {chart_path}: "
                             f"{exc.strerror or exc}") from None
-    click.echo(report(plan), nl=False)
+    click.echo(report.report(plan), nl=False)
     if chart_path is not None:
         click.echo(f"Chart: {chart_path}")
 

@@ -11,12 +11,9 @@ import shutil
 import tempfile
 from pathlib import Path
 
-from amaranth.back import verilog
-
 from . import chart, report, tidy
 from .plan import Plan
 from .testbench import testbench, vector_file
-from .unit import PipelinedAdder, clock_domain
 from .vectors import hex_lines, suite
 
 DEFAULT_VECTORS = 1000
@@ -26,8 +23,13 @@ DEFAULT_SEED = 1
 def unit_verilog(plan: Plan, fault: str | None = None) -> str:
     """The unit as Verilog, with the plan's header on top (deterministic: no paths, no src).
 
-    `fault` (tests only) plants one of `unit.FAULTS` for the proof to find.
+    `fault` (tests only) plants one of `unit.FAULTS` for the proof to find.  Amaranth is
+    imported here, not at the top, so that commands that only plan start instantly.
     """
+    from amaranth.back import verilog
+
+    from .unit import PipelinedAdder, clock_domain
+
     top = PipelinedAdder(plan, fault=fault)
     text = verilog.convert(top, name=plan.config.name, ports=top.ports(),
                            emit_src=False, strip_internal_attrs=True,
