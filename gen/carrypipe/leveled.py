@@ -43,6 +43,7 @@ def build(m: Module, plan: PrefixPlan, a: Value, b: Value, cin, sum_out: Value, 
 
     value: dict[int, Value] = {}  # term index -> value as formed in its own stage
     chains: dict[tuple[int, int], tuple[Value, Value]] = {}
+    carried: set[tuple[int, int]] = set()  # chains whose carry-out some term reads
 
     def at(index, stage):
         """Term `index` as seen by logic of `stage`: its own value, or its last register copy."""
@@ -82,11 +83,19 @@ def build(m: Module, plan: PrefixPlan, a: Value, b: Value, cin, sum_out: Value, 
         elif t.op == "select":
             v = Mux(args[2], args[1], args[0])
         else:  # chain<0|1>_<sum|carry>
-            total, carry = chain(i, t.op.startswith("chain1"))
-            v = total if t.op.endswith("sum") else carry
+            key = (i, t.op.startswith("chain1"))
+            total, carry = chain(*key)
+            v = total
+            if t.op.endswith("carry"):
+                v = carry
+                carried.add(key)
         value[t.index] = v
         for rank in range(t.stage, min(sch.last[t.index], sch.final)):
             m.d.sync += slot(t, rank).eq(v if rank == t.stage else slot(t, rank - 1))
+
+    for (q, plus_one), (_, carry) in chains.items():
+        if (q, plus_one) not in carried:  # the top block without cout: named for lint tools
+            m.d.comb += Signal(name=f"blk{q}_c{int(plus_one)}_carry_unused").eq(carry)
 
     (_, sum_stage), = words["sum"]
     for q, index in enumerate(sch.sums):

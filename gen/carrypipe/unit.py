@@ -53,9 +53,6 @@ class PipelinedAdder(Elaboratable):
         m = Module()
         plan, c = self.plan, self.plan.config
 
-        def reg(width, name):
-            return Signal(width, name=name, reset_less=True)
-
         a, b, cin = self.a, self.b, self.cin
         if c.register_inputs:
             a_in, b_in = reg(plan.width, "a_in"), reg(plan.width, "b_in")
@@ -66,13 +63,31 @@ class PipelinedAdder(Elaboratable):
                 m.d.sync += cin_in.eq(cin)
                 cin = cin_in
 
-        if c.pipeline != "slices":  # prefix levels or blocks: no slices, see `leveled`
+        if c.pipeline == "slices":
+            self._slices(m, a, b, cin)
+        else:  # prefix levels or blocks: no slices, see `leveled`
             leveled.build(m, plan, a, b, cin, self.sum, self.cout)
+
+        if c.valid:
+            valid = self.in_valid
+            for k in range(plan.latency):
+                nxt = Signal(name=f"valid_{k + 1}")
+                m.d.sync += nxt.eq(valid)
+                valid = nxt
+            m.d.comb += self.out_valid.eq(valid)
+
+        if self.en is not None:
+            m = EnableInserter({"sync": self.en})(m)
+        return m
+
+    def _slices(self, m: Module, a, b, cin):
+        """Slice i adds its bits in cycle i; the skew words shrink, the deskew words grow."""
+        plan = self.plan
         a_wait, b_wait = a, b  # operand bits of slices i.. as seen in cycle i
         carry = cin
         done = []  # finished result bits below slice i, registered
         last = len(plan.slices) - 1
-        for s in plan.slices if c.pipeline == "slices" else ():
+        for s in plan.slices:
             i = s.index
             net = s.network()
             if self.fault == "swapped-node" and i == 0:  # last node's operands exchanged
@@ -107,17 +122,10 @@ class PipelinedAdder(Elaboratable):
                 if self.cout is not None:
                     m.d.comb += self.cout.eq(carry)
 
-        if c.valid:
-            valid = self.in_valid
-            for k in range(plan.latency):
-                nxt = Signal(name=f"valid_{k + 1}")
-                m.d.sync += nxt.eq(valid)
-                valid = nxt
-            m.d.comb += self.out_valid.eq(valid)
 
-        if self.en is not None:
-            m = EnableInserter({"sync": self.en})(m)
-        return m
+def reg(width: int, name: str) -> Signal:
+    """A data register: reset-less, so synthesis may pack delay lines into LUT shift registers."""
+    return Signal(width, name=name, reset_less=True)
 
 
 def clock_domain(plan: Plan):
