@@ -61,7 +61,18 @@ def test_plan_marks_the_slowest_stage_only(write_config):
     assert marked == ["1"]
     delays = [int(row.split()[5]) for row in stage_rows(r.output)]
     assert delays[1] == max(delays) and delays.count(max(delays)) == 1
-    assert "Slowest stage: 1 at " in r.output
+    assert "Slowest: stage 1 at " in r.output
+
+
+def test_plan_names_every_tied_slowest_stage(write_config):
+    # Ripple slices of 10, 4, 10 bits, all with a carry-in: t_pg + (w-1) t_AO + t_xor
+    # (common practice) gives 2 + 2*9 + 2 = 22 units for the outer two, 10 for the middle one.
+    r = run("plan", write_config("name: acc\nwidth: 24\ncell: ripple\ncarry_in: true\n"),
+            "--slices", "10,4,10")
+    assert r.exit_code == 0, r.output
+    marked = [row.split()[0] for row in stage_rows(r.output) if row.endswith("<- slowest")]
+    assert marked == ["0", "2"]
+    assert "Slowest: stages 0, 2 at 22 units, 12 more than the next slowest (10)." in r.output
 
 
 def test_plan_marks_no_stage_when_all_tie(write_config):

@@ -127,7 +127,9 @@ def report(plan: Plan) -> str:
         lines.append(f"  {kind:<8} {bits:>8}")
     lines.append("")
     if len(delays) > 1:
-        lines.append(f"Slowest stage: {slow.index} at {slow.delay} units, "
+        tied = [str(s.index) for s in plan.slices if s.delay == slow.delay]
+        which = f"stage {tied[0]}" if len(tied) == 1 else f"stages {', '.join(tied)}"
+        lines.append(f"Slowest: {which} at {slow.delay} units, "
                      f"{slow.delay - delays[1]} more than the next slowest ({delays[1]}).")
     else:
         lines.append(f"Every stage has the same unit-gate delay: {slow.delay} units.")
