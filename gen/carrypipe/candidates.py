@@ -116,6 +116,7 @@ class Row:
     forced: bool = False  # measure even when the prediction is low (uneven variants)
     spawned: bool = False  # its uneven variants have been added
     planned_slowest: int = 0  # the plan's slowest stage (unit-gate model)
+    stages: int = 1  # the plan's stage count
 
     @property
     def label(self) -> str:
@@ -143,13 +144,19 @@ class Row:
         return self.measured[0].luts if self.measured else None
 
     @property
-    def slowest_stage(self) -> int:
-        """Where the measured critical path ends, else where the plan expects it."""
+    def measured_stage(self) -> int | None:
+        """The stage whose register ends the measured critical path, when its name tells."""
         for m in self.ok:
-            stage = harness.stage_of(m.end, len(self.config.slices))
+            stage = harness.stage_of(m.end, self.stages)
             if stage is not None:
                 return stage
-        return self.planned_slowest
+        return None
+
+    @property
+    def slowest_stage(self) -> int:
+        """Where the measured critical path ends, else where the plan expects it."""
+        stage = self.measured_stage
+        return self.planned_slowest if stage is None else stage
 
     @property
     def done(self) -> bool:

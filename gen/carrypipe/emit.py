@@ -38,8 +38,10 @@ def unit_verilog(plan: Plan, fault: str | None = None) -> str:
 
 
 def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
-           extra: dict[str, str] | None = None) -> dict[str, str]:
-    """Every file of a build, by name."""
+           measured: dict[int, float] | None = None,
+           measured_source: str = "") -> dict[str, str]:
+    """Every file of a build, by name; `measured` (stage -> ns, from `fit`) marks the
+    chart's slowest stage by measurement instead of by the unit-gate model."""
     name = plan.config.name
     vecs = suite(plan, vectors, seed)
     files = {
@@ -47,9 +49,8 @@ def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
         f"{name}_tb.v": testbench(plan, len(vecs)),
         vector_file(plan): hex_lines(plan, vecs),
         f"{name}.txt": report.report(plan),
-        f"{name}_chart.svg": chart.svg(plan),
+        f"{name}_chart.svg": chart.svg(plan, measured, measured_source),
     }
-    files.update(extra or {})
     manifest_name = f"{name}.json"
     files[manifest_name] = report.manifest_text(plan, [*files, manifest_name])
     return files

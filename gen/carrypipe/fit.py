@@ -50,7 +50,8 @@ def make_row(cfg: Config, origin: str, device: devices.Device) -> Row:
     """A candidate's plan figures, prediction and whether its flip-flops fit the device."""
     plan = make_plan(cfg)
     row = Row(cfg, plan.latency, plan.registers.total, origin,
-              predicted=model.predict(plan, device.name), planned_slowest=plan.slowest.index)
+              predicted=model.predict(plan, device.name), planned_slowest=plan.slowest.index,
+              stages=len(plan.slices))
     need = plan.registers.total + harness.flip_flops(plan)
     if need > device.flip_flops:
         mark_no_fit(row, device, need, f"{need} flip-flops (unit {plan.registers.total}, "
@@ -220,8 +221,12 @@ def files(outcome: Outcome) -> dict[str, str | bytes]:
     rows, factors = ordered(outcome.rows), candidates.scale(outcome.rows)
     out: dict[str, str | bytes] = {}
     if outcome.chosen:
-        cfg = outcome.chosen.config
-        out.update(emit.render(make_plan(cfg)))
+        chosen = outcome.chosen
+        cfg = chosen.config
+        stage = chosen.measured_stage  # the chart marks it with the measured path
+        out.update(emit.render(make_plan(cfg), measured=None if stage is None else {
+            stage: round(1000 / chosen.mhz, 3)}, measured_source=(
+                f"critical path at the median Fmax on {s.device.name}, nextpnr")))
         out[f"{cfg.name}.yaml"] = (
             f"# Chosen by carrypipe fit: {outcome.chosen.mhz} MHz on {s.device.name} "
             f"(target {target:g} MHz).\n# Rebuild with: carrypipe build {cfg.name}.yaml\n"
