@@ -82,10 +82,11 @@ def test_emitted_verilog_in_icarus(keys):
 @pytest.mark.slow
 def test_small_units_every_shape():
     """Every prefix style, width 1..16, levels per stage 1..3, wire registers 0..2, both
-    modes, block widths 1..3: all against Python integers."""
+    modes, local blocks of 3 bits, block widths 1..3: all against Python integers."""
     for cell, width, lps, wires in itertools.product(PREFIX_CELLS, range(1, 17), (1, 2, 3),
                                                       (0, 1, 2)):
         for extra in ({"pipeline": "levels"},
+                      {"pipeline": "levels", "local_width": min(3, width)},
                       *({"pipeline": "blocks", "block_width": min(k, width)} for k in (1, 2, 3))):
             keys = {"cell": cell, "width": width, "levels_per_stage": lps, **extra,
                     "carry_in": width % 2 == 1}
