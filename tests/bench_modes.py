@@ -41,18 +41,12 @@ def unit_config(width: int, design: str, blocks: int | None) -> config.Config:
 
 def critical(store, versions, device, plan, text, seed):
     """The first seed's critical path (start -> end cell) and whether it ends in the unit,
-    read back from the cache.  Every stage of a levels unit is one LUT, so the harness's
-    rule (`harness.inside_unit`: a unit path has more than one LUT) does not apply; the end
-    cell's name tells: harness cells start with `harness_`, or are the shift-in registers
-    named after a unit input port (`unit.a_<CELL TYPE>...`; the unit's own input register
-    is `a_in`)."""
+    read back from the cache."""
     hit = store.get(cache.key({"bench": "generated", "verilog": text}, device.name, seed,
                               versions))
     if not hit or hit.status != "ok":
         return "", None
-    ports = "|".join(p.name for p in plan.ports if p.direction == "input")
-    shift_in = re.match(rf"{harness.INSTANCE}\.({ports})(\[|_[A-Z]|$)", hit.end)
-    return f"{hit.start} -> {hit.end}", not (hit.end.startswith(harness.PREFIX) or shift_in)
+    return f"{hit.start} -> {hit.end}", harness.inside_unit(hit.end, plan)
 
 
 def main(argv=None) -> int:

@@ -33,10 +33,17 @@ def test_harness_sizes_follow_the_ports():
 
 
 def test_path_ends():
-    assert harness.inside_unit("unit.carry_stage_0_TRELLIS_FF_Q", 3)
-    assert harness.inside_unit("res_sum_SB_DFF_Q_7_D_SB_LUT4_O_LC", 5)
-    assert not harness.inside_unit("harness_out_TRELLIS_FF_Q_3", 2)
-    assert not harness.inside_unit("unit.a_SB_DFF_Q_D_SB_LUT4_O_LC", 1)  # single LUT
+    plan = make(width=8, carry_in=True)
+    assert harness.inside_unit("unit.carry_stage_0_TRELLIS_FF_Q", plan)
+    assert harness.inside_unit("res_sum_SB_DFF_Q_7_D_SB_LUT4_O_LC", plan)
+    assert not harness.inside_unit("harness_out_TRELLIS_FF_Q_3", plan)
+    assert not harness.inside_unit("unit.a_SB_DFF_Q_D_SB_LUT4_O_LC", plan)  # shift-in register
+    assert not harness.inside_unit("unit.cin_SB_DFF_Q_D_SB_LUT4_O_LC", plan)
+    assert harness.inside_unit("unit.a_skew_1_SB_DFF_Q", plan)
+    # A levels unit: every stage is one LUT, its registers are still the unit's.
+    levels = make(width=8, pipeline="levels", cell="kogge-stone", register_inputs=True)
+    assert harness.inside_unit("unit.a_in_TRELLIS_FF_Q_3", levels)
+    assert harness.inside_unit(f"unit.{levels.words[-3].name}_TRELLIS_FF_Q", levels)
     assert harness.stage_of("unit.sum_stage_2_SB_DFF_Q", 4) == 2
     assert harness.stage_of("unit.cout_TRELLIS_FF_Q", 4) == 3
     assert harness.stage_of("harness_in_TRELLIS_FF_Q", 4) is None

@@ -133,7 +133,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
             if m.inside is False:
                 outcome.notes.append(f"{row.label} seed {m.seed}: the critical path "
                                      f"({m.start} -> {m.end}) is not the unit's (it ends in "
-                                     "the harness or is a single-LUT path); the unit is at "
+                                     "a harness register); the unit is at "
                                      "least this fast")
     return outcome
 
@@ -164,7 +164,7 @@ def record(row: Row, target: float, factors: dict[str, float]) -> dict:
     elif row.ok:
         note = f"critical path {row.ok[0].start} -> {row.ok[0].end}"
         if row.ok[0].inside is False:
-            note += " (not the unit's: harness or single-LUT path)"
+            note += " (not the unit's: it ends in the harness)"
     elif row.measured:
         note = f"{first.status}: {first.message}"
     else:

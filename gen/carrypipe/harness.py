@@ -4,8 +4,8 @@ Wide units have more ports than a package has pins, and port timing is not what 
 design sees.  The harness feeds every unit input from one shift register loaded from pin
 `harness_si` (bit i loads bit i-1 ^ bit i+1: one 2-input LUT), and folds every unit output
 into a chain whose bit i loads `out[i] ^ chain[i-1]` (one 2-input LUT), read on pin
-`harness_so`.  So the harness's own paths are single-LUT register-to-register paths and every longer path lies
-inside the unit; `inside_unit` tells from the path's end cell which side it sits on.
+`harness_so`.  So the harness's own paths are single-LUT register-to-register paths, as
+fast as the fabric allows; `inside_unit` tells from a path's end cell which side it is on.
 """
 
 from __future__ import annotations
@@ -26,17 +26,19 @@ def top_name(plan: Plan) -> str:
     return f"{plan.config.name}_harness"
 
 
-def inside_unit(end_cell: str, logic_steps: int) -> bool:
-    """True when a critical path is the unit's: it ends in a unit register and is longer
-    than the harness's own single-LUT paths.
+def inside_unit(end_cell: str, plan: Plan) -> bool:
+    """True when a critical path is the unit's: it ends in one of the unit's registers.
 
     Harness cells are named after top-level harness nets (`harness_...`), except that a
-    shift-in register may take the name of the unit input it drives (`unit.a...`), so a
-    single-LUT path is never counted as the unit's: at that length harness and unit paths
-    are alike (the fabric limit).  Unit registers carry `unit.` or, for the last stage, the
-    harness wire they drive (`res_...`).
+    shift-in register may take the name of the unit input port it drives
+    (`unit.a_<CELL TYPE>...`; the unit's own input register is `a_in`).  Every other
+    register is the unit's: `unit.<register>` or, for the last stage, the harness wire it
+    drives (`res_...`).  The path's length does not decide: every stage of a `levels` unit
+    is a single LUT, as the harness's own paths are.
     """
-    return not end_cell.startswith(PREFIX) and logic_steps > 1
+    ports = "|".join(re.escape(p.name) for p in plan.ports if p.direction == "input")
+    shift_in = re.match(rf"{INSTANCE}\.({ports})(\[|_[A-Z]|$)", end_cell)
+    return not (end_cell.startswith(PREFIX) or shift_in)
 
 
 def stage_of(cell: str, stages: int) -> int | None:

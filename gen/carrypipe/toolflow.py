@@ -170,7 +170,7 @@ def _place(pnr, plan, device, seed, work, timeout, unit) -> Measurement:
     path = rep.path
     return Measurement(seed, "ok", mhz=round(rep.mhz, 2), logic_used=rep.logic_used,
                        start=path.start if path else "", end=path.end if path else "",
-                       inside=harness.inside_unit(path.end, path.luts) if path else None, **unit)
+                       inside=harness.inside_unit(path.end, plan) if path else None, **unit)
 
 
 def _tail(text: str) -> str:
