@@ -117,3 +117,12 @@ def test_prefix_mode_candidates():
     assert len([g for g in got if g[0] == "blocks" and g[2] == 16]) == 2
     got = moded(candidates.generate(base(width=64), ("sklansky",)))
     assert {cell for _, cell, _ in got} == {"sklansky"}
+
+
+def test_local_networks_from_64_bits():
+    local = lambda w: sorted((c.cell, c.wire_registers) for c in candidates.generate(
+        base(width=w), ("kogge-stone",)) if c.pipeline == "levels" and c.local_width)
+    assert local(32) == []
+    assert local(64) == [("kogge-stone", 0), ("kogge-stone", 1), ("kogge-stone", 2)]
+    assert all(c.local_width == candidates.LOCAL_WIDTH for c in candidates.generate(
+        base(width=256), ("kogge-stone",)) if c.pipeline == "levels" and c.local_width)

@@ -44,6 +44,7 @@ def slice_candidates(base: Config, cells: tuple[str, ...]) -> list[Config]:
 
 
 LEVELS_PER_STAGE = (1, 2, 3)
+LOCAL_WIDTH, LOCAL_FROM = 16, 64  # `local_width` tried for units this wide (docs/modes.md)
 BLOCK_WIDTHS = (8, 16, 32)
 
 
@@ -53,13 +54,18 @@ DEFAULT_PREFIX_STYLES = ("kogge-stone", "han-carlson")
 
 
 def prefix_candidates(base: Config, cells: tuple[str, ...]) -> list[Config]:
-    """levels x prefix style x levels per stage; blocks x prefix style x block width.
+    """levels x prefix style x levels per stage (and, from 64 bits, 16-bit local networks
+    with 0-2 wire-register ranks); blocks x prefix style x block width.
 
     The prefix styles among `cells`, else DEFAULT_PREFIX_STYLES.  Over two blocks every
     style is the same single node, so such a block width is tried with one style only."""
     styles = [c for c in cells if c in config.PREFIX_CELLS] or list(DEFAULT_PREFIX_STYLES)
     out = [variant(base, pipeline="levels", cell=cell, levels_per_stage=n)
            for cell in styles for n in LEVELS_PER_STAGE]
+    if base.width >= LOCAL_FROM:  # local networks kept wiring short at 64 and 256 bits
+        out += [variant(base, pipeline="levels", cell=cell, local_width=LOCAL_WIDTH,
+                        wire_registers=wires)
+                for cell in styles for wires in (0, 1, 2)]
     for k in BLOCK_WIDTHS:
         blocks = -(-base.width // k)
         if blocks >= 2:
