@@ -16,7 +16,6 @@ stage, registered inputs); with `--blocks <k>` the designs are blocks mode, bloc
 from __future__ import annotations
 
 import argparse
-import re
 import sys
 import time
 

@@ -93,15 +93,19 @@ def test_check_with_verilator(tmp_path):
     assert out.output.strip() == "u [verilator]: PASS 500 vectors, latency 3"
 
 
-def test_missing_verilator_is_explained(tmp_path, monkeypatch):
+@pytest.mark.parametrize("simulator, message", [
+    ("icarus", "Icarus Verilog (iverilog, vvp) is not on PATH; install it (Debian/Ubuntu: "
+               "apt-get install iverilog) or use --sim amaranth"),
+    ("verilator", "Verilator (5.x) is not on PATH; install it (Debian/Ubuntu: apt-get install "
+                  "verilator) or use --sim icarus / --sim amaranth"),
+])
+def test_a_missing_simulator_is_explained(tmp_path, monkeypatch, simulator, message):
     monkeypatch.setattr(sim.shutil, "which", lambda name: None)
     cfg = tmp_path / "u.yaml"
     cfg.write_text("name: u\nwidth: 4\n")
-    out = CliRunner().invoke(main, ["check", str(cfg), "--sim", "verilator"])
+    out = CliRunner().invoke(main, ["check", str(cfg), "--sim", simulator])
     assert out.exit_code == 2
-    assert out.output.strip() == (
-        "carrypipe: error: Verilator (5.x) is not on PATH; install it (Debian/Ubuntu: "
-        "apt-get install verilator) or use --sim icarus / --sim amaranth")
+    assert out.output.strip() == f"carrypipe: error: {message}"
 
 
 @verilator

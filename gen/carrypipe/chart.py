@@ -265,7 +265,6 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
 
     # Bit numbers along the top.
     y += 26
-    header_y = y
     step = max(1, math.ceil(34 / lay.cw))
     if lay.bit_band == 1 and step > 1:
         step = 1 << (step - 1).bit_length()  # label every 2nd/4th/8th bit
@@ -286,15 +285,8 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     y += 8
     left, w = lay.x_of(0, plan.width - 1)
     cin = " + cin" if c.carry_in else ""
-    out.add("rect", x=left, y=float(y), width=w, height=16.0, fill="#eef2f8", stroke="#b7c4da",
-            stroke_width=0.8)
-    arrive = f"a, b [{plan.width - 1}:0]{cin} applied before edge 1"
-    if _text_fits(arrive, 10, w - 6):
-        out.text(left + w / 2, y + 12, arrive, size=10, anchor="middle", fill="#3f5a86")
-    out.text(MARGIN, y + 12, "inputs", size=10, fill=FAINT)
-    if lay.side:
-        out.add("rect", x=lay.side_x, y=float(y), width=lay.cw, height=16.0, fill="#f8eef2",
-                stroke="#dab7c4", stroke_width=0.8)
+    _io_strip(out, lay, left, w, y, "inputs", f"a, b [{plan.width - 1}:0]{cin} applied before "
+              "edge 1", ("#eef2f8", "#b7c4da", "#3f5a86"))
     y += 20
     grid_top = y
 
@@ -367,16 +359,9 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     # Results leaving.
     y = grid_bottom + 4
     left, w = lay.x_of(0, plan.width - 1)
-    out.add("rect", x=left, y=float(y), width=w, height=16.0, fill="#eef6f2", stroke="#b5d6c8",
-            stroke_width=0.8)
     cout = " + cout" if c.carry_out else ""
-    leave = f"sum [{plan.width - 1}:0]{cout} ready after edge {plan.latency}"
-    if _text_fits(leave, 10, w - 6):
-        out.text(left + w / 2, y + 12, leave, size=10, anchor="middle", fill="#1f6b50")
-    out.text(MARGIN, y + 12, "outputs", size=10, fill=FAINT)
-    if lay.side:
-        out.add("rect", x=lay.side_x, y=float(y), width=lay.cw, height=16.0, fill="#f8eef2",
-                stroke="#dab7c4", stroke_width=0.8)
+    _io_strip(out, lay, left, w, y, "outputs", f"sum [{plan.width - 1}:0]{cout} ready after "
+              f"edge {plan.latency}", ("#eef6f2", "#b5d6c8", "#1f6b50"))
     y += 44
 
     y = _legend(out, plan, lay, colours, regs, y, slow_text, measured, measured_source)
@@ -393,6 +378,20 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
 def _runs(slices: list) -> list[list]:
     """Slices of one time band, grouped when the band holds more than one cycle."""
     return [[s] for s in slices] if len({s.index for s in slices}) <= 1 else [slices]
+
+
+def _io_strip(out: _Svg, lay: _Layout, left: float, w: float, y: float, label: str,
+              text: str, colours: tuple[str, str, str]) -> None:
+    """The strip above or below the grid where operands arrive or results leave."""
+    fill, stroke, ink = colours
+    out.add("rect", x=left, y=float(y), width=w, height=16.0, fill=fill, stroke=stroke,
+            stroke_width=0.8)
+    if _text_fits(text, 10, w - 6):
+        out.text(left + w / 2, y + 12, text, size=10, anchor="middle", fill=ink)
+    out.text(MARGIN, y + 12, label, size=10, fill=FAINT)
+    if lay.side:
+        out.add("rect", x=lay.side_x, y=float(y), width=lay.cw, height=16.0, fill="#f8eef2",
+                stroke="#dab7c4", stroke_width=0.8)
 
 
 def _slice_block(out: _Svg, lay: _Layout, group: list, ly: float, slow: set[int], measured):
