@@ -11,11 +11,14 @@ seeds), LUTs, carry cells, flip-flops, the ratio to the fabric limit (register -
 
 A design is `<cell>/<wire_registers>[/<local_width>]` (levels mode, one prefix level per
 stage, registered inputs); with `--blocks <k>` the designs are blocks mode, block width k.
+`--pnr-args="--tmg-ripup"` (with `=`) adds nextpnr options to every run of the table (fabric limit and
+peer included), to compare place-and-route options in one flow; results are cached apart.
 """
 
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import sys
 import time
 
@@ -38,11 +41,10 @@ def unit_config(width: int, design: str, blocks: int | None) -> config.Config:
     return config.from_mapping(keys)
 
 
-def critical(store, versions, device, plan, text, seed):
+def critical(store, versions, device, plan, text, seed, kind):
     """The first seed's critical path (start -> end cell) and whether it ends in the unit,
     read back from the cache."""
-    hit = store.get(cache.key({"bench": "generated", "verilog": text}, device.name, seed,
-                              versions))
+    hit = store.get(cache.key({"bench": kind, "verilog": text}, device.name, seed, versions))
     if not hit or hit.status != "ok":
         return "", None
     return f"{hit.start} -> {hit.end}", harness.inside_unit(hit.end, plan)
@@ -56,21 +58,28 @@ def main(argv=None) -> int:
     ap.add_argument("--only", help="comma-separated designs <cell>/<wire_registers>[/<local_width>]")
     ap.add_argument("--blocks", type=int, help="measure blocks mode with this block width")
     ap.add_argument("--no-peer", action="store_true", help="leave out the registered a + b")
+    ap.add_argument("--pnr-args", default="", help="extra nextpnr options for every run")
     args = ap.parse_args(argv)
     seeds = tuple(range(1, args.seeds + 1))
     device = devices.get(args.device)
+    extra = tuple(args.pnr_args.split())
+    if extra:
+        family = dataclasses.replace(device.family, pnr_extra=device.family.pnr_extra + extra)
+        device = dataclasses.replace(device, family=family)
+    tag = "".join(f" {a}" for a in extra)  # part of the cache key: other options, other runs
     versions = toolflow.versions(device.family, "wheel")
     store = cache.Cache()
     t0 = time.monotonic()
     fab_cfg = config.from_mapping({"name": "fabric", "width": 32, "register_inputs": True})
     fabric = bench_fit.measure(store, versions, device, "fabric limit", fab_cfg,
-                               bench_fit.fabric_verilog("fabric", 32), seeds, "fabric")
+                               bench_fit.fabric_verilog("fabric", 32), seeds, "fabric" + tag)
     rows = [fabric]
     if not args.no_peer:
         peer_cfg = config.from_mapping({"name": "peer", "width": args.width,
                                         "register_inputs": True})
         rows.append(bench_fit.measure(store, versions, device, f"peer {args.width}", peer_cfg,
-                                      bench_fit.peer_verilog("peer", args.width), seeds, "peer"))
+                                      bench_fit.peer_verilog("peer", args.width), seeds,
+                                      "peer" + tag))
     paths = {}
     for design in (args.only.split(",") if args.only else DESIGNS):
         cfg = unit_config(args.width, design, args.blocks)
@@ -78,12 +87,16 @@ def main(argv=None) -> int:
         text = emit.unit_verilog(plan)
         mode = f"blocks{args.blocks}" if args.blocks else "levels"
         name = f"{mode} {design}"
-        row = bench_fit.measure(store, versions, device, name, cfg, text, seeds, "generated")
+        row = bench_fit.measure(store, versions, device, name, cfg, text, seeds,
+                                "generated" + tag)
         rows.append(row)
-        paths[name], row["inside"] = critical(store, versions, device, plan, text, seeds[0])
+        paths[name], row["inside"] = critical(store, versions, device, plan, text, seeds[0],
+                                              "generated" + tag)
         print(f"  measured {name}: {row['mhz']} MHz, plan {plan.registers.total} register "
               f"bits ({time.monotonic() - t0:.0f} s)", file=sys.stderr, flush=True)
     bench_fit.print_table(device, versions, seeds, rows, fabric)
+    if extra:
+        print(f"nextpnr options added to every run: {' '.join(extra)}")
     print("critical paths (first seed):")
     for name, path in paths.items():
         print(f"  {name:<24} {path}")
