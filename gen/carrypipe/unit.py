@@ -34,6 +34,7 @@ class PipelinedAdder(Elaboratable):
             raise ValueError(f"fault must be one of {', '.join(FAULTS)}, not {fault!r}")
         self.plan = plan
         self.fault = fault
+        self._widths = {w.name: w.width for w in plan.words}
         c, w = plan.config, plan.width
         self.a = Signal(w, name="a")
         self.b = Signal(w, name="b")
@@ -55,11 +56,11 @@ class PipelinedAdder(Elaboratable):
 
         a, b, cin = self.a, self.b, self.cin
         if c.register_inputs:
-            a_in, b_in = reg(plan.width, "a_in"), reg(plan.width, "b_in")
+            a_in, b_in = self._reg("a_in"), self._reg("b_in")
             m.d.sync += [a_in.eq(a), b_in.eq(b)]
             a, b = a_in, b_in
             if cin is not None:
-                cin_in = reg(1, "cin_in")
+                cin_in = self._reg("cin_in")
                 m.d.sync += cin_in.eq(cin)
                 cin = cin_in
 
@@ -80,6 +81,10 @@ class PipelinedAdder(Elaboratable):
             m = EnableInserter({"sync": self.en})(m)
         return m
 
+    def _reg(self, name: str) -> Signal:
+        """The data register the plan lists under `name`, at the plan's width."""
+        return reg(self._widths[name], name)
+
     def _slices(self, m: Module, a, b, cin):
         """Slice i adds its bits in cycle i; the skew words shrink, the deskew words grow."""
         plan = self.plan
@@ -95,26 +100,25 @@ class PipelinedAdder(Elaboratable):
                 net = replace(net, levels=net.levels[:-1] + (net.levels[-1][:-1] + ((lo, hi),),))
             total, cout = cells.build(m, s.cell, a_wait[:s.width], b_wait[:s.width], carry,
                                       f"slice{i}", net)
-            sum_stage = reg(s.width, f"sum_stage_{i}")
+            sum_stage = self._reg(f"sum_stage_{i}")
             m.d.sync += sum_stage.eq(total)
             carry = None
             if not s.carry_out:  # no cout port: keep the cell whole, named for lint tools
                 m.d.comb += Signal(name=f"slice{i}_carry_unused").eq(cout)
             if s.carry_out:
-                carry = reg(1, f"carry_stage_{i}")
+                carry = self._reg(f"carry_stage_{i}")
                 m.d.sync += carry.eq(cout)
                 if self.fault == "late-carry" and i == 0:  # one register too many
                     late = reg(1, "carry_late_0")
                     m.d.sync += late.eq(carry)
                     carry = late
             if i < last:
-                rest = plan.width - s.lsb - s.width
-                a_next, b_next = reg(rest, f"a_skew_{i + 1}"), reg(rest, f"b_skew_{i + 1}")
+                a_next, b_next = self._reg(f"a_skew_{i + 1}"), self._reg(f"b_skew_{i + 1}")
                 skew = m.d.comb if self.fault == "missing-skew" and i == 0 else m.d.sync
                 skew += a_next.eq(a_wait[s.width:])
                 m.d.sync += b_next.eq(b_wait[s.width:])
                 a_wait, b_wait = a_next, b_next
-                deskew = reg(s.lsb + s.width, f"sum_deskew_{i + 1}")
+                deskew = self._reg(f"sum_deskew_{i + 1}")
                 m.d.sync += deskew.eq(Cat(*done, sum_stage))
                 done = [deskew]
             else:
