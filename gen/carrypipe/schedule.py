@@ -44,9 +44,12 @@ from .config import Config, prefix_positions
 PREFIX_KINDS = ("gen", "prop", "grp_gen", "grp_prop", "blk_c0", "blk_c1", "grp_c0", "grp_c1")
 RESULT_KINDS = ("sum", "blk_s0", "blk_s1")
 
-# Unit-gate delay of each operation (the model of `prefix.Gates`; a 2:1 select is an AND-OR).
-OP_DELAY = {"gen": 1, "prop": 2, "gen_cin": 4, "dot_g": 2, "dot_p": 1,
-            "wire": 0, "xor": 2, "xor_cin": 4, "select": 2}
+# Unit-gate delay of each operation, from the model of `prefix.Gates` (a 2:1 select is an
+# AND-OR; gen_cin is g_0 | p_0 & cin after p_0; xor_cin is p_0 ^ cin after p_0).
+_G = prefix.UNIT_GATES
+OP_DELAY = {"gen": _G.and_or, "prop": _G.xor, "gen_cin": _G.xor + 2 * _G.and_or,
+            "dot_g": 2 * _G.and_or, "dot_p": _G.and_or, "wire": 0, "xor": _G.xor,
+            "xor_cin": 2 * _G.xor, "select": 2 * _G.and_or}
 
 
 @dataclass(frozen=True)
