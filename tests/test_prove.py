@@ -134,7 +134,6 @@ def test_missing_and_hanging_solver(tmp_path, monkeypatch):
                                   "0.5 s (--timeout)")
 
 
-
 def test_a_unit_too_wide_for_the_prover_says_so(tmp_path):
     # 1024 bits exhaust the WebAssembly Yosys's call stack in the direct proof (measured):
     # one line, exit 1, no traceback.
