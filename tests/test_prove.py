@@ -135,12 +135,110 @@ def test_missing_and_hanging_solver(tmp_path, monkeypatch):
 
 
 def test_a_unit_too_wide_for_the_prover_says_so(tmp_path):
-    # 1024 bits exhaust the WebAssembly Yosys's call stack in the direct proof (measured):
-    # one line, exit 1, no traceback.
+    # A single 1024-bit slice: its own `+` exhausts the WebAssembly Yosys's call stack in
+    # either method (measured): one line, exit 1, no traceback.
     cfg = tmp_path / "w.yaml"
-    cfg.write_text("name: w1024\nwidth: 1024\nslice_width: 64\n")
+    cfg.write_text("name: w1024\nwidth: 1024\n")
     res = CliRunner().invoke(main, ["prove", str(cfg)])
     assert res.exit_code == 1
     assert res.output.strip() == ("Error: w1024: not proved: the WebAssembly Yosys ran out of "
-                                  "call stack on this unit (the direct proof is measured up to "
-                                  "512 bits; see docs/verification.md)")
+                                  "call stack on this unit (see docs/verification.md for the "
+                                  "sizes that prove)")
+
+
+# ---- the compositional proof (compose.py) ----
+
+@pytest.mark.parametrize("cell", CELLS)
+def test_compositional_agrees_with_the_direct_proof(cell):
+    # The direct proof above is the reference: both must prove the same sound units.
+    plan = plan_of(width=16, slice_width=5, cell=cell, **FULL)
+    result = prove.prove(plan, method="compositional")
+    assert result.proved, result.message
+    assert result.message.startswith("proved: compositional: structure traced, each of 4 "
+                                     "slice(s) proved against a + b + c")
+    assert "out_valid: bounded check of 5 cycles" in result.message
+    assert "every flip-flop enabled by en" in result.message
+
+
+@pytest.mark.parametrize("keys", [
+    dict(width=12, cell="native"),
+    dict(width=9, slices=[1, 3, 5], cell="ripple", carry_out=False, register_inputs=True),
+    dict(width=10, slice_width=1, cell="sklansky", carry_in=True, register_inputs=True),
+], ids=["one-slice", "uneven-no-cout", "one-bit-slices"])
+def test_compositional_covers_the_options(keys):
+    result = prove.prove(plan_of(**keys), method="compositional")
+    assert result.proved, result.message
+
+
+@pytest.mark.parametrize("fault, found", [
+    ("missing-skew", "not proved: slice 1: a[4] does not reach its slice through exactly 1 "
+                     "plain flip-flop(s)"),
+    ("late-carry", "not proved: slice 1: its logic does not compute a + b + c on its own "
+                   "operand bits and carry-in (cell check, flip-flops cut)"),
+    ("swapped-node", "not proved: slice 0: its logic does not compute a + b + c on its own "
+                     "operand bits and carry-in (cell check, flip-flops cut)"),
+])
+def test_compositional_finds_planted_faults(fault, found):
+    plan = plan_of(width=16, slice_width=4, cell="kogge-stone", **FULL)
+    result = prove.prove(plan, verilog=emit.unit_verilog(plan, fault=fault),
+                         method="compositional")
+    assert not result.proved
+    assert result.message == found
+
+
+def test_compositional_refuses_a_data_register_with_a_reset():
+    plan = plan_of(width=8, slice_width=4, cell="native", reset="sync", valid=True)
+    text = emit.unit_verilog(plan)
+    bad = text.replace("  always @(posedge clk)\n    carry_stage_0 <= ",
+                       "  always @(posedge clk)\n    if (rst) carry_stage_0 <= 1'h0; "
+                       "else carry_stage_0 <= ", 1)
+    assert bad != text
+    assert prove.prove(plan, verilog=bad).message.startswith("FAILED: counterexample")
+    result = prove.prove(plan, verilog=bad, method="compositional")
+    assert result.message == "not proved: slice 1: no plain one-bit register carry_stage_0"
+
+
+def test_compositional_finds_a_late_valid_bit():
+    plan = plan_of(width=8, slice_width=4, cell="native", valid=True)
+    text = emit.unit_verilog(plan)
+    bad = text.replace("    out_valid <= valid_1;", "    out_valid <= in_valid;", 1)
+    assert bad != text
+    result = prove.prove(plan, verilog=bad, method="compositional")
+    assert result.message.startswith("FAILED: counterexample"), result.message
+    assert "in_valid from cycle" in result.message
+
+
+def test_auto_proves_wide_sliced_units_compositionally(tmp_path):
+    cfg = tmp_path / "w.yaml"
+    cfg.write_text("name: w1024\nwidth: 1024\nslice_width: 64\n")
+    res = CliRunner().invoke(main, ["prove", str(cfg)])
+    assert res.exit_code == 0, res.output
+    assert res.output.startswith("w1024: proved: compositional: structure traced, each of 16 "
+                                 "slice(s)")
+
+
+def test_compositional_is_for_slices_only(tmp_path):
+    cfg = tmp_path / "l.yaml"
+    cfg.write_text("name: l\nwidth: 8\npipeline: levels\ncell: sklansky\n")
+    res = CliRunner().invoke(main, ["prove", str(cfg), "--method", "compositional"])
+    assert res.exit_code == 2
+    assert res.output.strip() == ("carrypipe: error: --method: value compositional is not "
+                                  "allowed with pipeline levels; it covers pipeline slices "
+                                  "(use direct)")
+
+
+def test_the_reference_sum_chained_in_chunks(monkeypatch):
+    # The miter's reference is a ripple of chunk adders (the schoolbook decomposition of an
+    # addition, common practice); with 4-bit chunks a 16-bit unit uses four of them, and the
+    # proof must still pass on a sound unit and fail on a faulty one.
+    from carrypipe import miter
+
+    monkeypatch.setattr(miter, "CHUNK", 4)
+    plan = plan_of(width=14, slice_width=5, cell="brent-kung", carry_in=True)
+    assert "ref_0_c[3]" in miter.miter_verilog("u", plan.latency, [
+        dict(name=p.name, direction=p.direction, width=p.width) for p in plan.ports])
+    assert prove.prove(plan, method="direct").proved
+    bad = prove.prove(plan, verilog=emit.unit_verilog(plan, fault="late-carry"),
+                      method="direct")
+    assert bad.message.startswith("FAILED: counterexample")
+    _check_counterexample(plan, bad.message)

@@ -15,6 +15,7 @@ import click
 from . import __version__, emit, report, sim
 from .config import ConfigError, check_split, load
 from .plan import make_plan
+from .prove import METHODS as PROOF_METHODS
 from .vectors import suite
 
 
@@ -152,7 +153,11 @@ def plan_cmd(config, slice_width, slices, chart_path):
                    "one [default: latency + 1, which already covers every later cycle].")
 @click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
               help="Give up on the solver after this many seconds.")
-def prove(config, depth, timeout):
+@click.option("--method", type=click.Choice(PROOF_METHODS),
+              default="auto", show_default=True,
+              help="direct: unroll the whole unit; compositional (slices only): each slice "
+                   "against +, then the structure; auto: direct up to 512 bits.")
+def prove(config, depth, timeout, method):
     """Prove the emitted Verilog equals a + b + cin delayed by the latency, from any state."""
     from . import prove as proof
 
@@ -160,8 +165,11 @@ def prove(config, depth, timeout):
     if depth is not None and depth <= plan.latency:
         raise UserError(f"--depth: value {depth} is not allowed; expected an integer above "
                         f"the latency ({plan.latency})")
+    if method == "compositional" and plan.config.pipeline != "slices":
+        raise UserError(f"--method: value compositional is not allowed with pipeline "
+                        f"{plan.config.pipeline}; it covers pipeline slices (use direct)")
     try:
-        result = proof.prove(plan, depth=depth, timeout=timeout)
+        result = proof.prove(plan, depth=depth, timeout=timeout, method=method)
     except sim.ToolMissing as exc:
         raise UserError(str(exc)) from None
     except proof.ProofFailed as exc:

@@ -56,8 +56,10 @@ class ProofFailed(RuntimeError):
     """The prover itself failed (not a counterexample): the message is one line."""
 
 
-def run_yosys(script: str, files: dict[str, str], timeout: float | None) -> str:
-    """Run a Yosys script over `files` in a fresh folder; return its log (stdout)."""
+def run_yosys(script: str, files: dict[str, str], timeout: float | None,
+              fetch: tuple[str, ...] = ()) -> tuple[str, dict[str, str]]:
+    """Run a Yosys script over `files` in a fresh folder; return its log (stdout) and the
+    text of the files named in `fetch` that the script wrote."""
     cmd = yosys_command()
     with tempfile.TemporaryDirectory(prefix="carrypipe-prove-") as tmp:
         work = Path(tmp)
@@ -77,18 +79,30 @@ def run_yosys(script: str, files: dict[str, str], timeout: float | None) -> str:
             log = out.stdout + out.stderr
             if "call stack exhausted" in log:
                 raise ProofFailed("the WebAssembly Yosys ran out of call stack on this unit "
-                                  "(the direct proof is measured up to 512 bits; see "
-                                  "docs/verification.md)")
+                                  "(see docs/verification.md for the sizes that prove)")
             tail = [line.strip() for line in log.strip().splitlines()[-3:] if line.strip()]
             raise ProofFailed("yosys failed: " + " | ".join(tail))
-        if (work / "unit.json").exists():
-            return out.stdout + "\n@@NETLIST@@\n" + (work / "unit.json").read_text()
-        return out.stdout
+        return out.stdout, {name: (work / name).read_text() for name in fetch}
 
 
-def _ff_check(netlist: dict, module: str) -> str | None:
+NETLIST_PASSES = ["proc", "attrmap -remove init", "opt_clean", "opt_dff", "opt_clean"]
+
+
+def netlist(name: str, verilog: str, timeout: float | None) -> dict:
+    """The unit's netlist as Yosys JSON, after passes that keep every flip-flop: `proc`, the
+    initial values removed (any start state), `opt_clean` (drops unused wires, so that) and
+    `opt_dff` (folds each enable and reset multiplexer into its flip-flop, which the
+    structural checks read)."""
+    script = [f"read_verilog {name}.v", f"hierarchy -top {name}", *NETLIST_PASSES,
+              "write_json unit.json"]
+    _, got = run_yosys("\n".join(script) + "\n", {f"{name}.v": verilog}, timeout,
+                       fetch=("unit.json",))
+    return json.loads(got["unit.json"])
+
+
+def _ff_check(net: dict, module: str) -> str | None:
     """The structural check for `enable`; returns what is wrong, or None."""
-    mod = netlist["modules"][module]
+    mod = net["modules"][module]
     port = {name: p["bits"] for name, p in mod["ports"].items()}
     clk, en = port["clk"][0], port["en"][0]
     rst = port["rst"][0] if "rst" in port else None
@@ -146,7 +160,7 @@ def _ff_check(netlist: dict, module: str) -> str | None:
 _ROW = re.compile(r"^\s+(init|\d+)\s+\\(\S+)\s+\S+\s+([0-9a-fx]+)\s+[01x]+\s*$", re.M)
 
 
-def _counterexample(log: str, plan: Plan) -> str:
+def _counterexample(log: str, plan: Plan, compare: tuple[str, ...]) -> str:
     """The failing trace as one line per cycle of concrete inputs, then the mismatch."""
     steps: dict[int, dict[str, str]] = {}
     for step, signal, hexval in _ROW.findall(log):
@@ -167,22 +181,41 @@ def _counterexample(log: str, plan: Plan) -> str:
     last = steps[max(steps)]
     ref = int(last.get(f"ref_{lat}", "0"), 16)
     w = plan.width
-    got = [f"sum={last.get('sum', '?')}"]
-    want = [f"sum={ref & ((1 << w) - 1):x}"]
-    if "cout" in last:
+    got, want = [], []
+    if "sum" in compare:
+        got.append(f"sum={last.get('sum', '?')}")
+        want.append(f"sum={ref & ((1 << w) - 1):x}")
+    if "cout" in last and "cout" in compare:
         got.append(f"cout={last['cout']}")
         want.append(f"cout={ref >> w}")
-    if "out_valid" in last:
+    if "out_valid" in last and "out_valid" in compare:
         got.append(f"out_valid={last['out_valid']}")
         want.append(f"out_valid={last.get(f'ref_valid_{lat}', '?')}")
     lines.append(f"  after cycle {max(steps) - 1}'s edge the unit shows {' '.join(got)}; "
-                 f"a + b + cin from cycle {max(steps) - lat} gives {' '.join(want)}")
+                 f"{'a + b + cin' if 'sum' in compare else 'in_valid'} from cycle "
+                 f"{max(steps) - lat} gives {' '.join(want)}")
     return "\n".join(lines)
 
 
+METHODS = ("auto", "direct", "compositional")
+DIRECT_UP_TO = 512  # widest unit `auto` proves directly (measured: docs/verification.md)
+
+
 def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
-          verilog: str | None = None) -> Proof:
-    """Prove the unit of `plan` (or the given Verilog text of it) against the specification."""
+          verilog: str | None = None, method: str = "auto") -> Proof:
+    """Prove the unit of `plan` (or the given Verilog text of it) against the specification.
+
+    `direct` unrolls the whole unit against the reference; `compositional` (sliced units
+    only, see `compose.py`) proves each slice's logic against `+` and the pipeline structure
+    apart, which stays fast at any width; `auto` takes the direct proof up to DIRECT_UP_TO
+    bits and the compositional one above, where the unit is sliced.
+    """
+    if method not in METHODS:
+        raise ValueError(f"method must be one of {', '.join(METHODS)}, not {method!r}")
+    sliced = plan.config.pipeline == "slices"
+    if method == "compositional" and not sliced:
+        raise ProofFailed("the compositional proof covers the slices pipeline only; use "
+                          "--method direct")
     start = time.monotonic()
     man = report.manifest(plan, [])
     name, lat = man["module"], man["latency"]
@@ -190,34 +223,64 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     depth = depth or lat + 1
     if depth <= lat:
         raise ValueError(f"depth {depth} must exceed the latency ({lat})")
-    files = {f"{name}.v": verilog if verilog is not None else emit.unit_verilog(plan),
-             "miter.v": miter_verilog(name, lat, man["ports"])}
-    script = [f"read_verilog {name}.v"]
-    if "en" in names:
-        script += [f"hierarchy -top {name}", "proc", "opt", "opt_clean",
-                   "write_json unit.json", "design -reset", f"read_verilog {name}.v"]
-    shows = ["ok"] + [s for s in ("sum", "cout", "out_valid") if s in names]
-    shows += [f"ref_{lat}"] + ([f"ref_valid_{lat}"] if "out_valid" in names else [])
-    script += ["read_verilog miter.v", f"hierarchy -top {MITER} -check", "proc", "flatten",
-               "attrmap -remove init", "opt_clean",
-               f"sat -seq {depth} -prove-skip {lat} -prove ok 1 "
-               + ("-set en 1 " if "en" in names else "")
-               + (f"-timeout {max(1, int(timeout))} " if timeout else "")
-               + "-show-inputs " + " ".join(f"-show {s}" for s in shows)]
-    log = run_yosys("\n".join(script) + "\n", files, timeout)
+    text = verilog if verilog is not None else emit.unit_verilog(plan)
+    if method == "auto":
+        method = "compositional" if sliced and plan.width > DIRECT_UP_TO else "direct"
+    structure = None
+    if "en" in names or method == "compositional":
+        net = netlist(name, text, timeout)
+        if "en" in names:
+            problem = _ff_check(net, name)
+            if problem:
+                return Proof(False, "structural check of the enable", 0,
+                             f"not proved: {problem}", time.monotonic() - start)
+        structure = net
+    if method == "compositional":
+        from . import compose
+
+        compare: tuple[str, ...] = ("out_valid",)
+        found = compose.prove_slices(plan, structure, name, timeout)
+        if found.problem:
+            return Proof(False, found.method, 0, f"not proved: {found.problem}",
+                         time.monotonic() - start)
+        if "out_valid" not in names:
+            seconds = time.monotonic() - start
+            return Proof(True, found.method, 0, f"proved: {found.method}; {seconds:.1f} s",
+                         seconds)
+    else:
+        compare = ("sum", "cout", "out_valid")
+    log = _bounded(name, lat, man["ports"], text, depth, compare, timeout)
     seconds = time.monotonic() - start
-    method = (f"bounded check of {depth} cycles from an arbitrary register state (Yosys sat), "
-              f"results compared on cycle{'s' if depth > lat + 1 else ''} {lat + 1}"
-              + (f"..{depth}" if depth > lat + 1 else ""))
+    what = "out_valid: " if method == "compositional" else ""
+    bounded = (f"{what}bounded check of {depth} cycles from an arbitrary register state (Yosys "
+               f"sat), results compared on cycle{'s' if depth > lat + 1 else ''} {lat + 1}"
+               + (f"..{depth}" if depth > lat + 1 else ""))
+    done = f"{found.method}; {bounded}" if method == "compositional" else bounded
     if "en" in names:
-        method += "; en held high, every flip-flop enabled by en (structural check)"
-        log, _, net = log.partition("\n@@NETLIST@@\n")
-        problem = _ff_check(json.loads(net), name)
-        if problem:
-            return Proof(False, method, depth, f"not proved: {problem}", seconds)
+        done += "; en held high, every flip-flop enabled by en (structural check)"
     if "no model found: SUCCESS!" in log:
-        return Proof(True, method, depth, f"proved: {method}; {seconds:.1f} s", seconds)
+        return Proof(True, done, depth, f"proved: {done}; {seconds:.1f} s", seconds)
     if "model found: FAIL!" in log:
-        return Proof(False, method, depth, "FAILED: " + _counterexample(log, plan), seconds)
+        return Proof(False, done, depth, "FAILED: " + _counterexample(log, plan, compare),
+                     seconds)
     raise ToolMissing(f"the SAT solver did not finish within {timeout:g} s (--timeout)"
                       if timeout else "the SAT solver gave no verdict")
+
+
+def _bounded(name: str, lat: int, ports: list[dict], verilog: str, depth: int,
+             compare: tuple[str, ...], timeout: float | None) -> str:
+    """The direct proof: `sat -seq depth -prove-skip lat` on the miter; returns Yosys's log."""
+    names = {p["name"] for p in ports}
+    files = {f"{name}.v": verilog, "miter.v": miter_verilog(name, lat, ports, compare)}
+    shows = ["ok"] + [s for s in compare if s in names]
+    shows += ([f"ref_{lat}"] if {"sum", "cout"} & set(compare) else [])
+    shows += [f"ref_valid_{lat}"] if "out_valid" in names and "out_valid" in compare else []
+    script = [f"read_verilog {name}.v", "read_verilog miter.v",
+              f"hierarchy -top {MITER} -check", "proc", "flatten", "attrmap -remove init",
+              "opt_clean",
+              f"sat -seq {depth} -prove-skip {lat} -prove ok 1 "
+              + ("-set en 1 " if "en" in names else "")
+              + (f"-timeout {max(1, int(timeout))} " if timeout else "")
+              + "-show-inputs " + " ".join(f"-show {s}" for s in shows)]
+    log, _ = run_yosys("\n".join(script) + "\n", files, timeout)
+    return log

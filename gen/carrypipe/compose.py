@@ -1,0 +1,255 @@
+"""Compositional proof of a sliced unit: each slice's logic against `+`, then the structure.
+
+The direct proof (`prove.py`) unrolls the whole unit for L + 1 cycles, so its size grows
+with the latency times the register bits (the triangles grow as W^2 / k).  This proof splits
+the claim into parts that each stay small at any width:
+
+1. Structure (here, in Python, on the netlist of `prove.netlist`).  A *plain* flip-flop is
+   one clocked by the rising edge of `clk`, enabled by `en` alone if the unit has `en`, and
+   without reset.  For slice j (bits lo..hi, k bits) with entry cycle e_j (the input
+   register plus its skew wait, from the plan) it finds
+     A_j[i], B_j[i]  the one net that carries a[i], b[i] through exactly e_j plain
+                     flip-flops (it must exist and be unique);
+     C_j             cin through e_0 plain flip-flops for j = 0 (0 without `carry_in`), else
+                     the output of the plain flip-flop `carry_stage_{j-1}`;
+     S_j[i]          the net that reaches sum[i] through exactly L - e_j plain flip-flops;
+     K_j             the data input of `carry_stage_j`, or for the last slice the net that
+                     reaches cout through L - e_j plain flip-flops;
+   and checks e_{j+1} = e_j + 1.
+2. Cells (Yosys sat, combinational).  Every flip-flop is cut: its output becomes a free
+   input and its data input an output.  Then `{K_j, S_j} == A_j + B_j + C_j` is proved for
+   every slice, for all values of all free inputs (the unit's inputs and every cut output):
+   a slice whose logic reads anything but its own A_j, B_j, C_j fails here.
+3. Valid (in `prove.py`): the direct bounded proof with only `out_valid` compared, which is
+   tiny because the data path drops out.
+
+Why 1 and 2 prove `{cout, sum}(t) = (a + b + cin)(t - L)` for every t >= L from any start
+state: a chain of n plain flip-flops shows at cycle t its input of cycle t - n once t >= n.
+So A_j(t) = a[lo..hi](t - e_j) for t >= e_j.  By induction over j, C_j(t) is the carry into
+bit lo of a + b + cin of cycle t - e_j: for j = 0 by the chain; for j > 0, C_j(t) =
+K_{j-1}(t - 1), which by part 2 is the carry out of bits lo'..hi' of slice j - 1 added with
+its carry-in, at cycle t - 1 = (t - e_j) + e_{j-1}; the schoolbook rule (common practice)
+makes that the carry into bit lo.  Then S_j(t) holds bits lo..hi of the sum of cycle t - e_j,
+and sum[i](t) = S_j(t - (L - e_j)) holds bit i of the sum of cycle t - L.  The same holds
+for cout.  With `enable`, the structural check of `prove.py` adds what the direct proof adds.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+from dataclasses import dataclass
+
+from .miter import chained_add
+from .plan import Plan
+
+CHECK = "carrypipe_slices"
+CUT = "carrypipe_cut"
+
+
+@dataclass(frozen=True)
+class Outcome:
+    method: str
+    problem: str | None  # None when every slice and the structure check out
+
+
+def _is_ff(cell: dict) -> bool:
+    return "dff" in cell["type"] or "dlatch" in cell["type"] or cell["type"] == "$ff"
+
+
+class Wiring:
+    """The flip-flop chains of a netlist: which net carries which input, how late."""
+
+    def __init__(self, net: dict, module: str):
+        self.mod = mod = net["modules"][module]
+        self.port = {n: p["bits"] for n, p in mod["ports"].items()}
+        self.inputs = {bit: f"{n}[{i}]" for n, p in mod["ports"].items()
+                       if p["direction"] == "input" for i, bit in enumerate(p["bits"])}
+        clk = self.port["clk"][0]
+        en = self.port["en"][0] if "en" in self.port else None
+        self.d_of: dict[int, object] = {}  # output bit of a plain flip-flop -> its data bit
+        self.cut: set[int] = set()  # output bits of every flip-flop
+        self.undefined = any("x" in bits for cell in mod["cells"].values()
+                             for bits in cell["connections"].values())
+        for cell in mod["cells"].values():
+            if not _is_ff(cell):
+                continue
+            con, par = cell["connections"], cell["parameters"]
+            self.cut.update(b for b in con["Q"] if isinstance(b, int))
+            plain = (con.get("CLK") == [clk] and int(par.get("CLK_POLARITY", "0"), 2) == 1
+                     and (cell["type"] == "$dff" if en is None else
+                          cell["type"] == "$dffe" and con["EN"] == [en]
+                          and int(par["EN_POLARITY"], 2) == 1))
+            if plain:
+                self.d_of.update(zip(con["Q"], con["D"]))
+        self._back: dict = {}
+        self.late: dict[tuple, list] = {}  # (source bit, flip-flops) -> nets carrying it
+        for bit in list(self.inputs) + list(self.d_of):
+            self.late.setdefault(self.back(bit), []).append(bit)
+
+    def back(self, bit) -> tuple:
+        """(source, n): the net that reaches `bit` through n plain flip-flops and no logic."""
+        path = []
+        while bit in self.d_of and bit not in self._back:
+            path.append(bit)
+            bit = self.d_of[bit]
+        src, n = self._back.get(bit, (bit, 0))
+        for step in reversed(path):
+            n += 1
+            self._back[step] = (src, n)
+        return src, n
+
+    def after(self, port: str, index: int, cycles: int) -> tuple[object, str | None]:
+        """The one net carrying port[index] after `cycles` plain flip-flops, or a problem."""
+        found = self.late.get((self.port[port][index], cycles), [])
+        if len(found) == 1:
+            return found[0], None
+        if not found:
+            return None, (f"{port}[{index}] does not reach its slice through exactly {cycles} "
+                          "plain flip-flop(s)")
+        return None, f"{port}[{index}] reaches its slice along {len(found)} different nets"
+
+    def register(self, name: str) -> int | None:
+        """The output bit of the one-bit plain register `name`, if there is one."""
+        info = self.mod["netnames"].get(name)
+        if info and len(info["bits"]) == 1 and info["bits"][0] in self.d_of:
+            return info["bits"][0]
+        return None
+
+
+@dataclass
+class SliceNets:
+    index: int
+    a: list
+    b: list
+    c: object
+    s: list
+    k: object | None  # None: the last slice of a unit without carry_out
+
+
+def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
+    """Part 1: the nets of every slice, or the first structural problem found."""
+    if wiring.undefined:
+        # Yosys sat (without undef modelling) reads an x as 0, which would prove too much.
+        return [], "the netlist has undefined (x) bits"
+    lat, cfg = plan.latency, plan.config
+    entry = [plan.input_cycles + s.wait_before for s in plan.slices]
+    found = []
+    for s, e in zip(plan.slices, entry):
+        j = s.index
+        if j and entry[j] != entry[j - 1] + 1:
+            return [], f"the plan's slice {j} does not enter one cycle after slice {j - 1}"
+        if lat - e != 1 + s.wait_after:
+            return [], f"the plan's slice {j} waits do not add up to the latency"
+        nets = SliceNets(j, [], [], None, [], None)
+        for i in range(s.lsb, s.msb + 1):
+            for port, into in (("a", nets.a), ("b", nets.b)):
+                bit, problem = wiring.after(port, i, e)
+                if problem:
+                    return [], f"slice {j}: {problem}"
+                into.append(bit)
+            bit, n = wiring.back(wiring.port["sum"][i])
+            if n != lat - e:
+                return [], (f"slice {j}: sum[{i}] leaves it through {n} plain flip-flop(s), "
+                            f"not the {lat - e} the latency requires")
+            nets.s.append(bit)
+        if j == 0:
+            nets.c = "0"
+            if cfg.carry_in:
+                nets.c, problem = wiring.after("cin", 0, e)
+                if problem:
+                    return [], f"slice 0: {problem}"
+        else:
+            nets.c = wiring.register(f"carry_stage_{j - 1}")
+            if nets.c is None:
+                return [], f"slice {j}: no plain one-bit register carry_stage_{j - 1}"
+            found[-1].k = wiring.d_of[nets.c]
+        if j == len(plan.slices) - 1 and cfg.carry_out:
+            nets.k, n = wiring.back(wiring.port["cout"][0])
+            if n != lat - e:
+                return [], (f"cout leaves slice {j} through {n} plain flip-flop(s), not "
+                            f"the {lat - e} the latency requires")
+        found.append(nets)
+    return found, None
+
+
+def cut_design(wiring: Wiring, nets: list[SliceNets]) -> dict[str, str]:
+    """Part 2's files: the unit with every flip-flop cut (JSON) and the checker (Verilog)."""
+    cut_q, cut_d = [], []
+    names: dict = {}
+
+    def ref(bit) -> str:
+        if bit in ("0", "1"):
+            return f"1'b{bit}"
+        if bit not in names:
+            if bit in wiring.inputs:
+                names[bit] = wiring.inputs[bit]
+            elif bit in wiring.cut:
+                names[bit] = f"cut_q[{len(cut_q)}]"
+                cut_q.append(bit)
+            else:
+                names[bit] = f"cut_d[{len(cut_d)}]"
+                cut_d.append(bit)
+        return names[bit]
+
+    def cat(bits) -> str:
+        return "{" + ", ".join(ref(b) for b in reversed(bits)) + "}"
+
+    body = []
+    for n in nets:
+        k = len(n.s)
+        body += chained_add(f"ref_{n.index}", cat(n.a), cat(n.b), ref(n.c), k)
+        got = cat(n.s) if n.k is None else "{" + f"{ref(n.k)}, " + cat(n.s)[1:]
+        want = f"ref_{n.index}[{k - 1}:0]" if n.k is None else f"ref_{n.index}"
+        body.append(f"  wire ok_{n.index} = ({got} == {want});")
+    mod = dict(wiring.mod)
+    inputs = {n: p for n, p in mod["ports"].items() if p["direction"] == "input"}
+    mod["cells"] = {n: c for n, c in mod["cells"].items() if not _is_ff(c)}
+    mod["netnames"] = {}  # the ports and cells name every net that matters; saves time
+    mod["ports"] = {**inputs, "cut_q": {"direction": "input", "bits": cut_q or ["0"]},
+                    "cut_d": {"direction": "output", "bits": cut_d or ["0"]}}
+    decl = [f"  input [{len(p['bits']) - 1}:0] {n};" for n, p in inputs.items()]
+    conns = [f".{n}({n})" for n in inputs] + [".cut_q(cut_q)", ".cut_d(cut_d)"]
+    # `oks` is an output so that no pass drops the comparisons; one bit per slice, no
+    # wide AND (a 1024-deep expression would exhaust the Verilog front end's stack).
+    check = [f"module {CHECK}({', '.join(list(inputs) + ['cut_q', 'oks'])});", *decl,
+             f"  input [{max(len(cut_q), 1) - 1}:0] cut_q;",
+             f"  output [{len(nets) - 1}:0] oks;",
+             f"  wire [{max(len(cut_d), 1) - 1}:0] cut_d;",
+             f"  {CUT} unit ({', '.join(conns)});", *body,
+             *(f"  assign oks[{n.index}] = ok_{n.index};" for n in nets), "endmodule"]
+    return {"cut.json": json.dumps({"modules": {CUT: mod}}),
+            "check.v": "\n".join(check) + "\n"}
+
+
+_VERDICT = re.compile(r"(no model found: SUCCESS!|model found: FAIL!)")
+
+
+def prove_slices(plan: Plan, net: dict, module: str, timeout: float | None) -> Outcome:
+    """Parts 1 and 2 for the unit whose netlist is `net` (see the module docstring)."""
+    from .prove import ToolMissing, run_yosys
+
+    count = len(plan.slices)
+    method = (f"compositional: structure traced, each of {count} slice(s) proved against "
+              "a + b + c with every flip-flop cut (Yosys sat)")
+    wiring = Wiring(net, module)
+    nets, problem = trace(plan, wiring)
+    if problem:
+        return Outcome(method, problem)
+    files = cut_design(wiring, nets)
+    limit = f"-timeout {max(1, int(timeout))} " if timeout else ""
+    # One solver run per slice, on that slice's cone only: one run over all slices at once
+    # is several times slower (the solver must refute every slice's miter together).
+    script = ["read_json cut.json", "read_verilog check.v", f"hierarchy -top {CHECK} -check",
+              "proc", "flatten", "opt_clean"]
+    script += [f"sat {limit}-prove ok_{j} 1 w:ok_{j} %ci*" for j in range(count)]
+    log, _ = run_yosys("\n".join(script) + "\n", files, timeout)
+    verdicts = _VERDICT.findall(log)
+    bad = [j for j, v in enumerate(verdicts) if "FAIL" in v]
+    if bad:
+        return Outcome(method, f"slice {bad[0]}: its logic does not compute a + b + c on its "
+                               "own operand bits and carry-in (cell check, flip-flops cut)")
+    if len(verdicts) == count:
+        return Outcome(method, None)
+    raise ToolMissing(f"the SAT solver did not finish within {timeout:g} s (--timeout)"
+                      if timeout else "the SAT solver gave no verdict")
