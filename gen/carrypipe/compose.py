@@ -42,6 +42,7 @@ from dataclasses import dataclass
 
 from .miter import chained_add
 from .plan import Plan
+from .prove import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
 
 CHECK = "carrypipe_slices"
 CUT = "carrypipe_cut"
@@ -51,10 +52,6 @@ CUT = "carrypipe_cut"
 class Outcome:
     method: str
     problem: str | None  # None when every slice and the structure check out
-
-
-def _is_ff(cell: dict) -> bool:
-    return "dff" in cell["type"] or "dlatch" in cell["type"] or cell["type"] == "$ff"
 
 
 class Wiring:
@@ -72,7 +69,7 @@ class Wiring:
         self.undefined = any("x" in bits for cell in mod["cells"].values()
                              for bits in cell["connections"].values())
         for cell in mod["cells"].values():
-            if not _is_ff(cell):
+            if not is_ff(cell):
                 continue
             con, par = cell["connections"], cell["parameters"]
             self.cut.update(b for b in con["Q"] if isinstance(b, int))
@@ -204,7 +201,7 @@ def cut_design(wiring: Wiring, nets: list[SliceNets]) -> dict[str, str]:
         body.append(f"  wire ok_{n.index} = ({got} == {want});")
     mod = dict(wiring.mod)
     inputs = {n: p for n, p in mod["ports"].items() if p["direction"] == "input"}
-    mod["cells"] = {n: c for n, c in mod["cells"].items() if not _is_ff(c)}
+    mod["cells"] = {n: c for n, c in mod["cells"].items() if not is_ff(c)}
     mod["netnames"] = {}  # the ports and cells name every net that matters; saves time
     mod["ports"] = {**inputs, "cut_q": {"direction": "input", "bits": cut_q or ["0"]},
                     "cut_d": {"direction": "output", "bits": cut_d or ["0"]}}
@@ -222,13 +219,8 @@ def cut_design(wiring: Wiring, nets: list[SliceNets]) -> dict[str, str]:
             "check.v": "\n".join(check) + "\n"}
 
 
-_VERDICT = re.compile(r"(no model found: SUCCESS!|model found: FAIL!)")
-
-
 def prove_slices(plan: Plan, net: dict, module: str, timeout: float | None) -> Outcome:
     """Parts 1 and 2 for the unit whose netlist is `net` (see the module docstring)."""
-    from .prove import ToolMissing, run_yosys
-
     count = len(plan.slices)
     method = (f"compositional: structure traced, each of {count} slice(s) proved against "
               "a + b + c with every flip-flop cut (Yosys sat)")
@@ -237,19 +229,18 @@ def prove_slices(plan: Plan, net: dict, module: str, timeout: float | None) -> O
     if problem:
         return Outcome(method, problem)
     files = cut_design(wiring, nets)
-    limit = f"-timeout {max(1, int(timeout))} " if timeout else ""
+    limit = sat_limit(timeout)
     # One solver run per slice, on that slice's cone only: one run over all slices at once
     # is several times slower (the solver must refute every slice's miter together).
     script = ["read_json cut.json", "read_verilog check.v", f"hierarchy -top {CHECK} -check",
               "proc", "flatten", "opt_clean"]
     script += [f"sat {limit}-prove ok_{j} 1 w:ok_{j} %ci*" for j in range(count)]
     log, _ = run_yosys("\n".join(script) + "\n", files, timeout)
-    verdicts = _VERDICT.findall(log)
-    bad = [j for j, v in enumerate(verdicts) if "FAIL" in v]
+    verdicts = re.findall(f"({re.escape(PROVED)}|{re.escape(FAILED)})", log)
+    bad = [j for j, v in enumerate(verdicts) if v == FAILED]
     if bad:
         return Outcome(method, f"slice {bad[0]}: its logic does not compute a + b + c on its "
                                "own operand bits and carry-in (cell check, flip-flops cut)")
     if len(verdicts) == count:
         return Outcome(method, None)
-    raise ToolMissing(f"the SAT solver did not finish within {timeout:g} s (--timeout)"
-                      if timeout else "the SAT solver gave no verdict")
+    raise no_verdict(timeout)

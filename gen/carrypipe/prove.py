@@ -86,13 +86,30 @@ def run_yosys(script: str, files: dict[str, str], timeout: float | None,
 
 
 NETLIST_PASSES = ["proc", "attrmap -remove init", "opt_clean", "opt_dff", "opt_clean"]
+PROVED, FAILED = "no model found: SUCCESS!", "model found: FAIL!"  # Yosys sat's verdicts
+
+
+def sat_limit(timeout: float | None) -> str:
+    """The `sat` option that stops the solver at the --timeout, if one is given."""
+    return f"-timeout {max(1, int(timeout))} " if timeout else ""
+
+
+def no_verdict(timeout: float | None) -> ToolMissing:
+    """What to say when the solver ended without a verdict."""
+    return ToolMissing(f"the SAT solver did not finish within {timeout:g} s (--timeout)"
+                       if timeout else "the SAT solver gave no verdict")
+
+
+def is_ff(cell: dict) -> bool:
+    """Whether a netlist cell holds state (any flip-flop or latch type)."""
+    return "dff" in cell["type"] or "latch" in cell["type"] or cell["type"] == "$ff"
 
 
 def netlist(name: str, verilog: str, timeout: float | None) -> dict:
     """The unit's netlist as Yosys JSON, after passes that keep every flip-flop: `proc`, the
-    initial values removed (any start state), `opt_clean` (drops unused wires, so that) and
-    `opt_dff` (folds each enable and reset multiplexer into its flip-flop, which the
-    structural checks read)."""
+    initial values removed (any start state), `opt_clean` (drops unused wires; without it
+    `opt_dff` misses some enables) and `opt_dff` (folds each enable and reset multiplexer
+    into its flip-flop, which the structural checks read)."""
     script = [f"read_verilog {name}.v", f"hierarchy -top {name}", *NETLIST_PASSES,
               "write_json unit.json"]
     _, got = run_yosys("\n".join(script) + "\n", {f"{name}.v": verilog}, timeout,
@@ -112,7 +129,7 @@ def _ff_check(net: dict, module: str) -> str | None:
             if cell["port_directions"].get(pin) == "output":
                 for bit in bits:
                     driver[bit] = name
-        if "dff" in cell["type"] or "latch" in cell["type"]:
+        if is_ff(cell):
             ffs[name] = cell
     regs = {}  # flip-flop cell -> the register name it drives
     for net, info in mod["netnames"].items():
@@ -226,45 +243,36 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     text = verilog if verilog is not None else emit.unit_verilog(plan)
     if method == "auto":
         method = "compositional" if sliced and plan.width > DIRECT_UP_TO else "direct"
-    structure = None
-    if "en" in names or method == "compositional":
-        net = netlist(name, text, timeout)
-        if "en" in names:
-            problem = _ff_check(net, name)
-            if problem:
-                return Proof(False, "structural check of the enable", 0,
-                             f"not proved: {problem}", time.monotonic() - start)
-        structure = net
+    net = netlist(name, text, timeout) if "en" in names or method == "compositional" else None
+    problem = _ff_check(net, name) if "en" in names else None
+    if problem:
+        return Proof(False, "structural check of the enable", 0, f"not proved: {problem}",
+                     time.monotonic() - start)
+    done, compare = "", ("sum", "cout", "out_valid")
     if method == "compositional":
         from . import compose
 
-        compare: tuple[str, ...] = ("out_valid",)
-        found = compose.prove_slices(plan, structure, name, timeout)
+        found = compose.prove_slices(plan, net, name, timeout)
         if found.problem:
             return Proof(False, found.method, 0, f"not proved: {found.problem}",
                          time.monotonic() - start)
-        if "out_valid" not in names:
-            seconds = time.monotonic() - start
-            return Proof(True, found.method, 0, f"proved: {found.method}; {seconds:.1f} s",
-                         seconds)
-    else:
-        compare = ("sum", "cout", "out_valid")
-    log = _bounded(name, lat, man["ports"], text, depth, compare, timeout)
-    seconds = time.monotonic() - start
-    what = "out_valid: " if method == "compositional" else ""
-    bounded = (f"{what}bounded check of {depth} cycles from an arbitrary register state (Yosys "
-               f"sat), results compared on cycle{'s' if depth > lat + 1 else ''} {lat + 1}"
-               + (f"..{depth}" if depth > lat + 1 else ""))
-    done = f"{found.method}; {bounded}" if method == "compositional" else bounded
+        done, compare = f"{found.method}; out_valid: ", ("out_valid",)
+    if {"sum", "out_valid"} & set(compare) & names:
+        log = _bounded(name, lat, man["ports"], text, depth, compare, timeout)
+        done += (f"bounded check of {depth} cycles from an arbitrary register state (Yosys "
+                 f"sat), results compared on cycle{'s' if depth > lat + 1 else ''} {lat + 1}"
+                 + (f"..{depth}" if depth > lat + 1 else ""))
+    else:  # compositional, and no valid chain to check
+        log, done, depth = PROVED, done.removesuffix("; out_valid: "), 0
     if "en" in names:
         done += "; en held high, every flip-flop enabled by en (structural check)"
-    if "no model found: SUCCESS!" in log:
+    seconds = time.monotonic() - start
+    if PROVED in log:
         return Proof(True, done, depth, f"proved: {done}; {seconds:.1f} s", seconds)
-    if "model found: FAIL!" in log:
+    if FAILED in log:
         return Proof(False, done, depth, "FAILED: " + _counterexample(log, plan, compare),
                      seconds)
-    raise ToolMissing(f"the SAT solver did not finish within {timeout:g} s (--timeout)"
-                      if timeout else "the SAT solver gave no verdict")
+    raise no_verdict(timeout)
 
 
 def _bounded(name: str, lat: int, ports: list[dict], verilog: str, depth: int,
@@ -280,7 +288,6 @@ def _bounded(name: str, lat: int, ports: list[dict], verilog: str, depth: int,
               "opt_clean",
               f"sat -seq {depth} -prove-skip {lat} -prove ok 1 "
               + ("-set en 1 " if "en" in names else "")
-              + (f"-timeout {max(1, int(timeout))} " if timeout else "")
-              + "-show-inputs " + " ".join(f"-show {s}" for s in shows)]
+              + sat_limit(timeout) + "-show-inputs " + " ".join(f"-show {s}" for s in shows)]
     log, _ = run_yosys("\n".join(script) + "\n", files, timeout)
     return log
