@@ -4,6 +4,7 @@ import pytest
 
 from carrypipe import candidates, config
 from carrypipe.candidates import Row
+from carrypipe.plan import make_plan
 from carrypipe.toolflow import Measurement
 from conftest import make
 
@@ -55,8 +56,7 @@ def test_narrowed_keeps_width_and_latency():
 
 def row(slices, mhz=None, predicted=None, cell="native", luts=10, origin="even"):
     plan = make(width=sum(slices), slices=list(slices), cell=cell)
-    r = Row(plan.config, plan.latency, plan.registers.total, origin, predicted,
-            planned_slowest=plan.slowest.index)
+    r = Row(plan, origin, predicted)
     if mhz is not None:
         r.measured = [Measurement(1, "ok", mhz=mhz, luts=luts)]
     return r
@@ -98,11 +98,11 @@ def test_next_batch_measures_the_best_predictions_when_none_is_promising():
 def test_uneven_variants_only_for_near_misses():
     near, far, met = row([16] * 4, 240), row([32, 32], 150), row([22, 21, 21], 260)
     near.measured[0].end = "unit.carry_stage_2_SB_DFF_Q"  # the measured slowest stage
-    new = candidates.uneven_rows([near, far, met], 250, lambda c, o: Row(c, 4, 0, o))
+    new = candidates.uneven_rows([near, far, met], 250, lambda c, o: Row(make_plan(c), o))
     # Stage 2 narrowed by 1 and 2 bits; the bits go to the slices farthest from it first.
     assert [r.config.slices for r in new] == [(17, 16, 15, 16), (17, 17, 14, 16)]
     assert all(r.forced and r.origin == "uneven of native 16x4" for r in new)
-    assert candidates.uneven_rows([near, far, met], 250, lambda c, o: Row(c, 4, 0, o)) == []
+    assert candidates.uneven_rows([near, far, met], 250, lambda c, o: Row(make_plan(c), o)) == []
 
 
 def test_prefix_mode_candidates():
@@ -126,3 +126,13 @@ def test_local_networks_from_64_bits():
     assert local(64) == [("kogge-stone", 0), ("kogge-stone", 1), ("kogge-stone", 2)]
     assert all(c.local_width == candidates.LOCAL_WIDTH for c in candidates.generate(
         base(width=256), ("kogge-stone",)) if c.pipeline == "levels" and c.local_width)
+
+
+def test_every_candidate_has_its_own_label():
+    # The table, the CSV and the plot name candidates by label: two configs, two labels.
+    for width in (64, 256):
+        labels = [Row(make_plan(c)).label for c in candidates.generate(
+            base(width=width), ("native", "kogge-stone", "han-carlson"))]
+        assert len(labels) == len(set(labels))
+    assert Row(make_plan(base(pipeline="levels", cell="kogge-stone", local_width=16,
+                              wire_registers=2))).label == "kogge-stone levels/1 local 16 wired 2"

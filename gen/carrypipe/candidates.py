@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 
 from . import config, harness
 from .config import Config
+from .plan import Plan
 
 MAX_STAGES = 32  # even splits go from 1 slice up to this many (and down to 2-bit slices)
 MARGIN = 0.10  # a prediction this far below the target may still meet it when measured
@@ -109,11 +110,9 @@ def narrowed(cfg: Config, stage: int, bits: int) -> Config | None:
 
 @dataclass
 class Row:
-    """One candidate as `fit` sees it: plan figures, prediction, measurements."""
+    """One candidate as `fit` sees it: its plan, the prediction, the measurements."""
 
-    config: Config
-    latency: int
-    register_bits: int
+    plan: Plan
     origin: str = "even"  # even, or "uneven of <label>"
     predicted: float | None = None
     fits: bool = True  # room on the device (from the plan's flip-flops, or nextpnr)
@@ -121,16 +120,27 @@ class Row:
     measured: list = field(default_factory=list)  # Measurement per seed
     forced: bool = False  # measure even when the prediction is low (uneven variants)
     spawned: bool = False  # its uneven variants have been added
-    planned_slowest: int = 0  # the plan's slowest stage (unit-gate model)
-    stages: int = 1  # the plan's stage count
+
+    @property
+    def config(self) -> Config:
+        return self.plan.config
+
+    @property
+    def latency(self) -> int:
+        return self.plan.latency
+
+    @property
+    def register_bits(self) -> int:
+        return self.plan.registers.total
 
     @property
     def label(self) -> str:
         c = self.config
         if c.pipeline == "levels":
-            return f"{c.cell} levels/{c.levels_per_stage}"
+            local = f" local {c.local_width}" if 0 < c.local_width < c.width else ""
+            return f"{c.cell} levels/{c.levels_per_stage}{local}{_wired(c)}"
         if c.pipeline == "blocks":
-            return f"{c.cell} blocks of {c.block_width}"
+            return f"{c.cell} blocks of {c.block_width}{_wired(c)}"
         split = self.config.slices
         shape = (f"{split[0]}x{len(split)}" if len(set(split)) == 1
                  else "+".join(map(str, split)))
@@ -153,7 +163,7 @@ class Row:
     def measured_stage(self) -> int | None:
         """The stage whose register ends the measured critical path, when its name tells."""
         for m in self.ok:
-            stage = harness.stage_of(m.end, self.stages)
+            stage = harness.stage_of(m.end, len(self.plan.slices))
             if stage is not None:
                 return stage
         return None
@@ -162,11 +172,15 @@ class Row:
     def slowest_stage(self) -> int:
         """Where the measured critical path ends, else where the plan expects it."""
         stage = self.measured_stage
-        return self.planned_slowest if stage is None else stage
+        return self.plan.slowest.index if stage is None else stage
 
     @property
     def done(self) -> bool:
         return bool(self.measured) or not self.fits
+
+
+def _wired(c: Config) -> str:
+    return f" wired {c.wire_registers}" if c.wire_registers else ""
 
 
 def meets(row: Row, target: float) -> bool:

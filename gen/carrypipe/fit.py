@@ -49,9 +49,7 @@ class Outcome:
 def make_row(cfg: Config, origin: str, device: devices.Device) -> Row:
     """A candidate's plan figures, prediction and whether its flip-flops fit the device."""
     plan = make_plan(cfg)
-    row = Row(cfg, plan.latency, plan.registers.total, origin,
-              predicted=model.predict(plan, device.name), planned_slowest=plan.slowest.index,
-              stages=len(plan.slices))
+    row = Row(plan, origin, predicted=model.predict(plan, device.name))
     need = plan.registers.total + harness.flip_flops(plan)
     if need > device.flip_flops:
         mark_no_fit(row, device, need, f"{need} flip-flops (unit {plan.registers.total}, "
@@ -224,7 +222,7 @@ def files(outcome: Outcome) -> dict[str, str | bytes]:
         chosen = outcome.chosen
         cfg = chosen.config
         stage = chosen.measured_stage  # the chart marks it with the measured path
-        out.update(emit.render(make_plan(cfg), measured=None if stage is None else {
+        out.update(emit.render(chosen.plan, measured=None if stage is None else {
             stage: round(1000 / chosen.mhz, 3)}, measured_source=(
                 f"critical path at the median Fmax on {s.device.name}, nextpnr")))
         out[f"{cfg.name}.yaml"] = (
