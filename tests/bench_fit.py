@@ -24,7 +24,7 @@ import statistics
 import sys
 import time
 
-from carrypipe import cache, config, devices, emit, model, toolflow
+from carrypipe import cache, config, devices, emit, executor, model, toolflow
 from carrypipe.plan import make_plan
 
 PEER_WIDTHS = (32, 64, 128, 256)
@@ -60,17 +60,25 @@ endmodule
 """
 
 
-def measure(store, versions, device, name, cfg, text, seeds, kind):
-    """Median over seeds of one design (cached by its Verilog text, device, seed, tools)."""
+def _place(item):
+    """One seed of one design (an executor item: plain data, so it can run in a worker)."""
+    normalized, text, device, seed = item
+    plan = make_plan(config.from_mapping(normalized))
+    return toolflow.place_and_route(plan, text, devices.get(device), (seed,))[0]
+
+
+def measure(store, versions, device, name, cfg, text, seeds, kind, jobs=1):
+    """Median over seeds of one design (cached by its Verilog text, device, seed, tools);
+    seeds not in the cache run `jobs` at a time."""
     plan = make_plan(cfg)
-    results = []
-    for seed in seeds:
-        k = cache.key({"bench": kind, "verilog": text}, device.name, seed, versions)
-        hit = store.get(k)
-        if hit is None:
-            hit = toolflow.place_and_route(plan, text, device, (seed,))[0]
-            store.put(k, hit)
-        results.append(hit)
+    keys = {seed: cache.key({"bench": kind, "verilog": text}, device.name, seed, versions)
+            for seed in seeds}
+    found = {seed: store.get(k) for seed, k in keys.items()}
+    todo = [(cfg.normalized(), text, device.name, s) for s in seeds if found[s] is None]
+    for item, hit in executor.Local(jobs).submit_all(_place, todo):
+        found[item[3]] = hit
+        store.put(keys[item[3]], hit)
+    results = [found[s] for s in seeds]
     ok = [m for m in results if m.status == "ok"]
     first = results[0]
     return {"name": name, "latency": plan.latency, "mhz": statistics.median(m.mhz for m in ok)
@@ -89,6 +97,7 @@ def main(argv=None) -> int:
     ap.add_argument("--peer-widths", default=",".join(map(str, PEER_WIDTHS)))
     ap.add_argument("--seeds", type=int, default=1)
     ap.add_argument("--calibrate", action="store_true")
+    ap.add_argument("--jobs", type=int, default=1, help="place-and-route runs at a time")
     args = ap.parse_args(argv)
     seeds = tuple(range(1, args.seeds + 1))
     store = cache.Cache()
@@ -100,10 +109,10 @@ def main(argv=None) -> int:
         for w in map(int, args.peer_widths.split(",")):
             cfg = config.from_mapping({"name": "peer", "width": w, "register_inputs": True})
             rows.append(measure(store, versions, device, f"peer {w}", cfg,
-                                peer_verilog("peer", w), seeds, "peer"))
+                                peer_verilog("peer", w), seeds, "peer", args.jobs))
         cfg = config.from_mapping({"name": "fabric", "width": 32, "register_inputs": True})
         fabric = measure(store, versions, device, "fabric limit", cfg,
-                         fabric_verilog("fabric", 32), seeds, "fabric")
+                         fabric_verilog("fabric", 32), seeds, "fabric", args.jobs)
         rows.append(fabric)
         peers = {r["width"]: r for r in rows if r["name"].startswith("peer")}
         for w in map(int, args.widths.split(",")):
@@ -115,7 +124,7 @@ def main(argv=None) -> int:
                                                "slice_width": k})
                     plan = make_plan(cfg)
                     row = measure(store, versions, device, f"{cell} {w}/{k}", cfg,
-                                  emit.unit_verilog(plan), seeds, "generated")
+                                  emit.unit_verilog(plan), seeds, "generated", args.jobs)
                     row["peer"] = peers.get(w)
                     rows.append(row)
                     print(f"  measured {row['name']} ({time.monotonic() - t0:.0f} s)",

@@ -10,7 +10,8 @@ seeds), LUTs, carry cells, flip-flops, the ratio to the fabric limit (register -
     python tests/bench_modes.py --width 256 --seeds 3 --only han-carlson/0,kogge-stone/2
 
 A design is `<cell>/<wire_registers>[/<local_width>]` (levels mode, one prefix level per
-stage, registered inputs); with `--blocks <k>` the designs are blocks mode, block width k.
+stage, registered inputs unless `--no-input-register`, "plain" in the table); with
+`--blocks <k>` the designs are blocks mode, block width k.
 `--pnr-args="--tmg-ripup"` (with `=`) adds nextpnr options to every run of the table (fabric limit and
 peer included), to compare place-and-route options in one flow; results are cached apart.
 """
@@ -30,10 +31,11 @@ DESIGNS = ("kogge-stone/0", "kogge-stone/1", "kogge-stone/2", "han-carlson/0",
            "han-carlson/1", "sklansky/0", "brent-kung/0")
 
 
-def unit_config(width: int, design: str, blocks: int | None) -> config.Config:
+def unit_config(width: int, design: str, blocks: int | None,
+                inputs: bool = True) -> config.Config:
     cell, wires, *local = design.split("/")
     keys = {"name": "gen", "width": width, "pipeline": "blocks" if blocks else "levels",
-            "cell": cell, "wire_registers": int(wires), "register_inputs": True}
+            "cell": cell, "wire_registers": int(wires), "register_inputs": inputs}
     if blocks:
         keys["block_width"] = blocks
     if local:
@@ -58,7 +60,10 @@ def main(argv=None) -> int:
     ap.add_argument("--only", help="comma-separated designs <cell>/<wire_registers>[/<local_width>]")
     ap.add_argument("--blocks", type=int, help="measure blocks mode with this block width")
     ap.add_argument("--no-peer", action="store_true", help="leave out the registered a + b")
+    ap.add_argument("--no-input-register", action="store_true",
+                    help="units without `register_inputs` (stage 1 reads the harness registers)")
     ap.add_argument("--pnr-args", default="", help="extra nextpnr options for every run")
+    ap.add_argument("--jobs", type=int, default=1, help="place-and-route runs at a time")
     args = ap.parse_args(argv)
     seeds = tuple(range(1, args.seeds + 1))
     device = devices.get(args.device)
@@ -72,23 +77,24 @@ def main(argv=None) -> int:
     t0 = time.monotonic()
     fab_cfg = config.from_mapping({"name": "fabric", "width": 32, "register_inputs": True})
     fabric = bench_fit.measure(store, versions, device, "fabric limit", fab_cfg,
-                               bench_fit.fabric_verilog("fabric", 32), seeds, "fabric" + tag)
+                               bench_fit.fabric_verilog("fabric", 32), seeds, "fabric" + tag,
+                               args.jobs)
     rows = [fabric]
     if not args.no_peer:
         peer_cfg = config.from_mapping({"name": "peer", "width": args.width,
                                         "register_inputs": True})
         rows.append(bench_fit.measure(store, versions, device, f"peer {args.width}", peer_cfg,
                                       bench_fit.peer_verilog("peer", args.width), seeds,
-                                      "peer" + tag))
+                                      "peer" + tag, args.jobs))
     paths = {}
     for design in (args.only.split(",") if args.only else DESIGNS):
-        cfg = unit_config(args.width, design, args.blocks)
+        cfg = unit_config(args.width, design, args.blocks, not args.no_input_register)
         plan = make_plan(cfg)
         text = emit.unit_verilog(plan)
         mode = f"blocks{args.blocks}" if args.blocks else "levels"
-        name = f"{mode} {design}"
+        name = f"{mode} {design}" + (" plain" if args.no_input_register else "")
         row = bench_fit.measure(store, versions, device, name, cfg, text, seeds,
-                                "generated" + tag)
+                                "generated" + tag, args.jobs)
         rows.append(row)
         paths[name], row["inside"] = critical(store, versions, device, plan, text, seeds[0],
                                               "generated" + tag)

@@ -7,8 +7,8 @@ from __future__ import annotations
 
 import json
 
-from . import __version__
-from .plan import Plan
+from . import __version__, config
+from .plan import Plan, make_plan
 
 DELAY_MODEL = ("unit-gate model (Tyagi 1993; Zimmermann 1997): 2-input AND/OR = 1, XOR = 2, "
                "inverters free")
@@ -176,5 +176,14 @@ def prefix_tips(plan: Plan) -> list[str]:
             "    level(s): one cycle more, shorter routed nets;"]
     if c.pipeline == "blocks":
         tips.append("  - a smaller `block_width` shortens the carry chains of the first stage;")
-    tips.append("  - `register_inputs: true` takes the input routing out of the first stage.")
+    if not c.register_inputs:
+        tips.append("  - `register_inputs: true` takes the input routing out of the first stage.")
+    elif c.pipeline == "levels" and c.wire_registers < plan.schedule.network.depth:
+        wires = c.wire_registers + 1
+        moved = make_plan(config.from_mapping(
+            {**c.normalized(), "register_inputs": False, "wire_registers": wires}))
+        tips += ["  - when the operands come straight from registers, `register_inputs: false` with",
+                 f"    `wire_registers: {wires}` (latency {moved.latency}) moves the logic-free rank "
+                 "from the inputs",
+                 "    into the network, where it measured faster on ECP5 (docs/modes.md)."]
     return tips
