@@ -33,7 +33,7 @@ def test_split(keys, split):
     ({"widht": 8}, r"config: unknown key 'widht'; did you mean 'width'\? \(allowed keys: name, "),
     ({"width": 0}, r"config: key 'width': value 0 is not allowed; expected an integer from 1 to 4096\Z"),
     ({"width": 4097}, r"config: key 'width': value 4097 is not allowed; expected an integer from 1 to 4096\Z"),
-    ({"width": True}, r"config: key 'width': value True is not allowed; expected an integer from 1 to 4096\Z"),
+    ({"width": True}, r"config: key 'width': value true is not allowed; expected an integer from 1 to 4096\Z"),
     ({"width": "8"}, r"config: key 'width': value '8' is not allowed; expected an integer from 1 to 4096\Z"),
     ({"cell": "carry-lookahead"}, r"config: key 'cell': value 'carry-lookahead' is not allowed; expected one of ripple, native, kogge-stone, brent-kung, sklansky, han-carlson, ladner-fischer\Z"),
     ({"slice_width": 9}, r"config: key 'slice_width': value 9 is not allowed; expected an integer from 1 to width \(8\)\Z"),
@@ -68,7 +68,9 @@ def test_missing_required_key():
     ("- 1\n- 2\n", r"unit.yaml: expected a mapping of keys to values, got list\Z"),
     ("name: [unclosed\n", r"unit.yaml: not valid YAML at line 2, column 1: "),
     ("a: &x [1]\nb: *x\n", r"unit.yaml: not valid YAML at line 2, column 4: aliases are not allowed\Z"),
-], ids=["empty", "list", "broken", "alias"])
+    ("name: u\nwidth: 32\ncell: ripple\nwidth: 16\n", r"unit.yaml: not valid YAML at line 4, "
+     r"column 1: key 'width' is given twice \(first at line 2\); expected each key once\Z"),
+], ids=["empty", "list", "broken", "alias", "repeated-key"])
 def test_bad_files(write_config, text, message):
     with pytest.raises(ConfigError, match="^" + message):
         load(write_config(text))

@@ -335,7 +335,7 @@ def base(**extra):
     ({"pipeline": "levels", "cell": "sklansky", "levels_per_stage": 0},
      r"config: key 'levels_per_stage': value 0 is not allowed; expected an integer from 1 to 64\Z"),
     ({"pipeline": "levels", "cell": "sklansky", "levels_per_stage": True},
-     r"config: key 'levels_per_stage': value True is not allowed"),
+     r"config: key 'levels_per_stage': value true is not allowed"),
     ({"pipeline": "blocks", "cell": "sklansky", "block_width": 33},
      r"config: key 'block_width': value 33 is not allowed; expected an integer from 1 to width \(32\)\Z"),
     ({"pipeline": "blocks", "cell": "sklansky", "block_width": "16"},

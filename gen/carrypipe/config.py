@@ -108,7 +108,7 @@ class Config:
 REQUIRED = object()
 KEYS = {
     "name": ("a Verilog identifier (letters, digits, _; not starting with a digit; "
-             f"at most {MAX_NAME} characters; not a Verilog keyword)", REQUIRED),
+             f"at most {MAX_NAME} characters; not a Verilog or SystemVerilog keyword)", REQUIRED),
     "unit": ("one of " + ", ".join(UNITS), "adder"),
     "width": (f"an integer from 1 to {MAX_WIDTH}", REQUIRED),
     "cell": ("one of " + ", ".join(CELLS), "native"),
@@ -136,7 +136,10 @@ MODE_KEYS = {
 
 
 def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
-    shown = repr(value)
+    if isinstance(value, bool) or value is None:  # as YAML spells them, not Python
+        shown = {True: "true", False: "false", None: "null"}[value]
+    else:
+        shown = repr(value)
     if len(shown) > 60:
         shown = shown[:57] + "..."
     return ConfigError(f"{where}: key '{key}': value {shown} is not allowed; expected {allowed}")
@@ -256,6 +259,20 @@ class _NoAliasLoader(yaml.SafeLoader):
             raise yaml.composer.ComposerError(None, None, "aliases are not allowed",
                                               event.start_mark)
         return super().compose_node(parent, index)
+
+    def construct_mapping(self, node, deep=False):
+        """A mapping in which every key is given once (YAML leaves a repeated key's meaning
+        open; PyYAML would keep the last value without a word)."""
+        first = {}
+        for key_node, _ in node.value:
+            key = self.construct_object(key_node, deep=True)
+            if isinstance(key, str) and key in first:
+                raise yaml.constructor.ConstructorError(
+                    None, None, f"key {key!r} is given twice (first at line {first[key] + 1}); "
+                    "expected each key once", key_node.start_mark)
+            if isinstance(key, str):
+                first[key] = key_node.start_mark.line
+        return super().construct_mapping(node, deep)
 
 
 def parse_text(text: str, where: str) -> Config:
