@@ -95,6 +95,22 @@ def test_bad_config_exit_2_and_nothing_written(write_config, tmp_path, command, 
     assert not out.exists()
 
 
+@pytest.mark.parametrize("args, message", [
+    (["check", "CFG", "--vectors", "-5"], "Invalid value for '--vectors': -5 is not in the range"),
+    (["check", "CFG", "--sim", "modelsim"], "Invalid value for '--sim': 'modelsim' is not one of"),
+    (["build"], "Missing argument 'CONFIG'. (see '"),
+    (["plan", "CFG", "--bogus"], "No such option '--bogus'"),
+    (["nosuch"], "No such command 'nosuch'. (see '"),
+], ids=["range", "choice", "argument", "option", "command"])
+def test_command_line_mistakes_are_one_line(write_config, args, message):
+    cfg = write_config(DEMO)
+    r = run(*[cfg if a == "CFG" else a for a in args])
+    assert r.exit_code == 2
+    lines = r.output.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("carrypipe: error: ") and message in lines[0]
+    assert lines[0].endswith(" --help')")
+
+
 def test_missing_config_file(tmp_path):
     r = run("build", tmp_path / "nope.yaml")
     assert r.exit_code == 2 and "nope.yaml: cannot read config" in r.output

@@ -131,6 +131,19 @@ def test_bad_options_one_line_exit_2_no_chart(write_config, tmp_path, args, mess
     assert not dest.parent.exists()
 
 
+@pytest.mark.parametrize("option, value", [("--slice-width", "8"), ("--slices", "16,16")])
+@pytest.mark.parametrize("mode", ["levels", "blocks"])
+def test_what_if_split_is_refused_in_prefix_modes(write_config, tmp_path, mode, option, value):
+    # A prefix-mode unit takes no split (docs/modes.md): the what-if is a mistake, not a no-op.
+    dest = tmp_path / "out" / "c.svg"
+    cfg = write_config(f"name: acc\nwidth: 32\npipeline: {mode}\ncell: kogge-stone\n")
+    r = run("plan", cfg, option, value, "--chart", dest)
+    assert r.exit_code == 2 and not dest.parent.exists()
+    assert r.output == (f"carrypipe: error: {option}: value '{value}' is not allowed with pipeline "
+                        f"'{mode}' (unit.yaml); expected --slice-width or --slices only with "
+                        "pipeline 'slices'\n")
+
+
 def test_chart_into_a_folder_or_under_a_file_is_refused(write_config, tmp_path):
     cfg = write_config(UNIT)
     (tmp_path / "taken.svg").mkdir()

@@ -6,6 +6,7 @@ status 2; a failed check ends with exit status 1.
 
 from __future__ import annotations
 
+import contextlib
 import math
 import sys
 from pathlib import Path
@@ -28,10 +29,50 @@ class UserError(click.ClickException):
         click.echo(f"carrypipe: error: {self.format_message()}", err=True)
 
 
+# click >= 8.2 raises this (a UsageError) to show the help of a bare `carrypipe`: keep it.
+_SHOW_HELP = getattr(click.exceptions, "NoArgsIsHelpError", ())
+
+
+@contextlib.contextmanager
+def _one_line_usage():
+    """Command-line mistakes (a bad option value, a missing argument) as one line, like config
+    mistakes, with where to read more."""
+    try:
+        yield
+    except _SHOW_HELP:
+        raise
+    except click.UsageError as exc:
+        where = f" (see '{exc.ctx.command_path} --help')" if exc.ctx else ""
+        raise UserError(exc.format_message() + where) from None
+
+
+class _Command(click.Command):
+    def make_context(self, info_name, args, parent=None, **extra):
+        with _one_line_usage():
+            return super().make_context(info_name, args, parent, **extra)
+
+
+class _Group(click.Group):
+    command_class = _Command
+
+    def make_context(self, info_name, args, parent=None, **extra):
+        with _one_line_usage():
+            return super().make_context(info_name, args, parent, **extra)
+
+    def resolve_command(self, ctx, args):
+        with _one_line_usage():
+            return super().resolve_command(ctx, args)
+
+
 def load_plan(config_path: str, slice_width=None, slices=None):
     """Config file (plus command-line what-if split) -> plan, with user errors made one line."""
     try:
         cfg = load(config_path)
+        for option, value in (("--slice-width", slice_width), ("--slices", slices)):
+            if value is not None and cfg.pipeline != "slices":
+                raise ConfigError(f"{option}: value {value!r} is not allowed with pipeline "
+                                  f"{cfg.pipeline!r} ({Path(config_path).name}); expected "
+                                  "--slice-width or --slices only with pipeline 'slices'")
         if slice_width is not None and slices is not None:
             raise ConfigError("options --slice-width and --slices are both given; "
                               "expected at most one of them")
@@ -63,7 +104,7 @@ seed_opt = click.option("--seed", default=emit.DEFAULT_SEED, show_default=True,
                         type=click.IntRange(0), help="Seed of the random vectors.")
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="carrypipe")
 def main():
     """Pipelined arithmetic units as synthesizable Verilog."""
