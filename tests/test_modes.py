@@ -305,7 +305,7 @@ def test_report_offers_the_input_rank_as_a_wire_rank():
     moved = make(**kept, wire_registers=1)
     assert registered.latency == moved.latency == 8
     text = emit.render(registered, vectors=20)["dut.txt"]
-    assert "`register_inputs: false` with\n    `wire_registers: 1` (latency 8)" in text
+    assert "`register_inputs: false` with\n    `wire_registers: 1` (latency 8, as now)" in text
     # Not offered without an input register, nor in blocks mode (not measured there).
     blocks = make(pipeline="blocks", cell="kogge-stone", width=64, register_inputs=True)
     for other in (moved, blocks):

@@ -183,7 +183,8 @@ def prefix_tips(plan: Plan) -> list[str]:
         moved = make_plan(config.from_mapping(
             {**c.normalized(), "register_inputs": False, "wire_registers": wires}))
         tips += ["  - when the operands come straight from registers, `register_inputs: false` with",
-                 f"    `wire_registers: {wires}` (latency {moved.latency}) moves the logic-free rank "
-                 "from the inputs",
+                 f"    `wire_registers: {wires}` (latency {moved.latency}"
+                 f"{', as now' if moved.latency == plan.latency else ''}) moves the logic-free "
+                 "rank from the inputs",
                  "    into the network, where it measured faster on ECP5 (docs/modes.md)."]
     return tips
