@@ -116,3 +116,12 @@ def test_plot_and_tables(counted):
     doc = json.loads(files["fit.json"])
     assert doc["chosen"] == out.chosen.label
     assert sum(c["meets"] for c in doc["candidates"]) >= 1
+
+
+@pytest.mark.parametrize("inputs", [True, False])
+def test_a_registered_input_config_hears_of_the_wire_rank(counted, monkeypatch, inputs):
+    monkeypatch.setattr(candidates, "GENERATORS", (candidates.prefix_candidates,))
+    base = config.from_mapping({"name": "acc", "width": 16, "cell": "kogge-stone",
+                                "register_inputs": inputs})
+    out = fit.run(base, settings(100), executor.Local(1))
+    assert (fit.INPUT_RANK_NOTE in out.notes) == inputs
