@@ -46,18 +46,20 @@ def _one_line_usage():
         raise UserError(exc.format_message() + where) from None
 
 
-class _Command(click.Command):
+class _OneLineParse:
+    """Parsing (where click raises its usage errors) with one-line errors."""
+
     def make_context(self, info_name, args, parent=None, **extra):
         with _one_line_usage():
             return super().make_context(info_name, args, parent, **extra)
 
 
-class _Group(click.Group):
+class _Command(_OneLineParse, click.Command):
+    pass
+
+
+class _Group(_OneLineParse, click.Group):
     command_class = _Command
-
-    def make_context(self, info_name, args, parent=None, **extra):
-        with _one_line_usage():
-            return super().make_context(info_name, args, parent, **extra)
 
     def resolve_command(self, ctx, args):
         with _one_line_usage():

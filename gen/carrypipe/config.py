@@ -266,12 +266,13 @@ class _NoAliasLoader(yaml.SafeLoader):
         first = {}
         for key_node, _ in node.value:
             key = self.construct_object(key_node, deep=True)
-            if isinstance(key, str) and key in first:
+            if not isinstance(key, str):
+                continue  # from_mapping refuses it by name
+            if key in first:
                 raise yaml.constructor.ConstructorError(
                     None, None, f"key {key!r} is given twice (first at line {first[key] + 1}); "
                     "expected each key once", key_node.start_mark)
-            if isinstance(key, str):
-                first[key] = key_node.start_mark.line
+            first[key] = key_node.start_mark.line
         return super().construct_mapping(node, deep)
 
 
