@@ -61,10 +61,11 @@ endmodule
 
 
 def _place(item):
-    """One seed of one design (an executor item: plain data, so it can run in a worker)."""
+    """One seed of one design (an executor item: plain data, so it can run in a worker; the
+    device itself, since bench_modes --pnr-args changes its nextpnr options)."""
     normalized, text, device, seed = item
     plan = make_plan(config.from_mapping(normalized))
-    return toolflow.place_and_route(plan, text, devices.get(device), (seed,))[0]
+    return toolflow.place_and_route(plan, text, device, (seed,))[0]
 
 
 def measure(store, versions, device, name, cfg, text, seeds, kind, jobs=1):
@@ -74,7 +75,7 @@ def measure(store, versions, device, name, cfg, text, seeds, kind, jobs=1):
     keys = {seed: cache.key({"bench": kind, "verilog": text}, device.name, seed, versions)
             for seed in seeds}
     found = {seed: store.get(k) for seed, k in keys.items()}
-    todo = [(cfg.normalized(), text, device.name, s) for s in seeds if found[s] is None]
+    todo = [(cfg.normalized(), text, device, s) for s in seeds if found[s] is None]
     for item, hit in executor.Local(jobs).submit_all(_place, todo):
         found[item[3]] = hit
         store.put(keys[item[3]], hit)
