@@ -12,7 +12,7 @@ import subprocess
 
 import pytest
 
-from carrypipe import emit, sim, vectors
+from carrypipe import emit, report, sim, vectors
 from carrypipe.config import PREFIX_CELLS, ConfigError, from_mapping
 from carrypipe.unit import PipelinedAdder
 from conftest import make, needs_icarus, simulate
@@ -296,7 +296,6 @@ def test_build_describes_the_mode(tmp_path):
     assert emit.render(p, vectors=20) == files  # deterministic
 
 
-
 def test_report_offers_the_input_rank_as_a_wire_rank():
     # 64-bit Kogge-Stone in 16-bit local blocks: depth 4 + 2 + 1 = 7, so L = 7 + 1 either
     # with the input register or with one wired level (the latency formula above).
@@ -304,12 +303,13 @@ def test_report_offers_the_input_rank_as_a_wire_rank():
     registered = make(**kept, register_inputs=True)
     moved = make(**kept, wire_registers=1)
     assert registered.latency == moved.latency == 8
-    text = emit.render(registered, vectors=20)["dut.txt"]
+    text = report.report(registered)
     assert "`register_inputs: false` with\n    `wire_registers: 1` (latency 8, as now)" in text
     # Not offered without an input register, nor in blocks mode (not measured there).
     blocks = make(pipeline="blocks", cell="kogge-stone", width=64, register_inputs=True)
     for other in (moved, blocks):
-        assert "`register_inputs: false` with" not in emit.render(other, vectors=20)["dut.txt"]
+        assert "`register_inputs: false` with" not in report.report(other)
+
 
 def base(**extra):
     return {"name": "u", "width": 32, **extra}
