@@ -16,7 +16,7 @@ def test_defaults_are_filled_in():
     assert cfg.normalized() == {
         "name": "u", "unit": "adder", "width": 8, "cell": "native", "slices": [8],
         "carry_in": False, "carry_out": True, "valid": False, "enable": False,
-        "reset": "none", "register_inputs": False}
+        "reset": "none", "reset_data": False, "signed": False, "register_inputs": False}
 
 
 @pytest.mark.parametrize("keys, split", [
@@ -43,8 +43,12 @@ def test_split(keys, split):
     ({"slices": []}, r"config: key 'slices': value \[\] is not allowed"),
     ({"slices": [4, 4], "slice_width": 4}, r"config: keys 'slice_width' and 'slices' are both given; expected at most one of them\Z"),
     ({"valid": "yes"}, r"config: key 'valid': value 'yes' is not allowed; expected true or false\Z"),
-    ({"reset": "async"}, r"config: key 'reset': value 'async' is not allowed; expected one of none, sync\Z"),
-    ({"unit": "divider"}, r"config: key 'unit': value 'divider' is not allowed; expected one of adder\Z"),
+    ({"reset": "asynchronous"}, r"config: key 'reset': value 'asynchronous' is not allowed; expected one of none, sync, async\Z"),
+    ({"reset": "sync"}, r"config: key 'reset': value 'sync' is not allowed with nothing to reset; expected 'none', or valid: true or reset_data: true beside it\Z"),
+    ({"reset_data": True}, r"config: key 'reset_data': value true is not allowed with reset 'none'; expected reset 'sync' or 'async' beside it\Z"),
+    ({"unit": "divider"}, r"config: key 'unit': value 'divider' is not allowed; expected one of adder, subtractor, addsub, comparator, accumulator\Z"),
+    ({"unit": "comparator", "carry_in": True}, r"config: key 'carry_in' is given with unit 'comparator'; expected it only with unit 'adder' or 'subtractor' or 'addsub'\Z"),
+    ({"unit": "accumulator", "pipeline": "levels"}, r"config: key 'pipeline': value 'levels' is not allowed with unit 'accumulator'; expected one of slices\Z"),
     ({"name": "module"}, r"config: key 'name': value 'module' is not allowed; expected a Verilog identifier"),
     ({"name": "1abc"}, r"config: key 'name': value '1abc' is not allowed"),
     ({"name": "../x"}, r"config: key 'name': value '../x' is not allowed"),

@@ -172,7 +172,7 @@ class Row:
     def slowest_stage(self) -> int:
         """Where the measured critical path ends, else where the plan expects it."""
         stage = self.measured_stage
-        return self.plan.slowest.index if stage is None else stage
+        return self.plan.slowest[0].index if stage is None else stage
 
     @property
     def done(self) -> bool:

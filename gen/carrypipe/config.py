@@ -13,13 +13,13 @@ from pathlib import Path
 
 import yaml
 
-from . import prefix
+from . import cells, prefix, units
 
 MAX_WIDTH = 4096
-UNITS = ("adder",)
-PREFIX_CELLS = ("kogge-stone", "brent-kung", "sklansky", "han-carlson", "ladner-fischer")
-CELLS = ("ripple", "native") + PREFIX_CELLS
-RESETS = ("none", "sync")
+UNITS = tuple(units.KINDS)
+PREFIX_CELLS = cells.PREFIX_STYLES
+CELLS = tuple(cells.STYLES)
+RESETS = ("none", "sync", "async")
 PIPELINES = ("slices", "levels", "blocks")
 PREFIX_PIPELINES = ("levels", "blocks")  # modes pipelined by prefix levels, not by slices
 MAX_LEVELS_PER_STAGE = 64
@@ -73,6 +73,8 @@ class Config:
     valid: bool = False
     enable: bool = False
     reset: str = "none"
+    reset_data: bool = False
+    signed: bool = False
     register_inputs: bool = False
     pipeline: str = "slices"
     levels_per_stage: int = 1
@@ -83,17 +85,14 @@ class Config:
     def normalized(self) -> dict:
         """The config as plain data with every default filled in (for headers, manifests, caches).
 
-        Keys that the unit's pipeline mode does not read are left out (a prefix mode takes no
-        split), and a `slices` unit leaves out `pipeline` too, so configs written before the
-        prefix modes existed keep their exact normalized form.  `from_mapping` of the result
-        gives the same config back.
+        Keys that the unit kind and pipeline mode do not read are left out (a prefix mode takes
+        no split, a comparator no carry-in), and a `slices` unit leaves out `pipeline` too.
+        `from_mapping` of the result gives the same config back.
         """
         data = asdict(self)
         data["slices"] = list(self.slices)
-        if self.pipeline != "slices":
-            del data["slices"]
-        for key, modes in MODE_KEYS.items():
-            if self.pipeline not in modes:
+        for key in list(data):
+            if key in KEYS and not reads(key, self.unit, self.pipeline):
                 del data[key]
         if self.pipeline == "slices":
             del data["pipeline"]
@@ -102,6 +101,10 @@ class Config:
     def with_split(self, slices) -> "Config":
         """The same unit with another split (used by what-if previews and `fit`)."""
         return replace(self, slices=tuple(slices))
+
+    def replaced(self, **keys) -> "Config":
+        """The same unit with some keys changed, validated again."""
+        return from_mapping({**self.normalized(), **keys}, where="config")
 
 
 # key -> (description of what is allowed, default or REQUIRED)
@@ -119,6 +122,8 @@ KEYS = {
     "valid": ("true or false", False),
     "enable": ("true or false", False),
     "reset": ("one of " + ", ".join(RESETS), "none"),
+    "reset_data": ("true or false", False),
+    "signed": ("true or false", False),
     "register_inputs": ("true or false", False),
     "pipeline": ("one of " + ", ".join(PIPELINES), "slices"),
     "levels_per_stage": (f"an integer from 1 to {MAX_LEVELS_PER_STAGE}", 1),
@@ -126,13 +131,23 @@ KEYS = {
     "wire_registers": ("an integer from 0 to the prefix network's depth", 0),
     "local_width": ("an integer from 0 to width (0: one prefix network over every bit)", 0),
 }
-# Keys that only the prefix pipeline modes read, and the modes that read each.
+# Keys that only some pipeline modes read, and the modes that read each.
 MODE_KEYS = {
+    "slice_width": ("slices",),
+    "slices": ("slices",),
     "levels_per_stage": PREFIX_PIPELINES,
     "block_width": ("blocks",),
     "wire_registers": PREFIX_PIPELINES,
     "local_width": ("levels",),
 }
+
+
+def reads(key: str, unit: str, mode: str) -> bool:
+    """Whether a unit of this kind in this pipeline mode reads `key`."""
+    kind = units.KINDS[unit]
+    if key in kind.refused:
+        return False
+    return mode in kind.mode_keys.get(key, MODE_KEYS.get(key, (mode,)))
 
 
 def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
@@ -187,10 +202,19 @@ def from_mapping(data, where: str = "config") -> Config:
     width = values["width"]
     if not _is_int(width) or not 1 <= width <= MAX_WIDTH:
         raise _fail(where, "width", width, KEYS["width"][0])
-    for key, choices in (("unit", UNITS), ("cell", CELLS), ("reset", RESETS)):
+    for key, choices in (("unit", UNITS), ("cell", CELLS), ("reset", RESETS),
+                         ("pipeline", PIPELINES)):
         if values[key] not in choices:
             raise _fail(where, key, values[key], KEYS[key][0])
-    for key in ("carry_in", "carry_out", "valid", "enable", "register_inputs"):
+    unit, mode = values["unit"], values["pipeline"]
+    kind = units.KINDS[unit]
+    if mode not in kind.modes:
+        raise ConfigError(f"{where}: key 'pipeline': value {mode!r} is not allowed with unit "
+                          f"{unit!r}; expected one of {', '.join(kind.modes)}")
+    for key in data:
+        _check_read(where, key, unit, mode, data)
+    for key in ("carry_in", "carry_out", "valid", "enable", "register_inputs", "reset_data",
+                "signed"):
         if not isinstance(values[key], bool):
             raise _fail(where, key, values[key], "true or false")
     if "slice_width" in data and "slices" in data:
@@ -201,12 +225,41 @@ def from_mapping(data, where: str = "config") -> Config:
     elif "slice_width" in data:
         split = check_split(where, "slice_width", data["slice_width"], width)
     else:
-        split = (width,)
-
-    check_mode(where, data, values)
+        split = check_split(where, "slice_width", kind.default_slice_width(width, mode), width)
+    _check_reset(where, values)
+    check_mode(where, values, split)
     own = {f.name for f in fields(Config)}
-    kept = {k: v for k, v in values.items() if k in own and k not in ("width", "slices")}
+    kept = {k: (v if reads(k, unit, mode) else KEYS[k][1]) for k, v in values.items()
+            if k in own and k not in ("width", "slices")}
     return Config(width=width, slices=split, **kept)
+
+
+def _check_read(where: str, key: str, unit: str, mode: str, data: dict) -> None:
+    """A key given for a unit kind or pipeline mode that does not read it is refused."""
+    if reads(key, unit, mode):
+        return
+    if key in units.KINDS[unit].refused:
+        users = [k for k in UNITS if key not in units.KINDS[k].refused]
+        raise ConfigError(f"{where}: key '{key}' is given with unit {unit!r}; expected it "
+                          f"only with unit {' or '.join(map(repr, users))}")
+    modes = [m for m in PIPELINES if reads(key, unit, m)]
+    if key in ("slice_width", "slices") and "pipeline" in data:
+        raise ConfigError(f"{where}: keys '{key}' and 'pipeline' ({mode!r}) are both given; "
+                          f"expected '{key}' only with pipeline {' or '.join(map(repr, modes))}")
+    raise ConfigError(f"{where}: key '{key}' is given with pipeline {mode!r}; expected it only "
+                      f"with pipeline {' or '.join(map(repr, modes))}"
+                      + (f" (unit {unit!r})" if unit != "adder" else ""))
+
+
+def _check_reset(where: str, values: dict) -> None:
+    """A reset needs something to clear; clearing the data needs a reset."""
+    if values["reset"] != "none" and not values["valid"] and not values["reset_data"]:
+        raise ConfigError(f"{where}: key 'reset': value {values['reset']!r} is not allowed "
+                          "with nothing to reset; expected 'none', or valid: true or "
+                          "reset_data: true beside it")
+    if values["reset_data"] and values["reset"] == "none":
+        raise ConfigError(f"{where}: key 'reset_data': value true is not allowed with reset "
+                          "'none'; expected reset 'sync' or 'async' beside it")
 
 
 def prefix_positions(width: int, pipeline: str, block_width: int) -> int:
@@ -214,27 +267,19 @@ def prefix_positions(width: int, pipeline: str, block_width: int) -> int:
     return width if pipeline == "levels" else -(-width // block_width)
 
 
-def check_mode(where: str, data: dict, values: dict) -> None:
-    """Validate `pipeline` and the keys of the prefix modes, alone and in combination."""
-    mode = values["pipeline"]
-    if mode not in PIPELINES:
-        raise _fail(where, "pipeline", mode, KEYS["pipeline"][0])
-    for key, modes in MODE_KEYS.items():
-        if key in data and mode not in modes:
-            raise ConfigError(f"{where}: key '{key}' is given with pipeline {mode!r}; expected "
-                              f"it only with pipeline {' or '.join(map(repr, modes))}")
+def check_mode(where: str, values: dict, split: tuple[int, ...]) -> None:
+    """Validate the keys of the prefix modes, alone and in combination."""
+    mode, unit = values["pipeline"], values["unit"]
     if mode == "slices":
         return
-    for key in ("slice_width", "slices"):
-        if key in data:
-            raise ConfigError(f"{where}: keys '{key}' and 'pipeline' ({mode!r}) are both given; "
-                              f"expected '{key}' only with pipeline 'slices'")
-    if values["cell"] not in PREFIX_CELLS:
-        raise ConfigError(f"{where}: key 'cell': value {values['cell']!r} is not allowed with "
-                          f"key 'pipeline' {mode!r}; expected one of {', '.join(PREFIX_CELLS)}")
     lps = values["levels_per_stage"]
     if not _is_int(lps) or not 1 <= lps <= MAX_LEVELS_PER_STAGE:
         raise _fail(where, "levels_per_stage", lps, KEYS["levels_per_stage"][0])
+    if not reads("wire_registers", unit, mode):  # a comparator's tree: any cell style
+        return
+    if values["cell"] not in PREFIX_CELLS:
+        raise ConfigError(f"{where}: key 'cell': value {values['cell']!r} is not allowed with "
+                          f"key 'pipeline' {mode!r}; expected one of {', '.join(PREFIX_CELLS)}")
     block = values["block_width"]
     if mode == "blocks" and (not _is_int(block) or not 1 <= block <= values["width"]):
         raise _fail(where, "block_width", block, f"an integer from 1 to width ({values['width']})")
