@@ -7,7 +7,6 @@ The soak (documented in docs/verification.md) is the same property test, longer:
 """
 
 import os
-import random
 
 import pytest
 from click.testing import CliRunner
