@@ -27,8 +27,9 @@ PREFIX_PIPELINES = ("levels", "blocks")  # modes pipelined by prefix levels, not
 MAX_LEVELS_PER_STAGE = 64
 MAX_CONFIG_BYTES = 1 << 20
 MAX_NESTING = 16  # levels of YAML collections; a config needs 2 (the mapping, `slices`)
-MAX_INT_DIGITS = 20  # longer decimal integers stay text: no key allows them, and Python
-# refuses to convert very long digit strings (its int max str digits limit)
+# Decimal integers with more digits stay text: no key allows them, and Python refuses to
+# convert very long digit strings (sys.get_int_max_str_digits(), 4300 by default).
+MAX_INT_DIGITS = 20
 
 # Verilog-2005 and SystemVerilog-2017 reserved words: a module may not be named after one.
 VERILOG_KEYWORDS = frozenset("""
@@ -403,7 +404,10 @@ def read_regular(path: str | Path, limit: int) -> bytes:
     opened (`NotRegularFile`), opened without blocking and checked again in case it was
     swapped in between.  Raises OSError."""
     _regular(os.stat(path).st_mode)
-    fd = os.open(path, os.O_RDONLY | os.O_NONBLOCK | os.O_NOCTTY | getattr(os, "O_CLOEXEC", 0))
+    flags = os.O_RDONLY
+    for flag in ("O_NONBLOCK", "O_NOCTTY", "O_CLOEXEC", "O_BINARY"):  # those the system has
+        flags |= getattr(os, flag, 0)
+    fd = os.open(path, flags)
     try:
         _regular(os.fstat(fd).st_mode)
         chunks, size = [], 0
