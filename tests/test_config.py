@@ -228,5 +228,12 @@ def test_a_device_and_a_huge_sparse_file_are_refused(tmp_path):
     sparse = tmp_path / "sparse.yaml"
     with open(sparse, "wb") as fh:
         fh.truncate(1 << 40)  # a TiB of holes: read no more than the limit
-    with pytest.raises(ConfigError, match=r"^sparse.yaml: config is larger than 1048576 bytes"):
+    with pytest.raises(ConfigError, match=r"^sparse.yaml: config is larger than 262144 bytes"):
         load(sparse)
+
+
+def test_the_largest_real_config_is_within_the_size_bound(write_config):
+    """4096 one-bit slices, one per line with a comment each (over 64 KiB): still read."""
+    text = "name: u\nwidth: 4096\nslices:\n" + "  - 1  # one bit\n" * 4096
+    assert len(text.encode()) > 1 << 16
+    assert load(write_config(text)).slices == (1,) * 4096

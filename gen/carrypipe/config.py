@@ -25,7 +25,9 @@ RESETS = ("none", "sync")
 PIPELINES = ("slices", "levels", "blocks")
 PREFIX_PIPELINES = ("levels", "blocks")  # modes pipelined by prefix levels, not by slices
 MAX_LEVELS_PER_STAGE = 64
-MAX_CONFIG_BYTES = 1 << 20
+# A config of 4096 one-bit slices, one per line with a comment each, is about 70 KiB;
+# PyYAML reads about 100 KiB a second, so the bound also bounds the time to read one.
+MAX_CONFIG_BYTES = 1 << 18
 MAX_NESTING = 16  # levels of YAML collections; a config needs 2 (the mapping, `slices`)
 # Decimal integers with more digits stay text: no key allows them, and Python refuses to
 # convert very long digit strings (sys.get_int_max_str_digits(), 4300 by default).
