@@ -7,7 +7,9 @@ key, the value and what is allowed; the command line turns it into exit status 2
 from __future__ import annotations
 
 import difflib
+import os
 import re
+import stat
 from dataclasses import asdict, dataclass, fields, replace
 from pathlib import Path
 
@@ -23,7 +25,13 @@ RESETS = ("none", "sync", "async")
 PIPELINES = ("slices", "levels", "blocks")
 PREFIX_PIPELINES = ("levels", "blocks")  # modes pipelined by prefix levels, not by slices
 MAX_LEVELS_PER_STAGE = 64
-MAX_CONFIG_BYTES = 1 << 20
+# A config of 4096 one-bit slices, one per line with a comment each, is about 70 KiB;
+# PyYAML reads about 100 KiB a second, so the bound also bounds the time to read one.
+MAX_CONFIG_BYTES = 1 << 18
+MAX_NESTING = 16  # levels of YAML collections; a config needs 2 (the mapping, `slices`)
+# Decimal integers with more digits stay text: no key allows them, and Python refuses to
+# convert very long digit strings (sys.get_int_max_str_digits(), 4300 by default).
+MAX_INT_DIGITS = 20
 
 # Verilog-2005 and SystemVerilog-2017 reserved words: a module may not be named after one.
 VERILOG_KEYWORDS = frozenset("""
@@ -53,6 +61,15 @@ wire with within wor xnor xor
 
 _IDENT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*\Z")
 MAX_NAME = 64
+# carrypipe's own Verilog modules (prove's miters, its cut netlist) all start with this prefix,
+# so no unit can be named like one; checked in any case, as file names may ignore case.
+RESERVED_PREFIX = "carrypipe_"
+# Names carrypipe keeps: its own (`carrypipe`, whose testbench and harness modules would fall
+# under the prefix), those whose files collide with carrypipe's own in one folder (`fit`
+# writes fit.json beside the manifest <name>.json; `prove` writes miter.v beside <name>.v),
+# and the Windows device names, which name no file there (nul.v is the null device).
+RESERVED_NAMES = frozenset(["carrypipe", "fit", "miter", "con", "prn", "aux", "nul",
+                            *(f"{port}{i}" for port in ("com", "lpt") for i in range(10))])
 
 
 class ConfigError(ValueError):
@@ -111,7 +128,9 @@ class Config:
 REQUIRED = object()
 KEYS = {
     "name": ("a Verilog identifier (letters, digits, _; not starting with a digit; "
-             f"at most {MAX_NAME} characters; not a Verilog or SystemVerilog keyword)", REQUIRED),
+             f"at most {MAX_NAME} characters; not a Verilog or SystemVerilog keyword; not "
+             f"starting with {RESERVED_PREFIX}; not carrypipe, fit, miter, con, prn, aux, nul, "
+             "comN or lptN, in any case)", REQUIRED),
     "unit": ("one of " + ", ".join(UNITS), "adder"),
     "width": (f"an integer from 1 to {MAX_WIDTH}", REQUIRED),
     "cell": ("one of " + ", ".join(CELLS), "native"),
@@ -150,14 +169,49 @@ def reads(key: str, unit: str, mode: str) -> bool:
     return mode in kind.mode_keys.get(key, MODE_KEYS.get(key, (mode,)))
 
 
-def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
+class LongInteger(str):
+    """A plain decimal integer with more than MAX_INT_DIGITS digits, kept as its text: no key
+    allows one, and converting it could fail (or take long) for very long ones."""
+
+    def __repr__(self) -> str:
+        return f"{self[:MAX_INT_DIGITS]}... ({len(self.lstrip('-'))} digits)"
+
+
+def _shown(value) -> str:
+    """A value for a one-line message, spelled as YAML reads it, cut to 60 characters."""
     if isinstance(value, bool) or value is None:  # as YAML spells them, not Python
         shown = {True: "true", False: "false", None: "null"}[value]
     else:
         shown = repr(value)
-    if len(shown) > 60:
-        shown = shown[:57] + "..."
-    return ConfigError(f"{where}: key '{key}': value {shown} is not allowed; expected {allowed}")
+    return shown if len(shown) <= 60 else shown[:57] + "..."
+
+
+def _is_text(value) -> bool:
+    """A value (or a list element) that YAML read as text, e.g. `0x40`, `6_4`, `8.0`, `'8'`."""
+    return any(type(v) is str for v in (value if isinstance(value, list) else [value]))
+
+
+def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
+    if "integer" in allowed and _is_text(value):
+        head, sep, tail = allowed.partition(";")
+        allowed = f"{head}, written in plain decimal digits{sep}{tail}"
+    return ConfigError(f"{where}: key '{key}': value {_shown(value)} is not allowed; "
+                       f"expected {allowed}")
+
+
+def check_name(where: str, name) -> None:
+    """Validate `name`: a Verilog identifier that no Verilog keyword, no internal module of
+    carrypipe and no file carrypipe writes beside the unit's can collide with."""
+    if (not isinstance(name, str) or not _IDENT.match(name) or len(name) > MAX_NAME
+            or name in VERILOG_KEYWORDS):
+        raise _fail(where, "name", name, KEYS["name"][0])
+    if name.lower().startswith(RESERVED_PREFIX):
+        raise _fail(where, "name", name, f"a name that does not start with {RESERVED_PREFIX} "
+                    "(in any case), which carrypipe keeps for its own modules")
+    if name.lower() in RESERVED_NAMES:
+        raise _fail(where, "name", name, "a name other than carrypipe, fit and miter (names of "
+                    "carrypipe's own) and the Windows device names con, prn, aux, nul, com0-com9 "
+                    "and lpt0-lpt9, in any case")
 
 
 def _is_int(value) -> bool:
@@ -188,17 +242,14 @@ def from_mapping(data, where: str = "config") -> Config:
         if not isinstance(key, str) or key not in KEYS:
             near = difflib.get_close_matches(str(key), KEYS, n=1)
             hint = f"; did you mean '{near[0]}'?" if near else ""
-            raise ConfigError(f"{where}: unknown key {str(key)!r}{hint} "
+            raise ConfigError(f"{where}: unknown key {_shown(key)}{hint} "
                               f"(allowed keys: {', '.join(KEYS)})")
     for key, (allowed, default) in KEYS.items():
         if default is REQUIRED and key not in data:
             raise ConfigError(f"{where}: key '{key}' is missing; expected {allowed}")
     values = {key: data.get(key, default) for key, (_, default) in KEYS.items()}
 
-    name = values["name"]
-    if (not isinstance(name, str) or not _IDENT.match(name) or len(name) > MAX_NAME
-            or name in VERILOG_KEYWORDS):
-        raise _fail(where, "name", name, KEYS["name"][0])
+    check_name(where, values["name"])
     width = values["width"]
     if not _is_int(width) or not 1 <= width <= MAX_WIDTH:
         raise _fail(where, "width", width, KEYS["width"][0])
@@ -295,36 +346,83 @@ def check_mode(where: str, values: dict, split: tuple[int, ...]) -> None:
                     f"an integer from 0 to the depth of the {values['cell']} network ({depth})")
 
 
-class _NoAliasLoader(yaml.SafeLoader):
-    """A safe loader that refuses anchors and aliases (no alias bombs, no shared nodes)."""
+class _StrictLoader(yaml.SafeLoader):
+    """A safe loader for configs: the plain scalars of YAML 1.2's JSON schema only, and no
+    anchors, aliases, merge keys, tags, repeated keys or deep nesting.
+
+    YAML 1.1 (PyYAML's default) reads `yes`/`on` as true, `0100` as octal 64, `6_4` as 64 and
+    `1:04` as 64 (base 60).  Here a plain scalar is `null`, `true`, `false`, a decimal integer
+    `-?(0|[1-9][0-9]*)` or else text, which then fails the key's type check showing the text
+    as written.  The nesting bound is kept while scanning, before PyYAML's scanner (whose cost
+    grows with the square of the flow depth) or its recursive composer can take long or
+    overflow the stack.
+    """
+
+    yaml_implicit_resolvers: dict = {}  # filled below: this loader's own, not SafeLoader's
+
+    def _deeper(self):
+        """Called as a collection opens: refuse it when it is one level too many."""
+        if self.flow_level + len(self.indents) > MAX_NESTING:
+            raise yaml.scanner.ScannerError(None, None, "collections nested deeper than "
+                                            f"{MAX_NESTING} levels", self.get_mark())
+
+    def fetch_flow_collection_start(self, token_class):
+        super().fetch_flow_collection_start(token_class)
+        self._deeper()
+
+    def add_indent(self, column):
+        added = super().add_indent(column)
+        if added:
+            self._deeper()
+        return added
 
     def compose_node(self, parent, index):
-        if self.check_event(yaml.AliasEvent):
-            event = self.peek_event()
-            raise yaml.composer.ComposerError(None, None, "aliases are not allowed",
+        event = self.peek_event()
+        what = ("aliases" if isinstance(event, yaml.AliasEvent)
+                else "anchors" if event.anchor is not None
+                else "tags" if getattr(event, "tag", None) is not None else None)
+        if what:
+            raise yaml.composer.ComposerError(None, None, f"{what} are not allowed",
                                               event.start_mark)
         return super().compose_node(parent, index)
 
     def construct_mapping(self, node, deep=False):
         """A mapping in which every key is given once (YAML leaves a repeated key's meaning
-        open; PyYAML would keep the last value without a word)."""
+        open; PyYAML would keep the last value without a word) and none is a merge key."""
         first = {}
         for key_node, _ in node.value:
+            if isinstance(key_node, yaml.ScalarNode) and key_node.value == "<<" \
+                    and key_node.style is None:
+                raise yaml.constructor.ConstructorError(
+                    None, None, "merge keys (<<) are not allowed", key_node.start_mark)
             key = self.construct_object(key_node, deep=True)
             if not isinstance(key, str):
                 continue  # from_mapping refuses it by name
             if key in first:
                 raise yaml.constructor.ConstructorError(
-                    None, None, f"key {key!r} is given twice (first at line {first[key] + 1}); "
-                    "expected each key once", key_node.start_mark)
+                    None, None, f"key {_shown(key)} is given twice (first at line "
+                    f"{first[key] + 1}); expected each key once", key_node.start_mark)
             first[key] = key_node.start_mark.line
         return super().construct_mapping(node, deep)
+
+    def construct_yaml_int(self, node):
+        text = self.construct_scalar(node)
+        return LongInteger(text) if len(text.lstrip("-")) > MAX_INT_DIGITS else int(text)
+
+
+for _tag, _pattern, _first in (
+        ("null", r"null\Z", "n"),
+        ("bool", r"(?:true|false)\Z", "tf"),
+        ("int", r"-?(?:0|[1-9][0-9]*)\Z", "-0123456789")):
+    _StrictLoader.add_implicit_resolver(f"tag:yaml.org,2002:{_tag}", re.compile(_pattern),
+                                        list(_first))
+_StrictLoader.add_constructor("tag:yaml.org,2002:int", _StrictLoader.construct_yaml_int)
 
 
 def parse_text(text: str, where: str) -> Config:
     """Parse YAML text into a validated `Config`."""
     try:
-        data = yaml.load(text, Loader=_NoAliasLoader)  # noqa: S506 - safe loader subclass
+        data = yaml.load(text, Loader=_StrictLoader)  # noqa: S506 - safe loader subclass
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         at = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
@@ -333,17 +431,51 @@ def parse_text(text: str, where: str) -> Config:
     return from_mapping(data, where)
 
 
+_KINDS = ((stat.S_ISDIR, "a folder"), (stat.S_ISFIFO, "a FIFO"), (stat.S_ISSOCK, "a socket"),
+          (stat.S_ISCHR, "a character device"), (stat.S_ISBLK, "a block device"))
+
+
+class NotRegularFile(OSError):
+    """A path that names a folder, FIFO, socket or device: reading it could block or never end."""
+
+
+def _regular(mode: int) -> None:
+    if not stat.S_ISREG(mode):
+        kind = next((k for test, k in _KINDS if test(mode)), "not a regular file")
+        raise NotRegularFile(f"it is {kind}; expected a regular file")
+
+
+def read_regular(path: str | Path, limit: int) -> bytes:
+    """The first `limit` + 1 bytes of the regular file `path` (so a caller can tell a longer
+    one), without ever blocking: a folder, FIFO, socket or device is refused before it is
+    opened (`NotRegularFile`), opened without blocking and checked again in case it was
+    swapped in between.  Raises OSError."""
+    _regular(os.stat(path).st_mode)
+    flags = os.O_RDONLY
+    for flag in ("O_NONBLOCK", "O_NOCTTY", "O_CLOEXEC", "O_BINARY"):  # those the system has
+        flags |= getattr(os, flag, 0)
+    fd = os.open(path, flags)
+    try:
+        _regular(os.fstat(fd).st_mode)
+        chunks, size = [], 0
+        while size <= limit and (chunk := os.read(fd, limit + 1 - size)):
+            chunks.append(chunk)
+            size += len(chunk)
+        return b"".join(chunks)
+    finally:
+        os.close(fd)
+
+
 def load(path: str | Path) -> Config:
     """Read and validate a config file."""
-    path = Path(path)
-    where = path.name
+    where = Path(path).name or str(path)
     try:
-        raw = path.read_bytes()
+        raw = read_regular(path, MAX_CONFIG_BYTES)
     except OSError as exc:
         raise ConfigError(f"{where}: cannot read config: {exc.strerror or exc}") from None
     if len(raw) > MAX_CONFIG_BYTES:
-        raise ConfigError(f"{where}: config is {len(raw)} bytes; expected at most "
-                          f"{MAX_CONFIG_BYTES}")
+        raise ConfigError(f"{where}: config is larger than {MAX_CONFIG_BYTES} bytes; expected "
+                          f"a file of at most {MAX_CONFIG_BYTES} bytes")
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:

@@ -105,7 +105,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
             norm = row.config.normalized()
             for seed in seeds:
                 keys[id(row), seed] = cache.key(norm, dev.name, seed, versions)
-                hit = store.get(keys[id(row), seed])
+                hit = store.get(keys[id(row), seed], seed)
                 if hit is not None:
                     row.measured.append(hit)
             missing = tuple(s for s in seeds if all(m.seed != s for m in row.measured))
