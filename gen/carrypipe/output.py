@@ -66,7 +66,7 @@ def check_folder(out: str | Path, option: str = "-o") -> Path:
     if target == here or target in here.parents:
         raise _refuse(option, out, "it is or holds the current folder, and carrypipe "
                       "replaces its output folder whole; expected a folder below it")
-    if not _ours(target) and any(os.scandir(target)):
+    if not _ours(target) and not _empty(target):
         raise _refuse(option, out, f"it holds files carrypipe did not write (no {MARKER} "
                       "marker); expected a new or empty folder, or one carrypipe wrote")
     return target
@@ -74,6 +74,11 @@ def check_folder(out: str | Path, option: str = "-o") -> Path:
 
 def _ours(folder: Path) -> bool:
     return (folder / MARKER).is_file()
+
+
+def _empty(folder: Path) -> bool:
+    with os.scandir(folder) as entries:
+        return next(entries, None) is None
 
 
 def replace_folder(files: dict[str, str | bytes], out: str | Path, option: str = "-o") -> Path:
@@ -128,7 +133,8 @@ def sweep(parent: Path) -> None:
     """Remove the temporary folders and files that killed runs left in `parent`: only our
     own names, made on this host, by a process that no longer runs, owned by this user."""
     try:
-        entries = list(os.scandir(parent))
+        with os.scandir(parent) as found:
+            entries = list(found)
     except OSError:
         return
     for entry in entries:
@@ -253,7 +259,7 @@ def _swap(tmp: Path, target: Path, option: str, given) -> Path | None:
     """Put folder `tmp` in place as `target`; return where the replaced folder now is."""
     for _ in range(1000):  # each turn lost to a concurrent run; it cannot go on for long
         if os.path.lexists(target):
-            if not target.is_dir() or (not _ours(target) and any(os.scandir(target))):
+            if not target.is_dir() or not (_ours(target) or _empty(target)):
                 raise _refuse(option, given, "it was replaced meanwhile by something "
                               "carrypipe did not write")
             try:
