@@ -2,6 +2,7 @@
 
 import math
 import os
+import signal
 import socket
 import subprocess
 import sys
@@ -11,13 +12,22 @@ from pathlib import Path
 
 import pytest
 
-from carrypipe import candidates, config, devices, executor, fit, toolflow
+from carrypipe import candidates, config, devices, executor, fit, toolflow, tools
 from carrypipe.toolflow import Measurement
 
 
 def test_local_processes_return_every_item():
     got = dict(executor.Local(2).submit_all(math.factorial, [3, 5, 7]))
     assert got == {3: 6, 5: 120, 7: 5040}
+
+
+def _dies(item):
+    os.kill(os.getpid(), signal.SIGKILL)  # as the kernel's out-of-memory killer would
+
+
+def test_a_worker_that_dies_is_the_environment():
+    with pytest.raises(tools.ToolBroken, match=r"^a fit worker process ended unexpectedly"):
+        list(executor.Local(2).submit_all(_dies, [1, 2]))
 
 
 def test_cluster_address_must_be_reachable():

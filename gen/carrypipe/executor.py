@@ -17,6 +17,7 @@ import os
 import re
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
 
 from . import tools
 
@@ -40,6 +41,10 @@ class Local:
             futures = {pool.submit(tools.in_worker, fn, item): item for item in items}
             for fut in as_completed(futures):
                 yield futures[fut], fut.result()
+        except BrokenProcessPool:
+            end_pool(pool)
+            raise tools.ToolBroken("a fit worker process ended unexpectedly (out of memory?); "
+                                   "try fewer --jobs") from None
         except BaseException:  # interrupted, or the consumer stopped early: end them now
             end_pool(pool)
             raise

@@ -17,6 +17,7 @@ A single file (`plan --chart`) is written under such a name and renamed over the
 
 from __future__ import annotations
 
+import contextlib
 import ctypes
 import errno
 import os
@@ -62,8 +63,11 @@ def check_folder(out: str | Path, option: str = "-o") -> Path:
         return target
     if not target.is_dir():
         raise _refuse(option, out, "expected a folder (it is a file)")
-    here = Path.cwd().resolve()
-    if target == here or target in here.parents:
+    try:
+        here = Path.cwd().resolve()
+    except OSError:  # the current folder was removed: it cannot be the target
+        here = None
+    if here is not None and (target == here or target in here.parents):
         raise _refuse(option, out, "it is or holds the current folder, and carrypipe "
                       "replaces its output folder whole; expected a folder below it")
     if not _ours(target) and not _empty(target):
@@ -93,7 +97,7 @@ def replace_folder(files: dict[str, str | bytes], out: str | Path, option: str =
         _remove(created)
         raise
     try:
-        if target.is_dir():
+        with contextlib.suppress(FileNotFoundError):  # keep the mode the user gave the folder
             os.chmod(tmp, stat.S_IMODE(target.stat().st_mode))
         for name, data in {**files, MARKER: MARKER_TEXT}.items():
             _write(tmp / name, data)
