@@ -4,13 +4,13 @@ failed, 2 bad input, 3 the environment -- each error one line naming the tool or
 Cases not here are beside the feature they belong to: output folders (test_output.py),
 timeouts and signals (test_processes.py), the cluster (test_fit_executor.py), bad configs
 (test_hardening.py), missing tools (test_simulators.py, test_prove.py, test_fit_cli.py).
-A planted fault (`unit.FAULTS`) stands for a design that is wrong: Python's integers
-(vectors.expected) and the proof's reference `a + b + cin` tell it apart.
+A wrong design is the emitted unit behind a wrapper that inverts bit 0 of `sum`: Python's
+integers (vectors.expected) and the proof's reference `a + b + cin` must tell it apart.
 """
 
 from __future__ import annotations
 
-import functools
+import re
 import shutil
 
 import pytest
@@ -41,8 +41,21 @@ def one_error_line(res, code: int, text: str) -> None:
 
 @pytest.fixture
 def faulty(monkeypatch):
-    monkeypatch.setattr(emit, "unit_verilog", functools.partial(emit.unit_verilog,
-                                                                fault="late-carry"))
+    real = emit.unit_verilog
+
+    def wrong(plan, *args, **kwargs):
+        name, ports = plan.config.name, plan.ports
+        inner = re.sub(rf"^module {name}\b", f"module {name}_inner", real(plan, *args, **kwargs),
+                       count=1, flags=re.M)
+        width = {p.name: p.width for p in ports}["sum"]
+        conns = ", ".join(f".{p.name}({p.name}{'_inner' if p.name == 'sum' else ''})"
+                          for p in ports)
+        return "\n".join([inner, f"module {name}({', '.join(p.name for p in ports)});",
+                          *(f"  {p.direction} [{p.width - 1}:0] {p.name};" for p in ports),
+                          f"  wire [{width - 1}:0] sum_inner;", f"  {name}_inner i({conns});",
+                          "  assign sum = sum_inner ^ 1'b1;", "endmodule", ""])
+
+    monkeypatch.setattr(emit, "unit_verilog", wrong)
 
 
 @pytest.mark.skipif(not (shutil.which("iverilog") and shutil.which("vvp")),

@@ -8,8 +8,8 @@ Running: every tool runs in a process group of its own (inside carrypipe's sessi
 that everything it starts (Verilator's make and compilers, say) can be ended with it.  The
 whole group is ended (SIGTERM, then SIGKILL after `GRACE` seconds) when the time limit
 passes, when carrypipe is interrupted (Ctrl-C, SIGTERM: `signals`) and in worker processes
-(`worker_init`); on Linux each tool also gets PR_SET_PDEATHSIG, so it dies with carrypipe
-even when carrypipe is killed outright.
+(`worker_init`); on Linux each tool also gets PR_SET_PDEATHSIG, so the tool itself (not
+what it started) dies with carrypipe even when carrypipe is killed outright.
 
 Errors: `ToolError` and its subclasses are problems of the environment (exit status 3 on
 the command line), each one line naming the tool.
