@@ -184,7 +184,7 @@ def build(config, out_dir, vectors, seed):
 @vectors_opt
 @seed_opt
 @click.option("--sim", "simulator", type=click.Choice(sim.SIMULATORS),
-              help="Simulator [default: icarus when iverilog is on PATH, else amaranth].")
+              help="Simulator [default: icarus when iverilog and vvp are found, else amaranth].")
 @click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
               help="Give up on an external simulator (compile and run) after this many "
                    "seconds.")
