@@ -38,10 +38,11 @@ def test_a_bad_config_is_one_line():
 
 def test_two_units_in_one_design():
     width, rng = 12, random.Random(5)
-    add = component({"name": "sum_stage", "width": width, "slice_width": 4})  # latency 3
+    add = component({"name": "sum_stage", "width": width, "slice_width": 4})
     cmp = component({"name": "threshold", "unit": "comparator", "width": width,
-                     "pipeline": "levels", "slice_width": 4})  # three slices: latency 4
-    lat_add, lat_cmp = 3, 4
+                     "pipeline": "levels", "slice_width": 4})
+    lat_add, lat_cmp = add.plan.latency, cmp.plan.latency
+    assert (lat_add, lat_cmp) == (3, 3)  # three slices; three slices in a tree of depth 2
     m = Module()
     m.domains.sync = ClockDomain("sync", reset_less=True)
     m.submodules.add, m.submodules.cmp = add, cmp

@@ -224,6 +224,10 @@ class Plan:
         """How the unit is cut, in a few words."""
         raise NotImplementedError
 
+    def layout(self) -> str:
+        """Its slices or stages, in one line (for the Verilog header)."""
+        raise NotImplementedError
+
     def label(self) -> str:
         """A short name of the structure for `fit` tables and plots."""
         raise NotImplementedError
@@ -277,6 +281,9 @@ class SlicedPlan(Plan):
 
     def structure(self) -> str:
         return f"{len(self.stages)} slice(s)"
+
+    def layout(self) -> str:
+        return "Slices (LSB first): " + " ".join(f"[{s.msb}:{s.lsb}]" for s in self.stages)
 
     def label(self) -> str:
         split = self.config.slices
@@ -354,6 +361,9 @@ class PrefixPlan(Plan):
     def structure(self) -> str:
         return (f"pipeline {self.config.pipeline}, {len(self.stages)} stage(s), every stage "
                 "all bits")
+
+    def layout(self) -> str:
+        return "Stages: " + "; ".join(f"{s.index}: {s.logic}" for s in self.stages)
 
     def label(self) -> str:
         c = self.config

@@ -189,7 +189,7 @@ def _(plan: SlicedPlan) -> list[str]:
     if family != "prefix":
         out.append("  - a prefix cell (kogge-stone, sklansky, ...) shortens the path on ASICs "
                    "and in LUT fabric;")
-    if plan.unit.name in ("adder", "subtractor", "addsub"):
+    if "levels" in plan.unit.modes and plan.unit.result:
         out.append("  - `pipeline: levels` or `blocks` has no triangles: for wide units "
                    "(docs/modes.md);")
     return out + _input_tip(plan)
