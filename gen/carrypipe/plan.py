@@ -244,7 +244,7 @@ class SlicedPlan(Plan):
 
     @cached_property
     def words(self) -> tuple[Word, ...]:
-        c, kind, w, first = self.config, self.unit, self.width, self.input_cycles
+        kind, w, first = self.unit, self.width, self.input_cycles
         words = self.io_words()
         last = len(self.stages) - 1
         for s in self.stages:
@@ -317,8 +317,7 @@ class PrefixPlan(Plan):
         stage r, 1-based; a position is a bit in `levels`, a block in `blocks`); the last rank
         is the output register, `<result>_stage` and `<chain>_stage`.
         """
-        c, first, sch = self.config, self.input_cycles, self.schedule
-        kind = self.unit
+        first, sch = self.input_cycles, self.schedule
         words = self.io_words()
         kept = sch.kept_ranks()
         for rank in range(1, sch.final):

@@ -334,7 +334,7 @@ def _overflow(term, terms, flavour, g, widths, lsbs, final, after, has_cin) -> i
     """The signed-overflow term: the carry into the top bit XOR the carry out of it (for a
     borrow chain, the borrows: common practice), formed once both are final.  In `blocks`
     mode the top block's two chains give an overflow bit each, selected like its sum."""
-    count, top = len(widths), len(widths) - 1
+    top = len(widths) - 1
     if flavour == "bits":
         if top == 0:  # one bit: the carry into it is the carry-in itself
             return term("ovf", 0, "ovf_cin" if has_cin else "ovf_gen", (g[0],), 1)
