@@ -24,11 +24,14 @@ def unit(write_config, tmp_path, monkeypatch):
 
 BAD = [
     (["--target-mhz", "fast", "--device", "ice40-hx8k"],
-     "--target-mhz: value 'fast' is not allowed; expected a number of MHz above 0"),
+     "--target-mhz: value 'fast' is not allowed; expected a number of MHz above 0, "
+     "written in plain decimal digits"),
     (["--target-mhz", "-5", "--device", "ice40-hx8k"],
-     "--target-mhz: value '-5' is not allowed; expected a number of MHz above 0"),
+     "--target-mhz: value '-5' is not allowed; expected a number of MHz above 0, "
+     "written in plain decimal digits"),
     (["--target-mhz", "nan", "--device", "ice40-hx8k"],
-     "--target-mhz: value 'nan' is not allowed; expected a number of MHz above 0"),
+     "--target-mhz: value 'nan' is not allowed; expected a number of MHz above 0, "
+     "written in plain decimal digits"),
     (["--target-mhz", "200", "--device", "ice40-hx1k"],
      "--device: value 'ice40-hx1k' is not allowed; expected one of ice40-up5k, ice40-hx8k, "
      "ecp5-25k, ecp5-85k"),
@@ -36,13 +39,16 @@ BAD = [
      "--cells: value 'carry-save' is not allowed; expected a comma-separated list of ripple, "
      "native, kogge-stone, brent-kung, sklansky, han-carlson, ladner-fischer"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--jobs", "0"],
-     "--jobs: value '0' is not allowed; expected an integer of 1 or more"),
+     "--jobs: value '0' is not allowed; expected an integer of 1 or more, written in "
+     "plain decimal digits"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--seeds", "two"],
-     "--seeds: value 'two' is not allowed; expected an integer of 1 or more"),
+     "--seeds: value 'two' is not allowed; expected an integer of 1 or more, written in "
+     "plain decimal digits"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--tools", "vendor"],
      "--tools: value 'vendor' is not allowed; expected wheel or system"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--timeout", "0"],
-     "--timeout: value '0' is not allowed; expected a number of seconds above 0"),
+     "--timeout: value '0' is not allowed; expected a number of seconds above 0, "
+     "written in plain decimal digits"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--cluster", "localhost:8786"],
      "--cluster: value 'localhost:8786' is not allowed; expected tcp://HOST:PORT of a Dask "
      "scheduler"),

@@ -10,7 +10,7 @@ are one line on stderr, "carrypipe: error: ...", naming the key, tool or path.
 from __future__ import annotations
 
 import contextlib
-import math
+import re
 import signal
 import sys
 from pathlib import Path
@@ -18,7 +18,7 @@ from pathlib import Path
 import click
 
 from . import __version__, emit, output, report, sim, tools
-from .config import ConfigError, check_split, load
+from .config import ConfigError, check_split, load, reads
 from .plan import make_plan
 from .prove import METHODS as PROOF_METHODS
 from .vectors import suite
@@ -117,27 +117,26 @@ def load_plan(config_path: str, slice_width=None, slices=None):
     try:
         cfg = load(config_path)
         for option, value in (("--slice-width", slice_width), ("--slices", slices)):
-            if value is not None and cfg.pipeline != "slices":
+            if value is not None and not reads("slices", cfg.unit, cfg.pipeline):
                 raise ConfigError(f"{option}: value {value!r} is not allowed with pipeline "
                                   f"{cfg.pipeline!r} ({Path(config_path).name}); expected "
-                                  "--slice-width or --slices only with pipeline 'slices'")
+                                  "--slice-width or --slices only with pipeline 'slices' "
+                                  "(or a comparator's 'levels')")
         if slice_width is not None and slices is not None:
             raise ConfigError("options --slice-width and --slices are both given; "
                               "expected at most one of them")
         if slice_width is not None:
-            if isinstance(slice_width, str):  # command line: a non-number is reported as given
-                try:
-                    slice_width = int(slice_width)
-                except ValueError:
-                    pass
+            if isinstance(slice_width, str) and PLAIN_INT.match(slice_width):
+                slice_width = int(slice_width)  # else reported as given
             cfg = cfg.with_split(check_split("--slice-width", "slice_width", slice_width,
                                              cfg.width))
         elif slices is not None:
-            try:
-                parts = [int(x) for x in slices.split(",")]
-            except ValueError:
+            parts = slices.split(",")
+            if not all(PLAIN_INT.match(x) for x in parts):
                 raise ConfigError(f"--slices: key 'slices': value {slices!r} is not allowed; "
-                                  "expected comma-separated positive integers") from None
+                                  "expected comma-separated positive integers written in "
+                                  "plain decimal digits")
+            parts = [int(x) for x in parts]
             cfg = cfg.with_split(check_split("--slices", "slices", parts, cfg.width))
     except ConfigError as exc:
         raise UserError(str(exc)) from None
@@ -278,14 +277,19 @@ def load_target(target: str):
 
 # ---- fit (timing closure with synthesis and place-and-route; see docs/fit.md) ----
 
+# Numbers on the command line are spelled as in a config: plain decimal digits (no `_`,
+# `0x`, exponent or sign), at most 20 of them before and after the point.
+PLAIN_INT = re.compile(r"(0|[1-9][0-9]{0,19})\Z")
+PLAIN_NUMBER = re.compile(r"(0|[1-9][0-9]{0,19})(\.[0-9]{1,20})?\Z")
+
+
 def _option_number(option: str, text: str, kind, low: float, allowed: str):
     """Parse a numeric option into `kind` (int or float) above `low`, or a one-line UserError."""
-    try:
-        value = kind(text)
-    except (TypeError, ValueError):
-        value = None
-    if value is None or not math.isfinite(value) or not value > low:
-        raise UserError(f"{option}: value {text!r} is not allowed; expected {allowed}")
+    pattern = PLAIN_INT if kind is int else PLAIN_NUMBER
+    value = kind(text) if isinstance(text, str) and pattern.match(text) else None
+    if value is None or not value > low:
+        raise UserError(f"{option}: value {text!r} is not allowed; expected {allowed}, "
+                        "written in plain decimal digits")
     return value
 
 
