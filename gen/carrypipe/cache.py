@@ -15,7 +15,7 @@ import os
 import tempfile
 from pathlib import Path
 
-from .toolflow import FLOW_VERSION, FREQ_MHZ, Measurement
+from .toolflow import FLOW_VERSION, Measurement, freq_mhz
 
 
 def folder() -> Path:
@@ -27,7 +27,7 @@ def folder() -> Path:
 
 def key(config: dict, device: str, seed: int, tools: dict) -> str:
     text = json.dumps({"config": config, "device": device, "seed": seed, "tools": tools,
-                       "flow": FLOW_VERSION, "freq_mhz": FREQ_MHZ},
+                       "flow": FLOW_VERSION, "freq_mhz": freq_mhz(device)},
                       sort_keys=True, separators=(",", ":"))
     return hashlib.sha256(text.encode()).hexdigest()
 
