@@ -50,7 +50,10 @@ ECP5 = Family("ecp5", "synth_ecp5", "nextpnr-ecp5", ("LUT4",), "CCU2C", 2, "TREL
 # MachXO2 places its three IOs by itself (no pin file needed).
 MACHXO2 = Family("machxo2", "synth_lattice -family xo2", "nextpnr-machxo2", ("LUT4",), "CCU2D",
                  2, "TRELLIS_FF", "TRELLIS_COMB", "TRELLIS_FF")
-GOWIN = Family("gowin", "synth_gowin", "nextpnr-himbaechel-gowin",
+# Gowin without wide-LUT muxes (MUX2_LUT5-8): with them nextpnr-himbaechel-gowin 0.11 timed a
+# one-stage 16-bit Kogge-Stone at 351 MHz over a one-LUT path (the fabric figure is 360 MHz);
+# with LUT4s only, 91 MHz over 9 logic steps (docs/fit.md).
+GOWIN = Family("gowin", "synth_gowin -nowidelut", "nextpnr-himbaechel-gowin",
                ("LUT1", "LUT2", "LUT3", "LUT4"), "ALU", 1, "DFF", "LUT4", "DFF", pin_file="cst")
 # Nexus reaches past 500 MHz in the harness (docs/fit.md): the constraint sits higher.
 NEXUS = Family("nexus", "synth_nexus", "nextpnr-nexus", ("LUT4",), "CCU2", 2, "FD1P3",
