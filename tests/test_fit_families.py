@@ -36,9 +36,10 @@ def test_scripts_name_the_part_the_pins_and_the_constraint():
                        "--vopt", "cst=pins.cst"]
     synth, pnr = toolflow.scripts(plan, devices.get("nexus-40k"), 3)
     assert "synth_nexus -top dut_harness" in synth[-1]
-    assert pnr[:4] == ["--device", "LIFCL-40-9BG400C", "--pdc", "pins.pdc"]
+    assert pnr[:6] == ["--device", "LIFCL-40-9BG400C", "--router", "router1", "--pdc",
+                       "pins.pdc"]
     # Nexus reaches past 500 MHz, so its constraint is set higher (docs/fit.md).
-    assert pnr[pnr.index("--freq") + 1] == "1000" and pnr[pnr.index("--seed") + 1] == "3"
+    assert pnr[pnr.index("--freq") + 1] == "1500" and pnr[pnr.index("--seed") + 1] == "3"
 
 
 def test_pin_files_place_the_three_harness_pins():
@@ -132,7 +133,7 @@ def independent_fmax(out: Path, name: str, device: devices.Device, seed: int) ->
                                                           ("harness_so", "M14"))))
         net = work / "net.json"
         net.write_text(toolflow.untie_carry_in(net.read_text()))  # the documented fix
-        pnr += ["--device", "LIFCL-40-9BG400C", "--pdc", "io.pdc"]
+        pnr += ["--device", "LIFCL-40-9BG400C", "--pdc", "io.pdc", "--router", "router1"]
     subprocess.run(pnr, cwd=work, check=True, capture_output=True)
     (fmax,) = json.loads((work / "rep.json").read_text())["fmax"].values()
     return fmax["achieved"]
