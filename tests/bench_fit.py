@@ -79,7 +79,7 @@ def measure(store, versions, device, name, cfg, text, seeds, kind, jobs=1):
     plan = make_plan(cfg)
     keys = {seed: cache.key({"bench": kind, "verilog": text}, device.name, seed, versions)
             for seed in seeds}
-    found = {seed: store.get(k) for seed, k in keys.items()}
+    found = {seed: store.get(k, seed) for seed, k in keys.items()}
     todo = [(cfg.normalized(), text, device, s) for s in seeds if found[s] is None]
     for item, hit in executor.Local(jobs).submit_all(_place, todo):
         found[item[3]] = hit

@@ -46,7 +46,8 @@ def unit_config(width: int, design: str, blocks: int | None,
 def critical(store, versions, device, plan, text, seed, kind):
     """The first seed's critical path (start -> end cell) and whether it ends in the unit,
     read back from the cache."""
-    hit = store.get(cache.key({"bench": kind, "verilog": text}, device.name, seed, versions))
+    hit = store.get(cache.key({"bench": kind, "verilog": text}, device.name, seed, versions),
+                    seed)
     if not hit or hit.status != "ok":
         return "", None
     return f"{hit.start} -> {hit.end}", harness.inside_unit(hit.end, plan)

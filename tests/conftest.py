@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+import contextlib
+import os
 import shutil
+import threading
 
 import pytest
 
@@ -33,3 +36,23 @@ def write_config(tmp_path):
         path.write_text(text)
         return path
     return _write
+
+
+@contextlib.contextmanager
+def fifo_watchdog(fifo, seconds: float = 10):
+    """Guard a test that reads FIFO `fifo`: should the reader block (a regression), a writer
+    opens and closes it after `seconds`, ending the read with EOF; the yielded list then
+    holds True, which the test asserts against."""
+    fired = []
+
+    def unblock():
+        fired.append(True)
+        os.close(os.open(fifo, os.O_WRONLY))
+
+    watchdog = threading.Timer(seconds, unblock)
+    watchdog.daemon = True
+    watchdog.start()
+    try:
+        yield fired
+    finally:
+        watchdog.cancel()

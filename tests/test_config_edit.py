@@ -32,6 +32,7 @@ width: 24
 slices:
   - 12   # low half
   - 12
+valid: true
 reset: sync
 """
 

@@ -5,14 +5,18 @@ stands in for place-and-route so the search logic can be checked exhaustively: t
 search must pick what measuring every candidate and applying the rule picks.
 """
 
+import contextlib
 import json
 import math
+import os
+import re
 
 import pytest
 
 from carrypipe import cache, candidates, config, devices, executor, fit, toolflow
 from carrypipe.plan import make_plan
 from carrypipe.toolflow import Measurement
+from conftest import fifo_watchdog
 
 
 def law(job):
@@ -75,7 +79,7 @@ def monotone_law(job):
     """An invented device: the period grows with the slowest stage's unit-gate delay, and a
     little with the latency (so within a cell and mode, a deeper slowest stage is slower)."""
     plan = make_plan(config.from_mapping(job.config))
-    period = 1.0 + 0.08 * plan.slowest.delay + 0.01 * plan.latency
+    period = 1.0 + 0.08 * plan.slowest[0].delay + 0.01 * plan.latency
     return [Measurement(s, "ok", mhz=round(1000 / period, 2), luts=plan.width, carry=0,
                         flip_flops=0, start="unit.sum_stage_0", end="unit.sum_stage_0",
                         inside=True) for s in job.seeds]
@@ -138,9 +142,9 @@ def test_cache_folder_from_environment(monkeypatch, tmp_path):
 def test_timeouts_are_not_cached(tmp_path):
     store = cache.Cache(tmp_path)
     store.put("ab" * 32, Measurement(1, "timeout", message="yosys did not finish"))
-    assert store.get("ab" * 32) is None
+    assert store.get("ab" * 32, 1) is None
     store.put("cd" * 32, Measurement(1, "no-fit", message="no BELs remaining"))
-    assert store.get("cd" * 32).status == "no-fit"
+    assert store.get("cd" * 32, 1).status == "no-fit"
 
 
 def test_unit_that_does_not_fit_is_marked_with_a_larger_device(counted):
@@ -198,3 +202,78 @@ def test_table_shows_the_prediction_that_decided(counted):
             assert rec["model_mhz"] != rec["predicted_mhz"]
     text = fit.table(out)
     assert text.splitlines()[0].split()[:5] == ["lat", "candidate", "regs", "pred", "model"]
+
+
+def _text(change):
+    """A damage made by editing the entry's JSON object."""
+    return lambda entry: json.dumps(change(json.loads(entry)))
+
+
+DAMAGE = {
+    "MHz as a string": _text(lambda d: {**d, "mhz": str(d["mhz"])}),
+    "MHz null with status ok": _text(lambda d: {**d, "mhz": None}),
+    "MHz zero": _text(lambda d: {**d, "mhz": 0}),
+    "MHz negative": _text(lambda d: {**d, "mhz": -d["mhz"]}),
+    "MHz NaN": lambda entry: re.sub(r'"mhz": [0-9.]+', '"mhz": NaN', entry),
+    "MHz Infinity": lambda entry: re.sub(r'"mhz": [0-9.]+', '"mhz": Infinity', entry),
+    "MHz 1e999": lambda entry: re.sub(r'"mhz": [0-9.]+', '"mhz": 1e999', entry),
+    "unknown status": _text(lambda d: {**d, "status": "passed"}),
+    "timeout stored": _text(lambda d: {**d, "status": "timeout", "mhz": None}),
+    "another seed's entry": _text(lambda d: {**d, "seed": 2, "mhz": d["mhz"] / 2}),
+    "seed true": _text(lambda d: {**d, "seed": True, "mhz": d["mhz"] / 2}),
+    "inside as 1": _text(lambda d: {**d, "inside": 1}),
+    "LUTs as a float": _text(lambda d: {**d, "luts": 64.5}),
+    "LUTs with 5000 digits": lambda entry: re.sub(r'"luts": \d+', '"luts": ' + "9" * 5000, entry),
+    "an extra key": _text(lambda d: {**d, "note": "x"}),
+    "a missing key": _text(lambda d: {k: v for k, v in d.items() if k != "seconds"}),
+    "a key twice": lambda entry: entry.replace('"mhz":', '"mhz": 1.0, "mhz":'),
+    "truncated": lambda entry: entry[:len(entry) // 2],
+    "a list": lambda entry: f"[{entry}]",
+    "empty": lambda entry: "",
+    "deep nesting": lambda entry: "[" * 100_000,
+    "not UTF-8": lambda entry: entry.replace('"ok"', '"\udcff"'),
+}
+
+
+@pytest.mark.parametrize("damage", [*DAMAGE, "a folder", "a FIFO"])
+def test_a_damaged_entry_is_measured_again_and_rewritten(counted, tmp_path, damage):
+    """The chosen candidate's cached entry, damaged, is never trusted: without the check
+    these crash `fit` (a string or null Fmax), hang it (a FIFO) or change its choice."""
+    first = fit.run(BASE, settings(250), executor.Local(1))
+    chosen = first.chosen.config.normalized()
+    path = cache.Cache()._file(cache.key(chosen, "ecp5-85k", 1, first.tool_versions))
+    good = path.read_text()
+    path.unlink()
+    if damage == "a folder":
+        path.mkdir()
+    elif damage == "a FIFO":
+        os.mkfifo(path)
+    else:
+        path.write_bytes(DAMAGE[damage](good).encode("utf-8", "surrogateescape"))
+    counted.clear()
+    with fifo_watchdog(path) if damage == "a FIFO" else contextlib.nullcontext() as blocked:
+        again = fit.run(BASE, settings(250), executor.Local(1))
+    assert not blocked
+    assert [job.config for job in counted] == [chosen]  # measured again, nothing else
+    assert again.chosen.label == first.chosen.label
+    assert fit.table(again) == fit.table(first)  # every candidate as before
+    if damage != "a folder":  # a folder in the way is left alone (the cache only costs time)
+        assert path.read_text() == good
+
+
+def test_entries_are_checked_against_the_schema(tmp_path):
+    store = cache.Cache(tmp_path)
+    ok = Measurement(3, "ok", mhz=301.5, luts=70, carry=64, flip_flops=140, logic_used=400,
+                     start="unit.a", end="unit.sum_stage_1", inside=True, seconds=2.5)
+    store.put("ef" * 32, ok)
+    assert store.get("ef" * 32, 3) == ok
+    assert store.get("ef" * 32, 1) is None  # the entry is seed 3's
+    for bad in (Measurement(1, "ok"), Measurement(1, "ok", mhz=math.nan),
+                Measurement(1, "ok", mhz=math.inf), Measurement(1, "mystery", mhz=1.0),
+                Measurement(1, "error", mhz=250.0)):
+        store.put("01" * 32, bad)  # never stored
+        assert not (tmp_path / "01").exists(), bad
+    assert cache.valid(ok.as_dict(), 3)
+    assert not cache.valid({**ok.as_dict(), "start": None}, 3)
+    assert not cache.valid({**ok.as_dict(), "seconds": -1.0}, 3)
+    assert not cache.valid({**ok.as_dict(), "luts": True}, 3)

@@ -14,7 +14,7 @@ from carrypipe import emit, prove
 from carrypipe.cli import main
 from carrypipe.config import CELLS, from_mapping
 from carrypipe.plan import make_plan
-from carrypipe.unit import FAULTS
+from mutants import drop_first_carry, early_operand, mutants
 
 FULL = dict(carry_in=True, valid=True, enable=True, reset="sync")
 
@@ -48,8 +48,8 @@ def _check_counterexample(plan, message):
     """Recompute the promised result from the printed vectors with Python integers."""
     rows = dict(re.findall(r"cycle (\d+): (.*)", message))
     vals = {int(k): dict(kv.split("=") for kv in v.split()) for k, v in rows.items()}
-    tail = re.search(r"a \+ b \+ cin from cycle (\d+) gives sum=([0-9a-f]+)(?: cout=(\d))?",
-                     message)
+    tail = re.search(r"its specification for the inputs of cycle (\d+) gives "
+                     r"sum=([0-9a-f]+)(?: cout=(\d))?", message)
     assert tail, message
     src = vals[int(tail.group(1))]
     total = int(src["a"], 16) + int(src["b"], 16) + int(src.get("cin", "0"), 16)
@@ -59,21 +59,52 @@ def _check_counterexample(plan, message):
     assert re.search(r"the unit shows sum=([0-9a-f]+)", message)
 
 
-@pytest.mark.parametrize("fault", FAULTS)
-@pytest.mark.parametrize("cell", ["kogge-stone", "sklansky"])
-def test_planted_faults_are_found(fault, cell):
+# Units whose every single-operator and bit-range mutant `prove` must catch (the default
+# run: a sample of each; tests/bench_mutants.py runs them all and counts what the emitted
+# testbench catches too).
+MUTATED = [
+    dict(width=8, slice_width=3, cell="native", carry_in=True, valid=True, enable=True,
+         reset="sync"),
+    dict(width=8, slice_width=4, cell="kogge-stone", carry_in=True),
+    dict(width=6, slice_width=3, cell="ripple", carry_in=True),
+    dict(width=8, pipeline="levels", cell="brent-kung", carry_in=True, wire_registers=1),
+    dict(width=8, pipeline="blocks", cell="sklansky", block_width=3, carry_in=True),
+    dict(unit="subtractor", width=8, slice_width=3, carry_in=True, signed=True),
+    dict(unit="addsub", width=8, slice_width=3, carry_in=True, signed=True),
+    dict(unit="comparator", width=8, slice_width=3, signed=True),
+    dict(unit="comparator", width=8, pipeline="levels", slice_width=3),
+    dict(unit="accumulator", width=8, slice_width=3, valid=True),
+]
+SAMPLE = 4  # mutants per unit in the default run, spread over the unit's text
+
+
+@pytest.mark.parametrize("keys", MUTATED, ids=lambda k: "-".join(str(v) for v in k.values())[:40])
+def test_every_mutant_is_caught(keys):
+    plan = plan_of(**keys)
+    found = mutants(emit.unit_verilog(plan))
+    assert len(found) >= 6
+    step = max(1, len(found) // SAMPLE)
+    for what, text in found[::step]:
+        result = prove.prove(plan, verilog=text)
+        assert not result.proved, f"{what} was proved"
+        assert result.message.startswith(("FAILED: counterexample", "not proved:")), what
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("keys", MUTATED, ids=lambda k: "-".join(str(v) for v in k.values())[:40])
+def test_every_mutant_is_caught_all_of_them(keys):
+    plan = plan_of(**keys)
+    for what, text in mutants(emit.unit_verilog(plan)):
+        assert not prove.prove(plan, verilog=text).proved, f"{what} was proved"
+
+
+@pytest.mark.parametrize("cell", ["kogge-stone", "sklansky", "ripple", "native"])
+def test_planted_faults_are_found(cell):
     plan = plan_of(width=16, slice_width=4, cell=cell, **FULL)
-    result = prove.prove(plan, verilog=emit.unit_verilog(plan, fault=fault))
-    assert not result.proved
-    assert result.message.startswith("FAILED: counterexample"), result.message
-    _check_counterexample(plan, result.message)
-
-
-@pytest.mark.parametrize("fault", ["missing-skew", "late-carry"])
-def test_faults_found_in_ripple_and_native(fault):
-    for cell in ("ripple", "native"):
-        plan = plan_of(width=8, slice_width=3, cell=cell, carry_in=True)
-        result = prove.prove(plan, verilog=emit.unit_verilog(plan, fault=fault))
+    text = emit.unit_verilog(plan)
+    for bad in (drop_first_carry(text), early_operand(text)):
+        result = prove.prove(plan, verilog=bad)
+        assert not result.proved
         assert result.message.startswith("FAILED: counterexample"), result.message
         _check_counterexample(plan, result.message)
 
@@ -85,22 +116,66 @@ def test_a_register_that_ignores_enable_is_caught():
     bad = text.replace("    if (en) begin\n", "    if (1'b1) begin\n", 1)
     result = prove.prove(plan, verilog=bad)
     assert not result.proved
-    assert result.message == ("not proved: flip-flop sum_stage_0 is a $dff, not a D flip-flop "
-                              "enabled by en")
+    assert result.message == ("not proved: flip-flop sum_stage_0 is a $dff, not a flip-flop "
+                              "enabled by en with the sync reset rst or none")
 
 
 def test_a_reset_on_a_data_register_is_caught():
     plan = plan_of(width=8, slice_width=4, cell="native", **FULL)
     text = emit.unit_verilog(plan)
-    # carry_stage_0's next-state process gets a reset like the valid bits have.
-    bad = re.sub(r"(\\\$\d+ ) = carry_stage_0;\n    if \(en\) begin\n      \1 = ([^;]*);\n    end\n",
-                 r"\1 = carry_stage_0;\n    if (en) begin\n      \1 = \2;\n    end\n"
-                 r"    if (rst) begin\n      \1 = 1'h0;\n    end\n", text, count=1)
+    # The stage-0 data registers get the reset that only the valid bits should have.
+    bad = text.replace("  always @(posedge clk) begin\n    if (en) begin\n"
+                       "      {carry_stage_0, sum_stage_0}",
+                       "  always @(posedge clk) begin\n    if (rst) begin\n"
+                       "      {carry_stage_0, sum_stage_0} <= 5'd0;\n"
+                       "    end else if (en) begin\n      {carry_stage_0, sum_stage_0}", 1)
     assert bad != text
     result = prove.prove(plan, verilog=bad)
     assert not result.proved
-    assert result.message == ("not proved: sum or cout depends on flip-flop carry_stage_0 "
+    assert result.message == ("not proved: a data output depends on flip-flop carry_stage_0 "
                               "with a reset")
+
+
+@pytest.mark.parametrize("reset", ["sync", "async"])
+def test_reset_data_must_clear_every_register(reset):
+    plan = plan_of(width=8, slice_width=4, cell="native", valid=True, reset=reset,
+                   reset_data=True)
+    text = emit.unit_verilog(plan)
+    assert prove.prove(plan).proved
+    # One register left out of the reset clause: the structural check names it.
+    bad = text.replace("      carry_stage_0 <= 1'b0;\n", "", 1)
+    assert bad != text
+    result = prove.prove(plan, verilog=bad)
+    assert not result.proved
+    assert "flip-flop carry_stage_0" in result.message, result.message
+
+
+def test_prove_reads_the_build_folder_as_it_is_on_disk(tmp_path):
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text("name: u\nwidth: 8\nslice_width: 4\nvalid: true\n")
+    runner = CliRunner()
+    assert runner.invoke(main, ["build", str(cfg), "-o", str(tmp_path / "b")]).exit_code == 0
+    ok = runner.invoke(main, ["prove", str(tmp_path / "b")])
+    assert ok.exit_code == 0, ok.output
+    assert ok.output.startswith(f"{tmp_path / 'b' / 'u.v'}: proved: ")
+    unit = tmp_path / "b" / "u.v"
+    text = unit.read_text()
+    assert " + {1'b0, b_skew_1}" in text
+    unit.write_text(text.replace(" + {1'b0, b_skew_1}", " - {1'b0, b_skew_1}", 1))  # subtracts
+    bad = runner.invoke(main, ["prove", str(tmp_path / "b")])
+    assert bad.exit_code == 1, bad.output
+    assert bad.output.startswith(f"{tmp_path / 'b' / 'u.v'}: FAILED: counterexample")
+    from_config = runner.invoke(main, ["prove", str(cfg)])  # the config: the generated text
+    assert from_config.exit_code == 0
+    assert from_config.output.startswith("u (the Verilog generated from u.yaml): proved: ")
+
+
+def test_prove_refuses_a_folder_that_is_not_a_build(tmp_path):
+    (tmp_path / "empty").mkdir()
+    res = CliRunner().invoke(main, ["prove", str(tmp_path / "empty")])
+    assert res.exit_code == 2
+    assert res.output.strip() == (f"carrypipe: error: {tmp_path / 'empty'}: expected one "
+                                  "carrypipe manifest (<name>.json) in the folder, found 0")
 
 
 def test_cli_exit_codes(tmp_path):
@@ -108,7 +183,9 @@ def test_cli_exit_codes(tmp_path):
     cfg.write_text("name: u\nwidth: 8\nslice_width: 4\n")
     runner = CliRunner()
     ok = runner.invoke(main, ["prove", str(cfg)])
-    assert ok.exit_code == 0 and "u: proved: bounded check of 3 cycles" in ok.output
+    assert ok.exit_code == 0
+    assert ok.output.startswith("u (the Verilog generated from u.yaml): proved: bounded check "
+                                "of 3 cycles")
     bad = runner.invoke(main, ["prove", str(cfg), "--depth", "2"])
     assert bad.exit_code == 2
     assert bad.output.strip() == ("carrypipe: error: --depth: value 2 is not allowed; "
@@ -141,7 +218,8 @@ def test_a_unit_too_wide_for_the_prover_says_so(tmp_path):
     cfg.write_text("name: w1024\nwidth: 1024\n")
     res = CliRunner().invoke(main, ["prove", str(cfg)])
     assert res.exit_code == 1
-    assert res.output.strip() == ("Error: w1024: not proved: the WebAssembly Yosys ran out of "
+    assert res.output.strip() == ("Error: w1024 (the Verilog generated from w.yaml): not "
+                                  "proved: the WebAssembly Yosys ran out of "
                                   "call stack on this unit (see docs/verification.md for the "
                                   "sizes that prove)")
 
@@ -156,7 +234,8 @@ def test_compositional_agrees_with_the_direct_proof(cell):
     assert result.proved, result.message
     assert result.message.startswith("proved: compositional: structure traced, each of 4 "
                                      "slice(s) proved against a + b + c")
-    assert "out_valid: bounded check of 5 cycles" in result.message
+    assert "bounded check of 5 cycles from an arbitrary register state (Yosys sat), " \
+        "out_valid compared on cycle 5" in result.message
     assert "every flip-flop enabled by en" in result.message
 
 
@@ -170,18 +249,34 @@ def test_compositional_covers_the_options(keys):
     assert result.proved, result.message
 
 
+def _node_mutant(text: str) -> str:
+    """Slice 0's first prefix node with its AND and OR exchanged."""
+    for what, mutated in mutants(text):
+        line = text.split("\n")[int(what.split()[1].rstrip(":")) - 1]
+        if "slice0_G" in line and "'|' -> '&'" in what:
+            return mutated
+    raise AssertionError("no prefix node in slice 0")
+
+
+def _skew_from_b(text: str) -> str:
+    """Slice 1's operand a waits in a register loaded from b: a[4] never reaches it."""
+    assert "a_skew_1 <= a[" in text
+    return text.replace("a_skew_1 <= a[", "a_skew_1 <= b[", 1)
+
+
 @pytest.mark.parametrize("fault, found", [
-    ("missing-skew", "not proved: slice 1: a[4] does not reach its slice through exactly 1 "
-                     "plain flip-flop(s)"),
-    ("late-carry", "not proved: slice 1: its logic does not compute a + b + c on its own "
+    (_skew_from_b, "not proved: slice 1: a[4] does not reach its slice through exactly 1 "
+                   "plain flip-flop(s)"),
+    (early_operand, "not proved: slice 1: its logic does not compute a + b + c on its own "
+                    "operand bits and carry-in (cell check, flip-flops cut)"),
+    (drop_first_carry, "not proved: slice 1: its logic does not compute a + b + c on its own "
+                       "operand bits and carry-in (cell check, flip-flops cut)"),
+    (_node_mutant, "not proved: slice 0: its logic does not compute a + b + c on its own "
                    "operand bits and carry-in (cell check, flip-flops cut)"),
-    ("swapped-node", "not proved: slice 0: its logic does not compute a + b + c on its own "
-                     "operand bits and carry-in (cell check, flip-flops cut)"),
-])
+], ids=["skew-from-b", "early-operand", "dropped-carry", "node"])
 def test_compositional_finds_planted_faults(fault, found):
     plan = plan_of(width=16, slice_width=4, cell="kogge-stone", **FULL)
-    result = prove.prove(plan, verilog=emit.unit_verilog(plan, fault=fault),
-                         method="compositional")
+    result = prove.prove(plan, verilog=fault(emit.unit_verilog(plan)), method="compositional")
     assert not result.proved
     assert result.message == found
 
@@ -189,23 +284,24 @@ def test_compositional_finds_planted_faults(fault, found):
 def test_compositional_refuses_a_data_register_with_a_reset():
     plan = plan_of(width=8, slice_width=4, cell="native", reset="sync", valid=True)
     text = emit.unit_verilog(plan)
-    bad = text.replace("  always @(posedge clk)\n    carry_stage_0 <= ",
-                       "  always @(posedge clk)\n    if (rst) carry_stage_0 <= 1'h0; "
-                       "else carry_stage_0 <= ", 1)
+    bad = text.replace("  always @(posedge clk) begin\n    {carry_stage_0, sum_stage_0} <= ",
+                       "  always @(posedge clk) begin\n    if (rst) {carry_stage_0, "
+                       "sum_stage_0} <= 5'd0;\n    else {carry_stage_0, sum_stage_0} <= ", 1)
     assert bad != text
-    assert prove.prove(plan, verilog=bad).message.startswith("FAILED: counterexample")
-    result = prove.prove(plan, verilog=bad, method="compositional")
-    assert result.message == "not proved: slice 1: no plain one-bit register carry_stage_0"
+    for method in ("direct", "compositional"):
+        result = prove.prove(plan, verilog=bad, method=method)
+        assert re.fullmatch(r"not proved: a data output depends on flip-flop "
+                            r"(carry|sum)_stage_0 with a reset", result.message), result.message
 
 
 def test_compositional_finds_a_late_valid_bit():
     plan = plan_of(width=8, slice_width=4, cell="native", valid=True)
     text = emit.unit_verilog(plan)
-    bad = text.replace("    out_valid <= valid_1;", "    out_valid <= in_valid;", 1)
+    bad = text.replace("valid_2 <= valid_1;", "valid_2 <= in_valid;", 1)
     assert bad != text
     result = prove.prove(plan, verilog=bad, method="compositional")
     assert result.message.startswith("FAILED: counterexample"), result.message
-    assert "in_valid from cycle" in result.message
+    assert "the unit shows out_valid=" in result.message
 
 
 def test_auto_proves_wide_sliced_units_compositionally(tmp_path):
@@ -213,8 +309,8 @@ def test_auto_proves_wide_sliced_units_compositionally(tmp_path):
     cfg.write_text("name: w1024\nwidth: 1024\nslice_width: 64\n")
     res = CliRunner().invoke(main, ["prove", str(cfg)])
     assert res.exit_code == 0, res.output
-    assert res.output.startswith("w1024: proved: compositional: structure traced, each of 16 "
-                                 "slice(s)")
+    assert res.output.startswith("w1024 (the Verilog generated from w.yaml): proved: "
+                                 "compositional: structure traced, each of 16 slice(s)")
 
 
 def test_compositional_is_for_slices_only(tmp_path):
@@ -223,8 +319,8 @@ def test_compositional_is_for_slices_only(tmp_path):
     res = CliRunner().invoke(main, ["prove", str(cfg), "--method", "compositional"])
     assert res.exit_code == 2
     assert res.output.strip() == ("carrypipe: error: --method: value compositional is not "
-                                  "allowed with pipeline levels; it covers pipeline slices "
-                                  "(use direct)")
+                                  "allowed for this unit; it covers sliced adders and "
+                                  "subtractors without reset_data (use direct)")
 
 
 def test_the_reference_sum_chained_in_chunks(monkeypatch):
@@ -235,10 +331,9 @@ def test_the_reference_sum_chained_in_chunks(monkeypatch):
 
     monkeypatch.setattr(miter, "CHUNK", 4)
     plan = plan_of(width=14, slice_width=5, cell="brent-kung", carry_in=True)
-    assert "ref_0_c[3]" in miter.miter_verilog("u", plan.latency, [
-        dict(name=p.name, direction=p.direction, width=p.width) for p in plan.ports])
+    assert "ref_x_c[3]" in miter.miter_verilog(plan)
     assert prove.prove(plan, method="direct").proved
-    bad = prove.prove(plan, verilog=emit.unit_verilog(plan, fault="late-carry"),
+    bad = prove.prove(plan, verilog=drop_first_carry(emit.unit_verilog(plan)),
                       method="direct")
     assert bad.message.startswith("FAILED: counterexample")
     _check_counterexample(plan, bad.message)

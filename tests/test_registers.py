@@ -21,7 +21,7 @@ def flip_flop_bits(verilog: str, tmp_path) -> int:
     subprocess.run([yosys, "-q", "-p", "read_verilog u.v; proc; techmap; opt_clean; "
                     "tee -q -o stat.txt stat"], cwd=tmp_path, check=True, capture_output=True)
     stat = (tmp_path / "stat.txt").read_text()
-    return sum(int(n) for n, _ in re.findall(r"^\s+(\d+)\s+\$_(S?DFFE?_\w+)$", stat, re.M))
+    return sum(int(n) for n, _ in re.findall(r"^\s+(\d+)\s+\$_(A?S?DFF\w*)$", stat, re.M))
 
 
 @pytest.mark.parametrize("keys", [
@@ -31,7 +31,21 @@ def flip_flop_bits(verilog: str, tmp_path) -> int:
     {"width": 48, "slice_width": 48, "cell": "brent-kung", "valid": True, "enable": True},
     {"width": 30, "slices": [4, 8, 16, 2], "cell": "sklansky", "carry_in": True,
      "register_inputs": True, "valid": True, "enable": True, "reset": "sync"},
-], ids=["native-4x16", "ks-uneven", "ripple-bitserial", "bk-single", "sk-everything"])
+    {"width": 24, "slice_width": 8, "valid": True, "reset": "async", "enable": True},
+    {"width": 24, "slice_width": 8, "valid": True, "reset": "sync", "reset_data": True},
+    {"width": 24, "slice_width": 8, "cell": "ripple", "reset": "async", "reset_data": True},
+    {"width": 24, "pipeline": "levels", "cell": "han-carlson", "valid": True, "reset": "async",
+     "reset_data": True, "enable": True},
+    {"unit": "subtractor", "width": 20, "slice_width": 6, "carry_in": True, "signed": True},
+    {"unit": "addsub", "width": 20, "pipeline": "blocks", "cell": "sklansky", "block_width": 6,
+     "signed": True, "valid": True, "reset": "sync"},
+    {"unit": "comparator", "width": 20, "slice_width": 6, "signed": True, "valid": True},
+    {"unit": "comparator", "width": 20, "pipeline": "levels", "slice_width": 4},
+    {"unit": "accumulator", "width": 20, "slice_width": 6, "valid": True, "enable": True,
+     "reset": "sync", "reset_data": True},
+], ids=["native-4x16", "ks-uneven", "ripple-bitserial", "bk-single", "sk-everything",
+        "async", "sync-data", "async-data-ripple", "levels-async-data", "subtractor",
+        "addsub-blocks", "comparator", "comparator-levels", "accumulator"])
 def test_yosys_counts_the_planned_bits(keys, tmp_path):
     p = make(**keys)
     assert flip_flop_bits(emit.unit_verilog(p), tmp_path) == p.registers.total

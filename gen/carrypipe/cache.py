@@ -5,17 +5,32 @@ the flow version, so it is the same on every machine and run; any change to the 
 harness, the tools or their arguments gives a new key.  The folder is `$CARRYPIPE_CACHE`
 when set, else `$XDG_CACHE_HOME/carrypipe/fit`, else `~/.cache/carrypipe/fit`.  Results that
 depend on the run (timeouts) are not stored.
+
+An entry is trusted only when it passes `valid`: the fields of a `Measurement` with their
+types, finite numbers, a known status, an Fmax above 0 exactly when the status is ok, and the
+seed it was asked for.  Anything else (a damaged, truncated or hand-edited file, a folder or
+FIFO in its place) reads as missing, so the candidate is measured again and the entry
+rewritten.
 """
 
 from __future__ import annotations
 
 import hashlib
 import json
+import math
 import os
 import tempfile
+from dataclasses import fields
 from pathlib import Path
 
+from .config import read_regular
 from .toolflow import FLOW_VERSION, Measurement, freq_mhz
+
+STORED = ("ok", "no-fit", "error")  # the statuses an entry may hold (timeouts are not stored)
+FIELDS = frozenset(f.name for f in fields(Measurement))
+COUNTS = ("luts", "carry", "flip_flops", "logic_used")
+TEXTS = ("start", "end", "message")
+MAX_ENTRY_BYTES = 1 << 16  # an entry is a few hundred bytes
 
 
 def folder() -> Path:
@@ -42,27 +57,61 @@ class Cache:
     def _file(self, k: str) -> Path:
         return self.path / k[:2] / f"{k}.json"
 
-    def get(self, k: str) -> Measurement | None:
+    def get(self, k: str, seed: int) -> Measurement | None:
+        """The stored measurement of seed `seed` under key `k`, or None when there is none
+        or it is not `valid`."""
         if not self.read:
             return None
         try:
-            data = json.loads(self._file(k).read_text())
-        except (OSError, ValueError):
+            data = json.loads(read_regular(self._file(k), MAX_ENTRY_BYTES).decode("utf-8"),
+                              parse_constant=_no_constant, object_pairs_hook=_once)
+        except (OSError, ValueError, RecursionError):  # ValueError: bad JSON or UTF-8
             return None
-        try:
-            return Measurement(**data)
-        except TypeError:
-            return None
+        return Measurement(**data) if valid(data, seed) else None
 
     def put(self, k: str, m: Measurement) -> None:
-        if m.status == "timeout":
+        """Store `m` under `k` (atomically); timeouts and invalid measurements are not kept."""
+        data = m.as_dict()
+        if not valid(data, m.seed):
             return
         dest = self._file(k)
         try:
             dest.parent.mkdir(parents=True, exist_ok=True)
             fd, tmp = tempfile.mkstemp(prefix=".", dir=dest.parent)
             with os.fdopen(fd, "w") as fh:
-                json.dump(m.as_dict(), fh, sort_keys=True)
+                json.dump(data, fh, sort_keys=True, allow_nan=False)
             os.replace(tmp, dest)
         except OSError:
             pass  # a cache that cannot be written only costs time
+
+
+def valid(data, seed: int) -> bool:
+    """Whether `data` (parsed JSON) is a storable measurement of `seed`."""
+    if not isinstance(data, dict) or set(data) != FIELDS:
+        return False
+    mhz = data["mhz"]
+    return (type(data["seed"]) is int and data["seed"] == seed
+            and data["status"] in STORED and all(type(data[f]) is str for f in TEXTS)
+            and (_real(mhz) and mhz > 0 if data["status"] == "ok" else mhz is None)
+            and all(data[f] is None or type(data[f]) is int for f in COUNTS)
+            and (data["inside"] is None or type(data["inside"]) is bool)
+            and _real(data["seconds"]) and data["seconds"] >= 0)
+
+
+def _real(value) -> bool:
+    """A finite JSON number (a bool is not one)."""
+    try:
+        return type(value) in (int, float) and math.isfinite(value)
+    except OverflowError:  # an int too large for a float
+        return False
+
+
+def _no_constant(name: str):
+    raise ValueError(f"{name} is not JSON")  # Python's json reads NaN and Infinity by default
+
+
+def _once(pairs: list) -> dict:
+    keys = [k for k, _ in pairs]
+    if len(set(keys)) != len(keys):
+        raise ValueError("a key is given twice")
+    return dict(pairs)

@@ -123,15 +123,17 @@ def circuit(plan: Plan) -> str:
     sch = getattr(plan, "schedule", None)
     if sch is None:
         shape = [[s.width, list(map(list, s.network().levels))
-                  if s.cell in config.PREFIX_CELLS else s.cell] for s in plan.slices]
+                  if s.cell in config.PREFIX_CELLS else s.cell] for s in plan.stages]
     else:
         kept = sch.kept()
         order = {t.index: n for n, t in enumerate(kept)}
-        shape = {"mode": sch.mode, "widths": sch.widths, "final": sch.final,
+        shape = {"mode": sch.mode, "flavour": sch.flavour, "widths": sch.widths,
+                 "final": sch.final,
                  "terms": [[t.kind, t.pos, t.lsb, t.width, t.op, [order[a] for a in t.args],
                             t.stage, sch.last[t.index]] for t in kept],
-                 "sums": [order[i] for i in sch.sums],
-                 "cout": None if sch.cout is None else order[sch.cout]}
+                 "outputs": {name: [order[i] for i in t] if isinstance(t, tuple) else
+                             None if t is None else order[t]
+                             for name, t in sorted(sch.outputs.items())}}
     return json.dumps([options, shape], sort_keys=True)
 
 
@@ -216,7 +218,7 @@ class Row:
     def slowest_stage(self) -> int:
         """Where the measured critical path ends, else where the plan expects it."""
         stage = self.measured_stage
-        return self.plan.slowest.index if stage is None else stage
+        return self.plan.slowest[0].index if stage is None else stage
 
     @property
     def done(self) -> bool:
@@ -287,8 +289,8 @@ def bound(row: Row, rows: list[Row], target: float) -> Row | None:
     deepest such, the closest to `row`), or None; with one, `row`, which has no prediction,
     is taken to miss too."""
     misses = [m for m in rows if m.mhz is not None and m.mhz < target and kind(m) == kind(row)
-              and m.plan.slowest.delay <= row.plan.slowest.delay]
-    return max(misses, key=lambda m: (m.plan.slowest.delay, m.mhz)) if misses else None
+              and m.plan.slowest[0].delay <= row.plan.slowest[0].delay]
+    return max(misses, key=lambda m: (m.plan.slowest[0].delay, m.mhz)) if misses else None
 
 
 def promising(row: Row, target: float, factors: dict[str, float], rows: list[Row]) -> bool:

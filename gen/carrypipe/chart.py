@@ -199,8 +199,8 @@ def _slowest(plan: Plan, measured: Mapping[int, float] | None) -> tuple[set[int]
         slow = {i for i, v in measured.items() if v == top}
         figure, basis = f"{_num(top)} ns", "measured"
     else:
-        top = plan.slowest.delay
-        slow = {s.index for s in plan.slices if s.delay == top}
+        top = plan.slowest[0].delay
+        slow = {s.index for s in plan.slowest}
         figure, basis = f"delay {top}", "unit-gate model"
     if len(plan.slices) == 1:
         return set(), f"One stage: {figure} ({basis})."
@@ -284,8 +284,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     # Operands arriving.
     y += 8
     left, w = lay.x_of(0, plan.width - 1)
-    cin = " + cin" if c.carry_in else ""
-    _io_strip(out, lay, left, w, y, "inputs", f"a, b [{plan.width - 1}:0]{cin} applied before "
+    _io_strip(out, lay, left, w, y, "inputs", f"{_port_list(plan, 'input')} applied before "
               "edge 1", ("#eef2f8", "#b7c4da", "#3f5a86"))
     y += 20
     grid_top = y
@@ -359,8 +358,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     # Results leaving.
     y = grid_bottom + 4
     left, w = lay.x_of(0, plan.width - 1)
-    cout = " + cout" if c.carry_out else ""
-    _io_strip(out, lay, left, w, y, "outputs", f"sum [{plan.width - 1}:0]{cout} ready after "
+    _io_strip(out, lay, left, w, y, "outputs", f"{_port_list(plan, 'output')} ready after "
               f"edge {plan.latency}", ("#eef6f2", "#b5d6c8", "#1f6b50"))
     y += 44
 
@@ -373,6 +371,16 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     title = f"<title>{escape(c.name)}: stage chart</title>"
     background = f'<rect x="0" y="0" width="{lay.width}" height="{height}" fill="{PAPER}"/>'
     return "\n".join([head, title, background, *out.parts, "</svg>"]) + "\n"
+
+
+def _port_list(plan: Plan, direction: str) -> str:
+    """The data ports of one side, wide ones with their range: `a, b [63:0] + cin`."""
+    skip = ("clk", "rst", "en", "in_valid", "out_valid")
+    ports = [p for p in plan.ports if p.direction == direction and p.name not in skip]
+    wide = [p.name for p in ports if p.width > 1]
+    narrow = [p.name for p in ports if p.width == 1]
+    text = f"{', '.join(wide)} [{plan.width - 1}:0]" if wide else ""
+    return " + ".join(x for x in [text, *narrow] if x)
 
 
 def _runs(slices: list) -> list[list]:

@@ -190,35 +190,55 @@ def plan_cmd(config, slice_width, slices, chart_path):
 # ---- prove (formal check of the emitted Verilog; see docs/verification.md) ----
 
 @main.command()
-@config_arg
+@click.argument("target", type=click.Path())
 @click.option("--depth", type=click.IntRange(1, 1000),
-              help="Cycles to unroll; results are compared from cycle latency+1 up to this "
-                   "one [default: latency + 1, which already covers every later cycle].")
+              help="Cycles to unroll, more than the latency; results are compared from cycle "
+                   "latency+1 up to this one [default: latency + 1, which already covers "
+                   "every later cycle].")
 @click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
               help="Give up on the solver after this many seconds.")
 @click.option("--method", type=click.Choice(PROOF_METHODS),
               default="auto", show_default=True,
-              help="direct: unroll the whole unit; compositional (slices only): each slice "
-                   "against +, then the structure; auto: direct up to 512 bits.")
-def prove(config, depth, timeout, method):
-    """Prove the emitted Verilog equals a + b + cin delayed by the latency, from any state."""
+              help="direct: unroll the whole unit; compositional (sliced adders and "
+                   "subtractors): each slice against +, then the structure; auto: direct up "
+                   "to 512 bits.")
+def prove(target, depth, timeout, method):
+    """Prove a unit equals its specification delayed by the latency, from any state.
+
+    TARGET is a config (the Verilog `build` would write is proved, in memory) or a build
+    folder (its manifest's unit and the `.v` file in it, as they are on disk).
+    """
     from . import prove as proof
 
-    plan = load_plan(config)
+    plan, verilog, what = load_target(target)
     if depth is not None and depth <= plan.latency:
         raise UserError(f"--depth: value {depth} is not allowed; expected an integer above "
                         f"the latency ({plan.latency})")
-    if method == "compositional" and plan.config.pipeline != "slices":
-        raise UserError(f"--method: value compositional is not allowed with pipeline "
-                        f"{plan.config.pipeline}; it covers pipeline slices (use direct)")
+    if method == "compositional" and not plan.can_compose:
+        raise UserError(f"--method: value compositional is not allowed for this unit; it "
+                        "covers sliced adders and subtractors without reset_data (use direct)")
     try:
-        result = proof.prove(plan, depth=depth, timeout=timeout, method=method)
+        result = proof.prove(plan, depth=depth, timeout=timeout, method=method,
+                             verilog=verilog)
     except sim.ToolMissing as exc:
         raise UserError(str(exc)) from None
     except proof.ProofFailed as exc:
-        raise click.ClickException(f"{plan.config.name}: not proved: {exc}") from None
-    click.echo(f"{plan.config.name}: {result.message}")
+        raise click.ClickException(f"{what}: not proved: {exc}") from None
+    click.echo(f"{what}: {result.message}")
     sys.exit(0 if result.proved else 1)
+
+
+def load_target(target: str):
+    """A config file, or a build folder: (plan, Verilog text or None, what is proved)."""
+    path = Path(target)
+    if not path.is_dir():
+        plan = load_plan(target)
+        return plan, None, f"{plan.config.name} (the Verilog generated from {path.name})"
+    try:
+        plan, text = emit.read_build(path)
+    except emit.BuildFolderError as exc:
+        raise UserError(str(exc)) from None
+    return plan, text, str(path / f"{plan.config.name}.v")
 
 
 # ---- fit (timing closure with synthesis and place-and-route; see docs/fit.md) ----

@@ -40,7 +40,7 @@ import json
 import re
 from dataclasses import dataclass
 
-from .miter import chained_add
+from .miter import chained
 from .plan import Plan
 from .prove import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
 
@@ -145,24 +145,26 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
                 if problem:
                     return [], f"slice {j}: {problem}"
                 into.append(bit)
-            bit, n = wiring.back(wiring.port["sum"][i])
+            bit, n = wiring.back(wiring.port[plan.unit.result][i])
             if n != lat - e:
                 return [], (f"slice {j}: sum[{i}] leaves it through {n} plain flip-flop(s), "
                             f"not the {lat - e} the latency requires")
             nets.s.append(bit)
         if j == 0:
             nets.c = "0"
-            if cfg.carry_in:
-                nets.c, problem = wiring.after("cin", 0, e)
+            port = plan.unit.carry_in_port(cfg)
+            if port:
+                nets.c, problem = wiring.after(port, 0, e)
                 if problem:
                     return [], f"slice 0: {problem}"
         else:
-            nets.c = wiring.register(f"carry_stage_{j - 1}")
+            chain = f"{plan.unit.chain[0]}_stage_{j - 1}"
+            nets.c = wiring.register(chain)
             if nets.c is None:
-                return [], f"slice {j}: no plain one-bit register carry_stage_{j - 1}"
+                return [], f"slice {j}: no plain one-bit register {chain}"
             found[-1].k = wiring.d_of[nets.c]
         if j == len(plan.slices) - 1 and cfg.carry_out:
-            nets.k, n = wiring.back(wiring.port["cout"][0])
+            nets.k, n = wiring.back(wiring.port[plan.unit.carry_out_port(cfg)][0])
             if n != lat - e:
                 return [], (f"cout leaves slice {j} through {n} plain flip-flop(s), not "
                             f"the {lat - e} the latency requires")
@@ -170,7 +172,7 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
     return found, None
 
 
-def cut_design(wiring: Wiring, nets: list[SliceNets]) -> dict[str, str]:
+def cut_design(wiring: Wiring, nets: list[SliceNets], op: str) -> dict[str, str]:
     """Part 2's files: the unit with every flip-flop cut (JSON) and the checker (Verilog)."""
     cut_q, cut_d = [], []
     names: dict = {}
@@ -195,7 +197,7 @@ def cut_design(wiring: Wiring, nets: list[SliceNets]) -> dict[str, str]:
     body = []
     for n in nets:
         k = len(n.s)
-        body += chained_add(f"ref_{n.index}", cat(n.a), cat(n.b), ref(n.c), k)
+        body += chained(f"ref_{n.index}", cat(n.a), cat(n.b), ref(n.c), k, op)
         got = cat(n.s) if n.k is None else "{" + f"{ref(n.k)}, " + cat(n.s)[1:]
         want = f"ref_{n.index}[{k - 1}:0]" if n.k is None else f"ref_{n.index}"
         body.append(f"  wire ok_{n.index} = ({got} == {want});")
@@ -228,7 +230,7 @@ def prove_slices(plan: Plan, net: dict, module: str, timeout: float | None) -> O
     nets, problem = trace(plan, wiring)
     if problem:
         return Outcome(method, problem)
-    files = cut_design(wiring, nets)
+    files = cut_design(wiring, nets, "+" if plan.unit.op == "add" else "-")
     limit = sat_limit(timeout)
     # One solver run per slice, on that slice's cone only: one run over all slices at once
     # is several times slower (the solver must refute every slice's miter together).

@@ -7,23 +7,31 @@ key, the value and what is allowed; the command line turns it into exit status 2
 from __future__ import annotations
 
 import difflib
+import os
 import re
+import stat
 from dataclasses import asdict, dataclass, fields, replace
 from pathlib import Path
 
 import yaml
 
-from . import prefix
+from . import cells, prefix, units
 
 MAX_WIDTH = 4096
-UNITS = ("adder",)
-PREFIX_CELLS = ("kogge-stone", "brent-kung", "sklansky", "han-carlson", "ladner-fischer")
-CELLS = ("ripple", "native") + PREFIX_CELLS
-RESETS = ("none", "sync")
+UNITS = tuple(units.KINDS)
+PREFIX_CELLS = cells.PREFIX_STYLES
+CELLS = tuple(cells.STYLES)
+RESETS = ("none", "sync", "async")
 PIPELINES = ("slices", "levels", "blocks")
 PREFIX_PIPELINES = ("levels", "blocks")  # modes pipelined by prefix levels, not by slices
 MAX_LEVELS_PER_STAGE = 64
-MAX_CONFIG_BYTES = 1 << 20
+# A config of 4096 one-bit slices, one per line with a comment each, is about 70 KiB;
+# PyYAML reads about 100 KiB a second, so the bound also bounds the time to read one.
+MAX_CONFIG_BYTES = 1 << 18
+MAX_NESTING = 16  # levels of YAML collections; a config needs 2 (the mapping, `slices`)
+# Decimal integers with more digits stay text: no key allows them, and Python refuses to
+# convert very long digit strings (sys.get_int_max_str_digits(), 4300 by default).
+MAX_INT_DIGITS = 20
 
 # Verilog-2005 and SystemVerilog-2017 reserved words: a module may not be named after one.
 VERILOG_KEYWORDS = frozenset("""
@@ -53,6 +61,15 @@ wire with within wor xnor xor
 
 _IDENT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*\Z")
 MAX_NAME = 64
+# carrypipe's own Verilog modules (prove's miters, its cut netlist) all start with this prefix,
+# so no unit can be named like one; checked in any case, as file names may ignore case.
+RESERVED_PREFIX = "carrypipe_"
+# Names carrypipe keeps: its own (`carrypipe`, whose testbench and harness modules would fall
+# under the prefix), those whose files collide with carrypipe's own in one folder (`fit`
+# writes fit.json beside the manifest <name>.json; `prove` writes miter.v beside <name>.v),
+# and the Windows device names, which name no file there (nul.v is the null device).
+RESERVED_NAMES = frozenset(["carrypipe", "fit", "miter", "con", "prn", "aux", "nul",
+                            *(f"{port}{i}" for port in ("com", "lpt") for i in range(10))])
 
 
 class ConfigError(ValueError):
@@ -73,6 +90,8 @@ class Config:
     valid: bool = False
     enable: bool = False
     reset: str = "none"
+    reset_data: bool = False
+    signed: bool = False
     register_inputs: bool = False
     pipeline: str = "slices"
     levels_per_stage: int = 1
@@ -83,17 +102,14 @@ class Config:
     def normalized(self) -> dict:
         """The config as plain data with every default filled in (for headers, manifests, caches).
 
-        Keys that the unit's pipeline mode does not read are left out (a prefix mode takes no
-        split), and a `slices` unit leaves out `pipeline` too, so configs written before the
-        prefix modes existed keep their exact normalized form.  `from_mapping` of the result
-        gives the same config back.
+        Keys that the unit kind and pipeline mode do not read are left out (a prefix mode takes
+        no split, a comparator no carry-in), and a `slices` unit leaves out `pipeline` too.
+        `from_mapping` of the result gives the same config back.
         """
         data = asdict(self)
         data["slices"] = list(self.slices)
-        if self.pipeline != "slices":
-            del data["slices"]
-        for key, modes in MODE_KEYS.items():
-            if self.pipeline not in modes:
+        for key in list(data):
+            if key in KEYS and not reads(key, self.unit, self.pipeline):
                 del data[key]
         if self.pipeline == "slices":
             del data["pipeline"]
@@ -103,12 +119,18 @@ class Config:
         """The same unit with another split (used by what-if previews and `fit`)."""
         return replace(self, slices=tuple(slices))
 
+    def replaced(self, **keys) -> "Config":
+        """The same unit with some keys changed, validated again."""
+        return from_mapping({**self.normalized(), **keys}, where="config")
+
 
 # key -> (description of what is allowed, default or REQUIRED)
 REQUIRED = object()
 KEYS = {
     "name": ("a Verilog identifier (letters, digits, _; not starting with a digit; "
-             f"at most {MAX_NAME} characters; not a Verilog or SystemVerilog keyword)", REQUIRED),
+             f"at most {MAX_NAME} characters; not a Verilog or SystemVerilog keyword; not "
+             f"starting with {RESERVED_PREFIX}; not carrypipe, fit, miter, con, prn, aux, nul, "
+             "comN or lptN, in any case)", REQUIRED),
     "unit": ("one of " + ", ".join(UNITS), "adder"),
     "width": (f"an integer from 1 to {MAX_WIDTH}", REQUIRED),
     "cell": ("one of " + ", ".join(CELLS), "native"),
@@ -119,6 +141,8 @@ KEYS = {
     "valid": ("true or false", False),
     "enable": ("true or false", False),
     "reset": ("one of " + ", ".join(RESETS), "none"),
+    "reset_data": ("true or false", False),
+    "signed": ("true or false", False),
     "register_inputs": ("true or false", False),
     "pipeline": ("one of " + ", ".join(PIPELINES), "slices"),
     "levels_per_stage": (f"an integer from 1 to {MAX_LEVELS_PER_STAGE}", 1),
@@ -126,8 +150,10 @@ KEYS = {
     "wire_registers": ("an integer from 0 to the prefix network's depth", 0),
     "local_width": ("an integer from 0 to width (0: one prefix network over every bit)", 0),
 }
-# Keys that only the prefix pipeline modes read, and the modes that read each.
+# Keys that only some pipeline modes read, and the modes that read each.
 MODE_KEYS = {
+    "slice_width": ("slices",),
+    "slices": ("slices",),
     "levels_per_stage": PREFIX_PIPELINES,
     "block_width": ("blocks",),
     "wire_registers": PREFIX_PIPELINES,
@@ -135,14 +161,57 @@ MODE_KEYS = {
 }
 
 
-def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
+def reads(key: str, unit: str, mode: str) -> bool:
+    """Whether a unit of this kind in this pipeline mode reads `key`."""
+    kind = units.KINDS[unit]
+    if key in kind.refused:
+        return False
+    return mode in kind.mode_keys.get(key, MODE_KEYS.get(key, (mode,)))
+
+
+class LongInteger(str):
+    """A plain decimal integer with more than MAX_INT_DIGITS digits, kept as its text: no key
+    allows one, and converting it could fail (or take long) for very long ones."""
+
+    def __repr__(self) -> str:
+        return f"{self[:MAX_INT_DIGITS]}... ({len(self.lstrip('-'))} digits)"
+
+
+def _shown(value) -> str:
+    """A value for a one-line message, spelled as YAML reads it, cut to 60 characters."""
     if isinstance(value, bool) or value is None:  # as YAML spells them, not Python
         shown = {True: "true", False: "false", None: "null"}[value]
     else:
         shown = repr(value)
-    if len(shown) > 60:
-        shown = shown[:57] + "..."
-    return ConfigError(f"{where}: key '{key}': value {shown} is not allowed; expected {allowed}")
+    return shown if len(shown) <= 60 else shown[:57] + "..."
+
+
+def _is_text(value) -> bool:
+    """A value (or a list element) that YAML read as text, e.g. `0x40`, `6_4`, `8.0`, `'8'`."""
+    return any(type(v) is str for v in (value if isinstance(value, list) else [value]))
+
+
+def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
+    if "integer" in allowed and _is_text(value):
+        head, sep, tail = allowed.partition(";")
+        allowed = f"{head}, written in plain decimal digits{sep}{tail}"
+    return ConfigError(f"{where}: key '{key}': value {_shown(value)} is not allowed; "
+                       f"expected {allowed}")
+
+
+def check_name(where: str, name) -> None:
+    """Validate `name`: a Verilog identifier that no Verilog keyword, no internal module of
+    carrypipe and no file carrypipe writes beside the unit's can collide with."""
+    if (not isinstance(name, str) or not _IDENT.match(name) or len(name) > MAX_NAME
+            or name in VERILOG_KEYWORDS):
+        raise _fail(where, "name", name, KEYS["name"][0])
+    if name.lower().startswith(RESERVED_PREFIX):
+        raise _fail(where, "name", name, f"a name that does not start with {RESERVED_PREFIX} "
+                    "(in any case), which carrypipe keeps for its own modules")
+    if name.lower() in RESERVED_NAMES:
+        raise _fail(where, "name", name, "a name other than carrypipe, fit and miter (names of "
+                    "carrypipe's own) and the Windows device names con, prn, aux, nul, com0-com9 "
+                    "and lpt0-lpt9, in any case")
 
 
 def _is_int(value) -> bool:
@@ -173,24 +242,30 @@ def from_mapping(data, where: str = "config") -> Config:
         if not isinstance(key, str) or key not in KEYS:
             near = difflib.get_close_matches(str(key), KEYS, n=1)
             hint = f"; did you mean '{near[0]}'?" if near else ""
-            raise ConfigError(f"{where}: unknown key {str(key)!r}{hint} "
+            raise ConfigError(f"{where}: unknown key {_shown(key)}{hint} "
                               f"(allowed keys: {', '.join(KEYS)})")
     for key, (allowed, default) in KEYS.items():
         if default is REQUIRED and key not in data:
             raise ConfigError(f"{where}: key '{key}' is missing; expected {allowed}")
     values = {key: data.get(key, default) for key, (_, default) in KEYS.items()}
 
-    name = values["name"]
-    if (not isinstance(name, str) or not _IDENT.match(name) or len(name) > MAX_NAME
-            or name in VERILOG_KEYWORDS):
-        raise _fail(where, "name", name, KEYS["name"][0])
+    check_name(where, values["name"])
     width = values["width"]
     if not _is_int(width) or not 1 <= width <= MAX_WIDTH:
         raise _fail(where, "width", width, KEYS["width"][0])
-    for key, choices in (("unit", UNITS), ("cell", CELLS), ("reset", RESETS)):
+    for key, choices in (("unit", UNITS), ("cell", CELLS), ("reset", RESETS),
+                         ("pipeline", PIPELINES)):
         if values[key] not in choices:
             raise _fail(where, key, values[key], KEYS[key][0])
-    for key in ("carry_in", "carry_out", "valid", "enable", "register_inputs"):
+    unit, mode = values["unit"], values["pipeline"]
+    kind = units.KINDS[unit]
+    if mode not in kind.modes:
+        raise ConfigError(f"{where}: key 'pipeline': value {mode!r} is not allowed with unit "
+                          f"{unit!r}; expected one of {', '.join(kind.modes)}")
+    for key in data:
+        _check_read(where, key, unit, mode, data)
+    for key in ("carry_in", "carry_out", "valid", "enable", "register_inputs", "reset_data",
+                "signed"):
         if not isinstance(values[key], bool):
             raise _fail(where, key, values[key], "true or false")
     if "slice_width" in data and "slices" in data:
@@ -201,12 +276,41 @@ def from_mapping(data, where: str = "config") -> Config:
     elif "slice_width" in data:
         split = check_split(where, "slice_width", data["slice_width"], width)
     else:
-        split = (width,)
-
-    check_mode(where, data, values)
+        split = check_split(where, "slice_width", kind.default_slice_width(width, mode), width)
+    _check_reset(where, values)
+    check_mode(where, values, split)
     own = {f.name for f in fields(Config)}
-    kept = {k: v for k, v in values.items() if k in own and k not in ("width", "slices")}
+    kept = {k: (v if reads(k, unit, mode) else KEYS[k][1]) for k, v in values.items()
+            if k in own and k not in ("width", "slices")}
     return Config(width=width, slices=split, **kept)
+
+
+def _check_read(where: str, key: str, unit: str, mode: str, data: dict) -> None:
+    """A key given for a unit kind or pipeline mode that does not read it is refused."""
+    if reads(key, unit, mode):
+        return
+    if key in units.KINDS[unit].refused:
+        users = [k for k in UNITS if key not in units.KINDS[k].refused]
+        raise ConfigError(f"{where}: key '{key}' is given with unit {unit!r}; expected it "
+                          f"only with unit {' or '.join(map(repr, users))}")
+    modes = [m for m in PIPELINES if reads(key, unit, m)]
+    if key in ("slice_width", "slices") and "pipeline" in data:
+        raise ConfigError(f"{where}: keys '{key}' and 'pipeline' ({mode!r}) are both given; "
+                          f"expected '{key}' only with pipeline {' or '.join(map(repr, modes))}")
+    raise ConfigError(f"{where}: key '{key}' is given with pipeline {mode!r}; expected it only "
+                      f"with pipeline {' or '.join(map(repr, modes))}"
+                      + (f" (unit {unit!r})" if unit != "adder" else ""))
+
+
+def _check_reset(where: str, values: dict) -> None:
+    """A reset needs something to clear; clearing the data needs a reset."""
+    if values["reset"] != "none" and not values["valid"] and not values["reset_data"]:
+        raise ConfigError(f"{where}: key 'reset': value {values['reset']!r} is not allowed "
+                          "with nothing to reset; expected 'none', or valid: true or "
+                          "reset_data: true beside it")
+    if values["reset_data"] and values["reset"] == "none":
+        raise ConfigError(f"{where}: key 'reset_data': value true is not allowed with reset "
+                          "'none'; expected reset 'sync' or 'async' beside it")
 
 
 def prefix_positions(width: int, pipeline: str, block_width: int) -> int:
@@ -214,27 +318,19 @@ def prefix_positions(width: int, pipeline: str, block_width: int) -> int:
     return width if pipeline == "levels" else -(-width // block_width)
 
 
-def check_mode(where: str, data: dict, values: dict) -> None:
-    """Validate `pipeline` and the keys of the prefix modes, alone and in combination."""
-    mode = values["pipeline"]
-    if mode not in PIPELINES:
-        raise _fail(where, "pipeline", mode, KEYS["pipeline"][0])
-    for key, modes in MODE_KEYS.items():
-        if key in data and mode not in modes:
-            raise ConfigError(f"{where}: key '{key}' is given with pipeline {mode!r}; expected "
-                              f"it only with pipeline {' or '.join(map(repr, modes))}")
+def check_mode(where: str, values: dict, split: tuple[int, ...]) -> None:
+    """Validate the keys of the prefix modes, alone and in combination."""
+    mode, unit = values["pipeline"], values["unit"]
     if mode == "slices":
         return
-    for key in ("slice_width", "slices"):
-        if key in data:
-            raise ConfigError(f"{where}: keys '{key}' and 'pipeline' ({mode!r}) are both given; "
-                              f"expected '{key}' only with pipeline 'slices'")
-    if values["cell"] not in PREFIX_CELLS:
-        raise ConfigError(f"{where}: key 'cell': value {values['cell']!r} is not allowed with "
-                          f"key 'pipeline' {mode!r}; expected one of {', '.join(PREFIX_CELLS)}")
     lps = values["levels_per_stage"]
     if not _is_int(lps) or not 1 <= lps <= MAX_LEVELS_PER_STAGE:
         raise _fail(where, "levels_per_stage", lps, KEYS["levels_per_stage"][0])
+    if not reads("wire_registers", unit, mode):  # a comparator's tree: any cell style
+        return
+    if values["cell"] not in PREFIX_CELLS:
+        raise ConfigError(f"{where}: key 'cell': value {values['cell']!r} is not allowed with "
+                          f"key 'pipeline' {mode!r}; expected one of {', '.join(PREFIX_CELLS)}")
     block = values["block_width"]
     if mode == "blocks" and (not _is_int(block) or not 1 <= block <= values["width"]):
         raise _fail(where, "block_width", block, f"an integer from 1 to width ({values['width']})")
@@ -250,36 +346,83 @@ def check_mode(where: str, data: dict, values: dict) -> None:
                     f"an integer from 0 to the depth of the {values['cell']} network ({depth})")
 
 
-class _NoAliasLoader(yaml.SafeLoader):
-    """A safe loader that refuses anchors and aliases (no alias bombs, no shared nodes)."""
+class _StrictLoader(yaml.SafeLoader):
+    """A safe loader for configs: the plain scalars of YAML 1.2's JSON schema only, and no
+    anchors, aliases, merge keys, tags, repeated keys or deep nesting.
+
+    YAML 1.1 (PyYAML's default) reads `yes`/`on` as true, `0100` as octal 64, `6_4` as 64 and
+    `1:04` as 64 (base 60).  Here a plain scalar is `null`, `true`, `false`, a decimal integer
+    `-?(0|[1-9][0-9]*)` or else text, which then fails the key's type check showing the text
+    as written.  The nesting bound is kept while scanning, before PyYAML's scanner (whose cost
+    grows with the square of the flow depth) or its recursive composer can take long or
+    overflow the stack.
+    """
+
+    yaml_implicit_resolvers: dict = {}  # filled below: this loader's own, not SafeLoader's
+
+    def _deeper(self):
+        """Called as a collection opens: refuse it when it is one level too many."""
+        if self.flow_level + len(self.indents) > MAX_NESTING:
+            raise yaml.scanner.ScannerError(None, None, "collections nested deeper than "
+                                            f"{MAX_NESTING} levels", self.get_mark())
+
+    def fetch_flow_collection_start(self, token_class):
+        super().fetch_flow_collection_start(token_class)
+        self._deeper()
+
+    def add_indent(self, column):
+        added = super().add_indent(column)
+        if added:
+            self._deeper()
+        return added
 
     def compose_node(self, parent, index):
-        if self.check_event(yaml.AliasEvent):
-            event = self.peek_event()
-            raise yaml.composer.ComposerError(None, None, "aliases are not allowed",
+        event = self.peek_event()
+        what = ("aliases" if isinstance(event, yaml.AliasEvent)
+                else "anchors" if event.anchor is not None
+                else "tags" if getattr(event, "tag", None) is not None else None)
+        if what:
+            raise yaml.composer.ComposerError(None, None, f"{what} are not allowed",
                                               event.start_mark)
         return super().compose_node(parent, index)
 
     def construct_mapping(self, node, deep=False):
         """A mapping in which every key is given once (YAML leaves a repeated key's meaning
-        open; PyYAML would keep the last value without a word)."""
+        open; PyYAML would keep the last value without a word) and none is a merge key."""
         first = {}
         for key_node, _ in node.value:
+            if isinstance(key_node, yaml.ScalarNode) and key_node.value == "<<" \
+                    and key_node.style is None:
+                raise yaml.constructor.ConstructorError(
+                    None, None, "merge keys (<<) are not allowed", key_node.start_mark)
             key = self.construct_object(key_node, deep=True)
             if not isinstance(key, str):
                 continue  # from_mapping refuses it by name
             if key in first:
                 raise yaml.constructor.ConstructorError(
-                    None, None, f"key {key!r} is given twice (first at line {first[key] + 1}); "
-                    "expected each key once", key_node.start_mark)
+                    None, None, f"key {_shown(key)} is given twice (first at line "
+                    f"{first[key] + 1}); expected each key once", key_node.start_mark)
             first[key] = key_node.start_mark.line
         return super().construct_mapping(node, deep)
+
+    def construct_yaml_int(self, node):
+        text = self.construct_scalar(node)
+        return LongInteger(text) if len(text.lstrip("-")) > MAX_INT_DIGITS else int(text)
+
+
+for _tag, _pattern, _first in (
+        ("null", r"null\Z", "n"),
+        ("bool", r"(?:true|false)\Z", "tf"),
+        ("int", r"-?(?:0|[1-9][0-9]*)\Z", "-0123456789")):
+    _StrictLoader.add_implicit_resolver(f"tag:yaml.org,2002:{_tag}", re.compile(_pattern),
+                                        list(_first))
+_StrictLoader.add_constructor("tag:yaml.org,2002:int", _StrictLoader.construct_yaml_int)
 
 
 def parse_text(text: str, where: str) -> Config:
     """Parse YAML text into a validated `Config`."""
     try:
-        data = yaml.load(text, Loader=_NoAliasLoader)  # noqa: S506 - safe loader subclass
+        data = yaml.load(text, Loader=_StrictLoader)  # noqa: S506 - safe loader subclass
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         at = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
@@ -288,17 +431,51 @@ def parse_text(text: str, where: str) -> Config:
     return from_mapping(data, where)
 
 
+_KINDS = ((stat.S_ISDIR, "a folder"), (stat.S_ISFIFO, "a FIFO"), (stat.S_ISSOCK, "a socket"),
+          (stat.S_ISCHR, "a character device"), (stat.S_ISBLK, "a block device"))
+
+
+class NotRegularFile(OSError):
+    """A path that names a folder, FIFO, socket or device: reading it could block or never end."""
+
+
+def _regular(mode: int) -> None:
+    if not stat.S_ISREG(mode):
+        kind = next((k for test, k in _KINDS if test(mode)), "not a regular file")
+        raise NotRegularFile(f"it is {kind}; expected a regular file")
+
+
+def read_regular(path: str | Path, limit: int) -> bytes:
+    """The first `limit` + 1 bytes of the regular file `path` (so a caller can tell a longer
+    one), without ever blocking: a folder, FIFO, socket or device is refused before it is
+    opened (`NotRegularFile`), opened without blocking and checked again in case it was
+    swapped in between.  Raises OSError."""
+    _regular(os.stat(path).st_mode)
+    flags = os.O_RDONLY
+    for flag in ("O_NONBLOCK", "O_NOCTTY", "O_CLOEXEC", "O_BINARY"):  # those the system has
+        flags |= getattr(os, flag, 0)
+    fd = os.open(path, flags)
+    try:
+        _regular(os.fstat(fd).st_mode)
+        chunks, size = [], 0
+        while size <= limit and (chunk := os.read(fd, limit + 1 - size)):
+            chunks.append(chunk)
+            size += len(chunk)
+        return b"".join(chunks)
+    finally:
+        os.close(fd)
+
+
 def load(path: str | Path) -> Config:
     """Read and validate a config file."""
-    path = Path(path)
-    where = path.name
+    where = Path(path).name or str(path)
     try:
-        raw = path.read_bytes()
+        raw = read_regular(path, MAX_CONFIG_BYTES)
     except OSError as exc:
         raise ConfigError(f"{where}: cannot read config: {exc.strerror or exc}") from None
     if len(raw) > MAX_CONFIG_BYTES:
-        raise ConfigError(f"{where}: config is {len(raw)} bytes; expected at most "
-                          f"{MAX_CONFIG_BYTES}")
+        raise ConfigError(f"{where}: config is larger than {MAX_CONFIG_BYTES} bytes; expected "
+                          f"a file of at most {MAX_CONFIG_BYTES} bytes")
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:

@@ -17,7 +17,8 @@ from . import config
 from .config import KEYS, MODE_KEYS, Config
 
 SPLIT_KEYS = ("slice_width", "slices")
-EDITED = ("pipeline", "cell", *SPLIT_KEYS, *MODE_KEYS)  # the keys `fit` chooses
+PREFIX_KEYS = tuple(k for k in MODE_KEYS if k not in SPLIT_KEYS)  # the prefix modes' keys
+EDITED = ("pipeline", "cell", *SPLIT_KEYS, *PREFIX_KEYS)  # the keys `fit` chooses
 
 
 def rewrite(text: str, chosen: Config, where: str = "config") -> str:
@@ -63,7 +64,7 @@ def wanted(text_keys: dict, chosen: Config) -> dict:
         for key in SPLIT_KEYS:
             if key in text_keys:
                 out[key] = None
-    for key in MODE_KEYS:
+    for key in PREFIX_KEYS:
         if key in norm:
             want(key, norm[key], norm[key] != KEYS[key][1])
         elif key in text_keys:

@@ -11,7 +11,7 @@ import shutil
 import tempfile
 from pathlib import Path
 
-from . import chart, report, tidy
+from . import chart, flowfiles, report, verilog
 from .plan import Plan
 from .testbench import testbench, vector_file
 from .vectors import hex_lines, suite
@@ -20,21 +20,9 @@ DEFAULT_VECTORS = 1000
 DEFAULT_SEED = 1
 
 
-def unit_verilog(plan: Plan, fault: str | None = None) -> str:
-    """The unit as Verilog, with the plan's header on top (deterministic: no paths, no src).
-
-    `fault` (tests only) plants one of `unit.FAULTS` for the proof to find.  Amaranth is
-    imported here, not at the top, so that commands that only plan start instantly.
-    """
-    from amaranth.back import verilog
-
-    from .unit import PipelinedAdder, clock_domain
-
-    top = PipelinedAdder(plan, fault=fault)
-    text = verilog.convert(top, name=plan.config.name, ports=top.ports(),
-                           emit_src=False, strip_internal_attrs=True,
-                           missing_domain=clock_domain(plan))
-    return report.verilog_header(plan) + tidy.drop_unread(text)
+def unit_verilog(plan: Plan) -> str:
+    """The unit as readable Verilog-2001 (deterministic: no paths, no dates)."""
+    return verilog.write(plan.netlist())
 
 
 def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
@@ -50,10 +38,54 @@ def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
         vector_file(plan): hex_lines(plan, vecs),
         f"{name}.txt": report.report(plan),
         f"{name}_chart.svg": chart.svg(plan, measured, measured_source),
+        **flowfiles.files(plan),
     }
     manifest_name = f"{name}.json"
     files[manifest_name] = report.manifest_text(plan, [*files, manifest_name])
     return files
+
+
+class BuildFolderError(ValueError):
+    """A folder is not a complete carrypipe build (the message is one line)."""
+
+
+def read_build(folder: Path):
+    """(plan, unit Verilog text) of a build folder: the plan from its manifest's config, the
+    text of the `.v` file as it is on disk.  The manifest must agree with its config."""
+    import json
+
+    from .config import ConfigError, from_mapping
+    from .plan import make_plan
+
+    manifests = []
+    for path in sorted(folder.glob("*.json")):
+        try:
+            doc = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError, UnicodeDecodeError):
+            continue
+        if isinstance(doc, dict) and doc.get("generator", {}).get("name") == "carrypipe" \
+                and "config" in doc and "module" in doc:
+            manifests.append((path, doc))
+    if len(manifests) != 1:
+        raise BuildFolderError(f"{folder}: expected one carrypipe manifest (<name>.json) in "
+                               f"the folder, found {len(manifests)}")
+    path, doc = manifests[0]
+    try:
+        plan = make_plan(from_mapping(doc["config"], where=path.name))
+    except ConfigError as exc:
+        raise BuildFolderError(f"{path}: the manifest's config is not valid: {exc}") from None
+    ports = [{"name": p.name, "direction": p.direction, "width": p.width} for p in plan.ports]
+    if doc.get("latency") != plan.latency or doc.get("ports") != ports \
+            or doc["module"] != plan.config.name:
+        raise BuildFolderError(f"{path}: the manifest's module, latency or ports do not match "
+                               "its config; rebuild the folder")
+    unit = folder / f"{plan.config.name}.v"
+    try:
+        text = unit.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise BuildFolderError(f"{unit}: cannot read the unit: "
+                               f"{getattr(exc, 'strerror', None) or exc}") from None
+    return plan, text
 
 
 def write(files: dict[str, str | bytes], out_dir: str | Path) -> list[Path]:

@@ -112,7 +112,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
             norm = row.config.normalized()
             for seed in seeds:
                 keys[id(row), seed] = cache.key(norm, dev.name, seed, versions)
-                hit = store.get(keys[id(row), seed])
+                hit = store.get(keys[id(row), seed], seed)
                 if hit is not None:
                     row.measured.append(hit)
                     cached += 1
@@ -281,7 +281,7 @@ def chart_figures(outcome: Outcome) -> tuple[dict[int, float], str]:
     stage = harness.stage_of(path.end, row.plan)
     seeds = f"median of seeds 1-{s.seeds}" if s.seeds > 1 else "seed 1"
     at = "" if stage is not None else "; stage by the unit-gate model"
-    return ({row.plan.slowest.index if stage is None else stage: round(1000 / row.mhz, 3)},
+    return ({row.plan.slowest[0].index if stage is None else stage: round(1000 / row.mhz, 3)},
             f"{row.mhz:g} MHz, {seeds}, {s.device.name}, nextpnr; critical path "
             f"{path.start} -> {path.end}{at}")
 

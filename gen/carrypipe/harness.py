@@ -94,10 +94,11 @@ def harness_verilog(plan: Plan) -> str:
     conns += [f".{p.name}(res_{p.name})" for p in outputs]
     wires = [f"  wire [{p.width - 1}:0] res_{p.name};" for p in outputs]
     result = "{" + ", ".join(f"res_{p.name}" for p in reversed(outputs)) + "}"
-    # Bit i loads bit i-1 ^ bit i+1 (a 2-input LUT): no harness register shares its input
-    # with a unit register, so synthesis cannot merge the unit's input registers into it.
+    # Bit i loads bit i-1 ^ bit i+1, the top bit bit n-2 ^ the pin (a 2-input LUT each): no
+    # harness register loads what a unit register loads (one input bit), so synthesis cannot
+    # merge a unit register (an operand's skew, say) into one of the harness.
     shift_in = (SERIAL_IN if n_in == 1 else f"{{{SHIFT_IN}[{n_in - 2}:0], {SERIAL_IN}}} ^ "
-                f"{{1'b0, {SHIFT_IN}[{n_in - 1}:1]}}")
+                f"{{{SERIAL_IN}, {SHIFT_IN}[{n_in - 1}:1]}}")
     shift_out = SERIAL_IN if n_out == 1 else f"{{{CAPTURE}[{n_out - 2}:0], {SERIAL_IN}}}"
     lines = [
         f"// Measurement harness of {plan.config.name}: serial shift-in, capture-and-shift-out.",

@@ -1,108 +1,208 @@
-"""The prefix pipeline modes (`levels`, `blocks`) as Amaranth logic, built from the plan's
-schedule and register words and nothing else (see `schedule.py` for the structure).
+"""The prefix pipeline modes (`levels`, `blocks`, a comparator's `levels`) as a netlist, built
+from the plan's schedule and register words and nothing else (see `schedule.py`).
 
-Every schedule term becomes one expression in the stage that forms it; every register word
-of `plan.words` becomes one reset-less register, and a term crossing rank r sits in the
-word of its kind at rank r that covers its bit position.
+Every schedule term becomes one expression in the stage that forms it: inline in the register
+that holds it when only registers read it, or a wire (named after its kind and prefix level,
+`grp_gen_l3`) when logic of the same stage reads it too.  Every register word of
+`plan.words` becomes one register, and a term crossing rank r sits in the word of its kind at
+rank r that covers its bit position.  Bits of a word that follow one pattern (a prefix level
+over a run of bits) are written as one vector assignment.
 
-A wire-register word (a far operand's own copy) loads the same value in the same cycle as
-the local copy of that term, so synthesis would merge the two (Yosys `opt_merge` merges
-equal flip-flops whatever `keep` says on their wires; it spares only cells that carry
-`keep` themselves, which Verilog attributes on a `reg` do not give).  Far copies therefore
-power up as ones, local copies as zeros: flip-flops with different initial values are not
-equal, so both survive, and no data register's power-up value is part of the port contract.
+A wire-register word (a far operand's own copy) loads the same value in the same cycle as the
+local copy of that term, so synthesis would merge the two; both carry `keep` (see
+`schedule.Schedule.kept_ranks`), which Yosys honours on the flip-flops of a `(* keep *)`
+always block whatever the registers' initial values.
 """
 
 from __future__ import annotations
 
-from amaranth.hdl import Const, Module, Mux, Signal, Value
+from . import cells, header
+from .netlist import Const, Expr, Mux, Netlist, Ref, bit, cat, part
+from .pipeline import Frame
 
-from . import cells
-from .plan import PrefixPlan
 
-
-def build(m: Module, plan: PrefixPlan, a: Value, b: Value, cin, sum_out: Value, cout_out):
-    """Add the pipelined prefix adder of `plan` to `m`, driving `sum_out` (and `cout_out`)."""
-    sch = plan.schedule
+def build(plan) -> Netlist:
+    c, kind, sch = plan.config, plan.unit, plan.schedule
+    f = Frame(plan)
+    b = f.b
     terms = sch.terms
-    words: dict[str, list] = {}  # "<kind>_<rank>" -> [(word, register)]
-    for word in plan.words:
-        if word.kind in ("input", "control"):
-            continue
-        init = (1 << word.width) - 1 if word.kind == "wire" else 0
-        reg = Signal(word.width, name=word.name, reset_less=True, init=init)
-        words.setdefault(word.name.rsplit("_", 1)[0], []).append((word, reg))
+    sub = kind.op == "sub"
+    a_in, b_in = f.src.get("a"), f.src.get("b")
+    flags = {t: f.src[t] for t in kind.travellers}
+    port = kind.carry_in_port(c)
+    c0 = kind.core_carry_in(f.src[port] if port else None, flags) \
+        if kind.has_carry_in(c) else None
+    y_in = kind.y_operand(b_in, flags) if kind.result else b_in
 
-    def slot(t, rank):
-        """The register bits holding term `t` in rank `rank`."""
-        for word, reg in words[f"{t.kind}_{rank}"]:
+    regs: dict[tuple[str, int], list] = {}  # (term kind, rank) -> [(word, register)]
+    value: dict[int, Expr] = {}  # term -> its value in the stage that forms it
+    chains: dict[tuple[int, int], Ref] = {}  # (block, carry-in) -> its chain's wire
+    readers = {x for t in terms if t.index in sch.last for x in t.args
+               if terms[x].stage == t.stage}
+
+    def held(x: int, rank: int) -> Expr:
+        t = terms[x]
+        for word, r in regs[(t.kind, rank)]:
             if word.lsb <= t.lsb < word.lsb + word.width:
-                at = t.lsb - word.lsb
-                return reg[at:at + t.width]
-        raise AssertionError(f"no register word for {t.kind} at bit {t.lsb}, rank {rank}")
+                return r[t.lsb:t.lsb + t.width]
+        raise AssertionError(f"no register for {t.kind} at bit {t.lsb}, rank {rank}")
 
-    value: dict[int, Value] = {}  # term index -> value as formed in its own stage
-    chains: dict[tuple[int, int], tuple[Value, Value]] = {}
-    carried: set[tuple[int, int]] = set()  # chains whose carry-out some term reads
+    def at(x: int, stage: int) -> Expr:
+        """Term x as the logic of `stage` sees it: its own value, or its last register."""
+        return value[x] if terms[x].stage == stage else held(x, stage - 1)
 
-    def at(index, stage):
-        """Term `index` as seen by logic of `stage`: its own value, or its last register copy."""
-        t = terms[index]
-        return value[index] if t.stage == stage else slot(t, stage - 1)
+    def operands(q: int):
+        lsb, width = sch.lsbs[q], sch.widths[q]
+        return a_in.vec[lsb:lsb + width], _slice(y_in, lsb, width)
 
-    def chain(q, plus_one):
-        """Block q's sum and carry-out for carry-in 0 (block 0: cin) or, with plus_one, for 1."""
+    def chain(q: int, plus_one: bool) -> Ref:
+        """Block q's chain for carry-in 0 (block 0: the unit's carry-in) or 1, as a wire of
+        its result bits and (when read) its chain bit on top."""
         if (q, plus_one) not in chains:
-            lsb, width = sch.lsbs[q], sch.widths[q]
-            carry = Const(1, 1) if plus_one else (cin if q == 0 else None)
-            chains[q, plus_one] = cells.native(m, a[lsb:lsb + width], b[lsb:lsb + width], carry,
-                                               f"blk{q}_c{int(plus_one)}")
+            x, y = operands(q)
+            carry = Const(1, 1) if plus_one else (c0 if q == 0 else None)
+            if sch.flavour == "compare":
+                if c.signed and q == len(sch.widths) - 1:  # sign bits inverted: signed order
+                    x, y = (_flip_top(v) for v in (x, y))
+                got = cells.core(cells.Slot(b, f"blk{q}_c{int(plus_one)}", 0), c.cell, x, y,
+                                 Const(int(plus_one), 1), "sub", True, False)
+                chains[q, plus_one] = got
+            else:
+                want = any(t.op == f"chain{int(plus_one)}_carry" and t.pos == q
+                           and t.index in sch.last for t in terms)
+                slot = cells.Slot(b, f"blk{q}_c{int(plus_one)}", sch.lsbs[q])
+                total = cells.core(slot, "native", x, y, carry, kind.op, want)
+                chains[q, plus_one] = slot.wire("total", total).all
         return chains[q, plus_one]
 
-    for t in terms:
-        if t.index not in sch.last:
-            continue
+    def form(t) -> Expr:
         args = [at(x, t.stage) for x in t.args]
-        i = t.pos
-        if t.op == "prop":
-            v = a[i] ^ b[i]
-        elif t.op == "gen":
-            v = a[i] & b[i]
-        elif t.op == "gen_cin":
-            v = (a[0] & b[0]) | ((a[0] ^ b[0]) & cin)
-        elif t.op == "xor_cin":
-            v = args[0] ^ cin
-        elif t.op == "xor":
-            v = args[0] ^ args[1]
-        elif t.op == "dot_g":
-            v = args[0] | (args[1] & args[2])
-        elif t.op == "dot_p":
-            v = args[0] & args[1]
-        elif t.op == "wire":
-            v = args[0]
-        elif t.op == "select":
-            v = Mux(args[2], args[1], args[0])
-        else:  # chain<0|1>_<sum|carry>
-            key = (i, t.op.startswith("chain1"))
-            total, carry = chain(*key)
-            v = total
-            if t.op.endswith("carry"):
-                v = carry
-                carried.add(key)
-        value[t.index] = v
-        for rank in range(t.stage, min(sch.last[t.index], sch.final)):
-            m.d.sync += slot(t, rank).eq(v if rank == t.stage else slot(t, rank - 1))
+        i, op = t.pos, t.op
+        if op == "flag":
+            return flags[t.kind]
+        if op in ("prop", "gen", "gen_cin"):
+            xi, yi = bit(a_in, i), bit(y_in, i)
+            prop = ~(xi ^ yi) if sub else xi ^ yi
+            if op == "prop":
+                return prop
+            gen = (~xi if sub else xi) & yi
+            return gen if op == "gen" else gen | prop & c0
+        if op == "sum":
+            p = args[0]
+            s = p if len(args) == 1 else p ^ args[1]
+            return ~s if sub else s
+        if op == "sum_cin":
+            return ~(args[0] ^ c0) if sub else args[0] ^ c0
+        if op == "dot_g":
+            return args[0] | args[1] & args[2]
+        if op == "dot_p":
+            return args[0] & args[1]
+        if op in ("wire", "lt", "ovf_gen"):
+            return args[0]
+        if op in ("xor", "ovf_cin"):
+            return args[0] ^ (args[1] if op == "xor" else c0)
+        if op == "select":
+            return Mux(args[2], args[1], args[0])
+        if op == "eq":
+            return args[1] & ~args[0]
+        if op == "gt":
+            return ~args[0]
+        total = chain(i, op.startswith(("chain1", "cmp1")))
+        if op.startswith("cmp"):
+            return total
+        w = sch.widths[i]
+        if op.endswith("_sum"):
+            return part(total, 0, w)
+        if op.endswith("_carry"):
+            return bit(total, w)
+        x, y = operands(i)  # chain<k>_ovf: the sign rule on the chain's top bits
+        return kind.overflow(bit(x, w - 1), bit(y, w - 1), bit(total, w - 1))
 
-    for (q, plus_one), (_, carry) in chains.items():
-        if (q, plus_one) not in carried:  # the top block without cout: named for lint tools
-            m.d.comb += Signal(name=f"blk{q}_c{int(plus_one)}_carry_unused").eq(carry)
+    first = plan.input_cycles
+    for st in plan.stages:
+        stage = st.index + 1
+        b.section(*header.stage_title(plan, st))
+        if stage < sch.final:
+            for word in plan.words:
+                if word.stage == stage and word.kind not in ("input", "control"):
+                    regs.setdefault((word.family, stage), []).append((word, f.reg(word.name)))
+        else:
+            outs = {w.family: f.reg(w.name) for w in plan.words
+                    if w.kind == "stage" and w.edge == first + stage}
+        # Terms that same-stage logic reads become wires, one family per kind and level,
+        # declared (packed into runs) just before their first reader.
+        pending: dict[tuple, dict[int, tuple[int, Expr]]] = {}
+        waiting: dict[int, tuple] = {}  # term -> its pending family
 
-    (_, sum_stage), = words["sum"]
-    for q, index in enumerate(sch.sums):
-        lsb, width = sch.lsbs[q], sch.widths[q]
-        m.d.sync += sum_stage[lsb:lsb + width].eq(at(index, sch.final))
-    m.d.comb += sum_out.eq(sum_stage)
-    if cout_out is not None:
-        (_, carry_stage), = words["carry"]
-        m.d.sync += carry_stage.eq(at(sch.cout, sch.final))
-        m.d.comb += cout_out.eq(carry_stage)
+        def flush(key):
+            group = pending.pop(key)
+            name = key[0] if key[1] is None else f"{key[0]}_l{key[1] + 1}"
+            wires = b.wire_runs(name, {pos: e for pos, (_, e) in group.items()})
+            for pos, (x, _) in group.items():
+                value[x] = wires[pos]
+                del waiting[x]
+
+        for t in terms:
+            if t.stage != stage or t.index not in sch.last:
+                continue
+            for x in t.args:
+                if x in waiting:
+                    flush(waiting[x])
+            e = form(t)
+            if t.index in readers and t.width == 1 and not isinstance(e, Ref):
+                key = (t.kind, t.level)
+                pending.setdefault(key, {})[t.lsb] = (t.index, e)
+                waiting[t.index] = key
+            else:
+                value[t.index] = e
+        for key in list(pending):
+            flush(key)
+
+        if stage < sch.final:
+            for (family, rank), found in regs.items():
+                if rank != stage:
+                    continue
+                for word, r in found:
+                    inside = [t for t in sch.crossing(stage) if t.kind == family
+                              and word.lsb <= t.lsb < word.lsb + word.width]
+                    _load(b, r, inside, lambda t: at(t.index, stage))
+        else:
+            out = sch.outputs
+            if "result" in out:
+                r = outs[f"{kind.result}_stage"]
+                _load(b, r, [terms[x] for x in out["result"]], lambda t: at(t.index, stage))
+            for key, family in (("chain", f"{kind.chain[0]}_stage"),
+                                ("overflow", "overflow_stage"), ("lt", "lt_stage"),
+                                ("eq", "eq_stage"), ("gt", "gt_stage")):
+                if key in out:
+                    b.load(outs[family], at(out[key], stage))
+    drives = {}
+    for port_name, family in kind.output_families(c).items():
+        drives[port_name] = b.names[f"{family}_stage"].all
+    if kind.result:
+        drives[kind.result] = b.names[f"{kind.result}_stage"].all
+    return f.finish(drives)
+
+
+def _slice(e: Expr, lsb: int, width: int) -> Expr:
+    return part(e, lsb, width)
+
+
+def _flip_top(v: Expr) -> Expr:
+    """An operand with its top bit inverted (signed order as unsigned order)."""
+    w = v.width
+    return ~v if w == 1 else cat(part(v, 0, w - 1), ~bit(v, w - 1))
+
+
+def _load(b, reg, inside, value_of) -> None:
+    """Load register `reg` from the terms it holds: one-bit terms packed into runs, wider
+    terms (block sums) one load each."""
+    bits = {}
+    for t in inside:
+        if t.width == 1:
+            bits[t.lsb] = value_of(t)
+        else:
+            b.load(reg[t.lsb:t.lsb + t.width], value_of(t))
+    if bits:
+        b.load_bits(reg, bits)
+

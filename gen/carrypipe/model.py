@@ -30,7 +30,7 @@ def feature(plan: Plan) -> float | None:
     """The model's x for a plan (None for a structure it does not describe)."""
     if plan.config.normalized().get("pipeline", "slices") != "slices":
         return None
-    slow = plan.slowest
+    slow = plan.slowest[0]
     return float(slow.width if plan.config.cell == "native" else slow.delay)
 
 

@@ -1,16 +1,24 @@
 """The plan: everything about a pipelined unit that can be known without HDL.
 
-From a validated `Config` the plan derives the slices, the cycles each operand bit waits
-before its slice adds it (input skew) and each result bit waits after (output deskew), the
-latency, the register bits of every kind, and the unit-gate delay of every stage.  Every
-number that the Verilog header, the manifest, the report, the chart and the tests show is
-read from here.
+From a validated `Config` the plan derives the stages, the cycles each operand bit waits
+before its stage uses it (input skew) and each result bit waits after (output deskew), the
+latency, every register word (what it holds, its bits, the edge that loads it), the register
+bits of every kind (counted from those words), and the unit-gate delay of every stage.
+Every number that the Verilog header, the manifest, the report, the chart and the tests
+show is read from here.
+
+The pipeline mode is a type, chosen once by the config key `pipeline`: `SlicedPlan` cuts the
+carry chain into slices with skew and deskew triangles; `PrefixPlan` (`levels`, `blocks`)
+pipelines a parallel-prefix network, every stage spanning all bits.  Each owns its builder,
+its report table, its label in `fit` and the proof methods that apply to it.  What the unit
+computes is the unit kind's (`units.py`), read through `plan.unit`.
 
 Timing.  Inputs applied before rising edge n give their results right after edge n+L-1,
-with L = S (+1 with `register_inputs`) for S slices.  Slice i adds its bits in cycle i
-(counted after the input register, if any) and registers its sum and carry at the end of it.
+with L = (stages) + [register_inputs].  Stage i computes in cycle i (counted after the input
+register, if any) and registers its results at the end of it.
 
-Register bits (closed forms, S slices, slice i starting at bit lsb_i, lsb_0 = 0):
+Register bits of an adder in slices (closed forms, S slices, slice i starting at bit lsb_i,
+lsb_0 = 0; the tests keep them as an oracle for the counts taken from the words):
   stage   = W + (S - 1) + [carry_out]          every sum bit once, one carry between slices
   skew    = 2 * sum_{i=1}^{S-1} (W - lsb_i)    a and b bits above slice i wait until cycle i
   deskew  = sum_{i=1}^{S-1} lsb_i              result bits below slice i travel with it
@@ -18,10 +26,6 @@ Register bits (closed forms, S slices, slice i starting at bit lsb_i, lsb_0 = 0)
   control = [valid] * L                        the valid bit, delayed like the data
 For an even split into S slices of k bits (W = S*k) this gives skew = k*S*(S-1) and
 deskew = k*S*(S-1)/2: two triangles, the skew one twice as large because both operands wait.
-
-The prefix modes (`pipeline: levels` or `blocks`) are planned by `schedule.py` instead: a
-`PrefixPlan` whose stages each span every bit, so L = (stages) (+1 with `register_inputs`),
-and whose register bits are exact counts from the pruned schedule (see there).
 """
 
 from __future__ import annotations
@@ -29,20 +33,80 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
-from . import prefix, schedule
-from .config import PREFIX_CELLS, Config
+from . import cells, schedule, units
+from .config import Config
+from .units import Port
+
+__all__ = ["Plan", "SlicedPlan", "PrefixPlan", "Slice", "Stage", "Word", "Port", "make_plan"]
+
+
+@dataclass(frozen=True)
+class Word:
+    """One register word of the unit, as named in the Verilog.
+
+    `family` says what it holds (a_skew, sum_stage, valid, grp_gen, ...), `stage` the slice
+    or rank in its name, `position` the first prefix position of a prefix-mode run.  `lsb`
+    is the operand/result bit position of the word's bit 0 (a carry sits at the bit above
+    its slice), and `edge` the rising edge that loads it, counted from 1 for the first edge
+    after the inputs are applied.  Charts, register counts and the netlist are drawn from
+    these.
+    """
+
+    kind: str  # input, stage, skew, deskew, control; prefix modes: prefix, result, wire
+    family: str
+    stage: int | None
+    lsb: int
+    width: int
+    edge: int
+    position: int | None = None
+    keep: bool = False  # an intended copy of an equal register: synthesis must keep both
+
+    @property
+    def name(self) -> str:
+        parts = [self.family]
+        if self.stage is not None:
+            parts.append(str(self.stage))
+        if self.position is not None:
+            parts.append(str(self.position))
+        return "_".join(parts)
+
+
+class Registers(dict):
+    """Register bits by kind (a dict in a fixed order; `r.skew` reads `r["skew"]`), with the
+    total."""
+
+    def __getattr__(self, kind: str) -> int:
+        try:
+            return self[kind]
+        except KeyError:
+            raise AttributeError(kind) from None
+
+    @property
+    def total(self) -> int:
+        return sum(self.values())
+
+    def as_dict(self) -> dict:
+        return {**self, "total": self.total}
+
+
+def count_registers(words, kinds: tuple[str, ...]) -> Registers:
+    """Bits per kind from the words: the `kinds` always (0 when absent), then any other."""
+    counts = Registers({k: 0 for k in kinds})
+    for w in words:
+        counts[w.kind] = counts.get(w.kind, 0) + w.width
+    return counts
 
 
 @dataclass(frozen=True)
 class Slice:
-    """One pipeline stage's run of bits [lsb, msb] and its adder cell."""
+    """One pipeline stage's run of bits [lsb, msb] and its cell."""
 
     index: int
     lsb: int
     width: int
     cell: str
-    carry_in: bool  # has a carry input: from the previous slice, or `cin` for slice 0
-    carry_out: bool  # its carry is registered: for the next slice, or as `cout`
+    carry_in: bool  # has a chain input: from the previous slice, or the port for slice 0
+    carry_out: bool  # its chain bit is registered: for the next slice, or for the port
     wait_before: int  # cycles its operand bits wait in the skew registers
     wait_after: int  # cycles its result bits wait in the deskew registers
     depth: int  # logic levels of its carry network (ripple: width - 1)
@@ -53,160 +117,20 @@ class Slice:
     def msb(self) -> int:
         return self.lsb + self.width - 1
 
-    def network(self) -> prefix.Network:
-        """The carry network that the cell style implies (ripple and native: serial)."""
-        style = self.cell if self.cell in PREFIX_CELLS else "serial"
-        return prefix.network(style, self.width)
-
-
-@dataclass(frozen=True)
-class Registers:
-    """Register bit counts by kind."""
-
-    input: int
-    stage: int
-    skew: int
-    deskew: int
-    control: int
-    # Prefix modes only (None otherwise): group terms and the bit g/p feeding them, result
-    # bits on their way to the output (block sums, finished sum bits), wire-register copies.
-    prefix: int | None = None
-    result: int | None = None
-    wire: int | None = None
-
-    @property
-    def total(self) -> int:
-        return (self.input + self.stage + self.skew + self.deskew + self.control
-                + (self.prefix or 0) + (self.result or 0) + (self.wire or 0))
-
-    def as_dict(self) -> dict:
-        extra = {k: v for k, v in (("prefix", self.prefix), ("result", self.result),
-                                   ("wire", self.wire)) if v is not None}
-        return {"input": self.input, "stage": self.stage, **extra, "skew": self.skew,
-                "deskew": self.deskew, "control": self.control, "total": self.total}
-
-
-@dataclass(frozen=True)
-class Word:
-    """One register word of the unit, as named in the Verilog.
-
-    `lsb` is the operand/result bit position of the word's bit 0 (a carry sits at the bit
-    above its slice), and `edge` the rising edge that loads it, counted from 1 for the first
-    edge after the inputs are applied.  Charts and register counts are drawn from these.
-    """
-
-    kind: str  # input, stage, skew, deskew, control; prefix modes: prefix, result, wire
-    name: str
-    lsb: int
-    width: int
-    edge: int
-
-
-@dataclass(frozen=True)
-class Port:
-    name: str
-    direction: str  # "input" or "output"
-    width: int
-    meaning: str
-
-
-@dataclass(frozen=True)
-class Plan:
-    config: Config
-    slices: tuple[Slice, ...]
-
-    @property
-    def width(self) -> int:
-        return self.config.width
-
-    @property
-    def input_cycles(self) -> int:
-        return 1 if self.config.register_inputs else 0
-
-    @property
-    def latency(self) -> int:
-        return len(self.slices) + self.input_cycles
-
-    @cached_property
-    def registers(self) -> Registers:
-        c, w = self.config, self.width
-        inner = self.slices[1:]
-        return Registers(
-            input=(2 * w + int(c.carry_in)) if c.register_inputs else 0,
-            stage=w + len(inner) + int(c.carry_out),
-            skew=2 * sum(w - s.lsb for s in inner),
-            deskew=sum(s.lsb for s in inner),
-            control=self.latency if c.valid else 0,
-        )
-
-    @cached_property
-    def words(self) -> tuple[Word, ...]:
-        """Every register word, by the edge that loads it (see the module docstring)."""
-        w, first = self.width, self.input_cycles
-        words = list(self.io_words())
-        for s in self.slices:
-            edge = first + s.index + 1
-            words.append(Word("stage", f"sum_stage_{s.index}", s.lsb, s.width, edge))
-            if s.carry_out:
-                words.append(Word("stage", f"carry_stage_{s.index}", s.lsb + s.width, 1, edge))
-            if s.index > 0:
-                words += [Word("skew", f"{op}_skew_{s.index}", s.lsb, w - s.lsb, edge - 1)
-                          for op in ("a", "b")]
-                words.append(Word("deskew", f"sum_deskew_{s.index}", 0, s.lsb, edge))
-        return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.name)))
-
-    def io_words(self) -> list[Word]:
-        """The input-register and valid-chain words, the same in every pipeline mode."""
-        c, w = self.config, self.width
-        words = []
-        if c.register_inputs:
-            words += [Word("input", "a_in", 0, w, 1), Word("input", "b_in", 0, w, 1)]
-            if c.carry_in:
-                words.append(Word("input", "cin_in", 0, 1, 1))
-        if c.valid:
-            words += [Word("control", f"valid_{k}", 0, 1, k) for k in range(1, self.latency + 1)]
-        return words
-
-    @property
-    def slowest(self) -> Slice:
-        """The stage with the longest unit-gate path (the lowest index on a tie)."""
-        return max(self.slices, key=lambda s: (s.delay, -s.index))
-
-    @cached_property
-    def ports(self) -> tuple[Port, ...]:
-        c, w = self.config, self.width
-        ports = [Port("clk", "input", 1, "clock; every register updates on its rising edge")]
-        if c.reset == "sync":
-            ports.append(Port("rst", "input", 1, "synchronous reset of the valid bits only"))
-        if c.enable:
-            ports.append(Port("en", "input", 1, "clock enable: when low every register holds"))
-        ports += [Port("a", "input", w, "first operand"), Port("b", "input", w, "second operand")]
-        if c.carry_in:
-            ports.append(Port("cin", "input", 1, "carry into bit 0"))
-        if c.valid:
-            ports.append(Port("in_valid", "input", 1, "marks a, b as valid"))
-        ports.append(Port("sum", "output", w, f"(a + b{' + cin' if c.carry_in else ''}) mod 2^{w}"))
-        if c.carry_out:
-            ports.append(Port("cout", "output", 1, "carry out of the top bit"))
-        if c.valid:
-            ports.append(Port("out_valid", "output", 1, "in_valid, delayed by the latency"))
-        return tuple(ports)
+    def network(self):
+        return cells.STYLES[self.cell].carry_network(self.width)
 
 
 @dataclass(frozen=True)
 class Stage:
-    """One stage of a prefix-mode pipeline: it spans every bit and evaluates some prefix levels.
-
-    It offers the attributes of `Slice` that reports and manifests read (lsb, width, cell,
-    depth, nodes, delay, waits: none, since all bits advance together).
-    """
+    """One stage of a prefix-mode pipeline: it spans every bit and evaluates some levels."""
 
     index: int  # 0-based, like slices
     lsb: int
     width: int
     cell: str
     levels: tuple[int, ...]  # prefix levels evaluated here (1-based, as in the report)
-    depth: int  # prefix levels evaluated here
+    depth: int
     nodes: int  # prefix nodes of those levels (before pruning)
     delay: int  # unit-gate critical path, register to register
     logic: str
@@ -218,27 +142,165 @@ class Stage:
         return self.lsb + self.width - 1
 
 
+@dataclass(frozen=True)
+class Plan:
+    """What every pipeline mode offers; `stages` are its slices or prefix stages."""
+
+    config: Config
+    stages: tuple
+
+    mode = ""  # set by each mode
+    register_kinds = ()  # kinds the register table always lists
+    proof_methods = ("direct",)
+
+    @property
+    def unit(self) -> units.Kind:
+        return units.KINDS[self.config.unit]
+
+    @property
+    def slices(self) -> tuple:
+        return self.stages
+
+    @property
+    def width(self) -> int:
+        return self.config.width
+
+    @property
+    def input_cycles(self) -> int:
+        return 1 if self.config.register_inputs else 0
+
+    @property
+    def latency(self) -> int:
+        return len(self.stages) + self.input_cycles
+
+    @cached_property
+    def ports(self) -> tuple[Port, ...]:
+        return tuple(self.unit.ports(self.config))
+
+    def port(self, name: str) -> Port | None:
+        return next((p for p in self.ports if p.name == name), None)
+
+    @cached_property
+    def registers(self) -> Registers:
+        return count_registers(self.words, self.register_kinds)
+
+    @property
+    def words(self) -> tuple[Word, ...]:
+        raise NotImplementedError
+
+    @property
+    def slowest(self) -> tuple:
+        """Every stage tied for the longest unit-gate path, lowest index first."""
+        top = max(s.delay for s in self.stages)
+        return tuple(s for s in self.stages if s.delay == top)
+
+    def data_inputs(self) -> list[Port]:
+        """Input ports that carry data (not clk, rst, en)."""
+        return [p for p in self.ports if p.direction == "input"
+                and p.name not in ("clk", "rst", "en")]
+
+    def io_words(self) -> list[Word]:
+        """The input-register and valid-chain words, the same in every pipeline mode."""
+        c = self.config
+        words = []
+        if c.register_inputs:
+            words += [Word("input", f"{p.name}_in", None, 0, p.width, 1)
+                      for p in self.data_inputs() if p.name != "in_valid"]
+        if c.valid:
+            words += [Word("control", "valid", k, 0, 1, k) for k in range(1, self.latency + 1)]
+        return words
+
+    def netlist(self):
+        """The unit as a structural netlist (built by the mode's builder)."""
+        raise NotImplementedError
+
+    @property
+    def can_compose(self) -> bool:
+        """Whether the compositional proof applies (see `compose.py`)."""
+        return ("compositional" in self.proof_methods and self.unit.composable
+                and not self.config.reset_data)
+
+    def structure(self) -> str:
+        """How the unit is cut, in a few words."""
+        raise NotImplementedError
+
+    def label(self) -> str:
+        """A short name of the structure for `fit` tables and plots."""
+        raise NotImplementedError
+
+
+@dataclass(frozen=True)
+class SlicedPlan(Plan):
+    """`pipeline: slices`: slice i adds its bits in cycle i; the skew words shrink, the
+    deskew words grow."""
+
+    mode = "slices"
+    register_kinds = ("input", "stage", "skew", "deskew", "control")
+    proof_methods = ("direct", "compositional")
+
+    @cached_property
+    def words(self) -> tuple[Word, ...]:
+        c, kind, w, first = self.config, self.unit, self.width, self.input_cycles
+        words = self.io_words()
+        last = len(self.stages) - 1
+        for s in self.stages:
+            edge = first + s.index + 1
+            top = s.index == last
+            if kind.result:
+                words.append(Word("stage", f"{kind.result}_stage", s.index, s.lsb, s.width, edge))
+            for name in self.chain_families(top):
+                words.append(Word("stage", f"{name}_stage", s.index, s.lsb + s.width, 1, edge))
+            if s.index > 0:
+                words += [Word("skew", f"{op}_skew", s.index, s.lsb, w - s.lsb, edge - 1)
+                          for op in kind.operands]
+                words += [Word("skew", f"{t}_skew", s.index, 0, 1, edge - 1)
+                          for t in kind.travellers]
+                if kind.result:
+                    words.append(Word("deskew", f"{kind.result}_deskew", s.index, 0, s.lsb,
+                                      edge))
+        return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.name)))
+
+    def chain_families(self, top: bool) -> tuple[str, ...]:
+        """The one-bit stage registers of a slice: the chain handed on (or, for the top
+        slice, the result-side outputs it registers)."""
+        c, kind = self.config, self.unit
+        if not top:
+            return kind.chain
+        if kind.result is None:  # a comparator's verdicts
+            return ("lt", "eq", "gt")
+        return (kind.chain if c.carry_out else ()) + (("overflow",) if c.signed else ())
+
+    def netlist(self):
+        from . import slices
+
+        return slices.build(self)
+
+    def structure(self) -> str:
+        return f"{len(self.stages)} slice(s)"
+
+    def label(self) -> str:
+        split = self.config.slices
+        shape = f"{split[0]}x{len(split)}" if len(set(split)) == 1 else "+".join(map(str, split))
+        return f"{self.config.cell} {shape}"
+
+
 # Register kind of every schedule term kind.
 TERM_KIND = {**{k: "prefix" for k in schedule.PREFIX_KINDS},
-             **{k: "result" for k in schedule.RESULT_KINDS}}
+             **{k: "result" for k in schedule.RESULT_KINDS},
+             **{k: "skew" for k in schedule.OPERAND_KINDS}}
 
 
 @dataclass(frozen=True)
 class PrefixPlan(Plan):
-    """The plan of a `levels` or `blocks` unit; `slices` holds its stages (see `Stage`)."""
+    """`pipeline: levels` or `blocks`: a prefix network with a register rank after every
+    stage; all bits advance together, so there are no skew or deskew triangles."""
 
     schedule: schedule.Schedule | None = None
+    register_kinds = ("input", "stage", "prefix", "result", "wire", "skew", "deskew", "control")
 
     @property
-    def stages(self) -> tuple[Stage, ...]:
-        return self.slices
-
-    @cached_property
-    def registers(self) -> Registers:
-        words = self.words
-        bits = {kind: sum(x.width for x in words if x.kind == kind)
-                for kind in ("input", "stage", "prefix", "result", "wire", "control")}
-        return Registers(skew=0, deskew=0, **bits)
+    def mode(self) -> str:
+        return self.config.pipeline
 
     @cached_property
     def words(self) -> tuple[Word, ...]:
@@ -246,25 +308,70 @@ class PrefixPlan(Plan):
 
         A word is named `<term kind>_<rank>_<first position>` (rank r is loaded at the end of
         stage r, 1-based; a position is a bit in `levels`, a block in `blocks`); the last rank
-        is the output register, `sum_stage` and `carry_stage`.
+        is the output register, `<result>_stage` and `<chain>_stage`.
         """
-        c, w, first, sch = self.config, self.width, self.input_cycles, self.schedule
+        c, first, sch = self.config, self.input_cycles, self.schedule
+        kind = self.unit
         words = self.io_words()
+        kept = sch.kept_ranks()
         for rank in range(1, sch.final):
             runs: dict[str, list[list]] = {}
             for t in sorted(sch.crossing(rank), key=lambda t: (t.kind, t.lsb)):
                 kind_runs = runs.setdefault(t.kind, [])
-                if kind_runs and kind_runs[-1][0] + kind_runs[-1][1] == t.lsb:
+                if kind_runs and kind_runs[-1][0] + kind_runs[-1][1] == t.lsb \
+                        and kind_runs[-1][3] == ((t.index, rank) in kept):
                     kind_runs[-1][1] += t.width
                 else:
-                    kind_runs.append([t.lsb, t.width, t.pos])
-            for kind, found in runs.items():
-                words += [Word(TERM_KIND.get(kind, "wire"), f"{kind}_{rank}_{pos}", lsb, width,
-                               first + rank) for lsb, width, pos in found]
-        words.append(Word("stage", "sum_stage", 0, w, first + sch.final))
-        if c.carry_out:
-            words.append(Word("stage", "carry_stage", w, 1, first + sch.final))
+                    kind_runs.append([t.lsb, t.width, t.pos, (t.index, rank) in kept])
+            for tk, found in runs.items():
+                words += [Word(TERM_KIND.get(tk, "wire"), tk, rank, lsb, width, first + rank,
+                               position=pos, keep=keep)
+                          for lsb, width, pos, keep in found]
+        edge = first + sch.final
+        for name, width, lsb in self.output_registers():
+            words.append(Word("stage", name, None, lsb, width, edge))
         return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.lsb, x.name)))
+
+    def output_registers(self) -> list[tuple[str, int, int]]:
+        """(family, width, lsb) of the last rank's registers, the unit's outputs."""
+        c, kind = self.config, self.unit
+        regs = []
+        if kind.result:
+            regs.append((f"{kind.result}_stage", c.width, 0))
+            if c.carry_out:
+                regs.append((f"{kind.chain[0]}_stage", 1, c.width))
+            if c.signed:
+                regs.append(("overflow_stage", 1, c.width))
+        else:
+            regs += [(f"{n}_stage", 1, c.width) for n in ("lt", "eq", "gt")]
+        return regs
+
+    def netlist(self):
+        from . import leveled
+
+        return leveled.build(self)
+
+    def structure(self) -> str:
+        return (f"pipeline {self.config.pipeline}, {len(self.stages)} stage(s), every stage "
+                "all bits")
+
+    def label(self) -> str:
+        c = self.config
+        wired = f" wired {c.wire_registers}" if c.wire_registers else ""
+        if c.pipeline == "levels":
+            local = f" local {c.local_width}" if 0 < c.local_width < c.width else ""
+            return f"{c.cell} levels/{c.levels_per_stage}{local}{wired}"
+        return f"{c.cell} blocks of {c.block_width}{wired}"
+
+    def moved_input_rank(self) -> "PrefixPlan | None":
+        """The same levels unit with its input register spent on one more wire rank instead
+        (the trade measured faster on ECP5; docs/modes.md), or None when it does not apply."""
+        c = self.config
+        if c.pipeline != "levels" or not c.register_inputs \
+                or c.wire_registers >= self.schedule.network.depth:
+            return None
+        return make_plan(c.replaced(register_inputs=False,
+                                    wire_registers=c.wire_registers + 1))
 
 
 def make_prefix_plan(config: Config) -> PrefixPlan:
@@ -274,25 +381,31 @@ def make_prefix_plan(config: Config) -> PrefixPlan:
                          levels=tuple(k + 1 for k in st.levels), depth=len(st.levels),
                          nodes=st.nodes, delay=st.delay, logic=st.logic)
                    for st in sch.stages)
-    return PrefixPlan(config=config, slices=stages, schedule=sch)
+    return PrefixPlan(config=config, stages=stages, schedule=sch)
 
 
-def make_plan(config: Config) -> Plan:
-    """Derive the plan of a validated config."""
-    if config.pipeline != "slices":
-        return make_prefix_plan(config)
+def make_sliced_plan(config: Config) -> SlicedPlan:
     count = len(config.slices)
+    style = cells.STYLES[config.cell]
+    kind = units.KINDS[config.unit]
     slices, lsb = [], 0
     for index, width in enumerate(config.slices):
-        carry_in = index > 0 or config.carry_in
-        carry_out = index < count - 1 or config.carry_out
-        style = config.cell if config.cell in PREFIX_CELLS else "serial"
-        net = prefix.network(style, width)
+        carry_in = index > 0 or kind.has_carry_in(config)
+        carry_out = index < count - 1 or kind.has_carry_out(config)
+        net = style.carry_network(width)
         slices.append(Slice(
             index=index, lsb=lsb, width=width, cell=config.cell,
             carry_in=carry_in, carry_out=carry_out,
             wait_before=index, wait_after=count - 1 - index,
             depth=net.depth, nodes=net.nodes,
-            delay=prefix.critical_path(net, carry_in, carry_out)))
+            delay=style.delay(width, carry_in, carry_out)))
         lsb += width
-    return Plan(config=config, slices=tuple(slices))
+    return SlicedPlan(config=config, stages=tuple(slices))
+
+
+MODES = {"slices": make_sliced_plan, "levels": make_prefix_plan, "blocks": make_prefix_plan}
+
+
+def make_plan(config: Config) -> Plan:
+    """Derive the plan of a validated config (the mode type is chosen here, once)."""
+    return MODES[config.pipeline](config)

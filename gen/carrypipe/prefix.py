@@ -92,6 +92,7 @@ def _serial(n: int) -> list[list[Node]]:
     return [[(i, i - 1)] for i in range(1, n)]
 
 
+PREFIX_STYLES = ("kogge-stone", "brent-kung", "sklansky", "han-carlson", "ladner-fischer")
 BUILDERS = {
     "kogge-stone": _kogge_stone,
     "brent-kung": _brent_kung,

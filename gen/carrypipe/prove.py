@@ -27,7 +27,7 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from . import emit, report
+from . import emit
 from .miter import MITER, miter_verilog
 from .plan import Plan
 from .sim import ToolMissing
@@ -117,11 +117,26 @@ def netlist(name: str, verilog: str, timeout: float | None) -> dict:
     return json.loads(got["unit.json"])
 
 
-def _ff_check(net: dict, module: str) -> str | None:
-    """The structural check for `enable`; returns what is wrong, or None."""
-    mod = net["modules"][module]
+_FF_TYPES = {  # flip-flop cells after `opt_dff`, by (enable, reset) they carry
+    (False, None): ("$dff",), (True, None): ("$dffe",),
+    (False, "sync"): ("$sdff",), (True, "sync"): ("$sdffe", "$sdffce"),
+    (False, "async"): ("$adff",), (True, "async"): ("$adffe",),
+}
+
+
+def structure(plan: Plan, net: dict) -> str | None:
+    """The structural check of clocking, enable and reset; returns what is wrong, or None.
+
+    Every flip-flop is clocked by the rising edge of clk and (with `enable`) enabled by en
+    alone; a flip-flop with a reset is reset by rst, in the config's way (sync or async), to
+    0; with `reset_data` every flip-flop has that reset, else none in the fan-in of a data
+    output does (the valid bits have it); every output is a flip-flop output.
+    """
+    c = plan.config
+    mod = net["modules"][c.name]
     port = {name: p["bits"] for name, p in mod["ports"].items()}
-    clk, en = port["clk"][0], port["en"][0]
+    clk = port["clk"][0]
+    en = port["en"][0] if "en" in port else None
     rst = port["rst"][0] if "rst" in port else None
     driver, ffs = {}, {}
     for name, cell in mod["cells"].items():
@@ -132,27 +147,43 @@ def _ff_check(net: dict, module: str) -> str | None:
         if is_ff(cell):
             ffs[name] = cell
     regs = {}  # flip-flop cell -> the register name it drives
-    for net, info in mod["netnames"].items():
+    for net_name, info in mod["netnames"].items():
         if not info.get("hide_name"):
             for bit in info["bits"]:
-                regs.setdefault(driver.get(bit), net)
+                regs.setdefault(driver.get(bit), net_name)
+    kind = None if c.reset == "none" else c.reset
+    allowed = set(_FF_TYPES[(en is not None, None)])
+    if kind:
+        allowed |= set(_FF_TYPES[(en is not None, kind)])
     for cell_name, cell in ffs.items():
         name = regs.get(cell_name, cell_name)
         par, con = cell["parameters"], cell["connections"]
-        if cell["type"] not in ("$dffe", "$sdffe"):
-            return f"flip-flop {name} is a {cell['type']}, not a D flip-flop enabled by en"
+        if cell["type"] not in allowed:
+            return (f"flip-flop {name} is a {cell['type']}, not a flip-flop "
+                    + ("enabled by en" if en is not None else "without enable")
+                    + (f" with the {kind} reset rst or none" if kind else " without reset"))
         if con["CLK"] != [clk] or int(par["CLK_POLARITY"], 2) != 1:
             return f"flip-flop {name} is not clocked by the rising edge of clk"
-        if con["EN"] != [en] or int(par["EN_POLARITY"], 2) != 1:
-            return f"flip-flop {name} is not enabled by en alone"
-        if cell["type"] == "$sdffe" and (con["SRST"] != [rst] or int(par["SRST_POLARITY"], 2) != 1):
-            return f"flip-flop {name} has a sync reset other than rst"
-    for out in ("sum", "cout", "out_valid"):
+        if en is not None and not _gated_by(con["EN"], int(par["EN_POLARITY"], 2), en,
+                                            mod["cells"], driver):
+            return f"flip-flop {name} may load while en is low"
+        reset_pin = "SRST" if cell["type"].startswith("$sdff") else "ARST"
+        if reset_pin in con:
+            value = par["SRST_VALUE" if reset_pin == "SRST" else "ARST_VALUE"]
+            if con[reset_pin] != [rst] or int(par[f"{reset_pin}_POLARITY"], 2) != 1 \
+                    or int(value, 2) != 0:
+                return f"flip-flop {name} has a reset other than rst (active high, to 0)"
+        elif c.reset_data:
+            return f"flip-flop {name} is not cleared by rst (reset_data: true)"
+    outputs = [p.name for p in plan.ports if p.direction == "output"]
+    for out in outputs:
         for bit in port.get(out, []):
             if bit not in ("0", "1") and driver.get(bit) not in ffs:
                 return f"output {out} is not driven by a flip-flop"
-    # Every flip-flop in the fan-in of sum/cout must be a plain enabled flip-flop.
-    todo = [b for out in ("sum", "cout") for b in port.get(out, [])]
+    if c.reset_data:
+        return None
+    # Every flip-flop in the fan-in of a data output must be without reset.
+    todo = [b for out in outputs if out != "out_valid" for b in port.get(out, [])]
     seen = set()
     while todo:
         bit = todo.pop()
@@ -160,18 +191,33 @@ def _ff_check(net: dict, module: str) -> str | None:
             continue
         seen.add(bit)
         if bit == rst:
-            return "sum or cout depends on rst"
+            return "a data output depends on rst"
         name = driver.get(bit)
         if name is None:
             continue
         cell = mod["cells"][name]
-        if name in ffs and cell["type"] != "$dffe":
-            return f"sum or cout depends on flip-flop {regs.get(name, name)} with a reset"
+        if name in ffs and cell["type"] not in _FF_TYPES[(en is not None, None)]:
+            return f"a data output depends on flip-flop {regs.get(name, name)} with a reset"
         pins = ("D",) if name in ffs else [p for p, d in cell["port_directions"].items()
                                            if d == "input"]
         for pin in pins:
             todo += cell["connections"][pin]
     return None
+
+
+def _gated_by(enable: list, polarity: int, en, cells: dict, driver: dict) -> bool:
+    """Whether a flip-flop's enable is en, or an AND of en and other terms (an accumulator
+    slice also holds on an invalid input): either way it holds while en is low."""
+    if polarity != 1 or len(enable) != 1:
+        return False
+    if enable == [en]:
+        return True
+    cell = cells.get(driver.get(enable[0]), {})
+    if cell.get("type") == "$reduce_and":
+        return en in cell["connections"]["A"]
+    if cell.get("type") in ("$and", "$logic_and"):
+        return en in cell["connections"]["A"] + cell["connections"]["B"]
+    return False
 
 
 _ROW = re.compile(r"^\s+(init|\d+)\s+\\(\S+)\s+\S+\s+([0-9a-fx]+)\s+[01x]+\s*$", re.M)
@@ -196,22 +242,17 @@ def _counterexample(log: str, plan: Plan, compare: tuple[str, ...]) -> str:
         shown = " ".join(f"{n}={row[n]}" for n in inputs if n in row)
         lines.append(f"  cycle {k}: {shown}")
     last = steps[max(steps)]
-    ref = int(last.get(f"ref_{lat}", "0"), 16)
-    w = plan.width
-    got, want = [], []
-    if "sum" in compare:
-        got.append(f"sum={last.get('sum', '?')}")
-        want.append(f"sum={ref & ((1 << w) - 1):x}")
-    if "cout" in last and "cout" in compare:
-        got.append(f"cout={last['cout']}")
-        want.append(f"cout={ref >> w}")
-    if "out_valid" in last and "out_valid" in compare:
-        got.append(f"out_valid={last['out_valid']}")
-        want.append(f"out_valid={last.get(f'ref_valid_{lat}', '?')}")
-    lines.append(f"  after cycle {max(steps) - 1}'s edge the unit shows {' '.join(got)}; "
-                 f"{'a + b + cin' if 'sum' in compare else 'in_valid'} from cycle "
-                 f"{max(steps) - lat} gives {' '.join(want)}")
+    outs = [p.name for p in plan.ports if p.direction == "output" and p.name in compare]
+    got = " ".join(f"{n}={last.get(n, '?')}" for n in outs)
+    want = " ".join(f"{n}={last.get(_ref(n, lat), '?')}" for n in outs)
+    lines.append(f"  after cycle {max(steps) - 1}'s edge the unit shows {got}; its "
+                 f"specification for the inputs of cycle {max(steps) - lat} gives {want}")
     return "\n".join(lines)
+
+
+def _ref(output: str, lat: int) -> str:
+    """The miter's name of an output's reference after `lat` enabled edges."""
+    return f"ref_{'valid' if output == 'out_valid' else output}_{lat}"
 
 
 METHODS = ("auto", "direct", "compositional")
@@ -223,49 +264,58 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     """Prove the unit of `plan` (or the given Verilog text of it) against the specification.
 
     `direct` unrolls the whole unit against the reference; `compositional` (sliced units
-    only, see `compose.py`) proves each slice's logic against `+` and the pipeline structure
-    apart, which stays fast at any width; `auto` takes the direct proof up to DIRECT_UP_TO
-    bits and the compositional one above, where the unit is sliced.
+    of the kinds that offer it, see `compose.py`) proves each slice's logic against `+` and
+    the pipeline structure apart, which stays fast at any width; `auto` takes the direct
+    proof up to DIRECT_UP_TO bits and the compositional one above, where it applies.
     """
     if method not in METHODS:
         raise ValueError(f"method must be one of {', '.join(METHODS)}, not {method!r}")
-    sliced = plan.config.pipeline == "slices"
-    if method == "compositional" and not sliced:
-        raise ProofFailed("the compositional proof covers the slices pipeline only; use "
-                          "--method direct")
+    can_compose = plan.can_compose
+    if method == "compositional" and not can_compose:
+        raise ProofFailed("the compositional proof covers sliced adders and subtractors "
+                          "without reset_data; use --method direct")
     start = time.monotonic()
-    man = report.manifest(plan, [])
-    name, lat = man["module"], man["latency"]
-    names = {p["name"] for p in man["ports"]}
-    depth = depth or lat + 1
+    c, lat = plan.config, plan.latency
+    depth = depth or lat + 1 + plan.unit.settle
     if depth <= lat:
         raise ValueError(f"depth {depth} must exceed the latency ({lat})")
     text = verilog if verilog is not None else emit.unit_verilog(plan)
     if method == "auto":
-        method = "compositional" if sliced and plan.width > DIRECT_UP_TO else "direct"
-    net = netlist(name, text, timeout) if "en" in names or method == "compositional" else None
-    problem = _ff_check(net, name) if "en" in names else None
+        method = "compositional" if can_compose and plan.width > DIRECT_UP_TO else "direct"
+    net = netlist(c.name, text, timeout)
+    problem = structure(plan, net)
     if problem:
-        return Proof(False, "structural check of the enable", 0, f"not proved: {problem}",
+        return Proof(False, "structural check", 0, f"not proved: {problem}",
                      time.monotonic() - start)
-    done, compare = "", ("sum", "cout", "out_valid")
+    outputs = tuple(p.name for p in plan.ports if p.direction == "output")
+    done, data = "", tuple(o for o in outputs if o != "out_valid")
     if method == "compositional":
         from . import compose
 
-        found = compose.prove_slices(plan, net, name, timeout)
+        found = compose.prove_slices(plan, net, c.name, timeout)
         if found.problem:
             return Proof(False, found.method, 0, f"not proved: {found.problem}",
                          time.monotonic() - start)
-        done, compare = f"{found.method}; out_valid: ", ("out_valid",)
-    if {"sum", "out_valid"} & set(compare) & names:
-        log = _bounded(name, lat, man["ports"], text, depth, compare, timeout)
-        done += (f"bounded check of {depth} cycles from an arbitrary register state (Yosys "
-                 f"sat), results compared on cycle{'s' if depth > lat + 1 else ''} {lat + 1}"
-                 + (f"..{depth}" if depth > lat + 1 else ""))
-    else:  # compositional, and no valid chain to check
-        log, done, depth = PROVED, done.removesuffix("; out_valid: "), 0
-    if "en" in names:
+        done, data = f"{found.method}; ", ()
+    log = PROVED
+    for compare, hold_rst in _runs(c, data):
+        log = _bounded(plan, text, depth, compare, hold_rst, timeout)
+        if PROVED not in log:
+            break
+    ranged = f"cycle{'s' if depth > lat + 1 else ''} {lat + 1}" + (
+        f"..{depth}" if depth > lat + 1 else "")
+    start_state = ("after a clear from an arbitrary register state" if plan.unit.settle
+                   else "from an arbitrary register state")
+    done += (f"bounded check of {depth} cycles {start_state} (Yosys sat), "
+             f"{', '.join(data) if data else 'out_valid'} compared on {ranged}"
+             if data or c.valid else "")
+    done = done.removesuffix("; ")
+    if c.enable:
         done += "; en held high, every flip-flop enabled by en (structural check)"
+    if c.reset != "none":
+        done += (f"; {c.reset} reset rst clears "
+                 + ("every flip-flop" if c.reset_data else "only flip-flops outside the data "
+                    "path") + " (structural check)")
     seconds = time.monotonic() - start
     if PROVED in log:
         return Proof(True, done, depth, f"proved: {done}; {seconds:.1f} s", seconds)
@@ -275,19 +325,30 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     raise no_verdict(timeout)
 
 
-def _bounded(name: str, lat: int, ports: list[dict], verilog: str, depth: int,
-             compare: tuple[str, ...], timeout: float | None) -> str:
+def _runs(c, data: tuple[str, ...]) -> list[tuple[tuple[str, ...], bool]]:
+    """The bounded runs: (outputs compared, rst held low).  The valid chain is compared with
+    rst free; the data outputs too, unless `reset_data` clears them, when rst is held low
+    for them and the structural check shows that rst clears every register."""
+    if not c.reset_data:
+        return [(data + (("out_valid",) if c.valid else ()), False)] if data or c.valid else []
+    runs = [(data, True)] if data else []
+    return runs + ([(("out_valid",), False)] if c.valid else [])
+
+
+def _bounded(plan: Plan, verilog: str, depth: int, compare: tuple[str, ...], hold_rst: bool,
+             timeout: float | None) -> str:
     """The direct proof: `sat -seq depth -prove-skip lat` on the miter; returns Yosys's log."""
-    names = {p["name"] for p in ports}
-    files = {f"{name}.v": verilog, "miter.v": miter_verilog(name, lat, ports, compare)}
-    shows = ["ok"] + [s for s in compare if s in names]
-    shows += ([f"ref_{lat}"] if {"sum", "cout"} & set(compare) else [])
-    shows += [f"ref_valid_{lat}"] if "out_valid" in names and "out_valid" in compare else []
+    c, lat = plan.config, plan.latency
+    name = c.name
+    files = {f"{name}.v": verilog, "miter.v": miter_verilog(plan, compare)}
+    shows = ["ok"] + [o for o in compare]
+    shows += [_ref(o, lat) for o in compare]
+    sets = ("-set en 1 " if c.enable else "") + ("-set rst 0 " if hold_rst else "")
+    sets += plan.unit.proof_sets(c)
     script = [f"read_verilog {name}.v", "read_verilog miter.v",
-              f"hierarchy -top {MITER} -check", "proc", "flatten", "attrmap -remove init",
-              "opt_clean",
-              f"sat -seq {depth} -prove-skip {lat} -prove ok 1 "
-              + ("-set en 1 " if "en" in names else "")
+              f"hierarchy -top {MITER} -check", "proc", "flatten", "async2sync",
+              "attrmap -remove init", "opt_clean",
+              f"sat -seq {depth} -prove-skip {lat} -prove ok 1 " + sets
               + sat_limit(timeout) + "-show-inputs " + " ".join(f"-show {s}" for s in shows)]
     log, _ = run_yosys("\n".join(script) + "\n", files, timeout)
     return log

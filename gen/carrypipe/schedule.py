@@ -17,6 +17,14 @@ stage; all positions advance together, so there are no skew or deskew triangles.
   them is c0 <- c0_i | c1_i & c0_j, c1 <- c0_i | c1_i & c1_j (carry-select form).  The
   network over the blocks follows, `levels_per_stage` levels per stage, and the last stage
   selects each block's sum by its carry-in.
+- A comparator's `levels` mode: a position is one of the config's slices.  Stage 1 compares
+  every slice in parallel, c0 = a < b and c1 = a <= b (the borrows of a - b with borrow-in 0
+  and 1), the same carry-select operator combines them, pruned to the top position's cone
+  (a balanced tree of the Sklansky network), and the last stage forms lt = c0, eq = c1 & ~c0
+  and gt = ~c1.
+
+Subtracting units keep borrows where adding ones keep carries (generate ~a & b, propagate
+~(a ^ b)): the same networks, and the registers hold what the ports show.
 
 A finished result does not wait for the last stage: a sum bit (or block select) is formed in
 the stage after its carry-in is final, in parallel with that stage's prefix logic, and then
@@ -37,19 +45,22 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from . import prefix
+from . import prefix, units
 from .config import Config, prefix_positions
 
 # Register kind of each term kind (see `Plan.registers`).
 PREFIX_KINDS = ("gen", "prop", "grp_gen", "grp_prop", "blk_c0", "blk_c1", "grp_c0", "grp_c1")
-RESULT_KINDS = ("sum", "blk_s0", "blk_s1")
+RESULT_KINDS = ("sum", "blk_s0", "blk_s1", "blk_v0", "blk_v1", "ovf", "cout", "lt", "eq", "gt")
+OPERAND_KINDS = ("sub",)  # operand flags that travel with the terms to the output stage
+TREE_STYLE = "sklansky"  # a comparator's tree: Sklansky pruned to the top is a balanced tree
 
 # Unit-gate delay of each operation, from the model of `prefix.Gates` (a 2:1 select is an
-# AND-OR; gen_cin is g_0 | p_0 & cin after p_0; xor_cin is p_0 ^ cin after p_0).
+# AND-OR; gen_cin is g_0 | p_0 & cin after p_0; sum_cin is p_0 ^ cin after p_0).
 _G = prefix.UNIT_GATES
 OP_DELAY = {"gen": _G.and_or, "prop": _G.xor, "gen_cin": _G.xor + 2 * _G.and_or,
-            "dot_g": 2 * _G.and_or, "dot_p": _G.and_or, "wire": 0, "xor": _G.xor,
-            "xor_cin": 2 * _G.xor, "select": 2 * _G.and_or}
+            "dot_g": 2 * _G.and_or, "dot_p": _G.and_or, "wire": 0, "sum": _G.xor,
+            "xor": _G.xor, "sum_cin": 2 * _G.xor, "select": 2 * _G.and_or, "flag": 0,
+            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0}
 
 
 @dataclass(frozen=True)
@@ -64,6 +75,7 @@ class Term:
     op: str  # how it is formed, from `args` (see `leveled.py`)
     args: tuple[int, ...]
     stage: int  # the stage whose logic forms it
+    level: int | None = None  # the prefix level (0-based) of a group term or wire copy
 
 
 @dataclass(frozen=True)
@@ -80,6 +92,7 @@ class StageInfo:
 @dataclass(frozen=True)
 class Schedule:
     mode: str
+    flavour: str  # bits, chains or compare (see `_positions`)
     network: prefix.Network
     widths: tuple[int, ...]  # bits per position
     lsbs: tuple[int, ...]
@@ -88,9 +101,8 @@ class Schedule:
     wired: tuple[int, ...]  # prefix levels with a wire rank in front
     terms: tuple[Term, ...]
     last: dict  # term index -> last stage reading it, for the terms that are kept
-    sums: tuple[int, ...]  # per position: the term holding its result bits
-    cout: int | None  # the term holding the carry-out
-    stages: tuple[StageInfo, ...]
+    outputs: dict  # result: per position the term of its result bits; chain, overflow,
+    stages: tuple[StageInfo, ...]  # lt, eq, gt: the term each output register loads
 
     def kept(self) -> list[Term]:
         return [t for t in self.terms if t.index in self.last]
@@ -98,6 +110,20 @@ class Schedule:
     def crossing(self, rank: int) -> list[Term]:
         """The terms held in register rank `rank` (loaded at the end of stage `rank`)."""
         return [t for t in self.kept() if t.stage <= rank < self.last[t.index]]
+
+    def kept_ranks(self) -> set[tuple[int, int]]:
+        """(term, rank) pairs whose registers are intended copies of an equal register: a
+        wire copy and the local copy of its term in the same rank.  Synthesis must keep
+        both (they load the same value, so it would merge them)."""
+        out = set()
+        for t in self.kept():
+            if t.op == "wire":
+                rank = t.stage  # a wire copy is formed in a logic-free stage and held there
+                out.add((t.index, rank))
+                x = t.args[0]
+                if self.terms[x].stage <= rank < self.last[x]:
+                    out.add((x, rank))
+        return out
 
     def bits(self, kinds) -> int:
         """Register bits of the inner ranks (before the output rank) holding these term kinds."""
@@ -109,16 +135,16 @@ def _span(level) -> int:
     return max(i - j for i, j in level)
 
 
-def _assign_stages(mode: str, net: prefix.Network, per_stage: int, wires: int):
+def _assign_stages(bits: bool, net: prefix.Network, per_stage: int, wires: int):
     """Stage of every prefix level, the stage before each wired level, and the final stage."""
     depth = net.depth
     by_span = sorted(range(depth), key=lambda k: (-_span(net.levels[k]), -k))
     wired = frozenset(by_span[:wires])
     # Every sum bit reads one node of the last level: s_i = p_i ^ (G_h | P_h & G_l) has four
-    # inputs, so in `levels` mode that level always rides in the sum stage.
-    merged = mode == "levels" and depth > 0
-    # Stage 1 always has logic: the bit generate/propagate (levels) or the chains (blocks).
-    stage, used = 1, (0 if mode == "levels" else per_stage)
+    # inputs, so with one bit per position that level always rides in the sum stage.
+    merged = bits and depth > 0
+    # Stage 1 always has logic: the bit generate/propagate, or the chains (compares).
+    stage, used = 1, (0 if bits else per_stage)
     level_stage, wire_stage = {}, {}
     for k in range(depth - merged):
         if k in wired:
@@ -137,54 +163,85 @@ def _assign_stages(mode: str, net: prefix.Network, per_stage: int, wires: int):
     return level_stage, wire_stage, final, merged, tuple(sorted(wired))
 
 
+def _positions(config: Config, kind) -> tuple[str, tuple[int, ...]]:
+    """The schedule's flavour and the bits per position.
+
+    bits: `levels` arithmetic, one bit per position (generate/propagate);
+    chains: `blocks` arithmetic, each block's two carry chains;
+    compare: a comparator's `levels` mode, each slice compared in parallel."""
+    w = config.width
+    if kind.result is None:
+        return "compare", tuple(config.slices)
+    if config.pipeline == "levels":
+        return "bits", (1,) * w
+    k = config.block_width
+    return "chains", tuple(min(k, w - k * q) for q in range(prefix_positions(w, "blocks", k)))
+
+
 def make_schedule(config: Config) -> Schedule:
     """The pruned schedule of a `levels` or `blocks` config."""
-    mode, w = config.pipeline, config.width
-    count = prefix_positions(w, mode, config.block_width)
-    if mode == "levels":
-        widths = (1,) * w
-    else:
-        k = config.block_width
-        widths = tuple(min(k, w - k * q) for q in range(count))
+    kind = units.KINDS[config.unit]
+    flavour, widths = _positions(config, kind)
+    count = len(widths)
     lsbs = tuple(sum(widths[:q]) for q in range(count))
-    net = prefix.local_network(config.cell, count,
-                               config.local_width if mode == "levels" else 0)
+    net = (prefix.network(TREE_STYLE, count) if flavour == "compare" else
+           prefix.local_network(config.cell, count,
+                                config.local_width if flavour == "bits" else 0))
+    wires = config.wire_registers if flavour != "compare" else 0
     level_stage, wire_stage, final, merged, wired = _assign_stages(
-        mode, net, config.levels_per_stage, config.wire_registers)
+        flavour == "bits", net, config.levels_per_stage, wires)
 
     terms: list[Term] = []
 
-    def term(kind, pos, op, args, stage, width=1, lsb=None):
+    def term(kind_, pos, op, args, stage, width=1, lsb=None, level=None):
         at = lsbs[pos] + widths[pos] if lsb is None else lsb
-        terms.append(Term(len(terms), kind, pos, at, width, op, tuple(args), stage))
+        terms.append(Term(len(terms), kind_, pos, at, width, op, tuple(args), stage, level))
         return len(terms) - 1
 
-    cin = config.carry_in
-    sums = [None] * count
-    if mode == "levels":
-        prop = [term("prop", i, "prop", (), 1, lsb=i) for i in range(w)]
-        g = [term("gen", i, "gen_cin" if cin and i == 0 else "gen", (), 1) for i in range(w)]
+    has_cin = kind.has_carry_in(config)
+    flags = {f: term(f, 0, "flag", (), 1, lsb=0) for f in kind.travellers}
+    sums: list = [None] * count
+    if flavour == "bits":
+        prop = [term("prop", i, "prop", (), 1, lsb=i) for i in range(config.width)]
+        g = [term("gen", i, "gen_cin" if has_cin and i == 0 else "gen", (), 1)
+             for i in range(config.width)]
         p = list(prop)
-        sums[0] = term("sum", 0, "xor_cin", (prop[0],), 1, lsb=0) if cin else prop[0]
+        if has_cin:
+            sums[0] = term("sum", 0, "sum_cin", (prop[0],), 1, lsb=0)
+        elif kind.op == "sub":  # a difference bit is the complement of the borrow propagate
+            sums[0] = term("sum", 0, "sum", (prop[0],), 1, lsb=0)
+        else:
+            sums[0] = prop[0]
         g_kind, p_kind, p_op = "grp_gen", "grp_prop", "dot_p"
     else:
-        s0 = [term("blk_s0", q, "chain0_sum", (), 1, widths[q], lsbs[q]) for q in range(count)]
-        g = [term("blk_c0", q, "chain0_carry", (), 1) for q in range(count)]
+        chain = "cmp" if flavour == "compare" else "chain"
+        results = flavour == "chains"
+        s0 = [term("blk_s0", q, "chain0_sum", (), 1, widths[q], lsbs[q]) if results else None
+              for q in range(count)]
+        g = [term("blk_c0", q, f"{chain}0_carry", (), 1) for q in range(count)]
+        low_has_c1 = flavour == "compare"  # a comparator's lowest slice has no carry-in
         s1 = [None] + [term("blk_s1", q, "chain1_sum", (), 1, widths[q], lsbs[q])
-                       for q in range(1, count)]
-        p = [None] + [term("blk_c1", q, "chain1_carry", (), 1) for q in range(1, count)]
+                       if results else None for q in range(1, count)]
+        p = [term("blk_c1", 0, f"{chain}1_carry", (), 1) if low_has_c1 else None] + [
+            term("blk_c1", q, f"{chain}1_carry", (), 1) for q in range(1, count)]
         sums[0] = s0[0]
         g_kind, p_kind, p_op = "grp_c0", "grp_c1", "dot_g"
     logic_free = set(wire_stage.values())
 
-    def finish(q):
-        """Form position q's result in the stage after its carry-in g[q-1] is final."""
-        carry = terms[g[q - 1]]
-        stage = final if carry.stage == final else min(final, carry.stage + 1)
+    def after(*args) -> int:
+        """The stage after its arguments are final (or the final stage), not a wire stage."""
+        stage = min(final, max(terms[x].stage + (terms[x].stage < final) for x in args))
         while stage in logic_free:
             stage += 1
-        if mode == "levels":
-            sums[q] = term("sum", q, "xor", (prop[q], g[q - 1]), stage, lsb=q)
+        return stage
+
+    def finish(q):
+        """Form position q's result in the stage after its carry-in g[q-1] is final."""
+        if flavour == "compare":
+            return
+        stage = after(g[q - 1])
+        if flavour == "bits":
+            sums[q] = term("sum", q, "sum", (prop[q], g[q - 1]), stage, lsb=q)
         else:
             sums[q] = term("sum", q, "select", (s0[q], s1[q], g[q - 1]), stage,
                            widths[q], lsbs[q])
@@ -203,7 +260,8 @@ def make_schedule(config: Config) -> Schedule:
         def far(x, reader):
             """The wire copy of far operand `x`, placed with its first reader."""
             if x not in copies:
-                copies[x] = term("wire_" + terms[x].kind, reader, "wire", (x,), wire_stage[k])
+                copies[x] = term("wire_" + terms[x].kind, reader, "wire", (x,), wire_stage[k],
+                                 level=k)
             return copies[x]
 
         for i, j in level:
@@ -212,20 +270,37 @@ def make_schedule(config: Config) -> Schedule:
                 gj = far(gj, i)
                 if pj is not None:
                     pj = far(pj, i)
-            new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage)
+            new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage, level=k)
             # A block group reaching block 0 needs no carry-in-1 term (cin is folded in).
             new_p[i] = None if pj is None else term(
-                p_kind, i, p_op, (p[i], pj) if p_op == "dot_p" else (g[i], p[i], pj), stage)
+                p_kind, i, p_op, (p[i], pj) if p_op == "dot_p" else (g[i], p[i], pj), stage,
+                level=k)
             low[i] = before[j]
         g, p = new_g, new_p
         for q in range(1, count):
             if not done[q] and low[q - 1] == 0:
                 finish(q)
                 done[q] = True
-    cout = g[-1] if config.carry_out else None
+
+    outputs: dict[str, object] = {}
+    if kind.result:
+        outputs["result"] = tuple(sums)
+        if config.carry_out:
+            cout = g[-1]
+            if "sub" in flags:  # add/subtract: the borrow is the complement of the carry
+                cout = term("cout", count - 1, "xor", (cout, flags["sub"]), final)
+            outputs["chain"] = cout
+        if config.signed:
+            outputs["overflow"] = _overflow(term, terms, flavour, g, widths, lsbs, final,
+                                            after, has_cin)
+    else:
+        top_lt, top_le = g[-1], p[-1]
+        outputs["lt"] = term("lt", count - 1, "lt", (top_lt,), final)
+        outputs["eq"] = term("eq", count - 1, "eq", (top_lt, top_le), final)
+        outputs["gt"] = term("gt", count - 1, "gt", (top_le,), final)
 
     last: dict[int, int] = {}
-    for t in [*sums, *([cout] if cout is not None else [])]:
+    for t in _flat(outputs.values()):
         last[t] = final + 1
     for t in reversed(terms):
         if t.index in last:
@@ -236,36 +311,66 @@ def make_schedule(config: Config) -> Schedule:
     for t in terms:
         if t.index in last:
             inner = [arrival[a] for a in t.args if terms[a].stage == t.stage]
-            arrival[t.index] = max(inner, default=0) + _op_delay(t, widths, cin)
+            arrival[t.index] = max(inner, default=0) + _op_delay(t, widths, has_cin, kind)
     stages = []
-    for s in range(1, final + 1):
-        levels = tuple(k for k, st in sorted(level_stage.items()) if st == s)
-        delay = max([arrival[t.index] for t in terms if t.index in arrival and t.stage == s],
+    for s_ in range(1, final + 1):
+        levels = tuple(k for k, st in sorted(level_stage.items()) if st == s_)
+        delay = max([arrival[t.index] for t in terms if t.index in arrival and t.stage == s_],
                     default=0)
-        stages.append(StageInfo(s, levels, sum(len(net.levels[k]) for k in levels), delay,
-                                _describe(mode, s, final, levels, s in wire_stage.values())))
-    return Schedule(mode, net, widths, lsbs, final, merged, wired, tuple(terms), last,
-                    tuple(sums), cout, tuple(stages))
+        stages.append(StageInfo(s_, levels, sum(len(net.levels[k]) for k in levels), delay,
+                                _describe(flavour, s_, final, levels,
+                                          s_ in wire_stage.values())))
+    return Schedule(config.pipeline, flavour, net, widths, lsbs, final, merged, wired,
+                    tuple(terms), last, outputs, tuple(stages))
 
 
-def _op_delay(t: Term, widths, cin: bool) -> int:
+def _overflow(term, terms, flavour, g, widths, lsbs, final, after, has_cin) -> int:
+    """The signed-overflow term: the carry into the top bit XOR the carry out of it (for a
+    borrow chain, the borrows: common practice), formed once both are final.  In `blocks`
+    mode the top block's two chains give an overflow bit each, selected like its sum."""
+    count, top = len(widths), len(widths) - 1
+    if flavour == "bits":
+        if top == 0:  # one bit: the carry into it is the carry-in itself
+            return term("ovf", 0, "ovf_cin" if has_cin else "ovf_gen", (g[0],), 1)
+        return term("ovf", top, "xor", (g[top], g[top - 1]), after(g[top], g[top - 1]))
+    v0 = term("blk_v0", top, "chain0_ovf", (), 1, 1, lsbs[top])
+    if top == 0:
+        return v0
+    v1 = term("blk_v1", top, "chain1_ovf", (), 1, 1, lsbs[top])
+    return term("ovf", top, "select", (v0, v1, g[top - 1]), after(g[top - 1]))
+
+
+def _flat(values):
+    for v in values:
+        if isinstance(v, tuple):
+            yield from v
+        else:
+            yield v
+
+
+def _op_delay(t: Term, widths, cin: bool, kind) -> int:
     """Unit-gate delay of forming `t` from its arguments (a carry chain as a ripple adder)."""
-    if t.op.startswith("chain"):
-        with_carry = t.op.startswith("chain1") or (cin and t.pos == 0)
+    if t.op.startswith(("chain", "cmp")):
+        with_carry = t.op.startswith(("chain1", "cmp1")) or (cin and t.pos == 0)
         chain = prefix.network("serial", widths[t.pos])
-        return prefix.critical_path(chain, with_carry, t.op.endswith("carry"))
+        return prefix.critical_path(chain, with_carry, not t.op.endswith("sum"))
+    if t.op == "sum" and len(t.args) == 1:  # a difference bit 0: the complement, free
+        return 0
+    if t.op in ("prop", "gen") and kind.travellers:  # the operand passes an XOR first
+        return OP_DELAY[t.op] + _G.xor
     return OP_DELAY[t.op]
 
 
-def _describe(mode: str, s: int, final: int, levels, wire: bool) -> str:
+def _describe(flavour: str, s: int, final: int, levels, wire: bool) -> str:
     parts = []
     if wire:
         parts.append("wire registers (no logic)")
     if s == 1:
-        parts.append("generate/propagate" if mode == "levels" else "block carry chains")
+        parts.append({"bits": "generate/propagate", "chains": "block carry chains",
+                      "compare": "slice comparisons"}[flavour])
     if levels:
         first, end = levels[0] + 1, levels[-1] + 1
         parts.append(f"prefix level {first}" if first == end else f"prefix levels {first}-{end}")
     if s == final:
-        parts.append("sum" if mode == "levels" else "block select")
+        parts.append({"bits": "sum", "chains": "block select", "compare": "verdicts"}[flavour])
     return ", ".join(parts)

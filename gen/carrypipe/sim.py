@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from .plan import Plan
-from .vectors import Vector, expected
+from .vectors import Vector, expected, input_ports, output_ports
 
 SIMULATORS = ("amaranth", "icarus", "verilator")
 
@@ -45,49 +45,53 @@ def run(plan: Plan, vecs: list[Vector], simulator: str, timeout: float | None = 
     return run_external(plan, vecs, simulator, timeout=timeout)
 
 
-def _mismatch(plan: Plan, k: int, cycle: int, v: Vector, got: tuple) -> str:
-    s, cout = expected(plan, v)
-    return (f"FAIL vector {k} (cycle {cycle}): a={v.a:x} b={v.b:x} cin={v.cin} expected "
-            f"sum={s:x} cout={cout} valid={v.valid} got sum={got[0]:x} cout={got[1]} "
-            f"valid={got[2]}")
+def _mismatch(plan, k: int, cycle: int, v: Vector, want: dict, got: dict) -> str:
+    """The testbench's FAIL line for vector k, in the same words."""
+    shown_in = " ".join(f"{p.name}={v.inputs[p.name]:x}" for p in input_ports(plan))
+    names = [p.name for p in output_ports(plan)] + (["valid"] if plan.config.valid else [])
+
+    def show(d):
+        return " ".join(f"{n}={d[n]:x}" for n in names)
+    return f"FAIL vector {k} (cycle {cycle}): {shown_in} expected {show(want)} got {show(got)}"
 
 
-def run_amaranth(plan: Plan, vecs: list[Vector], unit=None) -> Result:
-    """Simulate the Amaranth design itself (always available)."""
+def run_amaranth(plan, vecs: list[Vector], unit=None) -> Result:
+    """Simulate the unit in Amaranth's Python simulator (always available)."""
+    from amaranth.hdl import Module
     from amaranth.sim import Simulator
 
-    from .unit import PipelinedAdder, clock_domain
+    from .hdl import Unit, clock_domain
 
-    top = unit if unit is not None else PipelinedAdder(plan)
+    top = unit if unit is not None else Unit(plan)
     c, lat = plan.config, plan.latency
-    mask = (1 << plan.width) - 1
+    ins, outs = input_ports(plan), output_ports(plan)
+    wants = expected(plan, vecs)
     outcome = {}
 
     async def bench(ctx):
-        if c.reset == "sync":
-            ctx.set(top_rst, 1)  # tick() refuses to wait while the domain is in reset
+        if c.reset != "none":
+            ctx.set(cd.rst, 1)  # tick() refuses to wait while the domain is in reset
             for _ in range(2):
                 await ctx.posedge(cd.clk)
-            ctx.set(top_rst, 0)
+            ctx.set(cd.rst, 0)
         taken, nxt, cycle, gap_done = 0, 0, 0, False
         while True:
             en = 1
             if nxt < len(vecs):
                 v = vecs[nxt]
-                a, b, cin, valid = v.a, v.b, v.cin, v.valid
-                if v.gap and not gap_done:
-                    a, b, cin, valid, en, gap_done = a ^ mask, b ^ mask, cin ^ 1, valid ^ 1, 0, True
+                values, valid = dict(v.inputs), v.valid
+                if v.gap and not gap_done:  # a cycle with en low and the inputs inverted
+                    values = {p.name: values[p.name] ^ ((1 << p.width) - 1) for p in ins}
+                    valid, en, gap_done = valid ^ 1, 0, True
                 else:
                     gap_done = False
             else:
-                a = b = cin = valid = 0
-            ctx.set(top.a, a)
-            ctx.set(top.b, b)
-            if top.cin is not None:
-                ctx.set(top.cin, cin)
-            if top.in_valid is not None:
+                values, valid = {p.name: 0 for p in ins}, 0
+            for p in ins:
+                ctx.set(getattr(top, p.name), values[p.name])
+            if c.valid:
                 ctx.set(top.in_valid, valid)
-            if top.en is not None:
+            if c.enable:
                 ctx.set(top.en, en)
             await ctx.tick()
             cycle += 1
@@ -99,24 +103,21 @@ def run_amaranth(plan: Plan, vecs: list[Vector], unit=None) -> Result:
                 if k >= len(vecs):
                     outcome["msg"] = f"PASS {len(vecs)} vectors, latency {lat}"
                     return
-                got = (ctx.get(top.sum),
-                       ctx.get(top.cout) if top.cout is not None else 0,
-                       ctx.get(top.out_valid) if top.out_valid is not None else 1)
-                s, cout = expected(plan, vecs[k])
-                want = (s, cout if top.cout is not None else 0, vecs[k].valid if c.valid else 1)
+                got = {p.name: ctx.get(getattr(top, p.name)) for p in outs}
+                want = dict(wants[k])
+                if c.valid:
+                    got["valid"], want["valid"] = ctx.get(top.out_valid), vecs[k].valid
                 if got != want:
-                    outcome["msg"] = _mismatch(plan, k, cycle, vecs[k], got)
+                    outcome["msg"] = _mismatch(plan, k, cycle, vecs[k], want, got)
                     return
-            elif c.reset == "sync" and c.valid and ctx.get(top.out_valid) != 0:
-                outcome["msg"] = f"FAIL cycle {cycle}: out_valid=1 before the first result after reset"
+            elif c.reset != "none" and c.valid and ctx.get(top.out_valid) != 0:
+                outcome["msg"] = (f"FAIL cycle {cycle}: out_valid=1 before the first result "
+                                  "after reset")
                 return
 
-    from amaranth.hdl import Module
-
     harness = Module()
-    harness.domains.sync = cd = clock_domain(plan)("sync")
+    harness.domains.sync = cd = clock_domain(c)
     harness.submodules.unit = top
-    top_rst = cd.rst
     sim = Simulator(harness)
     sim.add_clock(1e-8)
     sim.add_testbench(bench)

@@ -1,70 +1,80 @@
 """The self-checking Verilog-2001 testbench emitted beside the unit.
 
-It reads the packed vector file (see `vectors.field_widths`), offers one vector per enabled
-clock edge, and compares every result `latency` enabled edges later with the expected value
-that Python computed.  It ends with one line that starts with PASS or FAIL; on FAIL it also
-stops through `$fatal`, so simulators that support it exit non-zero (define
+It opens and reads the packed vector file (see `vectors.field_widths`), checks that every
+entry is there (each carries its own number, so a missing, short or empty file fails, in
+Icarus, where missing entries read as X, and in Verilator, where they read as 0), offers one
+vector per enabled clock edge, and compares every result `latency` enabled edges later with
+the expected value that Python computed; an X or Z in any output is a mismatch.  It ends with
+one line that starts with PASS (only when every one of VECTORS vectors was checked) or FAIL;
+on FAIL it also stops through `$fatal`, so simulators that support it exit non-zero (define
 CARRYPIPE_TB_NO_FATAL for a simulator that lacks `$fatal`).
 """
 
 from __future__ import annotations
 
-from .plan import Plan
-from .vectors import field_widths
+from .vectors import TAG_BITS, field_widths, input_ports, output_ports
 
 
-def vector_file(plan: Plan) -> str:
+def vector_file(plan) -> str:
     return f"{plan.config.name}_vectors.hex"
 
 
-def testbench(plan: Plan, count: int) -> str:
-    c, w, lat = plan.config, plan.width, plan.latency
+def testbench(plan, count: int) -> str:
+    c, lat = plan.config, plan.latency
     name = c.name
     offs, at = {}, 0
-    for field, width in field_widths(plan):
-        offs[field] = (at + width - 1, at)
+    for fld, width in field_widths(plan):
+        offs[fld] = (at + width - 1, at)
         at += width
 
-    def f(field):
-        hi, lo = offs[field]
-        return f"cur[{hi}:{lo}]" if hi != lo else f"cur[{hi}]"
+    def f(fld, word="cur"):
+        hi, lo = offs[fld]
+        return f"{word}[{hi}:{lo}]" if hi != lo else f"{word}[{hi}]"
 
-    names = [p.name for p in plan.ports]
-    conns = ",\n    ".join(f".{n}({n})" for n in names)
-    has = set(names)
+    ins, outs = input_ports(plan), output_ports(plan)
+    has = {p.name for p in plan.ports}
+
+    def decl(kind, p, init=""):
+        rng = f"[{p.width - 1}:0] " if p.width > 1 else ""
+        return f"  {kind} {rng}{p.name}{init};"
+
+    conns = ",\n    ".join(f".{p.name}({p.name})" for p in plan.ports)
+    shown_in = " ".join(f"{p.name}=%h" for p in ins)
+    shown_out = " ".join(f"{p.name}=%h" for p in outs) + (" valid=%b" if c.valid else "")
+    want = ", ".join([f(p.name) for p in outs] + ([f("valid")] if c.valid else []))
+    got = ", ".join([p.name for p in outs] + (["out_valid"] if c.valid else []))
+    compare = " || ".join([f"{p.name} !== {f(p.name)}" for p in outs]
+                          + ([f"out_valid !== {f('valid')}"] if c.valid else []))
     lines = [
         f"// Self-checking testbench for {name} (carrypipe).",
-        f"// Reads {vector_file(plan)} (or +vectors=FILE), {count} vectors; +vcd writes {name}_tb.vcd.",
+        f"// Reads {vector_file(plan)} (or +vectors=FILE): VECTORS vectors; +vcd writes {name}_tb.vcd.",
         f"//   iverilog -g2005 -o {name}_tb.vvp {name}.v {name}_tb.v && vvp {name}_tb.vvp",
         f"//   Or with Verilator 5: verilator --binary --timing -Wno-fatal --top-module {name}_tb"
-        f" {name}.v {name}_tb.v"
-        f" && obj_dir/V{name}_tb",
+        f" {name}.v {name}_tb.v && obj_dir/V{name}_tb",
         "// The last line printed starts with PASS or FAIL.",
         "`timescale 1ns / 1ps",
         f"module {name}_tb;",
         f"  parameter VECTORS = {count};",
-        f"  localparam W = {w};",
         f"  localparam LATENCY = {lat};",
         f"  localparam VW = {at};",
         "  reg clk = 1'b0;",
         "  always #5 clk = ~clk;",
         "  reg [VW-1:0] mem [0:VECTORS-1];",
         "  reg [VW-1:0] cur;",
-        "  reg [W-1:0] a = 0;",
-        "  reg [W-1:0] b = 0;",
-        "  reg cin = 1'b0;",
+        *(decl("reg", p, " = 0") for p in ins),
         "  reg in_valid = 1'b0;",
         "  reg en = 1'b0;",
         "  reg rst = 1'b1;",
         "  reg gap_done = 1'b0;",
-        "  wire [W-1:0] sum;",
-        "  wire cout;",
+        *(decl("wire", p) for p in outs),
         "  wire out_valid;",
         "  reg [8*512-1:0] path;",
         "  integer next;",
         "  integer taken;",
+        "  integer checked;",
         "  integer cycle;",
         "  integer k;",
+        "  integer fd;",
         "",
         f"  {name} dut (\n    {conns}\n  );",
         "",
@@ -79,20 +89,16 @@ def testbench(plan: Plan, count: int) -> str:
         "  endtask",
         "",
         "  // Put vector `next` on the inputs; a gap first shows one cycle with en low and the",
-        "  // operands inverted, which the unit must ignore.",
+        "  // inputs inverted, which the unit must ignore.",
         "  task drive;",
         "    begin",
         "      if (next < VECTORS) begin",
         "        cur = mem[next];",
-        f"        a = {f('a')};",
-        f"        b = {f('b')};",
-        f"        cin = {f('cin')};",
+        *(f"        {p.name} = {f(p.name)};" for p in ins),
         f"        in_valid = {f('valid')};",
         "        en = 1'b1;",
         f"        if ({f('gap')} && !gap_done) begin",
-        "          a = ~a;",
-        "          b = ~b;",
-        "          cin = ~cin;",
+        *(f"          {p.name} = ~{p.name};" for p in ins),
         "          in_valid = ~in_valid;",
         "          en = 1'b0;",
         "          gap_done = 1'b1;",
@@ -100,37 +106,49 @@ def testbench(plan: Plan, count: int) -> str:
         "          gap_done = 1'b0;",
         "        end",
         "      end else begin",
-        "        a = 0;",
-        "        b = 0;",
-        "        cin = 1'b0;",
+        *(f"        {p.name} = 0;" for p in ins),
         "        in_valid = 1'b0;",
         "        en = 1'b1;",
         "      end",
         "    end",
         "  endtask",
         "",
+        "  // Compare the outputs with vector k's expected values (an X or Z never matches).",
         "  task check;",
         "    begin",
         "      cur = mem[k];",
-        f"      if (sum !== {f('sum')}"
-        + (f" || cout !== {f('cout')}" if "cout" in has else "")
-        + (f" || out_valid !== {f('valid')}" if "out_valid" in has else "") + ") begin",
-        "        $display(\"FAIL vector %0d (cycle %0d): a=%h b=%h cin=%b expected sum=%h"
-        " cout=%b valid=%b got sum=%h cout=%b valid=%b\",",
-        f"          k, cycle, {f('a')}, {f('b')}, {f('cin')}, {f('sum')}, {f('cout')},"
-        f" {f('valid')}, sum, cout, out_valid);",
+        f"      if ({compare}) begin",
+        f"        $display(\"FAIL vector %0d (cycle %0d): {shown_in} expected {shown_out}"
+        f" got {shown_out}\",",
+        f"          k, cycle, {', '.join(f(p.name) for p in ins)}, {want}, {got});",
         "        fail;",
         "      end",
+        "      if (en) checked = checked + 1;  // a new result (with en low it only holds)",
         "    end",
         "  endtask",
         "",
         "  initial begin",
         f"    if (!$value$plusargs(\"vectors=%s\", path)) path = \"{vector_file(plan)}\";",
+        "    fd = $fopen(path, \"r\");",
+        "    if (fd == 0) begin",
+        "      $display(\"FAIL cannot open the vectors file %0s\", path);",
+        "      fail;",
+        "    end",
+        "    $fclose(fd);",
         "    $readmemh(path, mem);",
+        "    // Every entry carries its number plus one: a missing or damaged one fails here.",
+        "    for (k = 0; k < VECTORS; k = k + 1) begin",
+        f"      if (^mem[k] === 1'bx || {f('tag', 'mem[k]')} !== {TAG_BITS}'d1 + k) begin",
+        "        $display(\"FAIL the vectors file %0s holds %0d of the %0d vectors asked for"
+        " (VECTORS)\", path, k, VECTORS);",
+        "        fail;",
+        "      end",
+        "    end",
         f"    if ($test$plusargs(\"vcd\")) begin $dumpfile(\"{name}_tb.vcd\"); "
         f"$dumpvars(0, {name}_tb); end",
         "    next = 0;",
         "    taken = 0;",
+        "    checked = 0;",
         "    cycle = 0;",
         "    // Two cycles of reset (with en low: the reset must act all the same).",
         "    repeat (2) @(posedge clk);",
@@ -146,7 +164,11 @@ def testbench(plan: Plan, count: int) -> str:
         "      if (taken >= LATENCY) begin",
         "        k = taken - LATENCY;",
         "        if (k >= VECTORS) begin",
-        "          $display(\"PASS %0d vectors, latency %0d\", VECTORS, LATENCY);",
+        "          if (checked != VECTORS) begin",
+        "            $display(\"FAIL checked %0d of %0d vectors\", checked, VECTORS);",
+        "            fail;",
+        "          end",
+        "          $display(\"PASS %0d vectors, latency %0d\", checked, LATENCY);",
         "          $finish;",
         "        end",
         "        check;",

@@ -25,7 +25,8 @@ from .plan import make_plan
 from .sim import ToolMissing
 
 TOOLS = ("wheel", "system")
-FLOW_VERSION = 6  # bump when the harness, scripts, arguments or path reading change a result
+FLOW_VERSION = 7  # bump when the harness, scripts, arguments, path reading or the
+# emitted Verilog change a result
 FREQ_MHZ = 500  # the clock constraint nextpnr optimizes for, above any reachable figure
 PINS = "pins"  # the harness's pin file, `pins.cst` or `pins.pdc` (devices.pin_constraints)
 INSTALL_HINT = "pip install 'carrypipe[fit]'"

@@ -1,97 +1,93 @@
-"""Test vectors and their expected results, from Python integer arithmetic.
+"""Test vectors and their expected results, from the unit kind's Python reference.
 
-A vector is one operand set offered to the unit. With `enable`, a vector may carry a gap:
-the unit first sees one cycle with `en` low (and the operands inverted, which it must
-ignore) before the cycle that takes the vector. Every checker (the Python simulation and
-the emitted testbench) uses the same vectors and the same expected values.
+A vector is one input set offered to the unit: its data inputs, its valid bit and whether a
+gap comes first.  With `enable`, a vector may carry a gap: the unit first sees one cycle with
+`en` low (and the inputs inverted, which it must ignore) before the cycle that takes the
+vector.  Every checker (the Python simulation and the emitted testbench) uses the same
+vectors and the same expected values, computed by running the kind's reference model over
+the vectors in order (the accumulator's total carries from one to the next).
 """
 
 from __future__ import annotations
 
 import random
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
-from .plan import Plan
+TAG_BITS = 32  # every packed vector carries its own number, so a missing one is seen
 
 
 @dataclass(frozen=True)
 class Vector:
-    a: int
-    b: int
-    cin: int = 0
+    inputs: dict = field(hash=False)  # data input port -> value (in_valid is `valid`)
     valid: int = 1
     gap: bool = False
 
 
-def expected(plan: Plan, v: Vector) -> tuple[int, int]:
-    """(sum, cout) of a + b + cin in W bits, by Python integers."""
-    total = v.a + v.b + v.cin
-    return total & ((1 << plan.width) - 1), total >> plan.width
+def input_ports(plan) -> list:
+    """The inputs a vector sets: every data input but in_valid."""
+    return [p for p in plan.data_inputs() if p.name != "in_valid"]
 
 
-def directed(plan: Plan) -> list[Vector]:
-    """Corner cases: zeros, all ones + all ones, all ones + 1, alternating bits, and a carry
-    that must travel from bit 0 to every bit position in turn."""
-    w = plan.width
-    top = (1 << w) - 1
-    five = int("01" * w, 2) & top
-    cin = 1 if plan.config.carry_in else 0
-    cases = [(0, 0, 0), (top, top, cin), (top, 1, 0), (top, 0, cin), (five, top ^ five, cin),
-             (five, five, 0), (top ^ five, top ^ five, cin), (top ^ five, five, 0)]
-    cases += [((1 << k) - 1, 1, 0) for k in range(1, w + 1)]
-    if cin:
-        cases += [(((1 << k) - 1), 0, 1) for k in range(1, w + 1)]
-    return [Vector(a, b, c) for a, b, c in cases]
+def output_ports(plan) -> list:
+    """The outputs a vector expects: every output but out_valid (that is `valid`)."""
+    return [p for p in plan.ports if p.direction == "output" and p.name != "out_valid"]
 
 
-def random_vectors(plan: Plan, count: int, seed: int) -> list[Vector]:
-    """Seeded random operands; a quarter are chosen so that long carry chains propagate."""
+def expected(plan, vecs: list[Vector]) -> list[dict]:
+    """The outputs of every vector, by the unit kind's reference over the sequence."""
+    model = plan.unit.model(plan.config)
+    out = []
+    for v in vecs:
+        got = model.step({**v.inputs, **({"in_valid": v.valid} if plan.config.valid else {})})
+        out.append({p.name: got[p.name] for p in output_ports(plan)})
+    return out
+
+
+def directed(plan) -> list[Vector]:
+    return [Vector(i) for i in plan.unit.directed(plan.config)]
+
+
+def random_vectors(plan, count: int, seed: int) -> list[Vector]:
+    """Seeded random inputs (the kind picks them; see `units.Kind.random_inputs`)."""
     rng = random.Random(seed)
-    c, w = plan.config, plan.width
-    top = (1 << w) - 1
+    c = plan.config
     out = []
     for _ in range(count):
-        a = rng.getrandbits(w)
-        pick = rng.random()
-        if pick < 0.25:
-            b = (top ^ a) ^ (1 << rng.randrange(w))  # one generate inside a long propagate run
-        elif pick < 0.3:
-            b = top ^ a
-        else:
-            b = rng.getrandbits(w)
-        out.append(Vector(a, b, rng.getrandbits(1) if c.carry_in else 0,
-                          rng.getrandbits(1) if c.valid else 1,
+        inputs = plan.unit.random_inputs(c, rng)
+        out.append(Vector(inputs, rng.getrandbits(1) if c.valid else 1,
                           c.enable and rng.random() < 0.2))
     return out
 
 
-def suite(plan: Plan, count: int, seed: int) -> list[Vector]:
+def suite(plan, count: int, seed: int) -> list[Vector]:
     """The directed vectors, then seeded random ones up to `count` in all; with `valid` and
-    `enable`, the directed ones get bubbles and gaps too."""
+    `enable`, the directed ones get bubbles and gaps too (the first is always valid, so an
+    accumulator starts from its clear)."""
     rng = random.Random(seed ^ 0x5EED)
     c = plan.config
-    fixed = [Vector(v.a, v.b, v.cin,
-                    rng.getrandbits(1) if c.valid else 1,
-                    c.enable and rng.random() < 0.2) for v in directed(plan)]
+    fixed = [Vector(v.inputs, 1 if k == 0 or not c.valid else rng.getrandbits(1),
+                    c.enable and rng.random() < 0.2) for k, v in enumerate(directed(plan))]
     return fixed + random_vectors(plan, max(0, count - len(fixed)), seed)
 
 
-def field_widths(plan: Plan) -> list[tuple[str, int]]:
-    """The fields of one packed vector word, least significant first."""
-    w = plan.width
-    return [("a", w), ("b", w), ("cin", 1), ("valid", 1), ("gap", 1), ("sum", w), ("cout", 1)]
+def field_widths(plan) -> list[tuple[str, int]]:
+    """The fields of one packed vector word, least significant first: inputs, valid, gap,
+    expected outputs, and the vector's own number plus one (the tag)."""
+    return ([(p.name, p.width) for p in input_ports(plan)] + [("valid", 1), ("gap", 1)]
+            + [(p.name, p.width) for p in output_ports(plan)] + [("tag", TAG_BITS)])
 
 
-def pack(plan: Plan, v: Vector) -> int:
-    s, cout = expected(plan, v)
+def pack(plan, k: int, v: Vector, out: dict) -> int:
+    values = {**v.inputs, "valid": v.valid, "gap": int(v.gap), **out, "tag": k + 1}
     word, shift = 0, 0
-    for (_, width), value in zip(field_widths(plan), (v.a, v.b, v.cin, v.valid, int(v.gap), s, cout)):
-        word |= value << shift
+    for name, width in field_widths(plan):
+        word |= (values[name] & ((1 << width) - 1)) << shift
         shift += width
     return word
 
 
-def hex_lines(plan: Plan, vectors: list[Vector]) -> str:
+def hex_lines(plan, vecs: list[Vector]) -> str:
     """The vector file read by the testbench with $readmemh: one packed word per line."""
     digits = (sum(w for _, w in field_widths(plan)) + 3) // 4
-    return "".join(f"{pack(plan, v):0{digits}x}\n" for v in vectors)
+    return "".join(f"{pack(plan, k, v, out):0{digits}x}\n"
+                   for k, (v, out) in enumerate(zip(vecs, expected(plan, vecs))))

@@ -1,0 +1,56 @@
+"""What every pipeline mode's builder shares: the ports, the input register, the valid chain,
+registers made from the plan's words, and the output section.
+"""
+
+from __future__ import annotations
+
+from . import header
+from .netlist import CONTROL, DATA, Builder, Expr, Netlist, Vec
+
+
+class Frame:
+    """A netlist under construction for `plan`, with its ports, inputs and valid chain."""
+
+    def __init__(self, plan):
+        self.plan = plan
+        c = plan.config
+        self.b = b = Builder(c.name)
+        self.ports = {p.name: b.port(p.name, p.width, p.direction, p.meaning)
+                      for p in plan.ports}
+        self.words = {w.name: w for w in plan.words}
+        # What each data input is as the first stage sees it: the port, or its register.
+        self.src: dict[str, Expr] = {p.name: self.ports[p.name].all for p in plan.data_inputs()}
+        if c.register_inputs:
+            b.section(*header.input_title(plan))
+            for p in plan.data_inputs():
+                if p.name != "in_valid":
+                    r = self.reg(f"{p.name}_in")
+                    b.load(r, self.src[p.name])
+                    self.src[p.name] = r.all
+        self.valid: list[Expr] = []  # in_valid after k cycles
+        if c.valid:
+            b.section(*header.valid_title(plan))
+            self.valid = [self.src["in_valid"]]
+            for k in range(1, plan.latency + 1):
+                r = self.reg(f"valid_{k}")
+                b.load(r, self.valid[-1])
+                self.valid.append(r.all)
+
+    def reg(self, name: str) -> Vec:
+        """The register the plan lists under `name`, declared in the current section."""
+        w = self.words[name]
+        return self.b.reg(name, w.width, w.lsb, CONTROL if w.kind == "control" else DATA,
+                          w.keep)
+
+    def finish(self, drives: dict[str, Expr]) -> Netlist:
+        """The output section (each output port from the register that holds it) and the
+        netlist."""
+        c = self.plan.config
+        self.b.section("Outputs: every result leaves a register of the last stage.")
+        if c.valid:
+            drives = {**drives, "out_valid": self.valid[-1]}
+        for p in self.plan.ports:
+            if p.direction == "output":
+                self.b.drive(self.ports[p.name].all, drives[p.name])
+        return self.b.netlist(reset=c.reset, reset_data=c.reset_data, enable=c.enable,
+                              header=header.lines(self.plan))

@@ -1,0 +1,587 @@
+"""Unit kinds: what a unit computes, chosen once by the config key `unit`.
+
+A kind owns everything that depends on the operation: its ports (in the documented order:
+clock and controls, operands, operand-side flags, results, result-side flags), its Python
+reference model, its directed corner vectors, the reference of the proof's miter, its words
+for the report, and the logic of one slice of the sliced pipeline.  Pipelines, emitters,
+simulators and proofs read only this interface, never the kind's name.
+
+The arithmetic kinds share one core: an adder or subtractor over operands x, y with a chain
+bit (carry or borrow) handed from slice to slice.  `op` is "add" or "sub"; a subtractor's
+registers hold borrows, so the `bout` port reads the chain directly.
+"""
+
+from __future__ import annotations
+
+import random
+from dataclasses import dataclass
+
+from . import cells
+from .miter import chained, signed_overflow
+from .netlist import Cmp, Const, Expr, Mux, Rep, bit, cat, part
+
+
+@dataclass(frozen=True)
+class Port:
+    name: str
+    direction: str  # "input" or "output"
+    width: int
+    meaning: str
+
+
+def to_signed(value: int, width: int) -> int:
+    """Two's-complement reading of a `width`-bit pattern (IEEE 1364 signed arithmetic)."""
+    return value - (1 << width) if value >> (width - 1) & 1 else value
+
+
+class Model:
+    """A reference over the accepted inputs, in order (an input with `en` low is not one).
+
+    `step(inputs)` returns the outputs the unit shows `latency` accepted inputs later.  The
+    stateless kinds compute from the inputs alone; the accumulator keeps its total.
+    """
+
+    def __init__(self, kind: "Kind", config):
+        self.kind, self.config = kind, config
+
+    def step(self, inputs: dict) -> dict:
+        return self.kind.compute(self.config, inputs)
+
+
+class Kind:
+    """The interface every unit kind offers (see the module docstring)."""
+
+    name: str
+    modes: tuple[str, ...] = ("slices", "levels", "blocks")
+    refused: tuple[str, ...] = ()  # config keys that make no sense for the kind
+    mode_keys: dict = {}  # key -> the pipeline modes that read it, where not as usual
+    operands: tuple[str, ...] = ("a", "b")  # W-bit inputs that wait in the input skew
+    travellers: tuple[str, ...] = ()  # one-bit inputs that every slice reads
+    result: str | None = "sum"  # W-bit result that waits in the output deskew
+    chain: tuple[str, ...] = ("carry",)  # bits handed from one slice to the next
+    op: str = "add"
+    verb: str = "computes"  # what a slice does to its bits, for comments
+    composable = False  # `prove --method compositional` covers its sliced units
+    settle = 0  # cycles a bounded proof needs beyond latency + 1 (a state to build up)
+
+    # ---- ports ----
+    def carry_in_port(self, c) -> str | None:
+        return None
+
+    def carry_out_port(self, c) -> str | None:
+        return None
+
+    def flag_inputs(self, c) -> list[Port]:
+        """Operand-side flags (after the operands, before in_valid)."""
+        return []
+
+    def results(self, c) -> list[Port]:
+        """Result ports (after the inputs, before out_valid)."""
+        raise NotImplementedError
+
+    def ports(self, c) -> list[Port]:
+        w = c.width
+        ports = [Port("clk", "input", 1, "clock: every register loads on its rising edge")]
+        if c.reset != "none":
+            what = "every register" if c.reset_data else "the valid bits"
+            how = "asynchronous (assert any time, release in step with clk)" \
+                if c.reset == "async" else "synchronous"
+            ports.append(Port("rst", "input", 1, f"{how} reset, active high: clears {what}"))
+        if c.enable:
+            ports.append(Port("en", "input", 1, "clock enable: while low every register holds"))
+        ports += [Port(n, "input", w, m) for n, m in self.operand_meanings(c)]
+        ports += self.flag_inputs(c)
+        if c.valid:
+            ports.append(Port("in_valid", "input", 1, "marks the inputs of this edge as valid"))
+        ports += self.results(c)
+        if c.valid:
+            ports.append(Port("out_valid", "output", 1, "in_valid, delayed by the latency"))
+        return ports
+
+    def operand_meanings(self, c) -> list[tuple[str, str]]:
+        return [("a", "first operand"), ("b", "second operand")]
+
+    # ---- reference ----
+    def model(self, c) -> Model:
+        return Model(self, c)
+
+    def compute(self, c, inputs: dict) -> dict:
+        raise NotImplementedError
+
+    def directed(self, c) -> list[dict]:
+        """Corner cases as input dicts (operands and flags; valid and gaps come later)."""
+        raise NotImplementedError
+
+    def random_inputs(self, c, rng: random.Random) -> dict:
+        w = c.width
+        top = (1 << w) - 1
+        a = rng.getrandbits(w)
+        pick = rng.random()
+        if pick < 0.25:
+            b = (top ^ a) ^ (1 << rng.randrange(w))  # one generate inside a long propagate run
+        elif pick < 0.3:
+            b = top ^ a
+        elif pick < 0.35:
+            b = a  # equal operands: the comparator's and the subtractor's corner
+        else:
+            b = rng.getrandbits(w)
+        out = {"a": a, "b": b}
+        for p in self.flag_inputs(c):
+            out[p.name] = rng.getrandbits(1)
+        return out
+
+    def reference(self, c, en: str) -> list[str]:
+        """Verilog lines of the proof's miter defining `ref_<output>_0` for every output but
+        out_valid, from the input ports (`en` is the expression of an enabled edge)."""
+        raise NotImplementedError
+
+    def proof_sets(self, c) -> str:
+        """Extra `sat` options that fix inputs of the proof (a stateful unit starts cleared)."""
+        return ""
+
+    # ---- the sliced pipeline ----
+    def default_slice_width(self, width: int, mode: str) -> int:
+        """The slice width when the config gives no split."""
+        return width
+
+    def has_carry_in(self, c) -> bool:
+        """Whether the lowest slice's chain has an input (a port, or a flag)."""
+        return False
+
+    def has_carry_out(self, c) -> bool:
+        """Whether the top slice registers its chain bit (for a port)."""
+        return False
+
+    def output_families(self, c) -> dict[str, str]:
+        """One-bit output port -> the family of the top stage's register that drives it."""
+        return {}
+
+    def slice(self, ctx) -> list[tuple[tuple[str, ...], Expr]]:
+        """What one slice registers: (register families, value) pairs (see `slices.py`)."""
+        raise NotImplementedError
+
+    # ---- words ----
+    def phrase(self, c) -> str:
+        raise NotImplementedError
+
+
+def _operand_corners(w: int) -> list[tuple[int, int]]:
+    top = (1 << w) - 1
+    five = int("01" * w, 2) & top
+    half = 1 << (w - 1)
+    cases = [(0, 0), (top, top), (top, 1), (top, 0), (0, top), (five, top ^ five), (five, five),
+             (top ^ five, top ^ five), (top ^ five, five), (half, half), (half, half - 1),
+             (half - 1, half), (half - 1, half - 1), (1, 0), (0, 1)]
+    cases += [((1 << k) - 1, 1) for k in range(1, w + 1)]  # a carry out of every bit in turn
+    return [(a & top, b & top) for a, b in cases]
+
+
+class Arithmetic(Kind):
+    """Adder, subtractor, add/subtract: the W-bit result, the chain out, signed overflow."""
+
+    chain_port = ("cin", "cout")
+    transforms_carry_out = False  # the carry-out port is not the chain bit itself
+
+    def has_carry_in(self, c):
+        return c.carry_in
+
+    def has_carry_out(self, c):
+        return c.carry_out
+
+    def output_families(self, c):
+        out = {self.chain_port[1]: self.chain[0]} if c.carry_out else {}
+        return {**out, **({"overflow": "overflow"} if c.signed else {})}
+
+    def slice(self, ctx):
+        c, s = ctx.config, ctx.s
+        x, y = ctx.ops["a"], self.y_operand(ctx.ops["b"], ctx.flags)
+        cin = (ctx.chain_in[self.chain[0]] if s.index
+               else self.core_carry_in(ctx.flags.get("carry_in"), ctx.flags))
+        want = not ctx.top or c.carry_out
+        total = cells.core(ctx.slot, s.cell, x, y, cin, self.op, want)
+        if not (ctx.top and (c.signed or (want and self.transforms_carry_out))):
+            return [((self.result,) + ((self.chain[0],) if want else ()), total)]
+        t = ctx.slot.wire("total", total)  # the top slice reads bits of its total
+        w, lsb = s.width, s.lsb
+        loads = [((self.result,), t[lsb:lsb + w])]
+        if want:
+            loads.append(((self.chain[0],), self.core_carry_out(t[lsb + w], ctx.flags)))
+        if c.signed:
+            loads.append((("overflow",), self.overflow(bit(x, w - 1), bit(y, w - 1),
+                                                      t[lsb + w - 1])))
+        return loads
+
+    def carry_in_port(self, c):
+        return self.chain_port[0] if c.carry_in else None
+
+    def carry_out_port(self, c):
+        return self.chain_port[1] if c.carry_out else None
+
+    def flag_inputs(self, c):
+        port = self.carry_in_port(c)
+        return [Port(port, "input", 1, self.carry_in_meaning)] if port else []
+
+    def results(self, c):
+        ports = [Port(self.result, "output", c.width, self.result_meaning(c))]
+        if c.carry_out:
+            ports.append(Port(self.chain_port[1], "output", 1, self.carry_out_meaning))
+        if c.signed:
+            ports.append(Port("overflow", "output", 1,
+                              "1 when the two's-complement result differs from the exact one"))
+        return ports
+
+    def exact(self, c, inputs: dict) -> tuple[int, int]:
+        """(unsigned exact value, signed exact value) of the operation."""
+        raise NotImplementedError
+
+    def compute(self, c, inputs):
+        w = c.width
+        value, signed_value = self.exact(c, inputs)
+        out = {self.result: value % (1 << w)}
+        if c.carry_out:
+            out[self.chain_port[1]] = self.chain_out(c, inputs, value)
+        if c.signed:
+            out["overflow"] = int(to_signed(out[self.result], w) != signed_value)
+        return out
+
+    def chain_out(self, c, inputs, value):
+        raise NotImplementedError
+
+    def reference(self, c, en):
+        cin = self.chain_port[0] if c.carry_in else "1'b0"
+        return self._reference(c, "", "+" if self.op == "add" else "-", cin)
+
+    def _reference(self, c, tag: str, op: str, cin: str) -> list[str]:
+        """`ref<tag>_x` = {chain, result} of a op b op cin, and its overflow bit."""
+        w = c.width
+        lines = chained(f"ref{tag}_x", "a", "b", cin, w, op)
+        if c.signed:
+            lines += signed_overflow(f"ref{tag}_ovf", "a", "b", cin, w, op)
+        if tag:
+            return lines
+        lines.append(f"  wire [{w - 1}:0] ref_{self.result}_0 = ref_x[{w - 1}:0];")
+        if c.carry_out:
+            lines.append(f"  wire ref_{self.chain_port[1]}_0 = ref_x[{w}];")
+        if c.signed:
+            lines.append("  wire ref_overflow_0 = ref_ovf;")
+        return lines
+
+    def directed(self, c):
+        cases = []
+        for a, b in _operand_corners(c.width):
+            flags = [{}]
+            for p in self.flag_inputs(c):
+                flags = [{**f, p.name: v} for f in flags for v in (0, 1)]
+            cases += [{"a": a, "b": b, **f} for f in flags]
+        return cases
+
+    # ---- the slice core ----
+    def y_operand(self, b: Expr, flags: dict) -> Expr:
+        """The second operand of the adder core."""
+        return b
+
+    def core_carry_in(self, port: Expr | None, flags: dict) -> Expr | None:
+        """The chain bit into the lowest slice (None: no carry, a constant 0)."""
+        return port
+
+    def core_carry_out(self, chain: Expr, flags: dict) -> Expr:
+        """The `cout`/`bout` port value from the top slice's chain bit."""
+        return chain
+
+    def overflow(self, x_msb: Expr, y_msb: Expr, s_msb: Expr) -> Expr:
+        """Signed overflow from the top bits of the core's operands and result: an addition
+        overflows when both operands share a sign the result lacks, a subtraction when the
+        operands differ in sign and the result's sign is not the minuend's (common practice)."""
+        same = ~(x_msb ^ y_msb) if self.op == "add" else x_msb ^ y_msb
+        return same & (s_msb ^ x_msb)
+
+
+class Adder(Arithmetic):
+    name = "adder"
+    verb = "adds"
+    composable = True
+    result = "sum"
+    chain = ("carry",)
+    carry_in_meaning = "carry into bit 0"
+    carry_out_meaning = "carry out of the top bit"
+
+    def result_meaning(self, c):
+        return f"(a + b{' + cin' if c.carry_in else ''}) mod 2^{c.width}"
+
+    def exact(self, c, i):
+        cin = i.get("cin", 0)
+        return (i["a"] + i["b"] + cin,
+                to_signed(i["a"], c.width) + to_signed(i["b"], c.width) + cin)
+
+    def chain_out(self, c, i, value):
+        return value >> c.width
+
+    def phrase(self, c):
+        rhs = "a + b + cin" if c.carry_in else "a + b"
+        lhs = "{cout, sum}" if c.carry_out else "sum"
+        return f"{c.width}-bit {'signed ' if c.signed else ''}adder, {lhs} = {rhs}"
+
+
+class Subtractor(Arithmetic):
+    name = "subtractor"
+    verb = "subtracts"
+    composable = True
+    result = "diff"
+    chain = ("borrow",)
+    op = "sub"
+    chain_port = ("bin", "bout")
+    carry_in_meaning = "borrow into bit 0"
+    carry_out_meaning = "borrow out: 1 when a < b + bin as unsigned numbers"
+
+    def result_meaning(self, c):
+        return f"(a - b{' - bin' if c.carry_in else ''}) mod 2^{c.width}"
+
+    def exact(self, c, i):
+        bin_ = i.get("bin", 0)
+        return (i["a"] - i["b"] - bin_,
+                to_signed(i["a"], c.width) - to_signed(i["b"], c.width) - bin_)
+
+    def chain_out(self, c, i, value):
+        return int(value < 0)
+
+    def phrase(self, c):
+        rhs = "a - b - bin" if c.carry_in else "a - b"
+        out = f"{c.width}-bit {'signed ' if c.signed else ''}subtractor, diff = {rhs}"
+        return out + (", bout = borrow out" if c.carry_out else "")
+
+
+class AddSub(Arithmetic):
+    """sum = a + b + cin when sub = 0, a - b - cin when sub = 1: the adder core adds
+    b ^ sub with carry-in cin ^ sub (two's complement), and cout is the core's carry out
+    when adding and its complement, the borrow, when subtracting."""
+
+    name = "addsub"
+    verb = "adds or subtracts"
+    result = "sum"
+    chain = ("carry",)
+    travellers = ("sub",)
+    carry_in_meaning = "carry into bit 0 when adding, borrow when subtracting"
+    carry_out_meaning = "carry out when adding, borrow out (a < b + cin) when subtracting"
+
+    def flag_inputs(self, c):
+        return [Port("sub", "input", 1, "0: add, 1: subtract (travels with its operands)"),
+                *super().flag_inputs(c)]
+
+    def result_meaning(self, c):
+        cin = " + cin" if c.carry_in else ""
+        return f"(a + b{cin}) or, with sub, (a - b{cin.replace('+', '-')}), mod 2^{c.width}"
+
+    def exact(self, c, i):
+        cin, w = i.get("cin", 0), c.width
+        if i["sub"]:
+            return i["a"] - i["b"] - cin, to_signed(i["a"], w) - to_signed(i["b"], w) - cin
+        return i["a"] + i["b"] + cin, to_signed(i["a"], w) + to_signed(i["b"], w) + cin
+
+    def chain_out(self, c, i, value):
+        return int(value < 0) if i["sub"] else value >> c.width
+
+    transforms_carry_out = True
+
+    def has_carry_in(self, c):
+        return True  # sub is the carry into the two's-complement negation
+
+    def y_operand(self, b, flags):
+        return b ^ Rep(flags["sub"], b.width) if b.width > 1 else b ^ flags["sub"]
+
+    def reference(self, c, en):
+        w, cin = c.width, "cin" if c.carry_in else "1'b0"
+        lines = self._reference(c, "_add", "+", cin) + self._reference(c, "_sub", "-", cin)
+        lines.append(f"  wire [{w - 1}:0] ref_sum_0 = sub ? ref_sub_x[{w - 1}:0] : "
+                     f"ref_add_x[{w - 1}:0];")
+        if c.carry_out:
+            lines.append(f"  wire ref_cout_0 = sub ? ref_sub_x[{w}] : ref_add_x[{w}];")
+        if c.signed:
+            lines.append("  wire ref_overflow_0 = sub ? ref_sub_ovf : ref_add_ovf;")
+        return lines
+
+    def core_carry_in(self, port, flags):
+        return flags["sub"] if port is None else port ^ flags["sub"]
+
+    def core_carry_out(self, chain, flags):
+        return chain ^ flags["sub"]
+
+    def phrase(self, c):
+        cin = " + cin" if c.carry_in else ""
+        return (f"{c.width}-bit {'signed ' if c.signed else ''}adder/subtractor, sum = "
+                f"a + b{cin} (sub = 0) or a - b{cin.replace('+', '-')} (sub = 1)")
+
+
+class Comparator(Kind):
+    """lt, eq, gt of a and b.  Slice by slice: lt is the borrow of a - b (a subtractor's
+    chain) and eq the AND of the slices' equalities; signed operands compare as unsigned
+    ones with their sign bits inverted (common practice)."""
+
+    name = "comparator"
+    verb = "compares"
+    modes = ("slices", "levels")
+    refused = ("carry_in", "carry_out")
+    # In levels mode the slices are compared in parallel and a tree combines their verdicts.
+    mode_keys = {"slice_width": ("slices", "levels"), "slices": ("slices", "levels"),
+                 "block_width": (), "wire_registers": (), "local_width": ()}
+    TREE_SLICE = 8  # default slice width of the levels mode
+
+    def default_slice_width(self, width, mode):
+        return min(width, self.TREE_SLICE) if mode == "levels" else width
+    result = None
+    chain = ("lt", "eq")
+    op = "sub"
+
+    def results(self, c):
+        how = "signed" if c.signed else "unsigned"
+        return [Port("lt", "output", 1, f"a < b ({how})"),
+                Port("eq", "output", 1, "a == b"),
+                Port("gt", "output", 1, f"a > b ({how})")]
+
+    def has_carry_out(self, c):
+        return True  # the top slice's borrow is lt
+
+    def output_families(self, c):
+        return {"lt": "lt", "eq": "eq", "gt": "gt"}
+
+    def slice(self, ctx):
+        c, s = ctx.config, ctx.s
+        x, y = ctx.ops["a"], ctx.ops["b"]
+        eq = Cmp("==", x, y)
+        if c.signed and ctx.top:  # signed order is unsigned order with the sign bits inverted
+            w = s.width
+            x, y = (cat(part(v, 0, w - 1), ~bit(v, w - 1)) if w > 1 else ~v for v in (x, y))
+        lt = cells.core(ctx.slot, s.cell, x, y, ctx.chain_in.get("lt"), "sub", True, False)
+        if "eq" in ctx.chain_in:
+            eq = eq & ctx.chain_in["eq"]
+        if not ctx.top:
+            return [(("lt",), lt), (("eq",), eq)]
+        lt, eq = ctx.slot.wire("lt", lt, 0).all, ctx.slot.wire("eq", eq, 0).all
+        return [(("lt",), lt), (("eq",), eq), (("gt",), ~(lt | eq))]
+
+    def reference(self, c, en):
+        a, b = ("$signed(a)", "$signed(b)") if c.signed else ("a", "b")
+        return [f"  wire ref_lt_0 = {a} < {b};", "  wire ref_eq_0 = a == b;",
+                f"  wire ref_gt_0 = {a} > {b};"]
+
+    def compute(self, c, i):
+        a, b = i["a"], i["b"]
+        if c.signed:
+            a, b = to_signed(a, c.width), to_signed(b, c.width)
+        return {"lt": int(a < b), "eq": int(a == b), "gt": int(a > b)}
+
+    def directed(self, c):
+        return [{"a": a, "b": b} for a, b in _operand_corners(c.width)]
+
+    def phrase(self, c):
+        return f"{c.width}-bit {'signed' if c.signed else 'unsigned'} comparator, lt/eq/gt of a, b"
+
+
+class Accumulator(Kind):
+    """acc_n = x_n when clear_n, else acc_(n-1) + x_n (mod 2^W), over accepted valid inputs.
+
+    Each slice keeps its own bits of the total and takes the carry of the slice below one
+    cycle later, with the same operand skew and result deskew as the adder; an input with
+    in_valid low changes nothing (acc and cout repeat their last values)."""
+
+    name = "accumulator"
+    verb = "accumulates"
+    settle = 8  # the bounded proof checks eight totals after the first clear
+    modes = ("slices",)
+    refused = ("carry_in", "signed")
+    operands = ("x",)
+    travellers = ("clear",)
+    result = "acc"
+    chain = ("carry",)
+
+    def operand_meanings(self, c):
+        return [("x", "value to add")]
+
+    def flag_inputs(self, c):
+        return [Port("clear", "input", 1, "start a new total: acc = x (travels with x)")]
+
+    def results(self, c):
+        ports = [Port("acc", "output", c.width,
+                      f"the running total (clear ? x : acc + x) mod 2^{c.width}")]
+        if c.carry_out:
+            ports.append(Port("cout", "output", 1, "carry out of that addition"))
+        return ports
+
+    def model(self, c):
+        return _AccumulatorModel(self, c)
+
+    def has_carry_out(self, c):
+        return c.carry_out
+
+    def output_families(self, c):
+        return {"cout": "carry"} if c.carry_out else {}
+
+    def proof_sets(self, c):
+        return "-set-at 1 clear 1 " + ("-set-at 1 in_valid 1 " if c.valid else "")
+
+    def reference(self, c, en):
+        """The running total as one register, updated on every accepted valid input."""
+        w = c.width
+        take = f"{en} && in_valid" if c.valid else en
+        lines = [f"  reg [{w - 1}:0] ref_total;", "  reg ref_carry;",
+                 *chained("ref_next", f"clear ? {w}'d0 : ref_total", "x", "1'b0", w),
+                 f"  wire ref_take = {take};",
+                 f"  wire [{w - 1}:0] ref_acc_0 = ref_take ? ref_next[{w - 1}:0] : ref_total;",
+                 "  always @(posedge clk) begin", "    if (ref_take) begin",
+                 f"      ref_total <= ref_next[{w - 1}:0];", f"      ref_carry <= ref_next[{w}];",
+                 "    end", "  end"]
+        if c.carry_out:
+            lines.append(f"  wire ref_cout_0 = ref_take ? ref_next[{w}] : ref_carry;")
+        return lines
+
+    def slice(self, ctx):
+        c, s = ctx.config, ctx.s
+        total = ctx.state["acc"].all
+        base = Mux(ctx.flags["clear"], Const(0, s.width), total)
+        want = not ctx.top or c.carry_out
+        value = cells.core(ctx.slot, s.cell, ctx.ops["x"], base, ctx.chain_in.get("carry"),
+                           "add", want)
+        families = ("acc", "carry") if want else ("acc",)
+        if "valid" in ctx.flags:  # an invalid input changes nothing
+            value = Mux(ctx.flags["valid"], value, cat(*(ctx.state[f].all for f in families)))
+        return [(families, value)]
+
+    def directed(self, c):
+        w = c.width
+        top = (1 << w) - 1
+        out = [{"x": top, "clear": 1}, {"x": 1, "clear": 0}, {"x": top, "clear": 0},
+               {"x": top, "clear": 0}, {"x": 0, "clear": 1}, {"x": 0, "clear": 0}]
+        out += [{"x": (1 << k) - 1, "clear": k == 1} for k in range(1, w + 1)]
+        out += [{"x": 1, "clear": 0}, {"x": top, "clear": 0}, {"x": 1 << (w - 1), "clear": 1},
+                {"x": 1 << (w - 1), "clear": 0}]
+        return [{"x": v["x"] & top, "clear": int(v["clear"])} for v in out]
+
+    def random_inputs(self, c, rng):
+        return {"x": rng.getrandbits(c.width), "clear": int(rng.random() < 0.1)}
+
+    def phrase(self, c):
+        cout = ", cout = its carry out" if c.carry_out else ""
+        return f"{c.width}-bit accumulator, acc = clear ? x : acc + x{cout}"
+
+
+class _AccumulatorModel(Model):
+    def __init__(self, kind, config):
+        super().__init__(kind, config)
+        self.total, self.cout = None, 0
+
+    def step(self, inputs):
+        c = self.config
+        if inputs.get("in_valid", 1):
+            base = 0 if inputs["clear"] else self.total
+            if base is None:
+                raise ValueError("an accumulator's first valid input must clear it")
+            value = base + inputs["x"]
+            self.total, self.cout = value % (1 << c.width), value >> c.width
+        out = {"acc": self.total}
+        if c.carry_out:
+            out["cout"] = self.cout
+        return out
+
+
+
+
+KINDS = {k.name: k for k in (Adder(), Subtractor(), AddSub(), Comparator(), Accumulator())}
