@@ -62,6 +62,10 @@ def test_cells_restrict_every_mode():
     assert modes_and_cells(candidates.generate(b16, ("kogge-stone",), ("levels",))) == [
         ("levels", "kogge-stone")]
     assert candidates.generate(b16, ("native",), ("levels", "blocks")) == []
+    # Only the modes the unit kind has.
+    for unit, modes in (("comparator", ["levels", "slices"]), ("accumulator", ["slices"])):
+        got = candidates.generate(base(width=16, unit=unit), ("native", "kogge-stone"))
+        assert sorted({c.pipeline for c in got}) == modes
 
 
 def labels(rows):
@@ -90,19 +94,36 @@ def test_distinct_circuits_by_published_structure():
     assert "brent-kung 16x1" in labels(rows)  # 16-bit networks differ
 
 
-def test_circuit_key_agrees_with_the_emitted_verilog():
-    """Two candidates share a key exactly when their emitted Verilog is the same text once
-    the header comment (which quotes the config) is left out."""
+def partitions(keys):
+    """Candidates grouped by the emitted Verilog (header comment, which quotes the config,
+    left out) and by the circuit key."""
     by_text, by_key = {}, {}
-    for cfg in candidates.generate(base(width=8, carry_in=True), config.CELLS):
+    for cfg in candidates.generate(base(width=8, **keys), config.CELLS):
         plan = make_plan(cfg)
         body = "".join(line for line in emit.unit_verilog(plan).splitlines(True)
                        if not line.startswith("//"))
         label = Row(plan).label
         by_text.setdefault(body, set()).add(label)
         by_key.setdefault(candidates.circuit(plan), set()).add(label)
-    assert sorted(map(sorted, by_text.values())) == sorted(map(sorted, by_key.values()))
-    assert len(by_key) < sum(map(len, by_key.values()))  # some did coincide
+    return sorted(map(sorted, by_text.values())), sorted(map(sorted, by_key.values()))
+
+
+@pytest.mark.parametrize("keys", [dict(carry_in=True), dict(unit="subtractor"),
+                                  dict(unit="accumulator")], ids=lambda k: str(k))
+def test_circuit_key_agrees_with_the_emitted_verilog(keys):
+    """Two candidates share a key exactly when their emitted Verilog is the same text."""
+    by_text, by_key = partitions(keys)
+    assert by_text == by_key
+    assert len(by_key) < sum(map(len, by_key)) or keys.get("unit") == "accumulator"
+
+
+def test_circuit_key_never_merges_two_circuits():
+    # A comparator's slices need only their top carry, so more prefix styles coincide there
+    # than the key (which reads whole networks) sees: the key may keep two equal circuits
+    # apart, never merge two different ones.
+    by_text, by_key = partitions(dict(unit="comparator"))
+    for group in by_key:
+        assert any(set(group) <= set(same) for same in by_text), group
 
 
 def test_generate_from_a_prefix_mode_config_gives_slice_variants():

@@ -72,6 +72,15 @@ def test_help_lists_devices_cells_and_modes_from_the_tables():
         assert ", ".join(names) in text
 
 
+def test_modes_the_unit_kind_lacks(write_config, tmp_path):
+    cfg = write_config("name: tally\nwidth: 16\nunit: accumulator\n")
+    res = run(str(cfg), "--target-mhz", "200", "--device", "ecp5-85k", "--modes", "levels",
+              "-o", str(tmp_path / "o"))
+    assert res.exit_code == 2
+    assert res.output == ("carrypipe: error: --modes: value 'levels' is not allowed with unit "
+                          "'accumulator'; expected one of slices\n")
+
+
 def test_bad_config_is_exit_2(write_config, tmp_path):
     bad = write_config("name: x\nwidth: 0\n", "bad.yaml")
     res = run(str(bad), "--target-mhz", "100", "--device", "ecp5-85k", "-o", str(tmp_path / "o"))

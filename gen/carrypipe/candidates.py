@@ -23,7 +23,7 @@ import json
 import statistics
 from dataclasses import dataclass, field
 
-from . import config, harness
+from . import config, harness, units
 from .config import Config
 from .plan import Plan
 
@@ -100,8 +100,12 @@ GENERATORS = {"slices": slice_candidates, "levels": levels_candidates,
 
 def generate(base: Config, cells: tuple[str, ...] | None = None,
              modes: tuple[str, ...] = config.PIPELINES) -> list[Config]:
-    """Every candidate config of the given modes and cell styles (None: the defaults)."""
-    return [cfg for mode in GENERATORS if mode in modes for cfg in GENERATORS[mode](base, cells)]
+    """Every candidate config of the given modes and cell styles (None: the defaults), in
+    the modes the unit kind has (a comparator has no `blocks`, an accumulator only
+    `slices`)."""
+    own = units.KINDS[base.unit].modes
+    return [cfg for mode in GENERATORS if mode in modes and mode in own
+            for cfg in GENERATORS[mode](base, cells)]
 
 
 # Config keys that describe the structure; `circuit` reads the structure from the plan.

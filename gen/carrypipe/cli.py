@@ -13,7 +13,7 @@ from pathlib import Path
 
 import click
 
-from . import __version__, candidates, devices, emit, report, sim
+from . import __version__, candidates, devices, emit, report, sim, units
 from .config import CELLS, PIPELINES, ConfigError, check_split, load
 from .plan import make_plan
 from .prove import METHODS as PROOF_METHODS
@@ -301,6 +301,10 @@ def fit(config, target, device, cells, modes, jobs, seeds, no_cache, tools, time
                         f"{', '.join(devices.DEVICES)}")
     styles = None if cells is None else _option_list("--cells", cells, CELLS)
     chosen_modes = PIPELINES if modes is None else _option_list("--modes", modes, PIPELINES)
+    own = units.KINDS[base.unit].modes
+    if not set(chosen_modes) & set(own):
+        raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with unit "
+                        f"{base.unit!r}; expected one of {', '.join(own)}")
     if not candidates.generate(base, styles, chosen_modes):
         raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with "
                         f"--cells {','.join(styles or ())}; expected a prefix style in --cells "
