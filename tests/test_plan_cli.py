@@ -152,7 +152,8 @@ def test_chart_into_a_folder_or_under_a_file_is_refused(write_config, tmp_path):
     (tmp_path / "plain").write_text("x")
     r = run("plan", cfg, "--chart", tmp_path / "plain" / "c.svg")
     assert r.exit_code == 2
-    assert re.fullmatch(r"carrypipe: error: cannot write the chart .*c\.svg: .+\n", r.output)
+    assert re.fullmatch(r"carrypipe: error: --chart: value '.*c\.svg' is not allowed; .*plain "
+                        r"is a file, not a folder\n", r.output)
 
 
 def test_build_writes_the_chart_and_lists_it(write_config, tmp_path):

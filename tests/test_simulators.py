@@ -8,7 +8,7 @@ import subprocess
 import pytest
 from click.testing import CliRunner
 
-from carrypipe import emit, sim
+from carrypipe import emit, sim, tools
 from carrypipe.cli import main
 from carrypipe.config import from_mapping
 from carrypipe.plan import make_plan
@@ -95,22 +95,23 @@ def test_check_with_verilator(tmp_path):
 
 
 @pytest.mark.parametrize("simulator, message", [
-    ("icarus", "Icarus Verilog (iverilog, vvp) is not on PATH; install it (Debian/Ubuntu: "
-               "apt-get install iverilog) or use --sim amaranth"),
-    ("verilator", "Verilator (5.x) is not on PATH; install it (Debian/Ubuntu: apt-get install "
-                  "verilator) or use --sim icarus / --sim amaranth"),
+    ("icarus", "iverilog is not installed (looked beside Python and on PATH); install Icarus "
+               "Verilog (Debian/Ubuntu: apt-get install iverilog) or use --sim amaranth"),
+    ("verilator", "verilator is not installed (looked beside Python and on PATH); install "
+                  "Verilator 5 (Debian/Ubuntu: apt-get install verilator) or use --sim icarus "
+                  "/ --sim amaranth"),
 ])
 def test_a_missing_simulator_is_explained(tmp_path, monkeypatch, simulator, message):
-    monkeypatch.setattr(sim.shutil, "which", lambda name: None)
+    monkeypatch.setattr(tools, "which", lambda name: None)
     cfg = tmp_path / "u.yaml"
     cfg.write_text("name: u\nwidth: 4\n")
     out = CliRunner().invoke(main, ["check", str(cfg), "--sim", simulator])
-    assert out.exit_code == 2
+    assert out.exit_code == 3
     assert out.output.strip() == f"carrypipe: error: {message}"
 
 
 @verilator
 def test_hanging_simulator_times_out(tmp_path):
     plan = make_plan(from_mapping({"name": "u", "width": 4}))
-    with pytest.raises(sim.ToolMissing, match=r"^verilator did not finish within 0.01 s"):
+    with pytest.raises(tools.ToolTimeout, match=r"^verilator did not finish within 0.01 s"):
         sim.run_verilator(plan, suite(plan, 10, 1), timeout=0.01)

@@ -1,32 +1,49 @@
 """The `carrypipe` command line: thin click commands over config -> plan -> build -> emit.
 
-User mistakes (bad config, bad option, missing tool) end with one line on stderr and exit
-status 2; a failed check ends with exit status 1.
+One exit-status rule for every command (README, "Exit status"): 0 success; 1 the design
+failed (a mismatch, a counterexample, no candidate meets the target); 2 bad input (config or
+command line); 3 the environment (a tool missing, broken or timed out, the cluster
+unreachable, the output folder not writable); 128 + N when stopped by signal N.  Errors
+are one line on stderr, "carrypipe: error: ...", naming the key, tool or path.
 """
 
 from __future__ import annotations
 
 import contextlib
 import math
+import signal
 import sys
 from pathlib import Path
 
 import click
 
-from . import __version__, candidates, devices, emit, report, sim, units
-from .config import CELLS, PIPELINES, ConfigError, check_split, load
+from . import __version__, candidates, devices, emit, output, report, sim, tools, units
+from .config import (CELLS, MAX_CONFIG_BYTES, PIPELINES, ConfigError, check_split, load,
+                     read_regular)
 from .plan import make_plan
 from .prove import METHODS as PROOF_METHODS
 from .vectors import suite
 
 
-class UserError(click.ClickException):
+class _OneLineError(click.ClickException):
+    """An error shown as one line: `carrypipe: error: ...`."""
+
+    def show(self, file=None):
+        text = " | ".join(ln.strip() for ln in self.format_message().splitlines() if ln.strip())
+        click.echo(f"carrypipe: error: {text}", err=True)
+
+
+class UserError(_OneLineError):
     """A one-line error caused by the user's input: exit status 2."""
 
     exit_code = 2
 
-    def show(self, file=None):
-        click.echo(f"carrypipe: error: {self.format_message()}", err=True)
+
+class EnvironmentFault(_OneLineError):
+    """A tool missing, broken or timed out, the cluster unreachable, a folder not writable:
+    exit status 3."""
+
+    exit_code = 3
 
 
 # click >= 8.2 raises this (a UsageError) to show the help of a bare `carrypipe`: keep it.
@@ -64,6 +81,36 @@ class _Group(_OneLineParse, click.Group):
     def resolve_command(self, ctx, args):
         with _one_line_usage():
             return super().resolve_command(ctx, args)
+
+    def main(self, *args, **kwargs):
+        with tools.signals():  # SIGTERM unwinds like Ctrl-C: no tool outlives carrypipe
+            try:
+                return super().main(*args, **kwargs)
+            finally:
+                tools.end_all()
+
+    def invoke(self, ctx):
+        """Run the command, mapping the exception families onto the exit-status rule."""
+        try:
+            return super().invoke(ctx)
+        except tools.ToolError as exc:
+            raise EnvironmentFault(str(exc)) from None
+        except output.FolderRefused as exc:
+            raise UserError(str(exc)) from None
+        except KeyboardInterrupt as exc:
+            signum = getattr(exc, "signum", signal.SIGINT)
+            click.echo(f"carrypipe: stopped by {signal.Signals(signum).name}; every tool it "
+                       "started has been ended", err=True)
+            raise click.exceptions.Exit(128 + signum) from None
+
+
+def _write_folder(files: dict, dest: Path) -> list[Path]:
+    """`emit.write` with a folder that cannot be written as one line (exit status 3)."""
+    try:
+        return emit.write(files, dest)
+    except OSError as exc:
+        raise EnvironmentFault(f"cannot write the folder {dest}: "
+                               f"{exc.strerror or exc}") from None
 
 
 def load_plan(config_path: str, slice_width=None, slices=None):
@@ -121,12 +168,10 @@ def main():
 def build(config, out_dir, vectors, seed):
     """Emit the unit, its testbench and vectors, manifest and report."""
     plan = load_plan(config)
-    files = emit.render(plan, vectors=vectors, seed=seed)
     dest = Path(out_dir) if out_dir else Path("out") / plan.config.name
-    try:
-        emit.write(files, dest)
-    except OSError as exc:
-        raise UserError(f"cannot write into {dest}: {exc.strerror or exc}") from None
+    output.check_folder(dest)
+    files = emit.render(plan, vectors=vectors, seed=seed)
+    _write_folder(files, dest)
     r = plan.registers
     click.echo(f"{plan.config.name}: {plan.width}-bit {plan.config.cell}, "
                f"{report.structure_phrase(plan)}, latency {plan.latency}, "
@@ -140,23 +185,19 @@ def build(config, out_dir, vectors, seed):
 @vectors_opt
 @seed_opt
 @click.option("--sim", "simulator", type=click.Choice(sim.SIMULATORS),
-              help="Simulator [default: icarus when iverilog is on PATH, else amaranth].")
+              help="Simulator [default: icarus when iverilog and vvp are found, else amaranth].")
 @click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
-              help="Give up on an external simulator after this many seconds.")
+              help="Give up on an external simulator (compile and run) after this many "
+                   "seconds.")
 def check(config, vectors, seed, simulator, timeout):
     """Simulate directed and random vectors and compare with Python integer addition."""
     plan = load_plan(config)
     chosen = simulator or sim.default_simulator()
     if simulator is None:
-        why = "iverilog found on PATH" if chosen == "icarus" else "iverilog not found on PATH"
+        why = "iverilog found" if chosen == "icarus" else "iverilog not found"
         click.echo(f"note: simulating with {chosen} ({why}; choose with --sim)")
     vecs = suite(plan, vectors, seed)
-    try:
-        result = sim.run(plan, vecs, chosen, timeout=timeout)
-    except sim.ToolMissing as exc:
-        raise UserError(str(exc)) from None
-    except RuntimeError as exc:  # the simulator could not compile the unit or testbench
-        raise click.ClickException(str(exc).splitlines()[0] if str(exc) else repr(exc)) from None
+    result = sim.run(plan, vecs, chosen, timeout=timeout)
     click.echo(f"{plan.config.name} [{result.simulator}]: {result.message}")
     sys.exit(0 if result.passed else 1)
 
@@ -178,10 +219,10 @@ def plan_cmd(config, slice_width, slices, chart_path):
             raise UserError(f"--chart: value {chart_path!r} is not allowed; expected the "
                             "name of an SVG file ending in .svg (not a folder)")
         try:
-            emit.write({dest.name: chart.svg(plan)}, dest.parent)
+            output.write_file(dest, chart.svg(plan), "--chart")
         except OSError as exc:
-            raise UserError(f"cannot write the chart {chart_path}: "
-                            f"{exc.strerror or exc}") from None
+            raise EnvironmentFault(f"cannot write the chart {chart_path}: "
+                                   f"{exc.strerror or exc}") from None
     click.echo(report.report(plan), nl=False)
     if chart_path is not None:
         click.echo(f"Chart: {chart_path}")
@@ -196,7 +237,8 @@ def plan_cmd(config, slice_width, slices, chart_path):
                    "latency+1 up to this one [default: latency + 1, which already covers "
                    "every later cycle].")
 @click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
-              help="Give up on the solver after this many seconds.")
+              help="Give up on the proof (every Yosys run and solver call) after this many "
+                   "seconds in all.")
 @click.option("--method", type=click.Choice(PROOF_METHODS),
               default="auto", show_default=True,
               help="direct: unroll the whole unit; compositional (sliced adders and "
@@ -217,13 +259,7 @@ def prove(target, depth, timeout, method):
     if method == "compositional" and not plan.can_compose:
         raise UserError(f"--method: value compositional is not allowed for this unit; it "
                         "covers sliced adders and subtractors without reset_data (use direct)")
-    try:
-        result = proof.prove(plan, depth=depth, timeout=timeout, method=method,
-                             verilog=verilog)
-    except sim.ToolMissing as exc:
-        raise UserError(str(exc)) from None
-    except proof.ProofFailed as exc:
-        raise click.ClickException(f"{what}: not proved: {exc}") from None
+    result = proof.prove(plan, depth=depth, timeout=timeout, method=method, verilog=verilog)
     click.echo(f"{what}: {result.message}")
     sys.exit(0 if result.proved else 1)
 
@@ -281,20 +317,22 @@ def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str,
 @click.option("--seeds", default="1", show_default=True, metavar="N",
               help="Place-and-route seeds per candidate (1..N); the median Fmax is reported.")
 @click.option("--no-cache", is_flag=True, help="Run the tools again even for cached results.")
-@click.option("--tools", default="wheel", show_default=True, metavar="wheel|system",
+@click.option("--tools", "tool_kind", default="wheel", show_default=True, metavar="wheel|system",
               help="yowasp-* pip wheels, or yosys and nextpnr-* from PATH.")
 @click.option("--timeout", metavar="S", help="Give up on one tool run after S seconds.")
 @click.option("--cluster", metavar="tcp://HOST:PORT",
               help="Run candidates on this Dask distributed scheduler instead of locally.")
 @click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False),
               help="Output folder [default: out/<name>].")
-def fit(config, target, device, cells, modes, jobs, seeds, no_cache, tools, timeout, cluster,
+def fit(config, target, device, cells, modes, jobs, seeds, no_cache, tool_kind, timeout, cluster,
         out_dir):
     """Measure candidate splits with Yosys and nextpnr; keep the least latency meeting MHZ."""
     from . import executor, fit as fitting
     from .toolflow import TOOLS
 
     base = load_plan(config).config
+    # The file as written: the chosen split goes back into it (config_edit), read once now.
+    source = read_regular(config, MAX_CONFIG_BYTES).decode("utf-8")
     target_mhz = _option_number("--target-mhz", target, float, 0, "a number of MHz above 0")
     if device not in devices.DEVICES:
         raise UserError(f"--device: value {device!r} is not allowed; expected one of "
@@ -311,36 +349,30 @@ def fit(config, target, device, cells, modes, jobs, seeds, no_cache, tools, time
                         "for the levels and blocks modes, or the slices mode")
     n_jobs = _option_number("--jobs", jobs, int, 0, "an integer of 1 or more")
     n_seeds = _option_number("--seeds", seeds, int, 0, "an integer of 1 or more")
-    if tools not in TOOLS:
-        raise UserError(f"--tools: value {tools!r} is not allowed; expected wheel or system")
+    if tool_kind not in TOOLS:
+        raise UserError(f"--tools: value {tool_kind!r} is not allowed; expected wheel or "
+                        "system")
     limit = None if timeout is None else _option_number("--timeout", timeout, float, 0,
                                                         "a number of seconds above 0")
     if cluster is not None and not executor.CLUSTER_ADDRESS.match(cluster):
         raise UserError(f"--cluster: value {cluster!r} is not allowed; expected "
                         "tcp://HOST:PORT of a Dask scheduler")
     dest = Path(out_dir) if out_dir else Path("out") / base.name
-    if dest.exists() and not dest.is_dir():
-        raise UserError(f"-o: value {str(dest)!r} is not allowed; expected a folder")
-    settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tools, limit,
-                                not no_cache, chosen_modes)
-    try:
-        runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)
-    except executor.ClusterUnavailable as exc:
-        raise click.ClickException(str(exc)) from None
+    output.check_folder(dest)  # before the long run, not after it
+    settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
+                                limit, not no_cache, chosen_modes)
+    runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)
     try:
         outcome = fitting.run(base, settings, runner, echo=lambda t: click.echo(t, err=True))
-    except sim.ToolMissing as exc:
-        raise UserError(str(exc)) from None
     finally:
         runner.close()
     click.echo(fitting.table(outcome))
+    unmeasured = fitting.environment_failure(outcome)
+    if unmeasured:  # nothing was learnt about the design: keep the folder as it was
+        raise EnvironmentFault(unmeasured)
     for note in outcome.notes:
         click.echo(f"note: {note}")
     click.echo(fitting.summary(outcome))
-    try:
-        written = emit.write(fitting.files(outcome, Path(config).read_text(encoding="utf-8")),
-                             dest)
-    except OSError as exc:
-        raise click.ClickException(f"cannot write into {dest}: {exc.strerror or exc}") from None
+    written = _write_folder(fitting.files(outcome, source), dest)
     click.echo(f"wrote {len(written)} files -> {dest}/")
     sys.exit(0 if outcome.chosen else 1)

@@ -43,6 +43,7 @@ from dataclasses import dataclass
 from .miter import chained
 from .plan import Plan
 from .prove import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
+from .tools import Deadline
 
 CHECK = "carrypipe_slices"
 CUT = "carrypipe_cut"
@@ -221,7 +222,7 @@ def cut_design(wiring: Wiring, nets: list[SliceNets], op: str) -> dict[str, str]
             "check.v": "\n".join(check) + "\n"}
 
 
-def prove_slices(plan: Plan, net: dict, module: str, timeout: float | None) -> Outcome:
+def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outcome:
     """Parts 1 and 2 for the unit whose netlist is `net` (see the module docstring)."""
     count = len(plan.slices)
     method = (f"compositional: structure traced, each of {count} slice(s) proved against "

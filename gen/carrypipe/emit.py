@@ -1,17 +1,14 @@
 """Emit a unit: build every output file in memory first, then write them all at once.
 
 `render` returns `{file name: text}` and touches no disk, so a failure at any step leaves
-the output folder as it was; `write` then puts each file in place with an atomic rename.
+the output folder as it was; `write` then replaces the folder whole (`output.py`).
 """
 
 from __future__ import annotations
 
-import os
-import shutil
-import tempfile
 from pathlib import Path
 
-from . import chart, flowfiles, report, verilog
+from . import chart, flowfiles, output, report, verilog
 from .plan import Plan
 from .testbench import testbench, vector_file
 from .vectors import hex_lines, suite
@@ -89,58 +86,8 @@ def read_build(folder: Path):
 
 
 def write(files: dict[str, str | bytes], out_dir: str | Path) -> list[Path]:
-    """Write all files into `out_dir`, so that a failure leaves it as it was.
-
-    A new folder is filled under a temporary name beside it and renamed into place at the
-    end; in an existing folder each file goes to a temporary file first and all are renamed
-    once every one is written.  Text is written as UTF-8 with LF line ends; bytes (images)
-    as they are.
-    """
-    out = Path(out_dir)
-    if not out.exists():
-        out.parent.mkdir(parents=True, exist_ok=True)
-        fresh = out.parent / f".{out.name}.{os.getpid()}.tmp"
-        fresh.mkdir()
-        try:
-            for tmp, dest in _stage(files, fresh):
-                os.replace(tmp, dest)
-            os.rename(fresh, out)
-        except BaseException:
-            shutil.rmtree(fresh, ignore_errors=True)
-            raise
-        return [out / fname for fname in files]
-    staged = _stage(files, out)
-    for tmp, dest in staged:
-        os.replace(tmp, dest)
-    return [dest for _, dest in staged]
-
-
-def _stage(files: dict[str, str | bytes], folder: Path) -> list[tuple[str, Path]]:
-    """Write each file to a temporary name in `folder`; return (temporary, final) pairs.
-
-    On a failure the temporary files written so far are removed before the error goes on.
-    """
-    staged = []
-    mode = 0o666 & ~_umask()  # what a plain open() would give, not mkstemp's 0600
-    try:
-        for fname, text in files.items():
-            fd, tmp = tempfile.mkstemp(prefix=f".{fname}.", dir=folder)
-            staged.append((tmp, folder / fname))  # before writing: a failed write is cleaned up
-            if isinstance(text, bytes):
-                with os.fdopen(fd, "wb") as fh:
-                    fh.write(text)
-            else:
-                with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-                    fh.write(text)
-            os.chmod(tmp, mode)
-    except BaseException:
-        for tmp, _ in staged:
-            os.unlink(tmp)
-        raise
-    return staged
-
-
-def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
+    """Make `out_dir` a folder of exactly these files, replacing it whole and atomically, so
+    that a failure leaves it as it was (`output.replace_folder`; `output.FolderRefused` when
+    it holds files carrypipe did not write)."""
+    output.replace_folder(files, out_dir)
+    return [Path(out_dir) / fname for fname in files]

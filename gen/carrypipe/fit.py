@@ -159,6 +159,17 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     return outcome
 
 
+def environment_failure(outcome: Outcome) -> str | None:
+    """When every measurement of every candidate failed for a reason of the environment (a
+    tool timed out or failed), what to say; else None.  Nothing was then learnt about the
+    design, so `fit` exits with the environment's status, not with "none meets"."""
+    measured = [m for row in outcome.rows for m in row.measured]
+    if not measured or any(m.status not in ("timeout", "error") for m in measured):
+        return None
+    return (f"no candidate could be measured on {outcome.settings.device.name}: "
+            f"{measured[0].message}")
+
+
 def _queued(rows: list[Row], target: float) -> int:
     factors = candidates.scale(rows)
     return sum(1 for r in rows if not r.done and candidates.promising(r, target, factors, rows))

@@ -404,13 +404,15 @@ def _shape(e: Expr):
     return ("opaque", id(e))  # comparisons, sums: each bit stays on its own
 
 
-def _leaves(e: Expr) -> list[Expr]:
+def _leaves(e: Expr, in_sel: bool = False) -> list[tuple[Expr, bool]]:
+    """The leaves of `e` (one-bit slices, constants), each with whether it lies in the
+    select of a `Mux`."""
     if isinstance(e, (Ref, Const)):
-        return [e]
+        return [(e, in_sel)]
     if isinstance(e, Op):
-        return [x for a in e.args for x in _leaves(a)]
+        return [x for a in e.args for x in _leaves(a, in_sel)]
     if isinstance(e, Mux):
-        return _leaves(e.sel) + _leaves(e.one) + _leaves(e.zero)
+        return _leaves(e.sel, True) + _leaves(e.one, in_sel) + _leaves(e.zero, in_sel)
     return []
 
 
@@ -445,17 +447,6 @@ def _widen(e: Expr, steps: list[int], n: int) -> Expr:
     return go(e)
 
 
-def _sel_mask(e: Expr) -> list[bool]:
-    """Per leaf of `e`: whether it lies in the select of a `Mux`."""
-    if isinstance(e, (Ref, Const)):
-        return [False]
-    if isinstance(e, Op):
-        return [m for a in e.args for m in _sel_mask(a)]
-    if isinstance(e, Mux):
-        return [True] * len(_leaves(e.sel)) + _sel_mask(e.one) + _sel_mask(e.zero)
-    return []
-
-
 def pack(bits: dict[int, Expr]) -> list[tuple[int, Expr]]:
     """Runs of consecutive positions whose one-bit expressions follow one pattern, each as
     (first position, vector expression).  A select shared by a run stays one bit."""
@@ -464,13 +455,13 @@ def pack(bits: dict[int, Expr]) -> list[tuple[int, Expr]]:
     k = 0
     while k < len(order):
         start, first = order[k], bits[order[k]]
-        shape, sel = _shape(first), _sel_mask(first)
+        shape, sel = _shape(first), [m for _, m in _leaves(first)]
         steps, n = None, 1
         while k + n < len(order) and order[k + n] == start + n:
             prev, nxt = bits[order[k + n - 1]], bits[order[k + n]]
             if _shape(nxt) != shape:
                 break
-            pair = [_step(x, y) for x, y in zip(_leaves(prev), _leaves(nxt))]
+            pair = [_step(x, y) for (x, _), (y, _) in zip(_leaves(prev), _leaves(nxt))]
             if None in pair or (steps is not None and pair != steps) \
                     or any(s and m for s, m in zip(pair, sel)):
                 break

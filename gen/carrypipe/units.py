@@ -230,22 +230,25 @@ class Arithmetic(Kind):
                               "1 when the two's-complement result differs from the exact one"))
         return ports
 
-    def exact(self, c, inputs: dict) -> tuple[int, int]:
-        """(unsigned exact value, signed exact value) of the operation."""
-        raise NotImplementedError
+    def subtracts(self, inputs: dict) -> bool:
+        """Whether this input set asks for a - b - cin (else a + b + cin)."""
+        return self.op == "sub"
 
     def compute(self, c, inputs):
-        w = c.width
-        value, signed_value = self.exact(c, inputs)
+        """The exact result of a +/- b +/- carry-in, as unsigned and as signed numbers: the
+        result bits are it modulo 2^W; the chain out is bit W of the exact unsigned value (1
+        for a carry, or for a negative difference: a borrow); overflow when the signed
+        value does not survive the reduction (IEEE 1364 signed arithmetic)."""
+        w, sign = c.width, -1 if self.subtracts(inputs) else 1
+        cin = inputs.get(self.chain_port[0], 0)
+        value = inputs["a"] + sign * (inputs["b"] + cin)
+        signed_value = to_signed(inputs["a"], w) + sign * (to_signed(inputs["b"], w) + cin)
         out = {self.result: value % (1 << w)}
         if c.carry_out:
-            out[self.chain_port[1]] = self.chain_out(c, inputs, value)
+            out[self.chain_port[1]] = (value >> w) & 1
         if c.signed:
             out["overflow"] = int(to_signed(out[self.result], w) != signed_value)
         return out
-
-    def chain_out(self, c, inputs, value):
-        raise NotImplementedError
 
     def reference(self, c, en):
         cin = self.chain_port[0] if c.carry_in else "1'b0"
@@ -296,58 +299,29 @@ class Arithmetic(Kind):
         return same & (s_msb ^ x_msb)
 
 
-class Adder(Arithmetic):
-    name = "adder"
-    verb = "adds"
+class Plain(Arithmetic):
+    """The adder ({cout, sum} = a + b + cin) and the subtractor ({bout, diff} = a - b - bin,
+    the borrow being bit W of the two's-complement difference)."""
+
     composable = True
-    result = "sum"
-    chain = ("carry",)
-    carry_in_meaning = "carry into bit 0"
-    carry_out_meaning = "carry out of the top bit"
+
+    def __init__(self, name: str, verb: str, op: str, result: str, chain: str,
+                 chain_port: tuple[str, str], carry_in_meaning: str, carry_out_meaning: str):
+        self.name, self.verb, self.op, self.result = name, verb, op, result
+        self.chain, self.chain_port = (chain,), chain_port
+        self.carry_in_meaning, self.carry_out_meaning = carry_in_meaning, carry_out_meaning
+
+    def _rhs(self, c) -> str:
+        sym = "+" if self.op == "add" else "-"
+        return f"a {sym} b" + (f" {sym} {self.chain_port[0]}" if c.carry_in else "")
 
     def result_meaning(self, c):
-        return f"(a + b{' + cin' if c.carry_in else ''}) mod 2^{c.width}"
-
-    def exact(self, c, i):
-        cin = i.get("cin", 0)
-        return (i["a"] + i["b"] + cin,
-                to_signed(i["a"], c.width) + to_signed(i["b"], c.width) + cin)
-
-    def chain_out(self, c, i, value):
-        return value >> c.width
+        return f"({self._rhs(c)}) mod 2^{c.width}"
 
     def phrase(self, c):
-        rhs = "a + b + cin" if c.carry_in else "a + b"
-        lhs = "{cout, sum}" if c.carry_out else "sum"
-        return f"{c.width}-bit {'signed ' if c.signed else ''}adder, {lhs} = {rhs}"
-
-
-class Subtractor(Arithmetic):
-    name = "subtractor"
-    verb = "subtracts"
-    composable = True
-    result = "diff"
-    chain = ("borrow",)
-    op = "sub"
-    chain_port = ("bin", "bout")
-    carry_in_meaning = "borrow into bit 0"
-    carry_out_meaning = "borrow out: 1 when a < b + bin as unsigned numbers"
-
-    def result_meaning(self, c):
-        return f"(a - b{' - bin' if c.carry_in else ''}) mod 2^{c.width}"
-
-    def exact(self, c, i):
-        bin_ = i.get("bin", 0)
-        return (i["a"] - i["b"] - bin_,
-                to_signed(i["a"], c.width) - to_signed(i["b"], c.width) - bin_)
-
-    def chain_out(self, c, i, value):
-        return int(value < 0)
-
-    def phrase(self, c):
-        rhs = "a - b - bin" if c.carry_in else "a - b"
-        out = f"{c.width}-bit {'signed ' if c.signed else ''}subtractor, diff = {rhs}"
-        return out + (", bout = borrow out" if c.carry_out else "")
+        lhs = f"{{{self.chain_port[1]}, {self.result}}}" if c.carry_out else self.result
+        noun = "adder" if self.op == "add" else "subtractor"
+        return f"{c.width}-bit {'signed ' if c.signed else ''}{noun}, {lhs} = {self._rhs(c)}"
 
 
 class AddSub(Arithmetic):
@@ -371,14 +345,8 @@ class AddSub(Arithmetic):
         cin = " + cin" if c.carry_in else ""
         return f"(a + b{cin}) or, with sub, (a - b{cin.replace('+', '-')}), mod 2^{c.width}"
 
-    def exact(self, c, i):
-        cin, w = i.get("cin", 0), c.width
-        if i["sub"]:
-            return i["a"] - i["b"] - cin, to_signed(i["a"], w) - to_signed(i["b"], w) - cin
-        return i["a"] + i["b"] + cin, to_signed(i["a"], w) + to_signed(i["b"], w) + cin
-
-    def chain_out(self, c, i, value):
-        return int(value < 0) if i["sub"] else value >> c.width
+    def subtracts(self, inputs):
+        return bool(inputs["sub"])
 
     transforms_carry_out = True
 
@@ -584,4 +552,8 @@ class _AccumulatorModel(Model):
 
 
 
-KINDS = {k.name: k for k in (Adder(), Subtractor(), AddSub(), Comparator(), Accumulator())}
+ADDER = Plain("adder", "adds", "add", "sum", "carry", ("cin", "cout"), "carry into bit 0",
+              "carry out of the top bit")
+SUBTRACTOR = Plain("subtractor", "subtracts", "sub", "diff", "borrow", ("bin", "bout"),
+                   "borrow into bit 0", "borrow out: 1 when a < b + bin as unsigned numbers")
+KINDS = {k.name: k for k in (ADDER, SUBTRACTOR, AddSub(), Comparator(), Accumulator())}
