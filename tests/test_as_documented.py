@@ -24,7 +24,7 @@ W = 13
 UNITS = {
     "addsub": (dict(unit="addsub", width=W, slice_width=4, carry_in=True, signed=True),
                ["sum", "cout", "overflow"],
-               {"sum": f"sub ? a - b - cin : a + b + cin",
+               {"sum": "sub ? a - b - cin : a + b + cin",
                 "cout": f"sub ? ({{1'b0, a}} < {{1'b0, b}} + cin) : "
                         f"(({{1'b0, a}} + {{1'b0, b}} + cin) >> {W})",
                 # the exact result in W + 1 bits, against the result sign-extended

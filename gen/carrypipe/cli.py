@@ -17,8 +17,9 @@ from pathlib import Path
 
 import click
 
-from . import __version__, emit, output, report, sim, tools
-from .config import ConfigError, check_split, load, reads
+from . import __version__, candidates, devices, emit, output, report, sim, tools, units
+from .config import (CELLS, MAX_CONFIG_BYTES, PIPELINES, ConfigError, check_split, load,
+                     read_regular, reads)
 from .plan import make_plan
 from .prove import METHODS as PROOF_METHODS
 from .vectors import suite
@@ -293,14 +294,28 @@ def _option_number(option: str, text: str, kind, low: float, allowed: str):
     return value
 
 
+def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str, ...]:
+    """A comma-separated option value as a tuple without repeats, each item in `allowed`."""
+    items = tuple(dict.fromkeys(x.strip() for x in text.split(",")))
+    for item in items:
+        if item not in allowed:
+            raise UserError(f"{option}: value {item!r} is not allowed; expected a comma-"
+                            f"separated list of {', '.join(allowed)}")
+    return items
+
+
 @main.command()
 @config_arg
 @click.option("--target-mhz", "target", required=True, metavar="MHZ",
               help="Clock the unit must reach, in MHz.")
 @click.option("--device", required=True, metavar="DEVICE",
-              help="Device to place and route for: ice40-hx8k, ice40-up5k, ecp5-25k, ecp5-85k.")
-@click.option("--cells", metavar="LIST", help="Comma-separated cell styles to try "
-              "[default: the config's cell].")
+              help="Device to place and route for: " + ", ".join(devices.DEVICES) + ".")
+@click.option("--cells", metavar="LIST", help="Comma-separated cell styles to try, in every "
+              f"mode: {', '.join(CELLS)} [default: the config's cell; in the prefix modes "
+              "the config's cell if it is a prefix style, else "
+              f"{' and '.join(candidates.DEFAULT_PREFIX_STYLES)}].")
+@click.option("--modes", metavar="LIST", help="Comma-separated pipeline modes to try: "
+              f"{', '.join(PIPELINES)} [default: all].")
 @click.option("--jobs", default="1", show_default=True, metavar="N",
               help="Candidates placed and routed at once (local worker processes).")
 @click.option("--seeds", default="1", show_default=True, metavar="N",
@@ -313,24 +328,29 @@ def _option_number(option: str, text: str, kind, low: float, allowed: str):
               help="Run candidates on this Dask distributed scheduler instead of locally.")
 @click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False),
               help="Output folder [default: out/<name>].")
-def fit(config, target, device, cells, jobs, seeds, no_cache, tool_kind, timeout, cluster,
+def fit(config, target, device, cells, modes, jobs, seeds, no_cache, tool_kind, timeout, cluster,
         out_dir):
     """Measure candidate splits with Yosys and nextpnr; keep the least latency meeting MHZ."""
-    from . import devices, executor, fit as fitting
-    from .config import CELLS
+    from . import executor, fit as fitting
     from .toolflow import TOOLS
 
     base = load_plan(config).config
+    # The file as written: the chosen split goes back into it (config_edit), read once now.
+    source = read_regular(config, MAX_CONFIG_BYTES).decode("utf-8")
     target_mhz = _option_number("--target-mhz", target, float, 0, "a number of MHz above 0")
     if device not in devices.DEVICES:
         raise UserError(f"--device: value {device!r} is not allowed; expected one of "
                         f"{', '.join(devices.DEVICES)}")
-    styles = tuple(cells.split(",")) if cells is not None else (base.cell,)
-    for style in styles:
-        if style not in CELLS:
-            raise UserError(f"--cells: value {style!r} is not allowed; expected a comma-"
-                            f"separated list of {', '.join(CELLS)}")
-    styles = tuple(dict.fromkeys(styles))
+    styles = None if cells is None else _option_list("--cells", cells, CELLS)
+    chosen_modes = PIPELINES if modes is None else _option_list("--modes", modes, PIPELINES)
+    own = units.KINDS[base.unit].modes
+    if not set(chosen_modes) & set(own):
+        raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with unit "
+                        f"{base.unit!r}; expected one of {', '.join(own)}")
+    if not candidates.generate(base, styles, chosen_modes):
+        raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with "
+                        f"--cells {','.join(styles or ())}; expected a prefix style in --cells "
+                        "for the levels and blocks modes, or the slices mode")
     n_jobs = _option_number("--jobs", jobs, int, 0, "an integer of 1 or more")
     n_seeds = _option_number("--seeds", seeds, int, 0, "an integer of 1 or more")
     if tool_kind not in TOOLS:
@@ -344,7 +364,7 @@ def fit(config, target, device, cells, jobs, seeds, no_cache, tool_kind, timeout
     dest = Path(out_dir) if out_dir else Path("out") / base.name
     output.check_folder(dest)  # before the long run, not after it
     settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
-                                limit, not no_cache)
+                                limit, not no_cache, chosen_modes)
     runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)
     try:
         outcome = fitting.run(base, settings, runner, echo=lambda t: click.echo(t, err=True))
@@ -357,6 +377,6 @@ def fit(config, target, device, cells, jobs, seeds, no_cache, tool_kind, timeout
     for note in outcome.notes:
         click.echo(f"note: {note}")
     click.echo(fitting.summary(outcome))
-    written = _write_folder(fitting.files(outcome), dest)
+    written = _write_folder(fitting.files(outcome, source), dest)
     click.echo(f"wrote {len(written)} files -> {dest}/")
     sys.exit(0 if outcome.chosen else 1)
