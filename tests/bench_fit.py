@@ -6,8 +6,8 @@ table per device.  On the same device and seeds it measures
   - the fabric limit: register -> one LUT4 -> register (hand-written below);
   - generated units (carrypipe) at each slice width, per cell style;
 each inside the same measurement harness, and prints MHz, LUTs, carry cells, flip-flops and
-latency with the ratios generated/peer (same width) and generated/fabric limit.  With
-`--calibrate` it also prints the delay-model constants fitted to the generated units.
+latency with the ratios generated/peer (same width) and generated/fabric limit.  The delay
+model is calibrated by `tests/bench_model.py`, on the same flow.
 
     python tests/bench_fit.py --devices ice40-hx8k,ecp5-85k --widths 64 --seeds 3
     python tests/bench_fit.py --devices ecp5-85k --widths 256 --slice-widths 256,64,16,8
@@ -24,12 +24,11 @@ from __future__ import annotations
 
 import argparse
 import datetime
-import json
 import statistics
 import sys
 import time
 
-from carrypipe import cache, config, devices, emit, executor, model, toolflow
+from carrypipe import cache, config, devices, emit, executor, toolflow
 from carrypipe.plan import make_plan
 
 PEER_WIDTHS = (32, 64, 128, 256)
@@ -90,7 +89,7 @@ def measure(store, versions, device, name, cfg, text, seeds, kind, jobs=1):
     return {"name": name, "latency": plan.latency, "mhz": statistics.median(m.mhz for m in ok)
             if ok else None, "luts": first.luts, "carry": first.carry, "ffs": first.flip_flops,
             "status": first.status, "inside": all(m.inside for m in ok) if ok else None,
-            "x": model.feature(plan), "cell": cfg.cell, "width": cfg.width,
+            "cell": cfg.cell, "width": cfg.width,
             "regs": plan.registers.total}
 
 
@@ -102,7 +101,6 @@ def main(argv=None) -> int:
     ap.add_argument("--slice-widths", help="default: every power of two from the width down to 2")
     ap.add_argument("--peer-widths", default=",".join(map(str, PEER_WIDTHS)))
     ap.add_argument("--seeds", type=int, default=1)
-    ap.add_argument("--calibrate", action="store_true")
     ap.add_argument("--jobs", type=int, default=1, help="place-and-route runs at a time")
     args = ap.parse_args(argv)
     seeds = tuple(range(1, args.seeds + 1))
@@ -136,14 +134,6 @@ def main(argv=None) -> int:
                     print(f"  measured {row['name']} ({time.monotonic() - t0:.0f} s)",
                           file=sys.stderr, flush=True)
         print_table(device, versions, seeds, rows, fabric)
-        if args.calibrate:
-            gen = [r for r in rows if "peer" in r and r["mhz"]]
-            styles = {}
-            for cell in sorted({r["cell"] for r in gen}):
-                pts = [(r["x"], r["mhz"]) for r in gen if r["cell"] == cell]
-                styles[cell] = model.calibrate(pts)
-            entry = {"floor_ns": round(1000 / fabric["mhz"], 4), "styles": styles}
-            print(f"delay model for {device.name}: {json.dumps(entry, sort_keys=True)}")
         print(f"({time.monotonic() - t0:.0f} s)\n")
     return 0
 

@@ -13,7 +13,7 @@ import re
 
 import pytest
 
-from carrypipe import cache, candidates, config, devices, executor, fit, toolflow
+from carrypipe import cache, candidates, config, devices, executor, fit, model, toolflow
 from carrypipe.plan import make_plan
 from carrypipe.toolflow import Measurement
 from conftest import fifo_watchdog
@@ -88,11 +88,12 @@ def monotone_law(job):
 @pytest.mark.parametrize("target", [120, 200, 260, 300, 380, 600])
 @pytest.mark.parametrize("cells", [("native",), None, ("native", "brent-kung", "sklansky")])
 def test_search_without_a_model_halves_each_kind(monkeypatch, tmp_path, target, cells):
-    """A device with no delay model (Gowin until calibrated): no prediction, yet the search
-    picks what measuring every candidate picks, and probes each kind (cell, mode) at its
-    middle, so a kind of n candidates costs at most ceil(log2(n + 1)) runs (binary search),
-    plus the uneven variants of near misses."""
+    """A device with no delay model (here: the model file emptied): no prediction, yet the
+    search picks what measuring every candidate picks, and probes each kind (cell, mode) at
+    its middle, so a kind of n candidates costs at most ceil(log2(n + 1)) runs (binary
+    search), plus the uneven variants of near misses."""
     calls = []
+    monkeypatch.setattr(model, "models", lambda: {"devices": {}, "depth": {}})
     monkeypatch.setattr(toolflow, "measure", lambda job: calls.append(job) or monotone_law(job))
     monkeypatch.setattr(toolflow, "versions", lambda *a: {"yosys": "test"})
     monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path))

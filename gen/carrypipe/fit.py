@@ -142,8 +142,9 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     chosen = candidates.select(rows, target)
     outcome = Outcome(settings, rows, versions, chosen, candidates.best(rows),
                       measurements=measurements, cached=cached)
-    if dev.name not in model.models():
-        outcome.notes.append(f"no delay model for {dev.name} yet: candidates are measured "
+    if model.entry_for(dev.name) is None:
+        outcome.notes.append(f"no delay model for {dev.name} with nextpnr's "
+                             f"{model.placer(dev)} placer: candidates are measured "
                              "without a prediction, each kind (cell style and mode) probed at "
                              "its middle split, and a split whose slowest stage is no shorter "
                              "than a measured miss of its kind is taken to miss")
