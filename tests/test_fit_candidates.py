@@ -225,3 +225,47 @@ def test_every_candidate_has_its_own_label():
         assert len(labels) == len(set(labels))
     assert Row(make_plan(base(pipeline="levels", cell="kogge-stone", local_width=16,
                               wire_registers=2))).label == "kogge-stone levels/1 local 16 wired 2"
+
+
+def test_correction_is_per_kind():
+    # A measured native split corrects the other native splits, not the levels candidates:
+    # one kind's error says little about another's.
+    native = [row([32, 32], 200, predicted=250), row([16] * 4, predicted=300)]
+    lev = Row(make(width=64, pipeline="levels", cell="kogge-stone"), predicted=400)
+    factors = candidates.scale(native + [lev])
+    assert candidates.corrected(native[1], factors) == 240.0  # 300 x 200 / 250
+    assert candidates.corrected(lev, factors) == 400.0
+    assert set(factors) == {candidates.kind(native[0])}
+
+
+def test_margin_decides_what_is_measured():
+    rows = [row([64], predicted=236), row([32, 32], predicted=300)]
+    assert [r.latency for r in candidates.next_batch(rows, 250, 2, margin=0.05)] == [2]
+    assert [r.latency for r in candidates.next_batch(rows, 250, 2, margin=0.10)] == [1, 2]
+    note = candidates.why_not_run(rows[0], rows, 250, {}, None, 0.05)
+    assert note == "not run: predicted 236 < 0.95 x 250 MHz"
+
+
+def test_uneven_variants_go_by_their_prediction():
+    near = row([16] * 4, 240, predicted=250)
+    make_row = lambda c, o: Row(make_plan(c), o, predicted=245)  # noqa: E731
+    new = candidates.uneven_rows([near], 250, make_row)
+    assert new and not any(r.forced for r in new)  # measured only when promising
+    factors = candidates.scale([near, *new])
+    # The parent's measured/predicted ratio (240/250) applies to its variants: 235.2.
+    assert not candidates.promising(new[0], 250, factors, [near, *new], 0.05)
+    assert candidates.promising(new[0], 250, factors, [near, *new], 0.10)
+
+
+@pytest.mark.parametrize("statuses,seeds,expect", [
+    ((), 1, (1,)), ((), 3, (1, 2, 3)), (("ok",), 1, ()), (("error",), 1, (2,)),
+    (("error", "error"), 1, (3,)), (("error", "error", "error"), 1, ()),
+    (("no-fit",), 1, ()), (("timeout",), 1, ()), (("error", "ok", "error"), 3, ()),
+    (("error", "error", "error"), 3, (4,))])
+def test_a_seed_that_fails_in_the_tools_is_followed_by_the_next(statuses, seeds, expect):
+    r = row([8, 8])
+    r.seeds = seeds
+    r.measured = [Measurement(i + 1, s, mhz=100.0 if s == "ok" else None)
+                  for i, s in enumerate(statuses)]
+    assert r.seeds_to_run() == expect
+    assert r.done == (expect == ())

@@ -55,10 +55,10 @@ class Outcome:
     cached: int = 0  # of those, served from the cache
 
 
-def make_row(cfg: Config, origin: str, device: devices.Device) -> Row:
+def make_row(cfg: Config, origin: str, device: devices.Device, seeds: int = 1) -> Row:
     """A candidate's plan figures, prediction and whether its flip-flops fit the device."""
     plan = make_plan(cfg)
-    row = Row(plan, origin, predicted=model.predict(plan, device.name))
+    row = Row(plan, origin, predicted=model.predict(plan, device.name), seeds=seeds)
     need = plan.registers.total + harness.flip_flops(plan)
     if need > device.flip_flops:
         mark_no_fit(row, device, need, f"{need} flip-flops (unit {plan.registers.total}, "
@@ -99,17 +99,20 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     dev, target = settings.device, settings.target_mhz
     versions = toolflow.versions(dev.family, settings.tools, settings.timeout)
     store = store or cache.Cache(read=settings.use_cache)
-    rows = candidates.distinct([make_row(c, "even", dev) for c in
+    new_row = lambda c, origin: make_row(c, origin, dev, settings.seeds)  # noqa: E731
+    rows = candidates.distinct([new_row(c, "even") for c in
                                 candidates.generate(base, settings.cells, settings.modes)])
     progress, warned = Progress(echo), False
-    seeds = tuple(range(1, settings.seeds + 1))
     measurements = cached = 0
-    while batch := candidates.next_batch(rows, target, executor.jobs):
+    margin = model.margin(dev.name)
+    while batch := candidates.next_batch(rows, target, executor.jobs, margin):
         jobs, keys = {}, {}
         factors = candidates.scale(rows)
         for row in batch:
-            row.basis = candidates.corrected(row, factors)
+            if row.basis is None:
+                row.basis = candidates.corrected(row, factors)
             norm = row.config.normalized()
+            seeds = row.seeds_to_run()
             for seed in seeds:
                 keys[id(row), seed] = cache.key(norm, dev.name, seed, versions)
                 hit = store.get(keys[id(row), seed], seed)
@@ -132,13 +135,14 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
             for m in results:
                 row.measured.append(m)
                 store.put(keys[id(row), m.seed], m)
-            progress.step(row.label, sum(m.seconds for m in results), left + _queued(rows, target))
+            progress.step(row.label, sum(m.seconds for m in results),
+                          left + _queued(rows, target, margin))
         for row in batch:
             row.measured.sort(key=lambda m: m.seed)
             full = [m for m in row.measured if m.status == "no-fit"]
             if full and row.fits:
                 mark_no_fit(row, dev, full[0].logic_used or 0, full[0].message)
-        rows += candidates.uneven_rows(rows, target, lambda c, o: make_row(c, o, dev))
+        rows += candidates.uneven_rows(rows, target, new_row)
     chosen = candidates.select(rows, target)
     outcome = Outcome(settings, rows, versions, chosen, candidates.best(rows),
                       measurements=measurements, cached=cached)
@@ -171,9 +175,10 @@ def environment_failure(outcome: Outcome) -> str | None:
             f"{measured[0].message}")
 
 
-def _queued(rows: list[Row], target: float) -> int:
+def _queued(rows: list[Row], target: float, margin: float) -> int:
     factors = candidates.scale(rows)
-    return sum(1 for r in rows if not r.done and candidates.promising(r, target, factors, rows))
+    return sum(1 for r in rows if not r.done
+               and candidates.promising(r, target, factors, rows, margin))
 
 
 def ordered(rows: list[Row]) -> list[Row]:
@@ -188,10 +193,10 @@ COLUMNS = ("latency", "candidate", "origin", "register_bits", "predicted_mhz", "
 def record(row: Row, outcome: Outcome) -> dict:
     """The figures of one candidate (the CSV columns; the JSON adds the per-seed detail).
 
-    `predicted_mhz` is the prediction that decided: the model's figure corrected by its cell
-    style's measured/predicted ratio when the candidate was sent to be measured (for one
-    never measured, the final ratio); `model_mhz` is the model's own figure, given only
-    where it differs.
+    `predicted_mhz` is the prediction that decided: the model's figure corrected by the
+    measured/predicted ratio of its kind (cell style and mode) when the candidate was sent
+    to be measured (for one never measured, the final ratio); `model_mhz` is the model's
+    own figure, given only where it differs.
     """
     target, rows = outcome.settings.target_mhz, outcome.rows
     factors = candidates.scale(rows)
@@ -207,7 +212,8 @@ def record(row: Row, outcome: Outcome) -> dict:
     elif row.measured:
         note = f"{first.status}: {first.message}"
     else:
-        note = candidates.why_not_run(row, rows, target, factors, outcome.chosen)
+        note = candidates.why_not_run(row, rows, target, factors, outcome.chosen,
+                                      model.margin(outcome.settings.device.name))
     if row.same:
         note += "; same circuit as " + ", ".join(row.same)
     return {"latency": row.latency, "candidate": row.label, "origin": row.origin,
@@ -238,8 +244,9 @@ def table(outcome: Outcome) -> str:
                      f"{_num(r['predicted_mhz'])} {_num(r['model_mhz'], blank='')} "
                      f"{_num(r['measured_mhz'], 7)} {_num(r['luts'])} {_num(r['carry'], 5)} "
                      f"{_num(r['flip_flops'])}  {mark:<4} {r['note']}")
-    lines.append("pred: the model corrected by the measured/predicted ratio of its cell style "
-                 "(what decided); model: the model's own figure where it differs")
+    lines.append("pred: the model corrected by the measured/predicted ratio of its kind (cell "
+                 "style and mode; what decided); model: the model's own figure where it "
+                 "differs")
     return "\n".join(lines)
 
 
@@ -247,9 +254,19 @@ def _num(v, width: int = 6, blank: str = "-") -> str:
     return f"{blank if v is None else v:>{width}}"
 
 
+def seed_words(row: Row, many: str = "median of {n} seeds") -> str:
+    """Which seeds a row's figure comes from: "seed 1", "median of 3 seeds", or the seeds
+    themselves when some failed in the tools and others were measured instead."""
+    got = [m.seed for m in row.ok]
+    if len(got) == 1:
+        return f"seed {got[0]}"
+    if got == list(range(1, len(got) + 1)):
+        return many.format(n=len(got))
+    return "median of seeds " + ", ".join(map(str, got))
+
+
 def summary(outcome: Outcome) -> str:
     s = outcome.settings
-    seeds = f"median of {s.seeds} seeds" if s.seeds > 1 else "seed 1"
     if not s.use_cache:
         source = f"; {outcome.measurements} measurements, the cache not read (--no-cache)"
     else:
@@ -257,12 +274,12 @@ def summary(outcome: Outcome) -> str:
     if outcome.chosen:
         c = outcome.chosen
         return (f"chosen: {c.label}, latency {c.latency}, {c.register_bits} register bits, "
-                f"{c.mhz} MHz ({seeds}) >= target {s.target_mhz:g} MHz on {s.device.name}"
+                f"{c.mhz} MHz ({seed_words(c)}) >= target {s.target_mhz:g} MHz on {s.device.name}"
                 + source)
     if outcome.best:
         b = outcome.best
         return (f"no candidate meets {s.target_mhz:g} MHz on {s.device.name}; best: {b.label}, "
-                f"latency {b.latency}, {b.mhz} MHz ({seeds})" + source)
+                f"latency {b.latency}, {b.mhz} MHz ({seed_words(b)})" + source)
     return (f"no candidate meets {s.target_mhz:g} MHz on {s.device.name}; none could be "
             "measured" + source)
 
@@ -291,7 +308,7 @@ def chart_figures(outcome: Outcome) -> tuple[dict[int, float], str]:
     s, row = outcome.settings, outcome.chosen
     path = median_seed(row)
     stage = harness.stage_of(path.end, row.plan)
-    seeds = f"median of seeds 1-{s.seeds}" if s.seeds > 1 else "seed 1"
+    seeds = seed_words(row, "median of seeds 1-{n}")
     at = "" if stage is not None else "; stage by the unit-gate model"
     return ({row.plan.slowest[0].index if stage is None else stage: round(1000 / row.mhz, 3)},
             f"{row.mhz:g} MHz, {seeds}, {s.device.name}, nextpnr; critical path "
