@@ -26,6 +26,26 @@ def bits(lo: int, hi: int) -> str:
     return f"{hi}:{lo}" if hi != lo else str(lo)
 
 
+def plural(count: int, noun: str, many: str | None = None) -> str:
+    """`1 stage`, `4 stages`."""
+    return f"{count} {noun if count == 1 else many or noun + 's'}"
+
+
+def stage_list(indices) -> str:
+    """Stage numbers for a sentence, every one named: each number when there are few
+    ("0, 2, 5"), runs of consecutive ones when there are many ("0, 2–255")."""
+    ordered = sorted(indices)
+    if len(ordered) <= 16:
+        return ", ".join(map(str, ordered))
+    runs: list[list[int]] = []
+    for i in ordered:
+        if runs and i == runs[-1][1] + 1:
+            runs[-1][1] = i
+        else:
+            runs.append([i, i])
+    return ", ".join(str(a) if a == b else f"{a}–{b}" for a, b in runs)
+
+
 def reset_phrase(plan) -> str:
     c = plan.config
     if c.reset == "none":

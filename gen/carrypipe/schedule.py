@@ -368,9 +368,10 @@ def _describe(flavour: str, s: int, final: int, levels, wire: bool) -> str:
     if s == 1:
         parts.append({"bits": "generate/propagate", "chains": "block carry chains",
                       "compare": "slice comparisons"}[flavour])
-    if levels:
+    if levels:  # a comparator's network is the tree that combines the slices' verdicts
         first, end = levels[0] + 1, levels[-1] + 1
-        parts.append(f"prefix level {first}" if first == end else f"prefix levels {first}-{end}")
+        what = "tree level" if flavour == "compare" else "prefix level"
+        parts.append(f"{what} {first}" if first == end else f"{what}s {first}-{end}")
     if s == final:
         parts.append({"bits": "sum", "chains": "block select", "compare": "verdicts"}[flavour])
     return ", ".join(parts)

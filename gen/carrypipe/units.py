@@ -61,6 +61,8 @@ class Kind:
     chain: tuple[str, ...] = ("carry",)  # bits handed from one slice to the next
     op: str = "add"
     verb: str = "computes"  # what a slice does to its bits, for comments
+    noun: str = "unit"  # what the unit is called in texts ("adder slice", "a 64-bit adder")
+    keeps_result = False  # each slice keeps its result bits and reads them back (a total)
     composable = False  # `prove --method compositional` covers its sliced units
     settle = 0  # cycles a bounded proof needs beyond latency + 1 (a state to build up)
 
@@ -308,6 +310,7 @@ class Plain(Arithmetic):
     def __init__(self, name: str, verb: str, op: str, result: str, chain: str,
                  chain_port: tuple[str, str], carry_in_meaning: str, carry_out_meaning: str):
         self.name, self.verb, self.op, self.result = name, verb, op, result
+        self.noun = "adder" if op == "add" else "subtractor"
         self.chain, self.chain_port = (chain,), chain_port
         self.carry_in_meaning, self.carry_out_meaning = carry_in_meaning, carry_out_meaning
 
@@ -320,8 +323,7 @@ class Plain(Arithmetic):
 
     def phrase(self, c):
         lhs = f"{{{self.chain_port[1]}, {self.result}}}" if c.carry_out else self.result
-        noun = "adder" if self.op == "add" else "subtractor"
-        return f"{c.width}-bit {'signed ' if c.signed else ''}{noun}, {lhs} = {self._rhs(c)}"
+        return f"{c.width}-bit {'signed ' if c.signed else ''}{self.noun}, {lhs} = {self._rhs(c)}"
 
 
 class AddSub(Arithmetic):
@@ -331,6 +333,7 @@ class AddSub(Arithmetic):
 
     name = "addsub"
     verb = "adds or subtracts"
+    noun = "adder/subtractor"
     result = "sum"
     chain = ("carry",)
     travellers = ("sub",)
@@ -375,7 +378,7 @@ class AddSub(Arithmetic):
 
     def phrase(self, c):
         cin = " + cin" if c.carry_in else ""
-        return (f"{c.width}-bit {'signed ' if c.signed else ''}adder/subtractor, sum = "
+        return (f"{c.width}-bit {'signed ' if c.signed else ''}{self.noun}, sum = "
                 f"a + b{cin} (sub = 0) or a - b{cin.replace('+', '-')} (sub = 1)")
 
 
@@ -386,6 +389,7 @@ class Comparator(Kind):
 
     name = "comparator"
     verb = "compares"
+    noun = "comparator"
     modes = ("slices", "levels")
     refused = ("carry_in", "carry_out")
     # In levels mode the slices are compared in parallel and a tree combines their verdicts.
@@ -441,7 +445,8 @@ class Comparator(Kind):
         return [{"a": a, "b": b} for a, b in _operand_corners(c.width)]
 
     def phrase(self, c):
-        return f"{c.width}-bit {'signed' if c.signed else 'unsigned'} comparator, lt/eq/gt of a, b"
+        return (f"{c.width}-bit {'signed' if c.signed else 'unsigned'} {self.noun}, lt/eq/gt of "
+                "a, b")
 
 
 class Accumulator(Kind):
@@ -453,6 +458,8 @@ class Accumulator(Kind):
 
     name = "accumulator"
     verb = "accumulates"
+    noun = "accumulator"
+    keeps_result = True
     settle = 8  # the bounded proof checks eight totals after the first clear
     modes = ("slices",)
     refused = ("carry_in", "signed")
@@ -528,7 +535,7 @@ class Accumulator(Kind):
 
     def phrase(self, c):
         cout = ", cout = its carry out" if c.carry_out else ""
-        return f"{c.width}-bit accumulator, acc = clear ? x : acc + x{cout}"
+        return f"{c.width}-bit {self.noun}, acc = clear ? x : acc + x{cout}"
 
 
 class _AccumulatorModel(Model):
