@@ -10,7 +10,7 @@ import json
 from functools import singledispatch
 
 from . import __version__, cells
-from .header import bits, reset_phrase, timing_phrase
+from .header import bits, plural, reset_phrase, stage_list, timing_phrase
 from .plan import Plan, PrefixPlan, SlicedPlan
 
 DELAY_MODEL = ("unit-gate model (Tyagi 1993; Zimmermann 1997): 2-input AND/OR = 1, XOR = 2, "
@@ -69,15 +69,21 @@ def manifest_text(plan: Plan, files: list[str]) -> str:
     return json.dumps(manifest(plan, files), indent=2, sort_keys=True) + "\n"
 
 
+def stages_phrase(stages) -> str:
+    """`stage 3`, `stages 0, 2`: every one named."""
+    indices = [s.index for s in stages]
+    return f"{'stage' if len(indices) == 1 else 'stages'} {stage_list(indices)}"
+
+
 def slowest_sentence(plan: Plan) -> str:
     delays = sorted({s.delay for s in plan.stages}, reverse=True)
     slow = plan.slowest
+    if len(plan.stages) == 1:
+        return f"One stage: {slow[0].delay} units."
     if len(delays) == 1:
         return f"Every stage has the same unit-gate delay: {slow[0].delay} units."
-    tied = [str(s.index) for s in slow]
-    which = f"stage {tied[0]}" if len(tied) == 1 else f"stages {', '.join(tied)}"
-    return (f"Slowest: {which} at {slow[0].delay} units, {slow[0].delay - delays[1]} more "
-            f"than the next slowest ({delays[1]}).")
+    return (f"Slowest: {stages_phrase(slow)} at {slow[0].delay} units, "
+            f"{slow[0].delay - delays[1]} more than the next slowest ({delays[1]}).")
 
 
 def report(plan: Plan) -> str:
@@ -96,7 +102,8 @@ def report(plan: Plan) -> str:
         *table(plan),
         "",
         "Register bits",
-        *(f"  {kind:<8} {n:>8}" for kind, n in plan.registers.as_dict().items()),
+        *(f"  {kind:<8} {n:>8}" for kind, n in plan.registers.as_dict().items()
+          if n or kind == "total"),
         "",
         slowest_sentence(plan),
         f"Delay model: {DELAY_MODEL}.",
@@ -126,12 +133,14 @@ def _(plan: SlicedPlan) -> list[str]:
     lines = ["Slices (LSB first; delay in the unit-gate model, register to register)",
              f"  {'stage':>5}  {'bits':>13}  {'width':>5}  {'levels':>6}  {'nodes':>6}  "
              f"{'delay':>5}  {'waits':>9}"]
+    result = plan.unit.result  # a comparator hands its verdicts on: no result waits
     for s in plan.stages:
+        after = s.wait_after if result else "–"
         lines.append(f"  {s.index:>5}  {slice_range(s):>13}  {s.width:>5}  {s.depth:>6}  "
-                     f"{s.nodes:>6}  {s.delay:>5}  {s.wait_before:>3} / {s.wait_after:<3}"
+                     f"{s.nodes:>6}  {s.delay:>5}  {s.wait_before:>3} / {after:<3}"
                      f"{mark(s)}")
-    lines.append("  (waits: cycles the operand bits wait before the slice / the result "
-                 "bits after)")
+    lines.append("  (waits: cycles the operand bits wait before the slice / the "
+                 + (f"{result} bits after)" if result else "verdicts never wait)"))
     return lines
 
 
@@ -174,45 +183,89 @@ def tips(plan) -> list[str]:
 
 @tips.register
 def _(plan: SlicedPlan) -> list[str]:
-    """What a sliced unit could still try: only what its config does not do yet."""
-    c = plan.config
+    """What a sliced unit could still try: only what its config does not do yet, naming
+    every tied slowest stage."""
+    c, kind = plan.config, plan.unit
     slow = plan.slowest
     out = []
-    if len(slow) < len(plan.stages) or plan.stages[0].width > 1:
-        where = ", ".join(f"{s.index} (bits {bits(s.lsb, s.msb)})" for s in slow)
-        out += [f"  - narrow the slowest stage{'s' if len(slow) > 1 else ''}: {where}; use an",
-                "    uneven `slices` list or a smaller `slice_width` (one cycle more per extra "
-                "slice);"]
+    if len(plan.stages) == 1 and c.width > 1:
+        out.append("  - cut the unit into slices (`slice_width` or `slices`): one cycle more per "
+                   "slice;")
+    elif len(slow) == len(plan.stages) and slow[0].width > 1:
+        out += [f"  - every stage ties at {slow[0].delay} units: a smaller `slice_width` "
+                "narrows them all", "    (one cycle more per extra slice);"]
+    elif any(s.width > 1 for s in slow):
+        if len(slow) <= 4:
+            where = ", ".join(f"{s.index} (bits {bits(s.lsb, s.msb)})" for s in slow)
+        else:
+            widths = sorted({s.width for s in slow})
+            each = f"{widths[0]} bits each" if len(widths) == 1 else "bits " + "/".join(
+                map(str, widths))
+            where = f"{stage_list(s.index for s in slow)} ({each})"
+        out += [f"  - narrow the slowest {'stages' if len(slow) > 1 else 'stage'} {where}:",
+                "    an uneven `slices` list, or a smaller `slice_width` (one cycle more per "
+                "extra slice);"]
     family = cells.STYLES[c.cell].family
     if family != "behavioural":
-        out.append("  - `cell: native` lets FPGA synthesis map each slice onto the carry chain;")
-    if family != "prefix":
-        out.append("  - a prefix cell (kogge-stone, sklansky, ...) shortens the path on ASICs "
-                   "and in LUT fabric;")
-    if plan.unit.name in ("adder", "subtractor", "addsub"):
-        out.append("  - `pipeline: levels` or `blocks` has no triangles: for wide units "
-                   "(docs/modes.md);")
+        out.append("  - `cell: native` lets FPGA synthesis map each slice onto its carry chain;")
+    faster = _faster_cells(plan)
+    if faster and family != "prefix":
+        out += [f"  - a prefix cell ({', '.join(faster[:2])}, ...) shortens the slowest path",
+                "    on ASICs and in LUT fabric;"]
+    elif faster:
+        out.append(f"  - `cell: {faster[0]}` has a shorter path than {c.cell} in the slowest "
+                   f"{'stages' if len(slow) > 1 else 'stage'};")
+    others = [m for m in kind.modes if m != "slices"] if c.width > 1 else []
+    if others == ["levels"]:
+        out += ["  - `pipeline: levels` compares all slices in parallel and joins their "
+                "verdicts", "    in a tree, without the skew triangle (docs/modes.md);"]
+    elif others:
+        out += ["  - `pipeline: " + "` or `".join(others) + "` pipelines the carry network "
+                "itself, without", "    skew or deskew triangles: for wide units "
+                "(docs/modes.md);"]
     return out + _input_tip(plan)
+
+
+def _faster_cells(plan: SlicedPlan) -> list[str]:
+    """Prefix cells with a shorter unit-gate path than the config's in every slowest stage,
+    fastest first."""
+    slow = plan.slowest
+
+    def worst(name):
+        return max(cells.STYLES[name].delay(s.width, s.carry_in, s.carry_out) for s in slow)
+
+    found = [n for n in cells.PREFIX_STYLES if n != plan.config.cell
+             and worst(n) < slow[0].delay]
+    return sorted(found, key=lambda n: (worst(n), n))
 
 
 @tips.register
 def _(plan: PrefixPlan) -> list[str]:
-    """What a prefix-mode unit could still try: only what its config does not do yet."""
+    """What a prefix-mode unit could still try: only what its config does not do yet,
+    naming every slowest stage a tip would shorten."""
     c, sch = plan.config, plan.schedule
+    slow = plan.slowest
     out = []
-    if c.levels_per_stage > 1:
-        out.append("  - fewer `levels_per_stage` (1 puts a register after every prefix level);")
+    deep = [s for s in slow if s.depth > 1]
+    if deep:
+        out.append(f"  - fewer `levels_per_stage` (now {c.levels_per_stage}) splits the prefix "
+                   f"levels of {stages_phrase(deep)} over more stages;")
+    first = slow[0].index == 0
     if sch.flavour == "compare":
-        return out + ["  - narrower slices (`slice_width`) shorten the first stage's "
-                      "comparisons;"] + _input_tip(plan)
+        if first and max(sch.widths) > 1:
+            out.append("  - narrower slices (`slice_width` or `slices`) shorten the comparisons "
+                       "of stage 0;")
+        return out + _input_tip(plan)
+    if sch.flavour == "chains" and c.block_width > 1 and first:
+        out.append(f"  - a smaller `block_width` (now {c.block_width}) shortens the carry "
+                   "chains of stage 0;")
     if c.cell in ("kogge-stone", "sklansky"):
         out += ["  - a sparser prefix `cell` (han-carlson, brent-kung) has less wiring and "
                 "fan-out;"]
     if c.wire_registers < sch.network.depth:
-        out += [f"  - `wire_registers: {c.wire_registers + 1}` adds a register rank in front of "
-                "the longest-span", "    level(s): one cycle more, shorter routed nets;"]
-    if sch.flavour == "chains" and c.block_width > 1:
-        out.append("  - a smaller `block_width` shortens the carry chains of the first stage;")
+        which = "one more long-span level" if c.wire_registers else "the longest-span level"
+        out += [f"  - `wire_registers: {c.wire_registers + 1}` puts a logic-free register rank "
+                "in front of", f"    {which}: one cycle more, shorter routed nets;"]
     moved = plan.moved_input_rank()
     if moved is not None:
         same = ", as now" if moved.latency == plan.latency else ""
