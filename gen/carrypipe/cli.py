@@ -47,6 +47,7 @@ class EnvironmentFault(_OneLineError):
 
 # click >= 8.2 raises this (a UsageError) to show the help of a bare `carrypipe`: keep it.
 _SHOW_HELP = getattr(click.exceptions, "NoArgsIsHelpError", ())
+MAX_DEPTH = 1000  # cycles `prove --depth` may unroll
 
 
 @contextlib.contextmanager
@@ -231,10 +232,10 @@ def plan_cmd(config, slice_width, slices, chart_path):
 
 @main.command()
 @click.argument("target", type=click.Path())
-@click.option("--depth", type=click.IntRange(1, 1000),
-              help="Cycles to unroll, more than the latency; results are compared from cycle "
-                   "latency+1 up to this one [default: latency + 1, which already covers "
-                   "every later cycle].")
+@click.option("--depth", type=int, metavar="N",
+              help=f"Cycles to unroll: an integer above the unit's latency, at most "
+                   f"{MAX_DEPTH}; results are compared from cycle latency+1 up to this one "
+                   "[default: latency + 1, which already covers every later cycle].")
 @click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
               help="Give up on the proof (every Yosys run and solver call) after this many "
                    "seconds in all.")
@@ -252,9 +253,10 @@ def prove(target, depth, timeout, method):
     from . import prove as proof
 
     plan, verilog, what = load_target(target)
-    if depth is not None and depth <= plan.latency:
+    if depth is not None and not plan.latency < depth <= MAX_DEPTH:
+        most = f", at most {MAX_DEPTH}" if depth > MAX_DEPTH else ""
         raise UserError(f"--depth: value {depth} is not allowed; expected an integer above "
-                        f"the latency ({plan.latency})")
+                        f"the latency ({plan.latency}){most}")
     if method == "compositional" and not plan.can_compose:
         raise UserError(f"--method: value compositional is not allowed for this unit; it "
                         "covers sliced adders and subtractors without reset_data (use direct)")
