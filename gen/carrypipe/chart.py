@@ -511,10 +511,12 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
         y += 20
         out.text(MARGIN, y, line, size=12, data_role="subtitle")
     shade = "; darker = more register bits per bit position" if lay.shaded else ""
-    y += 17
-    out.text(MARGIN, y, "Bits across (most significant on the left), clock cycles down: each "
-             f"band is the logic of one cycle above the registers its edge loads{shade}.",
-             size=11, fill=FAINT)
+    y += 3
+    for line in _wrap("Bits across (most significant on the left), clock cycles down: each "
+                      f"band is the logic of one cycle above the registers its edge loads"
+                      f"{shade}.", 11, lay.width - 2 * MARGIN):
+        y += 14
+        out.text(MARGIN, y, line, size=11, fill=FAINT)
     notes = []
     if lay.bit_band > 1:
         notes.append(f"one column = {lay.bit_band} bits")
@@ -764,8 +766,7 @@ def _label_texts(plan: Plan, group: list, slow: set[int], measured) -> list[str]
         short = f"{first.index}–{last.index}"
         what = f"bits {bits(lo, hi)}"
         figure = f"up to {figure}"
-    return [f"{name} · {what} · {figure}", f"{short} · {what} · {figure}",
-            f"{short} · {what.removeprefix('bits ')}"]
+    return [f"{name} · {what} · {figure}", f"{short} · {what} · {figure}", f"{short} · {what}"]
 
 
 def _place(text: str, size: float, x: float, w: float, lay: _Layout) -> _Label | None:

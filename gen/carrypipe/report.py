@@ -7,6 +7,7 @@ table and the tips depend on the pipeline mode and are chosen by the plan's type
 from __future__ import annotations
 
 import json
+import textwrap
 from functools import singledispatch
 
 from . import __version__, cells
@@ -105,7 +106,7 @@ def report(plan: Plan) -> str:
         *(f"  {kind:<8} {n:>8}" for kind, n in plan.registers.as_dict().items()
           if n or kind == "total"),
         "",
-        slowest_sentence(plan),
+        *textwrap.wrap(slowest_sentence(plan), 92),
         f"Delay model: {DELAY_MODEL}.",
         "",
     ]
@@ -148,11 +149,16 @@ def _(plan: SlicedPlan) -> list[str]:
 def _(plan: PrefixPlan) -> list[str]:
     c, sch = plan.config, plan.schedule
     mark = _marks(plan)
+    tree = sch.flavour == "compare"  # what is left of the network: count the kept nodes
+
+    def nodes(s):
+        return sch.kept_nodes(s.index + 1) if tree else s.nodes
+
     what = {"bits": "bits", "chains": f"blocks of {c.block_width} bits",
             "compare": "slices (compared in parallel)"}[sch.flavour]
-    net = "a balanced tree" if sch.flavour == "compare" else c.cell
-    lines = [f"Prefix network  {net} over {len(sch.widths)} {what}: {sch.network.depth} "
-             f"level(s), {sch.network.nodes} nodes",
+    head = "Verdict tree    a balanced tree" if tree else f"Prefix network  {c.cell}"
+    lines = [f"{head} over {len(sch.widths)} {what}: {sch.network.depth} level(s), "
+             f"{sch.kept_nodes() if tree else sch.network.nodes} nodes",
              f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or deskew)"]
     if sch.flavour == "bits" and 0 < c.local_width < c.width:
         lines.append(f"          within local blocks of {c.local_width} bits, then across them")
@@ -164,16 +170,22 @@ def _(plan: PrefixPlan) -> list[str]:
     lines += ["", "Stages (delay in the unit-gate model, register to register)",
               f"  {'stage':>5}  {'levels':>6}  {'nodes':>6}  {'delay':>5}  logic"]
     for s in plan.stages:
-        lines.append(f"  {s.index:>5}  {s.depth:>6}  {s.nodes:>6}  {s.delay:>5}  {s.logic}"
+        lines.append(f"  {s.index:>5}  {s.depth:>6}  {nodes(s):>6}  {s.delay:>5}  {s.logic}"
                      f"{mark(s)}")
     return lines
+
+
+def _tip(text: str) -> list[str]:
+    """One tip as report lines: a dash, then lines of at most 92 characters."""
+    return textwrap.wrap(text, 92, initial_indent="  - ", subsequent_indent="    ",
+                         break_on_hyphens=False, break_long_words=False)
 
 
 def _input_tip(plan: Plan) -> list[str]:
     if plan.config.register_inputs:
         return []
-    return ["  - `register_inputs: true` takes the input routing out of the first stage "
-            "(one cycle more)."]
+    return _tip("`register_inputs: true` takes the input routing out of the first stage (one "
+                "cycle more).")
 
 
 @singledispatch
@@ -187,13 +199,13 @@ def _(plan: SlicedPlan) -> list[str]:
     every tied slowest stage."""
     c, kind = plan.config, plan.unit
     slow = plan.slowest
+    more = "one cycle more per extra slice"
     out = []
     if len(plan.stages) == 1 and c.width > 1:
-        out.append("  - cut the unit into slices (`slice_width` or `slices`): one cycle more per "
-                   "slice;")
+        out += _tip(f"cut the unit into slices (`slice_width` or `slices`): {more};")
     elif len(slow) == len(plan.stages) and slow[0].width > 1:
-        out += [f"  - every stage ties at {slow[0].delay} units: a smaller `slice_width` "
-                "narrows them all", "    (one cycle more per extra slice);"]
+        out += _tip(f"every stage ties at {slow[0].delay} units: a smaller `slice_width` "
+                    f"narrows them all ({more});")
     elif any(s.width > 1 for s in slow):
         if len(slow) <= 4:
             where = ", ".join(f"{s.index} (bits {bits(s.lsb, s.msb)})" for s in slow)
@@ -202,27 +214,25 @@ def _(plan: SlicedPlan) -> list[str]:
             each = f"{widths[0]} bits each" if len(widths) == 1 else "bits " + "/".join(
                 map(str, widths))
             where = f"{stage_list(s.index for s in slow)} ({each})"
-        out += [f"  - narrow the slowest {'stages' if len(slow) > 1 else 'stage'} {where}:",
-                "    an uneven `slices` list, or a smaller `slice_width` (one cycle more per "
-                "extra slice);"]
+        out += _tip(f"narrow the slowest {'stages' if len(slow) > 1 else 'stage'} {where}: an "
+                    f"uneven `slices` list, or a smaller `slice_width` ({more});")
     family = cells.STYLES[c.cell].family
     if family != "behavioural":
-        out.append("  - `cell: native` lets FPGA synthesis map each slice onto its carry chain;")
+        out += _tip("`cell: native` lets FPGA synthesis map each slice onto its carry chain;")
     faster = _faster_cells(plan)
     if faster and family != "prefix":
-        out += [f"  - a prefix cell ({', '.join(faster[:2])}, ...) shortens the slowest path",
-                "    on ASICs and in LUT fabric;"]
+        out += _tip(f"a prefix cell ({', '.join(faster[:2])}, ...) shortens the slowest path "
+                    "on ASICs and in LUT fabric;")
     elif faster:
-        out.append(f"  - `cell: {faster[0]}` has a shorter path than {c.cell} in the slowest "
-                   f"{'stages' if len(slow) > 1 else 'stage'};")
+        out += _tip(f"`cell: {faster[0]}` has a shorter path than {c.cell} in the slowest "
+                    f"{'stages' if len(slow) > 1 else 'stage'};")
     others = [m for m in kind.modes if m != "slices"] if c.width > 1 else []
     if others == ["levels"]:
-        out += ["  - `pipeline: levels` compares all slices in parallel and joins their "
-                "verdicts", "    in a tree, without the skew triangle (docs/modes.md);"]
+        out += _tip("`pipeline: levels` compares all slices in parallel and joins their "
+                    "verdicts in a tree, without the skew triangle (docs/modes.md);")
     elif others:
-        out += ["  - `pipeline: " + "` or `".join(others) + "` pipelines the carry network "
-                "itself, without", "    skew or deskew triangles: for wide units "
-                "(docs/modes.md);"]
+        out += _tip("`pipeline: " + "` or `".join(others) + "` pipelines the carry network "
+                    "itself, without skew or deskew triangles: for wide units (docs/modes.md);")
     return out + _input_tip(plan)
 
 
@@ -248,30 +258,29 @@ def _(plan: PrefixPlan) -> list[str]:
     out = []
     deep = [s for s in slow if s.depth > 1]
     if deep:
-        out.append(f"  - fewer `levels_per_stage` (now {c.levels_per_stage}) splits the prefix "
-                   f"levels of {stages_phrase(deep)} over more stages;")
+        out += _tip(f"fewer `levels_per_stage` (now {c.levels_per_stage}) splits the prefix "
+                    f"levels of {stages_phrase(deep)} over more stages;")
     first = slow[0].index == 0
     if sch.flavour == "compare":
         if first and max(sch.widths) > 1:
-            out.append("  - narrower slices (`slice_width` or `slices`) shorten the comparisons "
-                       "of stage 0;")
+            out += _tip("narrower slices (`slice_width` or `slices`) shorten the comparisons "
+                        "of stage 0;")
         return out + _input_tip(plan)
     if sch.flavour == "chains" and c.block_width > 1 and first:
-        out.append(f"  - a smaller `block_width` (now {c.block_width}) shortens the carry "
-                   "chains of stage 0;")
+        out += _tip(f"a smaller `block_width` (now {c.block_width}) shortens the carry chains "
+                    "of stage 0;")
     if c.cell in ("kogge-stone", "sklansky"):
-        out += ["  - a sparser prefix `cell` (han-carlson, brent-kung) has less wiring and "
-                "fan-out;"]
+        out += _tip("a sparser prefix `cell` (han-carlson, brent-kung) has less wiring and "
+                    "fan-out;")
     if c.wire_registers < sch.network.depth:
         which = "one more long-span level" if c.wire_registers else "the longest-span level"
-        out += [f"  - `wire_registers: {c.wire_registers + 1}` puts a logic-free register rank "
-                "in front of", f"    {which}: one cycle more, shorter routed nets;"]
+        out += _tip(f"`wire_registers: {c.wire_registers + 1}` puts a logic-free register "
+                    f"rank in front of {which}: one cycle more, shorter routed nets;")
     moved = plan.moved_input_rank()
     if moved is not None:
         same = ", as now" if moved.latency == plan.latency else ""
-        out += ["  - when the operands come straight from registers, `register_inputs: false` "
-                "with",
-                f"    `wire_registers: {moved.config.wire_registers}` (latency {moved.latency}"
-                f"{same}) moves the logic-free rank from the inputs",
-                "    into the network, where it measured faster on ECP5 (docs/modes.md)."]
+        out += _tip("when the operands come straight from registers, `register_inputs: false` "
+                    f"with `wire_registers: {moved.config.wire_registers}` (latency "
+                    f"{moved.latency}{same}) moves the logic-free rank from the inputs into "
+                    "the network, where it measured faster on ECP5 (docs/modes.md).")
     return out + _input_tip(plan)
