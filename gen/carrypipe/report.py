@@ -139,7 +139,7 @@ def _(plan: SlicedPlan) -> list[str]:
         after = s.wait_after if result else "–"
         lines.append(f"  {s.index:>5}  {slice_range(s):>13}  {s.width:>5}  {s.depth:>6}  "
                      f"{s.nodes:>6}  {s.delay:>5}  {s.wait_before:>3} / {after:<3}"
-                     f"{mark(s)}")
+                     f"{mark(s)}".rstrip())
     lines.append("  (waits: cycles the operand bits wait before the slice / the "
                  + (f"{result} bits after)" if result else "verdicts never wait)"))
     return lines

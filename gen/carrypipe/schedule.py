@@ -319,13 +319,14 @@ def make_schedule(config: Config) -> Schedule:
             inner = [arrival[a] for a in t.args if terms[a].stage == t.stage]
             arrival[t.index] = max(inner, default=0) + _op_delay(t, widths, has_cin, kind)
     stages = []
+    formed = {t.stage for t in terms if t.index in last and t.op != "wire"}
     for s_ in range(1, final + 1):
         levels = tuple(k for k, st in sorted(level_stage.items()) if st == s_)
         delay = max([arrival[t.index] for t in terms if t.index in arrival and t.stage == s_],
                     default=0)
         stages.append(StageInfo(s_, levels, sum(len(net.levels[k]) for k in levels), delay,
                                 _describe(flavour, s_, final, levels,
-                                          s_ in wire_stage.values())))
+                                          s_ in wire_stage.values(), s_ in formed)))
     return Schedule(config.pipeline, flavour, net, widths, lsbs, final, merged, wired,
                     tuple(terms), last, outputs, tuple(stages))
 
@@ -367,7 +368,9 @@ def _op_delay(t: Term, widths, cin: bool, kind) -> int:
     return OP_DELAY[t.op]
 
 
-def _describe(flavour: str, s: int, final: int, levels, wire: bool) -> str:
+def _describe(flavour: str, s: int, final: int, levels, wire: bool, logic: bool) -> str:
+    """What stage `s` evaluates; `logic` says whether it forms any term at all (the last
+    stage has nothing to form when every result was finished before it)."""
     parts = []
     if wire:
         parts.append("wire registers (no logic)")
@@ -378,6 +381,6 @@ def _describe(flavour: str, s: int, final: int, levels, wire: bool) -> str:
         first, end = levels[0] + 1, levels[-1] + 1
         what = "tree level" if flavour == "compare" else "prefix level"
         parts.append(f"{what} {first}" if first == end else f"{what}s {first}-{end}")
-    if s == final:
+    if s == final and logic:
         parts.append({"bits": "sum", "chains": "block select", "compare": "verdicts"}[flavour])
-    return ", ".join(parts)
+    return ", ".join(parts) or "output register (no logic)"
