@@ -61,10 +61,11 @@ def plan_of(stem: str):
 
 
 def png(svg_text: str, scale: float = SCALE) -> bytes:
-    """The chart as a small PNG: rendered by cairosvg, then mapped onto a palette of the
-    chart's own colours (kept exact), their blends with white (shades, anti-aliased edges)
-    and greys (text)."""
+    """The chart as a small PNG: rendered by cairosvg, then each pixel mapped to the nearest
+    colour of a palette of the chart's own colours (kept exact), their blends with white
+    (shades, anti-aliased edges) and greys (text)."""
     import cairosvg
+    import numpy as np
     from PIL import Image
 
     raw = cairosvg.svg2png(bytestring=svg_text.encode(), scale=scale)
@@ -75,11 +76,15 @@ def png(svg_text: str, scale: float = SCALE) -> bytes:
               for t in (0.25, 0.5, 0.75)]
     greys = [(g, g, g) for g in range(0, 256, 17)]
     colours = list(dict.fromkeys(exact + greys + blends))[:256]
-    palette = Image.new("P", (1, 1))
-    palette.putpalette([v for c in colours for v in c] + [0] * 3 * (256 - len(colours)))
+    pixels = np.asarray(image).reshape(-1, 3)
+    seen, where = np.unique(pixels, axis=0, return_inverse=True)
+    distance = ((seen[:, None, :].astype(np.int32)
+                 - np.array(colours, dtype=np.int32)[None, :, :]) ** 2).sum(axis=2)
+    index = distance.argmin(axis=1).astype(np.uint8)[where.reshape(-1)]
+    paletted = Image.frombytes("P", image.size, index.tobytes())
+    paletted.putpalette([v for c in colours for v in c])
     out = io.BytesIO()
-    image.quantize(palette=palette, dither=Image.Dither.NONE).save(out, format="PNG",
-                                                                    optimize=True)
+    paletted.save(out, format="PNG", optimize=True)
     return out.getvalue()
 
 

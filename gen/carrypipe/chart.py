@@ -298,8 +298,11 @@ class _Layout:
         self.rh = round(band_h * 0.45, 2)  # register row
         self.lh = round(band_h - self.rh, 2)  # logic lane
         # Cells shade by how full they are where one cell stands for many edges, or for many
-        # bits of a prefix rank (whose terms per position vary).
-        self.shaded = self.edge_band > 1 or (isinstance(plan, PrefixPlan) and self.bit_band > 1)
+        # bits of a prefix rank, or where a prefix rank's terms per position tell the
+        # structure: a block's two candidate sums before its select, two carries before its
+        # group reaches bit 0 (per bit, in `levels`, they would only flicker).
+        self.shaded = self.edge_band > 1 or (isinstance(plan, PrefixPlan) and (
+            self.bit_band > 1 or plan.schedule.flavour != "bits"))
         self.x0 = MARGIN + GUTTER
         self.data_x0 = self.x0 + (self.cw + OUT_GAP if self.out else 0)
         self.grid_w = self.columns * self.cw
@@ -423,9 +426,9 @@ def _cells(plan: Plan, lay: _Layout) -> list[_Cell]:
 
 def _join_runs(cells: list[_Cell], lay: _Layout) -> list[_Cell]:
     """Adjacent data columns of one row and kind merged into runs (never across the
-    carry-out column's gap): every such column when each is one bit, so a run shows where
-    the rank holds terms of the kind; only columns of equal bits per position when columns
-    are bands, whose shade then says how full they are."""
+    carry-out column's gap): every such column when cells are not shaded, so a run shows
+    where the rank holds terms of the kind; only columns of equal bits per position when
+    they are, so that each run has one shade."""
     out: list[_Cell] = []
     data = sorted((c for c in cells if isinstance(c.column, int) and c.column < lay.columns),
                   key=lambda c: (c.row, _kind_order(c.kind), c.column))
@@ -433,7 +436,7 @@ def _join_runs(cells: list[_Cell], lay: _Layout) -> list[_Cell]:
         first, last = lay.column_bits(c.column)
         per = Fraction(c.count, last - first + 1)
         prev = out[-1] if out else None
-        same = lay.bit_band == 1 or prev is not None and prev.per == per
+        same = not lay.shaded or prev is not None and prev.per == per
         if (prev is not None and (prev.row, prev.kind) == (c.row, c.kind) and same
                 and prev.last_column == c.column - 1):
             prev.hi, prev.count, prev.last_column = c.hi, prev.count + c.count, c.column
