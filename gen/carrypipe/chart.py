@@ -214,8 +214,8 @@ def _(plan: PrefixPlan) -> Words:
                  f"{chain}-in 0 and 1, then of the groups of blocks")
         finished = (f"block {result}s for {chain}-in 0 and 1, then the selected {result} "
                     "bits, waiting for the output register")
-        structure = (f"{plural(count, 'block')} of {c.block_width} bits, a {c.cell} network "
-                     "over the blocks")
+        structure = (f"{plural(count, 'block')} of {plural(c.block_width, 'bit')}, a {c.cell} "
+                     "network over the blocks")
     else:
         terms = (f"prefix terms: {chain} generate/propagate of bits and groups, each kept "
                  "until its last use")
@@ -706,7 +706,8 @@ def _register_cells(out: _Svg, plan: Plan, lay: _Layout, colours, grid_top: floa
             x, w = lay.x_of(cell.lo, cell.hi)
         fullness = cell.density(lay) / full[cell.kind] if lay.shaded else 1
         families = sorted(cell.families)
-        out.add("rect", x=x + 0.5, y=ry + slot * sub + 0.3, width=max(0.6, w - 1.0),
+        inset = 0.0 if key[1] == "data" else 0.5  # a rank's runs abut: shade changes only
+        out.add("rect", x=x + inset, y=ry + slot * sub + 0.3, width=max(0.6, w - 2 * inset),
                 height=max(0.6, sub - 0.6), fill=colours[cell.kind],
                 fill_opacity=round(0.3 + 0.7 * float(fullness), 2) if fullness < 1 else None,
                 class_="reg", data_kind=cell.kind,

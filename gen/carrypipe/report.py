@@ -154,7 +154,7 @@ def _(plan: PrefixPlan) -> list[str]:
     def nodes(s):
         return sch.kept_nodes(s.index + 1) if tree else s.nodes
 
-    what = {"bits": "bits", "chains": f"blocks of {c.block_width} bits",
+    what = {"bits": "bits", "chains": f"blocks of {plural(c.block_width, 'bit')}",
             "compare": "slices (compared in parallel)"}[sch.flavour]
     head = "Verdict tree    a balanced tree" if tree else f"Prefix network  {c.cell}"
     lines = [f"{head} over {len(sch.widths)} {what}: {sch.network.depth} level(s), "
