@@ -559,3 +559,18 @@ def test_the_gallery_is_in_the_docs():
         with Image.open(path) as image:  # drawn by this version's layout
             assert image.size == (round(int(root.get("width")) * gallery.SCALE),
                                   round(int(root.get("height")) * gallery.SCALE))
+
+
+@pytest.mark.parametrize("keys", [dict(width=64, pipeline="blocks", cell="brent-kung",
+                                       block_width=8, signed=True),
+                                  dict(width=40, unit="comparator", pipeline="levels"),
+                                  dict(width=256, pipeline="levels", cell="sklansky",
+                                       signed=True)],
+                         ids=["blocks signed", "comparator levels", "levels banded"])
+def test_the_output_register_is_drawn_full(keys):
+    # Every output bit has exactly one register in the last rank, so its cells are full;
+    # the column above the top bit (cout and overflow side by side) does not change that.
+    plan = make(**keys)
+    root = parse(chart.svg(plan))
+    last = [c for c in cells(root, "stage") if c["data-edge"] == str(plan.latency)]
+    assert last and all(c.get("fill-opacity") is None for c in last)

@@ -6,7 +6,7 @@ that cycle, with what they hold) above a register row (every register bit loaded
 following rising edge).  In slices the input-skew triangle, the staircase of stage registers
 and the output-deskew triangle show at once, with the chain handed from slice to slice; in
 the prefix modes each register row shows which kinds of terms its rank holds and over which
-bits, shaded by how many bits each position keeps.  The bit carried out of the top (`cout`,
+bits (shaded by the bits each position keeps where that tells the structure).  The bit carried out of the top (`cout`,
 `bout`, a comparator's verdicts) has a column of its own left of the data; one-bit flags
 that travel with the operands (`sub`, `clear`) and `valid` have lanes of their own right of
 it, and `en` is drawn once, beside the register rows it holds.
@@ -297,11 +297,13 @@ class _Layout:
         band_h = min(60.0, max(15.0, GRID_HEIGHT / self.rows))
         self.rh = round(band_h * 0.45, 2)  # register row
         self.lh = round(band_h - self.rh, 2)  # logic lane
-        # Cells shade by how full they are where one cell stands for many edges, or for many
-        # bits of a prefix rank, or where a prefix rank's terms per position tell the
-        # structure: a block's two candidate sums before its select, two carries before its
-        # group reaches bit 0 (per bit, in `levels`, they would only flicker).
-        self.shaded = self.edge_band > 1 or (isinstance(plan, PrefixPlan) and (
+        # Prefix ranks are drawn as runs of each kind, not term by term.  Cells shade by how
+        # full they are where one cell stands for many edges, or for many bits of a prefix
+        # rank, or where a rank's terms per position tell the structure: a block's two
+        # candidate sums before its select, two carries before its group reaches bit 0 (per
+        # bit, in `levels`, they would only flicker).
+        self.runs = isinstance(plan, PrefixPlan)
+        self.shaded = self.edge_band > 1 or (self.runs and (
             self.bit_band > 1 or plan.schedule.flavour != "bits"))
         self.x0 = MARGIN + GUTTER
         self.data_x0 = self.x0 + (self.cw + OUT_GAP if self.out else 0)
@@ -396,8 +398,7 @@ def _cells(plan: Plan, lay: _Layout) -> list[_Cell]:
     per kind.  In the prefix modes a row holds one strip per kind, in runs of adjacent
     columns that keep the same bits per position, so the structure shows instead of every
     term."""
-    runs = isinstance(plan, PrefixPlan)
-    by_family = lay.edge_band == 1 and not runs
+    by_family = lay.edge_band == 1 and not lay.runs
     groups: dict = {}
     for w in plan.words:
         if w.width <= 0:
@@ -421,7 +422,7 @@ def _cells(plan: Plan, lay: _Layout) -> list[_Cell]:
             cell.edges.add(w.edge)
             cell.families.add(w.family)
     cells = list(groups.values())
-    return _join_runs(cells, lay) if runs else cells
+    return _join_runs(cells, lay) if lay.runs else cells
 
 
 def _join_runs(cells: list[_Cell], lay: _Layout) -> list[_Cell]:
@@ -500,7 +501,6 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     colours = _colours(plan)
     slow, slow_text = _slowest(plan, measured)
     c = plan.config
-    runs = isinstance(plan, PrefixPlan)
     out = _Svg()
 
     # Title and what the picture shows.
@@ -682,20 +682,28 @@ def _ticks(plan: Plan, lay: _Layout, size: float) -> list[int]:
 
 def _register_cells(out: _Svg, plan: Plan, lay: _Layout, colours, grid_top: float) -> None:
     cells = _cells(plan, lay)
-    runs = isinstance(plan, PrefixPlan)
-    slots: dict = {}
-    for cell in cells:  # the strips a row (prefix modes) or a row's column share
-        key = (cell.row, "data") if runs and isinstance(cell.column, int) else \
+
+    def shared(cell):
+        """What a cell shares its strips with: its row (prefix ranks), or its column."""
+        return (cell.row, "data") if lay.runs and isinstance(cell.column, int) else \
             (cell.row, cell.column)
-        slots.setdefault(key, set()).add((_kind_order(cell.kind), cell.tag))
-    full: dict[str, Fraction] = {}
+
+    slots: dict = {}
     for cell in cells:
-        full[cell.kind] = max(full.get(cell.kind, Fraction(0)), cell.density(lay))
+        slots.setdefault(shared(cell), set()).add((_kind_order(cell.kind), cell.tag))
+    def densest(chosen) -> dict[str, Fraction]:
+        out: dict[str, Fraction] = {}
+        for cell in chosen:
+            out[cell.kind] = max(out.get(cell.kind, Fraction(0)), cell.density(lay))
+        return out
+
+    # Full is the densest cell of a kind over the data bits (the column above the top bit
+    # and the lanes hold a few one-bit registers each, not a rank's share of them).
+    full = {**densest(cells), **densest(c for c in cells if c.column in range(lay.columns))}
     band_h = lay.lh + lay.rh
     for cell in sorted(cells, key=lambda k: (k.row, str(k.column), _kind_order(k.kind),
                                              k.tag)):
-        key = (cell.row, "data") if runs and isinstance(cell.column, int) else \
-            (cell.row, cell.column)
+        key = shared(cell)
         order = sorted(slots[key])
         slot = order.index((_kind_order(cell.kind), cell.tag))
         ry = grid_top + cell.row * band_h + lay.lh + 1
@@ -704,7 +712,7 @@ def _register_cells(out: _Svg, plan: Plan, lay: _Layout, colours, grid_top: floa
             x, w = lay.lane_x[cell.column], lay.lane_w
         else:
             x, w = lay.x_of(cell.lo, cell.hi)
-        fullness = cell.density(lay) / full[cell.kind] if lay.shaded else 1
+        fullness = min(1, cell.density(lay) / full[cell.kind]) if lay.shaded else 1
         families = sorted(cell.families)
         inset = 0.0 if key[1] == "data" else 0.5  # a rank's runs abut: shade changes only
         out.add("rect", x=x + inset, y=ry + slot * sub + 0.3, width=max(0.6, w - 2 * inset),
