@@ -159,7 +159,8 @@ def _(plan: PrefixPlan) -> list[str]:
     head = "Verdict tree    a balanced tree" if tree else f"Prefix network  {c.cell}"
     lines = [f"{head} over {len(sch.widths)} {what}: {sch.network.depth} level(s), "
              f"{sch.kept_nodes() if tree else sch.network.nodes} nodes",
-             f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or deskew)"]
+             f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or deskew "
+             "triangles)"]
     if sch.flavour == "bits" and 0 < c.local_width < c.width:
         lines.append(f"          within local blocks of {c.local_width} bits, then across them")
     if sch.merged:
