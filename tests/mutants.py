@@ -9,6 +9,24 @@ from __future__ import annotations
 
 import re
 
+# Units whose every mutant `prove` must catch (tests/test_prove.py samples them in the default
+# run and runs them all with -m slow; tests/bench_mutants.py counts the testbench's catches).
+UNITS = [
+    dict(width=8, slice_width=3, cell="native", carry_in=True, valid=True, enable=True,
+         reset="sync"),
+    dict(width=8, slice_width=4, cell="kogge-stone", carry_in=True),
+    dict(width=6, slice_width=3, cell="ripple", carry_in=True),
+    dict(width=8, pipeline="levels", cell="brent-kung", carry_in=True, wire_registers=1),
+    dict(width=8, pipeline="blocks", cell="sklansky", block_width=3, carry_in=True),
+    dict(unit="subtractor", width=8, slice_width=3, carry_in=True, signed=True),
+    dict(unit="addsub", width=8, slice_width=3, carry_in=True, signed=True),
+    dict(unit="comparator", width=8, slice_width=3, signed=True),
+    dict(unit="comparator", width=8, pipeline="levels", slice_width=3),
+    dict(unit="accumulator", width=8, slice_width=3, valid=True),
+    dict(width=8, slice_width=4, cell="han-carlson", valid=True, reset="async",
+         reset_data=True),
+]
+
 # Operator swaps: each keeps the widths, so the mutant is valid Verilog.
 SWAPS = (("&", "|"), ("|", "&"), ("^", "&"), ("+", "-"), ("-", "+"), ("<=", "<"), ("<", "<="),
          ("~", ""))

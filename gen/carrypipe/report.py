@@ -164,7 +164,8 @@ def _(plan: PrefixPlan) -> list[str]:
     if sch.flavour == "bits" and 0 < c.local_width < c.width:
         lines.append(f"          within local blocks of {c.local_width} bits, then across them")
     if sch.merged:
-        lines.append("          the last prefix level is merged into the sum stage")
+        lines.append("          the last tree level is merged into the verdict stage" if tree
+                     else "          the last prefix level is merged into the sum stage")
     if sch.wired:
         lines.append("          wire registers in front of prefix level(s) "
                      + ", ".join(str(k + 1) for k in sch.wired))

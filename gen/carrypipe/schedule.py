@@ -141,16 +141,17 @@ def _span(level) -> int:
     return max(i - j for i, j in level)
 
 
-def _assign_stages(bits: bool, net: prefix.Network, per_stage: int, wires: int):
+def _assign_stages(flavour: str, net: prefix.Network, per_stage: int, wires: int):
     """Stage of every prefix level, the stage before each wired level, and the final stage."""
     depth = net.depth
     by_span = sorted(range(depth), key=lambda k: (-_span(net.levels[k]), -k))
     wired = frozenset(by_span[:wires])
     # Every sum bit reads one node of the last level: s_i = p_i ^ (G_h | P_h & G_l) has four
-    # inputs, so with one bit per position that level always rides in the sum stage.
-    merged = bits and depth > 0
+    # inputs, so with one bit per position that level always rides in the sum stage; a
+    # comparator's verdicts (lt, eq, gt) read the last node's four inputs the same way.
+    merged = flavour in ("bits", "compare") and depth > 0
     # Stage 1 always has logic: the bit generate/propagate, or the chains (compares).
-    stage, used = 1, (0 if bits else per_stage)
+    stage, used = 1, (0 if flavour == "bits" else per_stage)
     level_stage, wire_stage = {}, {}
     for k in range(depth - merged):
         if k in wired:
@@ -160,7 +161,12 @@ def _assign_stages(bits: bool, net: prefix.Network, per_stage: int, wires: int):
             stage, used = stage + 1, 0
         level_stage[k] = stage
         used += 1
-    final = 1 if (depth - merged == 0) else stage + 1
+    if depth == 0:
+        final = 1
+    elif depth - merged == 0:  # the only level rides in the last stage: with g/p, or after
+        final = 1 if flavour == "bits" else 2  # a stage of compares
+    else:
+        final = stage + 1
     if merged and depth - 1 in wired:  # a wire rank between the last prefix stage and the sum
         wire_stage[depth - 1] = stage + 1
         final = stage + 2
@@ -195,7 +201,7 @@ def make_schedule(config: Config) -> Schedule:
                                 config.local_width if flavour == "bits" else 0))
     wires = config.wire_registers if flavour != "compare" else 0
     level_stage, wire_stage, final, merged, wired = _assign_stages(
-        flavour == "bits", net, config.levels_per_stage, wires)
+        flavour, net, config.levels_per_stage, wires)
 
     terms: list[Term] = []
 
@@ -335,7 +341,7 @@ def _overflow(term, terms, flavour, g, widths, lsbs, final, after, has_cin) -> i
     """The signed-overflow term: the carry into the top bit XOR the carry out of it (for a
     borrow chain, the borrows: common practice), formed once both are final.  In `blocks`
     mode the top block's two chains give an overflow bit each, selected like its sum."""
-    count, top = len(widths), len(widths) - 1
+    top = len(widths) - 1
     if flavour == "bits":
         if top == 0:  # one bit: the carry into it is the carry-in itself
             return term("ovf", 0, "ovf_cin" if has_cin else "ovf_gen", (g[0],), 1)

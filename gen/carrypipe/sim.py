@@ -17,7 +17,6 @@ from pathlib import Path
 
 from . import tools
 from .plan import Plan
-from .tools import ToolMissing  # noqa: F401  (callers name it sim.ToolMissing)
 from .vectors import Vector, expected, input_ports, output_ports
 
 SIMULATORS = ("amaranth", "icarus", "verilator")

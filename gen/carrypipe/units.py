@@ -226,7 +226,7 @@ class Arithmetic(Kind):
     def results(self, c):
         ports = [Port(self.result, "output", c.width, self.result_meaning(c))]
         if c.carry_out:
-            ports.append(Port(self.chain_port[1], "output", 1, self.carry_out_meaning))
+            ports.append(Port(self.chain_port[1], "output", 1, self.carry_out_meaning(c)))
         if c.signed:
             ports.append(Port("overflow", "output", 1,
                               "1 when the two's-complement result differs from the exact one"))
@@ -312,7 +312,10 @@ class Plain(Arithmetic):
         self.name, self.verb, self.op, self.result = name, verb, op, result
         self.noun = "adder" if op == "add" else "subtractor"
         self.chain, self.chain_port = (chain,), chain_port
-        self.carry_in_meaning, self.carry_out_meaning = carry_in_meaning, carry_out_meaning
+        self.carry_in_meaning, self._carry_out_meaning = carry_in_meaning, carry_out_meaning
+
+    def carry_out_meaning(self, c) -> str:
+        return self._carry_out_meaning.replace(" + bin", " + bin" if c.carry_in else "")
 
     def _rhs(self, c) -> str:
         sym = "+" if self.op == "add" else "-"
@@ -338,7 +341,10 @@ class AddSub(Arithmetic):
     chain = ("carry",)
     travellers = ("sub",)
     carry_in_meaning = "carry into bit 0 when adding, borrow when subtracting"
-    carry_out_meaning = "carry out when adding, borrow out (a < b + cin) when subtracting"
+
+    def carry_out_meaning(self, c):
+        return ("carry out when adding, borrow out (a < b" + (" + cin" if c.carry_in else "")
+                + ") when subtracting")
 
     def flag_inputs(self, c):
         return [Port("sub", "input", 1, "0: add, 1: subtract (travels with its operands)"),
