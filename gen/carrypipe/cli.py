@@ -190,7 +190,7 @@ def build(config, out_dir, vectors, seed):
               help="Give up on an external simulator (compile and run) after this many "
                    "seconds.")
 def check(config, vectors, seed, simulator, timeout):
-    """Simulate directed and random vectors and compare with Python integer addition."""
+    """Simulate directed and random vectors and compare with the unit's Python reference."""
     plan = load_plan(config)
     chosen = simulator or sim.default_simulator()
     if simulator is None:

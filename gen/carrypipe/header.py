@@ -19,7 +19,9 @@ def timing_phrase(plan) -> str:
 
 
 def register_phrase(plan) -> str:
-    return ", ".join(f"{k} {v}" for k, v in plan.registers.as_dict().items())
+    """The register bits of the kinds the unit has, and the total."""
+    return ", ".join(f"{k} {v}" for k, v in plan.registers.as_dict().items()
+                     if v or k == "total")
 
 
 def bits(lo: int, hi: int) -> str:
@@ -84,7 +86,8 @@ def slice_title(plan, s) -> list[str]:
     """Stage i of a sliced unit: what the slice computes, what waits around it."""
     c, kind = plan.config, plan.unit
     cycle = plan.input_cycles + s.index
-    chain = f" with {kind.chain[0]}_stage_{s.index - 1}" if s.index else ""
+    chain = (" with " + " and ".join(f"{f}_stage_{s.index - 1}" for f in kind.chain)
+             if s.index else "")
     out = [f"Stage {s.index}, loaded on edge {cycle + 1}: slice {s.index} {kind.verb} bits "
            f"{bits(s.lsb, s.msb)}{chain}."]
     if s.index < len(plan.stages) - 1:

@@ -84,7 +84,7 @@ class StageInfo:
 
     index: int  # 1-based
     levels: tuple[int, ...]  # prefix levels (0-based) evaluated in it
-    nodes: int  # prefix nodes of those levels
+    nodes: int  # prefix nodes it evaluates, after pruning
     delay: int  # unit-gate critical path, register to register
     logic: str  # a short description
 
@@ -299,8 +299,9 @@ def make_schedule(config: Config) -> Schedule:
         outputs["result"] = tuple(sums)
         if config.carry_out:
             cout = g[-1]
-            if "sub" in flags:  # add/subtract: the borrow is the complement of the carry
-                cout = term("cout", count - 1, "xor", (cout, flags["sub"]), final)
+            if "sub" in flags:  # add/subtract: the borrow is the complement of the carry,
+                # formed with the carry itself (g | p & g' ^ sub: four inputs, one LUT4)
+                cout = term("cout", count - 1, "xor", (cout, flags["sub"]), terms[cout].stage)
             outputs["chain"] = cout
         if config.signed:
             outputs["overflow"] = _overflow(term, terms, flavour, g, widths, lsbs, final,
@@ -311,6 +312,9 @@ def make_schedule(config: Config) -> Schedule:
         outputs["eq"] = term("eq", count - 1, "eq", (top_lt, top_le), final)
         outputs["gt"] = term("gt", count - 1, "gt", (top_le,), final)
 
+    # Results formed before the last planned stage (a last prefix level that only a pruned
+    # carry-out needed, or that a carry-out shares with the selects) leave a cycle sooner.
+    final = min(final, max(terms[t].stage for t in _flat(outputs.values())))
     last: dict[int, int] = {}
     for t in _flat(outputs.values()):
         last[t] = final + 1
@@ -330,7 +334,9 @@ def make_schedule(config: Config) -> Schedule:
         levels = tuple(k for k, st in sorted(level_stage.items()) if st == s_)
         delay = max([arrival[t.index] for t in terms if t.index in arrival and t.stage == s_],
                     default=0)
-        stages.append(StageInfo(s_, levels, sum(len(net.levels[k]) for k in levels), delay,
+        nodes = sum(1 for t in terms if t.stage == s_ and t.index in last
+                    and t.kind in ("grp_gen", "grp_c0"))  # the nodes left after pruning
+        stages.append(StageInfo(s_, levels, nodes, delay,
                                 _describe(flavour, s_, final, levels,
                                           s_ in wire_stage.values(), s_ in formed)))
     return Schedule(config.pipeline, flavour, net, widths, lsbs, final, merged, wired,
