@@ -48,6 +48,7 @@ class EnvironmentFault(_OneLineError):
 
 # click >= 8.2 raises this (a UsageError) to show the help of a bare `carrypipe`: keep it.
 _SHOW_HELP = getattr(click.exceptions, "NoArgsIsHelpError", ())
+MAX_DEPTH = 1000  # cycles `prove --depth` may unroll
 
 
 @contextlib.contextmanager
@@ -189,7 +190,7 @@ def build(config, out_dir, vectors, seed):
               help="Give up on an external simulator (compile and run) after this many "
                    "seconds.")
 def check(config, vectors, seed, simulator, timeout):
-    """Simulate directed and random vectors and compare with Python integer addition."""
+    """Simulate directed and random vectors and compare with the unit's Python reference."""
     plan = load_plan(config)
     chosen = simulator or sim.default_simulator()
     if simulator is None:
@@ -231,10 +232,10 @@ def plan_cmd(config, slice_width, slices, chart_path):
 
 @main.command()
 @click.argument("target", type=click.Path())
-@click.option("--depth", type=click.IntRange(1, 1000),
-              help="Cycles to unroll, more than the latency; results are compared from cycle "
-                   "latency+1 up to this one [default: latency + 1, which already covers "
-                   "every later cycle].")
+@click.option("--depth", metavar="N",
+              help=f"Cycles to unroll: an integer above the unit's latency, at most "
+                   f"{MAX_DEPTH}; results are compared from cycle latency+1 up to this one "
+                   "[default: latency + 1, which already covers every later cycle].")
 @click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
               help="Give up on the proof (every Yosys run and solver call) after this many "
                    "seconds in all.")
@@ -252,15 +253,27 @@ def prove(target, depth, timeout, method):
     from . import prove as proof
 
     plan, verilog, what = load_target(target)
-    if depth is not None and depth <= plan.latency:
-        raise UserError(f"--depth: value {depth} is not allowed; expected an integer above "
-                        f"the latency ({plan.latency})")
+    if depth is not None:
+        depth = _depth(depth, plan.latency)
     if method == "compositional" and not plan.can_compose:
         raise UserError("--method: value compositional is not allowed for this unit; it "
                         "covers sliced adders and subtractors without reset_data (use direct)")
     result = proof.prove(plan, depth=depth, timeout=timeout, method=method, verilog=verilog)
     click.echo(f"{what}: {result.message}")
     sys.exit(0 if result.proved else 1)
+
+
+def _depth(text: str, latency: int) -> int:
+    """`--depth` as an integer above the latency and at most MAX_DEPTH, spelled in plain
+    decimal digits, or a one-line UserError saying so."""
+    value = int(text) if PLAIN_INT.match(text) else None
+    if value is None or not latency < value <= MAX_DEPTH:
+        shown = repr(text) if value is None else value
+        most = f", at most {MAX_DEPTH}" if value is None or value > MAX_DEPTH else ""
+        spelled = ", written in plain decimal digits" if value is None else ""
+        raise UserError(f"--depth: value {shown} is not allowed; expected an integer above "
+                        f"the latency ({latency}){most}{spelled}")
+    return value
 
 
 def load_target(target: str):
