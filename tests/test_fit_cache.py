@@ -189,16 +189,18 @@ def test_a_registered_input_config_hears_of_the_wire_rank(counted, inputs, modes
 def test_table_shows_the_prediction_that_decided(counted):
     out = fit.run(BASE, settings(250), executor.Local(1))
     factors = candidates.scale(out.rows)
-    assert factors["native"] != 1.0  # the invented law is not the model: a correction exists
+    native = candidates.kind(out.rows[0])  # one kind here: native slices
+    assert factors[native] != 1.0  # the invented law is not the model: a correction exists
+    margin = model.margin("ecp5-85k")
     skipped = [r for r in out.rows if not r.measured and r.predicted is not None
                and fit.record(r, out)["note"].startswith("not run: predicted")]
     assert skipped
     for r in skipped:
         rec = fit.record(r, out)
-        decided = round(r.predicted * factors["native"], 1)
-        assert rec["predicted_mhz"] == decided and decided < 0.9 * 250
+        decided = round(r.predicted * factors[native], 1)
+        assert rec["predicted_mhz"] == decided and decided < (1 - margin) * 250
         assert rec["model_mhz"] == r.predicted  # the raw model figure, labelled apart
-        assert rec["note"] == f"not run: predicted {decided:g} < 0.9 x 250 MHz"
+        assert rec["note"] == f"not run: predicted {decided:g} < {1 - margin:g} x 250 MHz"
     for r in out.rows:
         rec = fit.record(r, out)
         if r.measured:

@@ -35,7 +35,7 @@ from functools import cache
 from importlib import resources
 
 from . import cells, devices, harness
-from .plan import Plan
+from .plan import Plan, SlicedPlan
 
 DATA = "delay_models.json"
 DEFAULT_PLACER = "heap"  # nextpnr 0.11's placer when none is asked for, in every family
@@ -84,23 +84,16 @@ def figures(plan: Plan, depth: dict | None = None) -> Figures:
     """The plan's stages as the model sees them (every pipeline mode, every unit kind).
 
     `depth` holds, per "<unit kind>/<cell>", what synthesis made of one slice of each of
-    several widths (`SliceDepth`, measured by `tests/bench_model.py`); without it, or for a
-    kind and cell it lacks, a slice is read from its structure."""
+    several widths (the family's depth tables, synthesized by `tests/bench_model.py`);
+    without it, or for a kind and cell it lacks, a slice is read from its structure."""
     depth = depth or {}
     kind = plan.config.unit
-    if plan.mode == "slices":
+    if isinstance(plan, SlicedPlan):
         stages = tuple(_slice_figures(s, kind, depth) for s in plan.stages)
-    elif getattr(plan, "schedule", None) is not None:
+    else:
         stages = _prefix_figures(plan, depth)
-    else:  # a structure of another kind: LUT levels from its unit-gate delay
-        stages = tuple(StageFigures(luts=-(-s.delay // GATES_PER_LUT)) for s in plan.stages)
     flops = plan.registers.total + harness.flip_flops(plan)
     return Figures(stages, math.log2(max(flops, 1)), kind)
-
-
-# Unit gates (prefix.UNIT_GATES) that one 4-input LUT absorbs: one carry operator
-# (g_i | p_i & g_j), three inputs.  Used only for stages of no known structure.
-GATES_PER_LUT = 2
 
 
 def slice_depth(depth: dict, kind: str, cell: str, width: int) -> tuple[float, float] | None:
