@@ -48,10 +48,6 @@ MODELS = ROOT / "gen" / "carrypipe" / "data" / model.DATA
 NAME = "gen"  # every unit's name (the cache key holds it; bench_search uses it too)
 SEED = 1  # fit's default: one seed
 
-# A device left out of the capture (for time) takes the model of a sibling with the same
-# fabric and speed grade; its entry's source says so.
-SIBLINGS = {"ecp5-85k": "ecp5-25k"}
-
 CAL_WIDTHS = (12, 24, 48, 96)
 HELD_WIDTHS = (16, 32, 64, 128)
 SPLITS = (1, 2, 3, 4, 6, 8, 12, 16, 24, 32)  # slices per unit for native even splits
@@ -277,18 +273,10 @@ def fit_models(data: dict, names: list[str]) -> str:
         stored["devices"].setdefault(name, {})[entry["placer"]] = fitted
         worst = held[-1]
         cal = sum(u["set"] == "calibration" and u["status"] == "ok" for u in entry["units"])
-        lines.append(f"{name:<13} {entry['placer']:<7} {cal:>4} {len(held):>4} {100 * statistics.median(rel):>6.1f}% "
+        lines.append(f"{name:<13} {entry['placer']:<7} {cal:>4} {len(held):>4} "
+                     f"{100 * statistics.median(rel):>6.1f}% "
                      f"{100 * worst[0]:>6.1f}%  {describe(worst[1])} "
                      f"({worst[2]:.0f} / {worst[1]['mhz']:.0f})")
-    for name, sibling in SIBLINGS.items():
-        if name in names and name not in data["devices"] and sibling in data["devices"]:
-            placer = data["devices"][sibling]["placer"]
-            assert model.placer(devices.get(name)) == placer, name
-            borrowed = {**stored["devices"][sibling][placer]}
-            borrowed["source"] = (f"not measured: the {sibling} model (same fabric and speed "
-                                  f"grade); {borrowed['source']}")
-            stored["devices"][name] = {placer: borrowed}
-            lines.append(f"{name:<13} {placer:<7} not measured: the {sibling} model")
     MODELS.write_text(dump(stored))
     return "\n".join(lines)
 
