@@ -116,6 +116,9 @@ def _bad_texts():
     for key in BOOL_KEYS:
         for text in BOOL_SPELLINGS:
             cases.append((f"YAML 1.1 {key}: {text}", f"name: u\nwidth: 8\n{key}: {text}\n"))
+    for text in BOOL_SPELLINGS:  # a levels-mode key: read with local blocks only
+        cases.append((f"YAML 1.1 carry_increment: {text}",
+                      LEVELS + f"local_width: 8\ncarry_increment: {text}\n"))
     for text in HUGE:
         cases.append((f"huge name: {len(text)} chars", f"name: {text}\nwidth: 8\n"))
         cases.append((f"huge key: {len(text)} chars", f"name: u\nwidth: 8\n{text}: 1\n"))

@@ -188,6 +188,7 @@ class Row:
         c = self.config
         if c.pipeline == "levels":
             local = f" local {c.local_width}" if 0 < c.local_width < c.width else ""
+            local += " increment" if c.carry_increment else ""
             return f"{c.cell} levels/{c.levels_per_stage}{local}{_wired(c)}"
         if c.pipeline == "blocks":
             return f"{c.cell} blocks of {c.block_width}{_wired(c)}"
@@ -285,6 +286,7 @@ def kind(row: Row) -> tuple:
     other than how many levels or bits a stage takes."""
     c = row.config
     return (c.cell, c.pipeline, c.local_width if c.pipeline == "levels" else 0,
+            c.pipeline == "levels" and c.carry_increment,
             0 if c.pipeline == "slices" else c.wire_registers)
 
 

@@ -220,6 +220,9 @@ def _(plan: PrefixPlan) -> Words:
         terms = (f"prefix terms: {chain} generate/propagate of bits and groups, each kept "
                  "until its last use")
         finished = f"finished {result} bits, waiting for the output register"
+        if c.carry_increment:
+            finished += (f"; in local blocks, {result} bits for the block's carry-in 0, "
+                         "waiting for that carry")
         local = (f" (in local blocks of {c.local_width} bits first)"
                  if 0 < c.local_width < w else "")
         structure = f"a {c.cell} prefix network over {w} bits{local}"

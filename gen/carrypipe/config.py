@@ -98,6 +98,7 @@ class Config:
     block_width: int = 16
     wire_registers: int = 0
     local_width: int = 0
+    carry_increment: bool = False
 
     def normalized(self) -> dict:
         """The config as plain data with every default filled in (for headers, manifests, caches).
@@ -149,6 +150,7 @@ KEYS = {
     "block_width": ("an integer from 1 to width", 16),
     "wire_registers": ("an integer from 0 to the prefix network's depth", 0),
     "local_width": ("an integer from 0 to width (0: one prefix network over every bit)", 0),
+    "carry_increment": ("true or false", False),
 }
 # Keys that only some pipeline modes read, and the modes that read each.
 MODE_KEYS = {
@@ -158,6 +160,7 @@ MODE_KEYS = {
     "block_width": ("blocks",),
     "wire_registers": PREFIX_PIPELINES,
     "local_width": ("levels",),
+    "carry_increment": ("levels",),
 }
 
 
@@ -338,12 +341,29 @@ def check_mode(where: str, values: dict, split: tuple[int, ...]) -> None:
     if mode == "levels" and (not _is_int(local) or not 0 <= local <= values["width"]):
         raise _fail(where, "local_width", local,
                     f"an integer from 0 to width ({values['width']}); 0: one network")
+    if mode == "levels":
+        _check_increment(where, values)
     wires = values["wire_registers"]
     depth = prefix.local_network(values["cell"], prefix_positions(values["width"], mode, block),
                                  local if mode == "levels" else 0).depth
     if not _is_int(wires) or not 0 <= wires <= depth:
         raise _fail(where, "wire_registers", wires,
                     f"an integer from 0 to the depth of the {values['cell']} network ({depth})")
+
+
+def _check_increment(where: str, values: dict) -> None:
+    """`carry_increment` is a way for the bits of local blocks to wait for their block's
+    carry: it needs at least two blocks of at least two bits."""
+    inc, local, width = values["carry_increment"], values["local_width"], values["width"]
+    if not isinstance(inc, bool):
+        raise _fail(where, "carry_increment", inc, "true or false")
+    if inc and width < 3:
+        raise ConfigError(f"{where}: key 'carry_increment': value true is not allowed with "
+                          f"width {width}; expected false (no two local blocks of two bits)")
+    if inc and not 2 <= local < width:
+        raise ConfigError(f"{where}: key 'carry_increment': value true is not allowed with "
+                          f"local_width {local}; expected local_width from 2 to {width - 1} "
+                          "(width - 1) beside it, or carry_increment: false")
 
 
 class _StrictLoader(yaml.SafeLoader):

@@ -91,6 +91,9 @@ def build(plan) -> Netlist:
             p = args[0]
             s = p if len(args) == 1 else p ^ args[1]
             return ~s if sub else s
+        if op == "sum_flip":  # carry_increment: s0 ^ P & C, the sum for the block's carry
+            s = args[0] ^ args[1] & args[2]
+            return ~s if sub else s
         if op == "sum_cin":
             return ~(args[0] ^ c0) if sub else args[0] ^ c0
         if op == "dot_g":

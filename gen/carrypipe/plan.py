@@ -369,6 +369,7 @@ class PrefixPlan(Plan):
         wired = f" wired {c.wire_registers}" if c.wire_registers else ""
         if c.pipeline == "levels":
             local = f" local {c.local_width}" if 0 < c.local_width < c.width else ""
+            local += " increment" if c.carry_increment else ""
             return f"{c.cell} levels/{c.levels_per_stage}{local}{wired}"
         return f"{c.cell} blocks of {c.block_width}{wired}"
 

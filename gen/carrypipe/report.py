@@ -163,6 +163,9 @@ def _(plan: PrefixPlan) -> list[str]:
              "triangles)"]
     if sch.flavour == "bits" and 0 < c.local_width < c.width:
         lines.append(f"          within local blocks of {c.local_width} bits, then across them")
+        if c.carry_increment:
+            lines.append("          carry increment: a block's bits wait for its carry with "
+                         "their sums for carry-in 0")
     if sch.merged:
         lines.append("          the last tree level is merged into the verdict stage" if tree
                      else "          the last prefix level is merged into the sum stage")
@@ -278,6 +281,11 @@ def _(plan: PrefixPlan) -> list[str]:
         which = "one more long-span level" if c.wire_registers else "the longest-span level"
         out += _tip(f"`wire_registers: {c.wire_registers + 1}` puts a logic-free register "
                     f"rank in front of {which}: one cycle more, shorter routed nets;")
+    if sch.flavour == "bits" and 2 <= c.local_width < c.width and not c.carry_increment:
+        out += _tip("`carry_increment: true` lets each bit of a local block wait for the "
+                    "block's carry with two bits instead of three (its sum for carry-in 0 "
+                    "and a propagate): fewer flip-flops, measured faster at 256 bits on ECP5, "
+                    "not at 64 or 128 (docs/modes.md);")
     moved = plan.moved_input_rank()
     if moved is not None:
         same = ", as now" if moved.latency == plan.latency else ""

@@ -34,6 +34,14 @@ operand of every node gets its own register, apart from the local copy of that t
 copy per term and level, shared by the term's far readers), which placement can put
 half-way along the long wire.
 
+With `local_width` and `carry_increment` (the carry-increment form; Zimmermann 1997),
+bit i + 1 of a local block, once the network within the block has given it G and P of bits
+k..i of its block (k the block's lowest bit), waits for the block's carry C = G_(k-1) with
+two terms instead of three: its sum for carry-in 0, s0 = p_(i+1) ^ G (kind `csum`, formed
+with the block's last level: four inputs), and P.  The fill-in node (i, k - 1) of the last
+level becomes the sum itself, s = s0 ^ P & C (G and P are never both 1, so G | P & C =
+G ^ P & C).
+
 Every term knows the stage that computes it and the last stage that reads it (the output
 register counts as stage final + 1); terms no output needs are pruned, so a propagate term
 travels only up to its last use and complete groups drop their propagate.  A term computed
@@ -50,7 +58,8 @@ from .config import Config, prefix_positions
 
 # Register kind of each term kind (see `Plan.registers`).
 PREFIX_KINDS = ("gen", "prop", "grp_gen", "grp_prop", "blk_c0", "blk_c1", "grp_c0", "grp_c1")
-RESULT_KINDS = ("sum", "blk_s0", "blk_s1", "blk_v0", "blk_v1", "ovf", "cout", "lt", "eq", "gt")
+RESULT_KINDS = ("sum", "csum", "blk_s0", "blk_s1", "blk_v0", "blk_v1", "ovf", "cout", "lt", "eq",
+                "gt")
 OPERAND_KINDS = ("sub",)  # operand flags that travel with the terms to the output stage
 TREE_STYLE = "sklansky"  # a comparator's tree: Sklansky pruned to the top is a balanced tree
 
@@ -60,7 +69,8 @@ _G = prefix.UNIT_GATES
 OP_DELAY = {"gen": _G.and_or, "prop": _G.xor, "gen_cin": _G.xor + 2 * _G.and_or,
             "dot_g": 2 * _G.and_or, "dot_p": _G.and_or, "wire": 0, "sum": _G.xor,
             "xor": _G.xor, "sum_cin": 2 * _G.xor, "select": 2 * _G.and_or, "flag": 0,
-            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0}
+            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0,
+            "sum_flip": _G.and_or + _G.xor}
 
 
 @dataclass(frozen=True)
@@ -258,6 +268,13 @@ def make_schedule(config: Config) -> Schedule:
             sums[q] = term("sum", q, "select", (s0[q], s1[q], g[q - 1]), stage,
                            widths[q], lsbs[q])
 
+    # carry_increment: once the network within the local blocks is done, bit i of block q
+    # (not the block's lowest bit) holds the sum it has for block carry-in 0, s0 = p ^ G, and
+    # the propagate P of its group in the block; the fill-in node (i, block q's carry) then
+    # becomes the sum itself, s = s0 ^ P & C (G and P are never both 1, so ^ is |).
+    local = config.local_width if flavour == "bits" and config.carry_increment else 0
+    last_local = prefix.network(config.cell, local).depth - 1 if 0 < local < count else None
+    waiting: dict[int, tuple[int, int]] = {}  # bit i -> (bit i + 1's s0, the P of bit i)
     done = [True] + [False] * (count - 1)  # position q's carry-in is final
     low = list(range(count))  # lowest position covered by the group held at each position
     for q in range(1, count):
@@ -282,6 +299,13 @@ def make_schedule(config: Config) -> Schedule:
                 gj = far(gj, i)
                 if pj is not None:
                     pj = far(pj, i)
+            if k == net.depth - 1 and i in waiting:  # the fill-in: the block carry flips s0
+                s0, pi = waiting[i]
+                sums[i + 1] = term("sum", i + 1, "sum_flip", (s0, pi, gj), after(s0, pi, gj),
+                                   lsb=i + 1)
+                done[i + 1] = True
+                low[i] = before[j]
+                continue
             new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage, level=k)
             # A block group reaching block 0 needs no carry-in-1 term (cin is folded in).
             new_p[i] = None if pj is None else term(
@@ -289,6 +313,14 @@ def make_schedule(config: Config) -> Schedule:
                 level=k)
             low[i] = before[j]
         g, p = new_g, new_p
+        if k == last_local:  # the in-block groups are complete: s0 and P wait instead
+            for i in range(local, count - 1):
+                if i % local == local - 1 or done[i + 1] or (config.signed and i == count - 2):
+                    continue  # a block top feeds the network over the blocks; the overflow
+                    # of a signed unit reads the carry into its top bit
+                x = g[i]  # formed in this stage: s0 with it, one 4-input function
+                at = terms[x].stage if terms[x].level == k else after(prop[i + 1], x)
+                waiting[i] = (term("csum", i + 1, "xor", (prop[i + 1], x), at, lsb=i + 1), p[i])
         for q in range(1, count):
             if not done[q] and low[q - 1] == 0:
                 finish(q)

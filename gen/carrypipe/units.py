@@ -400,7 +400,8 @@ class Comparator(Kind):
     refused = ("carry_in", "carry_out")
     # In levels mode the slices are compared in parallel and a tree combines their verdicts.
     mode_keys = {"slice_width": ("slices", "levels"), "slices": ("slices", "levels"),
-                 "block_width": (), "wire_registers": (), "local_width": ()}
+                 "block_width": (), "wire_registers": (), "local_width": (),
+                 "carry_increment": ()}
     TREE_SLICE = 8  # default slice width of the levels mode
 
     def default_slice_width(self, width, mode):
