@@ -62,19 +62,25 @@ def valid_title(plan) -> list[str]:
 
 def slice_title(plan, s) -> list[str]:
     """Stage i of a sliced unit: what the slice computes, what waits around it."""
-    c, kind = plan.config, plan.unit
+    kind, n = plan.unit, plan.number(s.index)
     cycle = plan.input_cycles + s.index
-    chain = f" with {kind.chain[0]}_stage_{s.index - 1}" if s.index else ""
-    out = [f"Stage {s.index}, loaded on edge {cycle + 1}: slice {s.index} {kind.verb} bits "
+    chain = f" with {kind.chain[0]}_stage_{n - 1}" if s.index else ""
+    which = f"the final adder's slice {s.index}" if plan.nest else f"slice {s.index}"
+    out = [f"Stage {n}, loaded on edge {cycle + 1}: {which} {kind.verb} bits "
            f"{bits(s.lsb, s.msb)}{chain}."]
     if s.index < len(plan.stages) - 1:
         nxt = plan.stages[s.index + 1]
         flags = f" and {', '.join(kind.travellers)}" if kind.travellers else ""
-        line = (f"Skew: {', '.join(kind.operands)} bits {bits(nxt.lsb, c.width - 1)}{flags} "
-                f"wait for slice {s.index + 1}.")
+        ends = {op: plan.operand_end(op) for op in kind.operands
+                if plan.operand_end(op) > nxt.lsb}
+        if len(set(ends.values())) == 1:
+            what = f"{', '.join(ends)} bits {bits(nxt.lsb, max(ends.values()) - 1)}"
+        else:  # a narrower operand (a tree's final adder)
+            what = ", ".join(f"{op} bits {bits(nxt.lsb, end - 1)}" for op, end in ends.items())
+        line = f"Skew: {what}{flags} wait for slice {s.index + 1}."
         if kind.result:
-            line += (f" Deskew: {kind.result} bits {bits(0, nxt.lsb - 1)} travel on in "
-                     f"{kind.result}_deskew_{s.index + 1}.")
+            line += (f" Deskew: {kind.result} bits {bits(plan.base, nxt.lsb - 1)} travel on in "
+                     f"{kind.result}_deskew_{n + 1}.")
         out.append(line)
     return out
 
@@ -82,4 +88,5 @@ def slice_title(plan, s) -> list[str]:
 def stage_title(plan, stage) -> list[str]:
     """Stage i of a prefix-mode unit: which logic it holds."""
     cycle = plan.input_cycles + stage.index
-    return [f"Stage {stage.index}, loaded on edge {cycle + 1}: {stage.logic}."]
+    what = "the final adder's " if plan.nest else ""
+    return [f"Stage {plan.number(stage.index)}, loaded on edge {cycle + 1}: {what}{stage.logic}."]

@@ -60,7 +60,7 @@ _G = prefix.UNIT_GATES
 OP_DELAY = {"gen": _G.and_or, "prop": _G.xor, "gen_cin": _G.xor + 2 * _G.and_or,
             "dot_g": 2 * _G.and_or, "dot_p": _G.and_or, "wire": 0, "sum": _G.xor,
             "xor": _G.xor, "sum_cin": 2 * _G.xor, "select": 2 * _G.and_or, "flag": 0,
-            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0}
+            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0, "pass": 0}
 
 
 @dataclass(frozen=True)
@@ -184,9 +184,17 @@ def _positions(config: Config, kind) -> tuple[str, tuple[int, ...]]:
     return "chains", tuple(min(k, w - k * q) for q in range(prefix_positions(w, "blocks", k)))
 
 
-def make_schedule(config: Config) -> Schedule:
-    """The pruned schedule of a `levels` or `blocks` config."""
-    kind = units.KINDS[config.unit]
+def make_schedule(config: Config, kind: units.Kind | None = None,
+                  operand_widths: tuple[int, ...] | None = None) -> Schedule:
+    """The pruned schedule of a `levels` or `blocks` config (of unit kind `kind`, by default
+    the config's).
+
+    `operand_widths` (a tree's final adder) gives the bits of each operand from bit 0; the
+    second operand may be narrower, its bits above 0.  A position (or block) where it has
+    no bits generates no carry, so its generate term is left out (None) and every group term
+    that would read it is formed without it."""
+    kind = kind or units.KINDS[config.unit]
+    y_end = operand_widths[1] if operand_widths else config.width
     flavour, widths = _positions(config, kind)
     count = len(widths)
     lsbs = tuple(sum(widths[:q]) for q in range(count))
@@ -208,9 +216,10 @@ def make_schedule(config: Config) -> Schedule:
     flags = {f: term(f, 0, "flag", (), 1, lsb=0) for f in kind.travellers}
     sums: list = [None] * count
     if flavour == "bits":
-        prop = [term("prop", i, "prop", (), 1, lsb=i) for i in range(config.width)]
+        prop = [term("prop", i, "prop" if i < y_end else "pass", (), 1, lsb=i)
+                for i in range(config.width)]
         g = [term("gen", i, "gen_cin" if has_cin and i == 0 else "gen", (), 1)
-             for i in range(config.width)]
+             if i < y_end else None for i in range(config.width)]
         p = list(prop)
         if has_cin:
             sums[0] = term("sum", 0, "sum_cin", (prop[0],), 1, lsb=0)
@@ -224,7 +233,8 @@ def make_schedule(config: Config) -> Schedule:
         results = flavour == "chains"
         s0 = [term("blk_s0", q, "chain0_sum", (), 1, widths[q], lsbs[q]) if results else None
               for q in range(count)]
-        g = [term("blk_c0", q, f"{chain}0_carry", (), 1) for q in range(count)]
+        g = [term("blk_c0", q, f"{chain}0_carry", (), 1) if lsbs[q] < y_end else None
+             for q in range(count)]
         low_has_c1 = flavour == "compare"  # a comparator's lowest slice has no carry-in
         s1 = [None] + [term("blk_s1", q, "chain1_sum", (), 1, widths[q], lsbs[q])
                        if results else None for q in range(1, count)]
@@ -244,6 +254,9 @@ def make_schedule(config: Config) -> Schedule:
     def finish(q):
         """Form position q's result in the stage after its carry-in g[q-1] is final."""
         if flavour == "compare":
+            return
+        if g[q - 1] is None:  # no carry can reach it: its result is its own
+            sums[q] = s0[q] if flavour == "chains" else prop[q]
             return
         stage = after(g[q - 1])
         if flavour == "bits":
@@ -273,14 +286,23 @@ def make_schedule(config: Config) -> Schedule:
         for i, j in level:
             gj, pj = g[j], p[j]
             if k in wire_stage:  # the far operands get their own registers
-                gj = far(gj, i)
+                if gj is not None:
+                    gj = far(gj, i)
                 if pj is not None:
                     pj = far(pj, i)
-            new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage, level=k)
+            if gj is None:  # nothing below generates: the group generates what i does
+                new_g[i] = g[i]
+            elif g[i] is None:  # i generates nothing: the group passes on what j generates
+                new_g[i] = term(g_kind, i, "dot_p", (p[i], gj), stage, level=k)
+            else:
+                new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage, level=k)
             # A block group reaching block 0 needs no carry-in-1 term (cin is folded in).
-            new_p[i] = None if pj is None else term(
-                p_kind, i, p_op, (p[i], pj) if p_op == "dot_p" else (g[i], p[i], pj), stage,
-                level=k)
+            if pj is None:
+                new_p[i] = None
+            elif p_op == "dot_p" or g[i] is None:
+                new_p[i] = term(p_kind, i, "dot_p", (p[i], pj), stage, level=k)
+            else:
+                new_p[i] = term(p_kind, i, p_op, (g[i], p[i], pj), stage, level=k)
             low[i] = before[j]
         g, p = new_g, new_p
         for q in range(1, count):

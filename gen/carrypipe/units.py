@@ -194,7 +194,7 @@ class Arithmetic(Kind):
 
     def slice(self, ctx):
         c, s = ctx.config, ctx.s
-        x, y = ctx.ops["a"], self.y_operand(ctx.ops["b"], ctx.flags)
+        x, y = ctx.ops[self.operands[0]], self.y_operand(ctx.ops[self.operands[1]], ctx.flags)
         cin = (ctx.chain_in[self.chain[0]] if s.index
                else self.core_carry_in(ctx.flags.get("carry_in"), ctx.flags))
         want = not ctx.top or c.carry_out
