@@ -116,6 +116,8 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
             return args[0] & args[1]
         if op in ("wire", "lt", "ovf_gen"):
             return args[0]
+        if op == "not":
+            return ~args[0]
         if op in ("xor", "ovf_cin"):
             return args[0] ^ (args[1] if op == "xor" else c0)
         if op == "select":

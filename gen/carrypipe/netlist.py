@@ -143,7 +143,7 @@ class Rep(Expr):
 
 @dataclass(frozen=True)
 class Arith(Expr):
-    """`+` or `-` of the operands, each zero-extended to `width`, modulo 2**width."""
+    """`+`, `-` or `*` of the operands, each zero-extended to `width`, modulo 2**width."""
 
     op: str
     args: tuple

@@ -320,6 +320,13 @@ class SlicedPlan(Plan):
 
         return slices.build(self)
 
+    def build_into(self, frame, sources: dict):
+        """Build its stages into an enclosing unit's frame (a tree's final adder); returns
+        the output expressions by port name (see `slices.stages`)."""
+        from . import slices
+
+        return slices.stages(self, frame, sources)
+
     def structure(self) -> str:
         return f"{len(self.stages)} slice(s)"
 
@@ -399,6 +406,13 @@ class PrefixPlan(Plan):
 
         return leveled.build(self)
 
+    def build_into(self, frame, sources: dict):
+        """Build its stages into an enclosing unit's frame (a tree's final adder); returns
+        the output expressions by port name (see `leveled.stages`)."""
+        from . import leveled
+
+        return leveled.stages(self, frame, sources)
+
     def structure(self) -> str:
         return (f"pipeline {self.config.pipeline}, {len(self.stages)} stage(s), every stage "
                 "all bits")
@@ -460,5 +474,10 @@ MODES = {"slices": make_sliced_plan, "levels": make_prefix_plan, "blocks": make_
 
 
 def make_plan(config: Config) -> Plan:
-    """Derive the plan of a validated config (the mode type is chosen here, once)."""
+    """Derive the plan of a validated config (the plan type is chosen here, once: a
+    carry-save kind's tree, else the pipeline mode)."""
+    if units.KINDS[config.unit].tree:
+        from .treeplan import make_tree_plan
+
+        return make_tree_plan(config)
     return MODES[config.pipeline](config)

@@ -60,7 +60,7 @@ _G = prefix.UNIT_GATES
 OP_DELAY = {"gen": _G.and_or, "prop": _G.xor, "gen_cin": _G.xor + 2 * _G.and_or,
             "dot_g": 2 * _G.and_or, "dot_p": _G.and_or, "wire": 0, "sum": _G.xor,
             "xor": _G.xor, "sum_cin": 2 * _G.xor, "select": 2 * _G.and_or, "flag": 0,
-            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0, "pass": 0}
+            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0, "pass": 0, "not": 0}
 
 
 @dataclass(frozen=True)
@@ -317,6 +317,8 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
             cout = g[-1]
             if "sub" in flags:  # add/subtract: the borrow is the complement of the carry
                 cout = term("cout", count - 1, "xor", (cout, flags["sub"]), final)
+            elif kind.inverts_carry_out:  # a tree's final adder with a constant left
+                cout = term("cout", count - 1, "not", (cout,), final)
             outputs["chain"] = cout
         if config.signed:
             outputs["overflow"] = _overflow(term, terms, flavour, g, widths, lsbs, final,
