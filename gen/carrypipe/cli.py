@@ -18,7 +18,7 @@ from pathlib import Path
 import click
 
 from . import __version__, emit, output, report, sim, tools
-from .config import ConfigError, check_split, load
+from .config import ConfigError, check_split, load, split_span
 from .plan import make_plan
 from .prove import METHODS as PROOF_METHODS
 from .vectors import suite
@@ -116,11 +116,15 @@ def load_plan(config_path: str, slice_width=None, slices=None):
     """Config file (plus command-line what-if split) -> plan, with user errors made one line."""
     try:
         cfg = load(config_path)
+        span, what = split_span(cfg)
         for option, value in (("--slice-width", slice_width), ("--slices", slices)):
             if value is not None and cfg.pipeline != "slices":
                 raise ConfigError(f"{option}: value {value!r} is not allowed with pipeline "
                                   f"{cfg.pipeline!r} ({Path(config_path).name}); expected "
                                   "--slice-width or --slices only with pipeline 'slices'")
+            if value is not None and span == 0:
+                raise ConfigError(f"{option}: value {value!r} is not allowed: "
+                                  f"{Path(config_path).name} has no final adder to split")
         if slice_width is not None and slices is not None:
             raise ConfigError("options --slice-width and --slices are both given; "
                               "expected at most one of them")
@@ -131,14 +135,14 @@ def load_plan(config_path: str, slice_width=None, slices=None):
                 except ValueError:
                     pass
             cfg = cfg.with_split(check_split("--slice-width", "slice_width", slice_width,
-                                             cfg.width))
+                                             span, what))
         elif slices is not None:
             try:
                 parts = [int(x) for x in slices.split(",")]
             except ValueError:
                 raise ConfigError(f"--slices: key 'slices': value {slices!r} is not allowed; "
                                   "expected comma-separated positive integers") from None
-            cfg = cfg.with_split(check_split("--slices", "slices", parts, cfg.width))
+            cfg = cfg.with_split(check_split("--slices", "slices", parts, span, what))
     except ConfigError as exc:
         raise UserError(str(exc)) from None
     return make_plan(cfg)
@@ -172,7 +176,7 @@ def build(config, out_dir, vectors, seed):
     files = emit.render(plan, vectors=vectors, seed=seed)
     _write_folder(files, dest)
     r = plan.registers
-    click.echo(f"{plan.config.name}: {plan.width}-bit {plan.config.cell}, "
+    click.echo(f"{plan.config.name}: {report.headline(plan)}, "
                f"{report.structure_phrase(plan)}, latency {plan.latency}, "
                f"{r.total} register bits -> {dest}/")
     for fname in sorted(files):

@@ -339,6 +339,17 @@ def from_mapping(data, where: str = "config") -> Config:
     return Config(width=width, slices=split, **kept)
 
 
+def split_span(c: Config) -> tuple[int, str]:
+    """The bits a config's split refers to, and their name in messages: the unit's width,
+    or a carry-save unit's final adder (0: `tree: native`, or no final adder)."""
+    kind = units.KINDS[c.unit]
+    if not kind.tree:
+        return c.width, "width"
+    if c.tree == "native":
+        return 0, "the final adder's width"
+    return kind.adder_width(c), "the final adder's width"
+
+
 def _check_tree(where: str, kind, values: dict, data: dict) -> None:
     """The keys of the carry-save kinds: operands, width_b, the levels and ranks."""
     unit, width = values["unit"], values["width"]

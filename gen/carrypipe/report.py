@@ -23,6 +23,18 @@ def unit_phrase(plan: Plan) -> str:
     return plan.unit.phrase(plan.config)
 
 
+@singledispatch
+def headline(plan) -> str:
+    """The unit in a few words, for the command line."""
+    return f"{plan.width}-bit {plan.config.cell}"
+
+
+@headline.register(TreePlan)
+@headline.register(NativePlan)
+def _(plan) -> str:
+    return unit_phrase(plan)
+
+
 def structure_phrase(plan: Plan) -> str:
     return plan.structure()
 
