@@ -261,7 +261,7 @@ def prove(target, depth, timeout, method):
                         f"the latency ({plan.latency})")
     if method == "compositional" and not plan.can_compose:
         raise UserError("--method: value compositional is not allowed for this unit; it "
-                        "covers sliced adders and subtractors without reset_data (use direct)")
+                        f"covers {proof.COMPOSABLE} (use direct)")
     result = proof.prove(plan, depth=depth, timeout=timeout, method=method, verilog=verilog)
     click.echo(f"{what}: {result.message}")
     sys.exit(0 if result.proved else 1)

@@ -37,6 +37,8 @@ from . import cells, schedule, units
 from .config import Config
 from .units import Port
 
+DIRECT_UP_TO = 512  # widest adder `prove --method auto` proves directly (docs/verification.md)
+
 __all__ = ["Plan", "SlicedPlan", "PrefixPlan", "Nest", "Slice", "Stage", "Word", "Port",
            "make_plan"]
 
@@ -259,6 +261,18 @@ class Plan:
         """Whether the compositional proof applies (see `compose.py`)."""
         return ("compositional" in self.proof_methods and self.unit.composable
                 and not self.config.reset_data)
+
+    @property
+    def composes_by_default(self) -> bool:
+        """Whether `prove --method auto` takes the compositional proof: where the direct
+        one grows slow (measured: docs/verification.md)."""
+        return self.can_compose and self.width > DIRECT_UP_TO
+
+    def prove_parts(self, net: dict, module: str, timeout):
+        """The compositional proof's parts for this plan (`compose.Outcome`)."""
+        from . import compose
+
+        return compose.prove_slices(self, net, module, timeout)
 
     def structure(self) -> str:
         """How the unit is cut, in a few words."""

@@ -23,7 +23,11 @@ from functools import cached_property
 
 from . import reduction, units
 from .config import Config
-from .plan import MODES, Nest, Plan, Word
+from .plan import DIRECT_UP_TO, MODES, Nest, Plan, Word
+
+# `prove --method auto` proves a tree directly up to this many partial-product rows (a
+# multiplier's width_b) and result bits (docs/verification.md), compositionally above.
+DIRECT_ROWS, DIRECT_BITS = 8, 512
 
 
 @dataclass(frozen=True)
@@ -117,7 +121,23 @@ class TreePlan(Plan):
 
     @property
     def can_compose(self) -> bool:
-        return not self.config.reset_data
+        return not self.config.reset_data and self.adder_width <= DIRECT_UP_TO
+
+    @property
+    def adder_width(self) -> int:
+        return self.rows.adder_width
+
+    @property
+    def composes_by_default(self) -> bool:
+        # The direct proof of a multiplier took 22 s at 8 x 8 bits and ran past 600 s at
+        # 12 x 10 (docs/verification.md); a sum's stays fast to much larger sizes.
+        return self.can_compose and (self.tree.matrix.booth_rows or len(self.tree.matrix.rows)
+                                     > DIRECT_ROWS or self.result_width > DIRECT_BITS)
+
+    def prove_parts(self, net: dict, module: str, timeout):
+        from . import treeproof
+
+        return treeproof.prove_tree(self, net, module, timeout)
 
     def structure(self) -> str:
         c, t = self.config, self.tree
