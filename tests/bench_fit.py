@@ -11,6 +11,11 @@ latency with the ratios generated/peer (same width) and generated/fabric limit. 
 
     python tests/bench_fit.py --devices ice40-hx8k,ecp5-85k --widths 64 --seeds 3
     python tests/bench_fit.py --devices ecp5-85k --widths 256 --slice-widths 256,64,16,8
+    python tests/bench_fit.py --devices machxo2-1200,gowin-gw1n9,nexus-40k --widths 16 \
+        --peer-widths 16,32,64 --cells native,kogge-stone --seeds 3 --jobs 2
+
+Every device of `carrypipe.devices` works, each family with its own harness pins (see
+docs/fit.md); the fabric figure is measured in the same harness on every family.
 
 Results are cached like `fit`'s (see docs/fit.md), so a rerun prints at once.
 """

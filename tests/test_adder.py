@@ -19,6 +19,9 @@ OPTION_SETS = [
     {"enable": True, "valid": True, "reset": "sync"},
     {"register_inputs": True, "carry_in": True, "enable": True},
     {"carry_in": True, "valid": True, "reset": "sync", "register_inputs": True, "enable": True},
+    {"valid": True, "reset": "async", "enable": True},
+    {"carry_in": True, "valid": True, "reset": "sync", "reset_data": True},
+    {"carry_out": False, "reset": "async", "reset_data": True, "register_inputs": True},
 ]
 
 

@@ -7,6 +7,7 @@ from __future__ import annotations
 import dataclasses
 import io
 import math
+import re
 import xml.etree.ElementTree as ET
 from functools import cached_property
 
@@ -14,6 +15,7 @@ import cairosvg
 import pytest
 from PIL import Image
 
+import gallery
 from carrypipe import chart
 from carrypipe.plan import SlicedPlan, Word
 from conftest import make
@@ -44,6 +46,7 @@ def bit_range(cell: dict) -> range:
 
 
 CASES = {
+    "1-bit, one slice": dict(width=1, carry_in=True),
     "4-bit, one slice": dict(width=4),
     "16-bit, 4x4, every option": dict(width=16, slice_width=4, carry_in=True, valid=True,
                                       reset="sync", enable=True, register_inputs=True),
@@ -52,7 +55,25 @@ CASES = {
     "64-bit, 1-bit slices (rows banded)": dict(width=64, slice_width=1, valid=True),
     "4096-bit, 16 slices": dict(width=4096, slice_width=256, carry_in=True),
     "4096-bit, 256 slices (both banded)": dict(width=4096, slice_width=16, valid=True),
+    "subtractor": dict(width=32, unit="subtractor", slice_width=8, carry_in=True, signed=True),
+    "addsub": dict(width=24, unit="addsub", slices=[4, 10, 10], valid=True,
+                   register_inputs=True),
+    "comparator": dict(width=40, unit="comparator", slice_width=8, signed=True, valid=True),
+    "accumulator": dict(width=48, unit="accumulator", slice_width=12, valid=True,
+                        enable=True, reset="sync"),
+    "levels": dict(width=64, pipeline="levels", cell="kogge-stone", local_width=16,
+                   wire_registers=1, valid=True),
+    "levels, 256-bit banded": dict(width=256, pipeline="levels", cell="han-carlson",
+                                   levels_per_stage=2, register_inputs=True),
+    "levels addsub": dict(width=32, unit="addsub", pipeline="levels", cell="sklansky",
+                          carry_in=True, signed=True, enable=True),
+    "blocks": dict(width=64, pipeline="blocks", cell="brent-kung", block_width=8, valid=True),
+    "blocks subtractor, wired": dict(width=130, unit="subtractor", pipeline="blocks",
+                                     cell="kogge-stone", block_width=16, wire_registers=2),
+    "comparator levels": dict(width=64, unit="comparator", pipeline="levels", valid=True),
 }
+PREFIX_CASES = [k for k, v in CASES.items() if v.get("pipeline") in ("levels", "blocks")]
+SLICED_CASES = [k for k in CASES if k not in PREFIX_CASES]
 
 
 @pytest.mark.parametrize("keys", CASES.values(), ids=CASES.keys())
@@ -254,3 +275,302 @@ def test_stages_spanning_every_bit_are_drawn_without_hand_offs():
     assert [(b.get("data-stage"), b.get("data-bits")) for b in blocks] == \
         [(str(i), "15:0") for i in range(4)]
     assert not [e for e in root.iter(f"{SVG}line") if e.get("class") == "carry"]
+
+
+# ---- words, labels and marks of every mode and unit kind ----
+
+def texts(root: ET.Element, role: str | None = None) -> list[ET.Element]:
+    return [e for e in root.iter(f"{SVG}text") if role is None or e.get("data-role") == role]
+
+
+def legend(root: ET.Element) -> str:
+    """Every word of the chart below the grid (the legend and the key to the marks)."""
+    return " ".join(e.text or "" for e in texts(root))
+
+
+def expand(listed: str) -> list[int]:
+    """Stage numbers as a sentence lists them: `0, 2, 5` or runs `1–255`."""
+    out = []
+    for part in listed.split(", "):
+        lo, _, hi = part.partition("–")
+        out += range(int(lo), int(hi or lo) + 1)
+    return out
+
+
+@pytest.mark.parametrize("keys", CASES.values(), ids=CASES.keys())
+def test_the_legend_lists_only_the_kinds_the_unit_has(keys):
+    plan = make(**keys)
+    root = parse(chart.svg(plan))
+    present = {k for k, v in plan.registers.as_dict().items() if k != "total" and v}
+    keyed = [e.get("data-kind") for e in root.iter(f"{SVG}rect") if e.get("class") == "key"]
+    assert sorted(keyed) == sorted(present)
+    shown = {e.get("data-kind"): int(e.text.replace(" ", "")) for e in texts(root, "bits")}
+    assert shown == {k: plan.registers[k] for k in present}
+    assert int(texts(root, "total")[0].text.replace(" ", "")) == plan.registers.total
+
+
+@pytest.mark.parametrize("keys", CASES.values(), ids=CASES.keys())
+def test_every_cell_says_what_it_holds_and_rows_add_up(keys):
+    plan = make(**keys)
+    root = parse(chart.svg(plan))
+    families = {w.family for w in plan.words}
+    for c in cells(root):
+        assert {"data-kind", "data-bits", "data-edge", "data-count", "data-families"} <= set(c)
+        assert set(c["data-families"].split()) <= families
+        last, _, first = c["data-edge"].partition(":")
+        edges = int(last) - int(first or last) + 1
+        assert int(c["data-count"]) <= len(bit_range(c)) * len(families) * edges
+    rows = sum(int(e.get("data-count")) for e in texts(root, "row-bits"))
+    assert rows == plan.registers.total  # the bits loaded per row, over all rows
+
+
+@pytest.mark.parametrize("name", SLICED_CASES)
+def test_every_slice_is_labelled_with_its_bits(name):
+    plan = make(**CASES[name])
+    root = parse(chart.svg(plan))
+    blocks = [e for e in root.iter(f"{SVG}rect") if e.get("class") == "slice"]
+    labels = {e.get("data-stage"): e.text for e in texts(root, "stage-label")}
+    assert len(labels) == len(blocks)  # one label per drawn block (grouped when rows band)
+    for b in blocks:
+        hi, _, lo = b.get("data-bits").partition(":")
+        assert f"bits {hi}:{lo}" in labels[b.get("data-stage")] or (
+            hi == lo and f"bits {lo}" in labels[b.get("data-stage")])
+
+
+@pytest.mark.parametrize("name", PREFIX_CASES)
+def test_prefix_stage_bands_say_which_levels_they_hold(name):
+    plan = make(**CASES[name])
+    root = parse(chart.svg(plan))
+    blocks = {e.get("data-stage"): e for e in root.iter(f"{SVG}rect")
+              if e.get("class") == "slice"}
+    labels = {e.get("data-stage"): e.text for e in texts(root, "stage-label")}
+    tree = plan.schedule.flavour == "compare"
+    for s in plan.stages:
+        block, label = blocks[str(s.index)], labels[str(s.index)]
+        assert block.get("data-logic") == s.logic and s.logic in label
+        assert block.get("data-levels", "").split() == [str(k) for k in s.levels]
+        if s.levels:  # the schedule's 0-based levels, 1-based as in the report
+            first, last = s.levels[0], s.levels[-1]
+            what = "tree level" if tree else "prefix level"
+            assert (f"{what} {first}" if first == last else f"{what}s {first}-{last}") in label
+        assert "bits" not in label  # every stage spans all bits: no range to tell apart
+        assert (block.get("stroke-dasharray") is not None) == (s.delay == 0)
+
+
+@pytest.mark.parametrize("name", PREFIX_CASES)
+def test_prefix_legends_speak_of_their_own_mode(name):
+    plan = make(**CASES[name])
+    words = legend(parse(chart.svg(plan)))
+    assert "slice:" not in words and "handed to the next slice" not in words
+    assert "waiting for their slice" not in words and "upper slices" not in words
+    assert "stage: its logic in one cycle, across all bits" in words
+    flavour = plan.schedule.flavour
+    if flavour == "compare":
+        assert "slice verdicts" in words and "a tree over their verdicts" in words
+    elif flavour == "chains":
+        chain = plan.unit.chain[0]
+        assert f"block {'carries' if chain == 'carry' else chain + 's'}:" in words
+        assert f"{chain}-in 0 and 1" in words
+    else:
+        assert f"{plan.unit.chain[0]} generate/propagate" in words
+    if plan.unit.result:
+        assert f"output register: {plan.unit.result} [{plan.width - 1}:0]" in words
+
+
+@pytest.mark.parametrize("keys, block, handoff, stage", [
+    (dict(width=16, slice_width=4), "adder slice: adds its bits", "carry handed to the next "
+     "slice", "each slice's sum bits and the carry it hands on; cout at the top"),
+    (dict(width=16, unit="subtractor", slice_width=4, carry_in=True), "subtractor slice: "
+     "subtracts its bits", "borrow handed to the next slice", "each slice's diff bits and the "
+     "borrow it hands on; bout at the top"),
+    (dict(width=16, unit="addsub", slice_width=4), "adder/subtractor slice: adds or "
+     "subtracts", "carry handed to the next slice", "input skew: a, b bits and the sub flag"),
+    (dict(width=16, unit="comparator", slice_width=4), "comparator slice: compares its bits",
+     "lt and eq handed to the next slice", "lt and eq of the bits so far, handed from slice "
+     "to slice; lt, eq, gt at the top"),
+    (dict(width=16, unit="accumulator", slice_width=4), "accumulator slice: accumulates its "
+     "bits in one cycle, keeping its bits of the total", "carry handed to the next slice",
+     "each slice's bits of the running total acc"),
+], ids=["adder", "subtractor", "addsub", "comparator", "accumulator"])
+def test_sliced_legends_use_the_words_of_the_unit_kind(keys, block, handoff, stage):
+    plan = make(**keys)
+    words = legend(parse(chart.svg(plan)))
+    assert block in words and handoff in words and stage in words
+    # the hand-off names the unit's chain (carry, borrow, lt and eq)
+    assert " and ".join(plan.unit.chain) + " handed to the next slice" in words
+    if plan.unit.result is None:  # a comparator: no result word, no deskew
+        assert "deskew" not in words
+
+
+@pytest.mark.parametrize("keys, name", [
+    (dict(width=96, slices=[36, 36, 24]), "cout"),
+    (dict(width=32, unit="subtractor", slice_width=8), "bout"),
+    (dict(width=32, signed=True, slice_width=8), "cout/overflow"),
+    (dict(width=32, unit="comparator", slice_width=8), "lt/eq/gt"),
+    (dict(width=64, pipeline="levels", cell="sklansky"), "cout"),
+    (dict(width=64, unit="comparator", pipeline="levels"), "lt/eq/gt"),
+], ids=["adder", "subtractor", "signed", "comparator", "levels", "comparator levels"])
+def test_the_column_above_the_top_bit_is_named_for_what_it_holds(keys, name):
+    plan = make(**keys)
+    root = parse(chart.svg(plan))
+    [out] = texts(root, "out-column")
+    assert out.text == name and out.get("data-bit") == str(plan.width)
+    ticks = [int(e.text) for e in texts(root, "tick")]
+    assert plan.width not in ticks and 0 in ticks and plan.width - 1 in ticks
+    # the column's cells are the chain out of the top and the one-bit outputs
+    top = [c for c in cells(root) if int(c["data-bits"].split(":")[1]) >= plan.width]
+    assert top and all(c["data-bits"] == f"{plan.width}:{plan.width}" for c in top)
+
+
+def test_no_column_above_the_top_bit_without_a_chain_out():
+    root = parse(chart.svg(make(width=32, slice_width=8, carry_out=False)))
+    assert texts(root, "out-column") == []
+
+
+@pytest.mark.parametrize("name", ["16-bit, 4x4, every option", "64-bit uneven brent-kung",
+                                  "100-bit (bands of 2 bits)", "4096-bit, 16 slices",
+                                  "4096-bit, 256 slices (both banded)", "addsub", "blocks",
+                                  "levels", "comparator levels"])
+def test_ticks_fall_at_slice_or_block_boundaries(name):
+    plan = make(**CASES[name])
+    root = parse(chart.svg(plan))
+    ticks = [int(e.text) for e in texts(root, "tick")]
+    assert ticks == sorted(ticks) and ticks[0] == 0 and ticks[-1] == plan.width - 1
+    if plan.mode == "slices":
+        starts = {s.lsb for s in plan.stages}
+    elif plan.schedule.flavour == "bits":
+        local = plan.config.local_width
+        starts = set(range(0, plan.width, local))
+    else:
+        starts = set(plan.schedule.lsbs)
+    assert set(ticks[:-1]) <= starts and len(ticks) >= 3
+    # evenly thinned: the boundaries between ticks are skipped by one step everywhere
+    inner = sorted(starts)
+    picked = [inner.index(t) for t in ticks[:-1]]
+    steps = {b - a for a, b in zip(picked, picked[1:])}
+    assert len(steps) <= 1
+    lines = {int(e.get("data-bit")) for e in root.iter(f"{SVG}line")
+             if e.get("class") == "boundary"}
+    assert lines == (starts - {0} if len(starts) <= chart.MAX_COLUMNS else set())
+
+
+def test_the_banding_note_is_calm():
+    root = parse(chart.svg(make(width=4096, slice_width=256)))
+    [note] = texts(root, "banding")
+    assert note.get("fill") == chart.CALM and note.get("fill") != chart.SLOW
+    assert note.get("font-weight") is None
+
+
+@pytest.mark.parametrize("keys", [dict(width=16, slice_width=4, enable=True, valid=True),
+                                  dict(width=64, pipeline="levels", cell="kogge-stone",
+                                       enable=True),
+                                  dict(width=64, slice_width=1, enable=True)],
+                         ids=["sliced", "levels", "rows banded"])
+def test_en_is_drawn_once_beside_every_register_row(keys):
+    plan = make(**keys)
+    root = parse(chart.svg(plan))
+    [en] = [e for e in root.iter() if e.get("class") == "enable"]
+    assert en.get("data-port") == "en" and en.get("data-edges") == f"{plan.latency}:1"
+    rows = int(math.ceil(plan.latency / int(root.get("data-edge-band"))))
+    assert en.get("d").count("M") == rows  # one stroke per register row, where it acts
+    right = max(float(c["x"]) + float(c["width"]) for c in cells(root))
+    assert all(float(p) > right for p in re.findall(r"M([\d.]+),", en.get("d")))
+    assert f"en: {plan.port('en').meaning}" in legend(root)
+    assert not [e for e in parse(chart.svg(make(width=16, slice_width=4))).iter()
+                if e.get("class") == "enable"]
+
+
+@pytest.mark.parametrize("keys, lane", [
+    (dict(width=24, unit="addsub", slice_width=8, register_inputs=True), "sub"),
+    (dict(width=24, unit="accumulator", slice_width=8), "clear"),
+    (dict(width=24, unit="addsub", pipeline="levels", cell="sklansky"), "sub"),
+])
+def test_flags_travel_in_a_lane_of_their_own(keys, lane):
+    plan = make(**keys)
+    root = parse(chart.svg(plan))
+    assert lane in [e.text for e in texts(root, "lane")]
+    flags = [w for w in plan.words if w.width == 1 and w.family in
+             (lane, f"{lane}_in", f"{lane}_skew")]
+    drawn = [c for c in cells(root) if set(c["data-families"].split()) & {w.family for w in flags}]
+    assert sum(int(c["data-count"]) for c in drawn) == len(flags) > 0
+    data_right = max(float(c["x"]) + float(c["width"]) for c in cells(root)
+                     if c not in drawn and c["data-kind"] != "control")
+    assert all(float(c["x"]) > data_right for c in drawn)
+
+
+def test_prefix_register_rows_are_runs_not_terms():
+    # 64-bit Kogge-Stone by levels: hundreds of prefix terms per rank, drawn as a few runs
+    # per rank and kind (one strip per kind, solid where each column is one bit).
+    plan = make(width=64, pipeline="levels", cell="kogge-stone", valid=True)
+    root = parse(chart.svg(plan))
+    data = [c for c in cells(root) if c["data-kind"] != "control"]
+    by_row: dict = {}
+    for c in data:
+        by_row.setdefault(c["data-edge"], []).append(c)
+    assert len(by_row) == plan.latency
+    for edge, row in by_row.items():
+        kinds = {c["data-kind"] for c in row}
+        assert len(row) <= 2 * len(kinds) + 1  # a run per kind, the column above the top
+        heights = {round(float(c["height"]), 2) for c in row}
+        assert len(heights) == 1  # kinds share the row in equal strips
+    assert all(c.get("fill-opacity") is None for c in data)  # unbanded: nothing to shade
+
+
+def test_slowest_sentence_names_every_tied_stage_and_is_red_only_when_highlighted():
+    plan = make(width=4096, slice_width=16)  # stage 0 has no carry-in: 1-255 tie
+    root = parse(chart.svg(plan))
+    [line] = texts(root, "slowest")
+    listed = line.text.rsplit("stages ", 1)[1].rstrip(".")
+    assert expand(listed) == [s.index for s in plan.slowest] == list(range(1, 256))
+    assert line.get("fill") == chart.SLOW
+    tie = parse(chart.svg(make(width=24, slice_width=8, carry_in=True)))
+    assert texts(tie, "slowest")[0].get("fill") == chart.INK
+
+
+# ---- every chart kind rendered, and the gallery of docs/chart.md ----
+
+@pytest.mark.parametrize("stem", gallery.GALLERY)
+def test_every_chart_kind_renders_readably(stem):
+    plan = gallery.plan_of(stem)
+    text = chart.svg(plan)
+    root = parse(text)
+    width, height = int(root.get("width")), int(root.get("height"))
+    image = Image.open(io.BytesIO(gallery.png(text))).convert("RGB")
+    assert image.size == (width, height)
+    colours = {rgb for _, rgb in image.getcolors(width * height)}
+    for kind, bits in plan.registers.as_dict().items():
+        if kind != "total" and bits:
+            assert hex_rgb(chart.COLOURS[kind]) in colours, kind
+    # no text runs off the picture (estimated with the fitting rule's glyph width)
+    for e in texts(root):
+        size, x = float(e.get("font-size")), float(e.get("x"))
+        w = chart._text_width(e.text or "", size)
+        left = x - {"end": w, "middle": w / 2}.get(e.get("text-anchor"), 0)
+        assert 0 <= left and left + w <= width, e.text
+
+
+def test_the_gallery_is_in_the_docs():
+    doc = (gallery.HERE.parent / "docs" / "chart.md").read_text()
+    for stem, (caption, _) in gallery.GALLERY.items():
+        path = gallery.FOLDER / f"{stem}.png"
+        assert f"(chart/{stem}.png)" in doc and caption in doc
+        assert path.stat().st_size < 100_000  # small
+        root = parse(chart.svg(gallery.plan_of(stem)))
+        with Image.open(path) as image:  # drawn by this version's layout
+            assert image.size == (round(int(root.get("width")) * gallery.SCALE),
+                                  round(int(root.get("height")) * gallery.SCALE))
+
+
+@pytest.mark.parametrize("keys", [dict(width=64, pipeline="blocks", cell="brent-kung",
+                                       block_width=8, signed=True),
+                                  dict(width=40, unit="comparator", pipeline="levels"),
+                                  dict(width=256, pipeline="levels", cell="sklansky",
+                                       signed=True)],
+                         ids=["blocks signed", "comparator levels", "levels banded"])
+def test_the_output_register_is_drawn_full(keys):
+    # Every output bit has exactly one register in the last rank, so its cells are full;
+    # the column above the top bit (cout and overflow side by side) does not change that.
+    plan = make(**keys)
+    root = parse(chart.svg(plan))
+    last = [c for c in cells(root, "stage") if c["data-edge"] == str(plan.latency)]
+    assert last and all(c.get("fill-opacity") is None for c in last)

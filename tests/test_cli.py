@@ -141,3 +141,23 @@ def test_written_files_have_ordinary_permissions(tmp_path):
     assert (tmp_path / "fresh" / "b.v").stat().st_mode & 0o777 == 0o644
     assert (tmp_path / "fresh").stat().st_mode & 0o777 == 0o750
     assert not (tmp_path / "fresh" / "a.v").exists()  # the folder is replaced whole
+
+
+def test_prove_depth_must_exceed_the_latency(write_config, tmp_path):
+    # The help says what is allowed, and every value outside it is one line, exit status 2,
+    # before any proof runs (DEMO: 3 slices, latency 3).
+    help_text = " ".join(run("prove", "--help").output.split())
+    assert "--depth N Cycles to unroll: an integer above the unit's latency, at most 1000" \
+        in help_text
+    assert "1<=x<=1000" not in help_text
+    cfg = write_config(DEMO)
+    plain = ", at most 1000, written in plain decimal digits"
+    for depth, shown, allowed in (("0", "0", ""), ("3", "3", ""),
+                                  ("1001", "1001", ", at most 1000"), ("1_0", "'1_0'", plain),
+                                  ("+5", "'+5'", plain), ("x", "'x'", plain)):
+        r = run("prove", cfg, "--depth", depth)
+        assert r.exit_code == 2
+        assert r.output.splitlines() == [
+            f"carrypipe: error: --depth: value {shown} is not allowed; expected an integer "
+            f"above the latency (3){allowed}"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["unit.yaml"]

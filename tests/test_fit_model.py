@@ -21,8 +21,12 @@ def test_table_model_interpolates_and_extends():
     assert table == {"points": [[2, 4.0], [4, 8.0]]}  # median period per x
 
 
-def test_every_device_has_a_model():
-    assert set(model.models()) == set(devices.DEVICES)
+def test_devices_with_a_model():
+    # iCE40 and ECP5 are calibrated; the newer families get no prediction until they are,
+    # and fit measures their candidates (tests/test_fit_candidates.py, the bounded search).
+    with_model = {d.name for d in devices.DEVICES.values() if d.family.name in ("ice40", "ecp5")}
+    assert set(model.models()) == with_model
+    assert model.predict(make(width=8), "gowin-gw1n9") is None
 
 
 @pytest.mark.parametrize("device", ["ice40-hx8k", "ecp5-85k"])

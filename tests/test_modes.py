@@ -157,6 +157,21 @@ def test_blocks_latency():
     assert make(pipeline="blocks", cell="sklansky", width=40, block_width=40).latency == 1
 
 
+@pytest.mark.parametrize("blocks", [2, 3, 5, 9, 16, 17, 33])
+@pytest.mark.parametrize("cout", [True, False])
+def test_blocks_latency_counts_only_the_levels_used(blocks, cout):
+    # Kogge-Stone over n positions: position i's group is complete after ceil(log2(i + 1))
+    # levels (Harris 2003).  The top block's select needs its carry-in (position n - 2), the
+    # carry-out needs position n - 1; the results leave after the later of the two, so a last
+    # level that only a pruned carry-out would read costs no cycle.
+    p = make(pipeline="blocks", cell="kogge-stone", width=4 * blocks, block_width=4,
+             carry_out=cout)
+    select = 1 + math.ceil(math.log2(blocks - 1)) + 1
+    carry = 1 + math.ceil(math.log2(blocks))
+    assert p.latency == (max(select, carry) if cout else select)
+    simulate(p, count=40)
+
+
 def test_register_count_by_hand():
     """A 4-bit Kogge-Stone levels unit, counted by hand from the network (nodes (1,0), (2,1),
     (3,2), then (2,0), (3,1)); the second level rides in the sum stage, so there are two

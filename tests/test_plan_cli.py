@@ -107,7 +107,11 @@ BAD_WHAT_IF = [
     (["--slice-width", "0"], "--slice-width: key 'slice_width': value 0 is not allowed; "
                              "expected an integer from 1 to width (24)"),
     (["--slice-width", "25"], "value 25 is not allowed; expected an integer from 1 to width (24)"),
-    (["--slice-width", "-3"], "value -3 is not allowed; expected an integer from 1 to width"),
+    (["--slice-width", "-3"], "value '-3' is not allowed; expected an integer from 1 to width"),
+    (["--slice-width", "1_6"], "value '1_6' is not allowed; expected an integer from 1 to width "
+                               "(24), written in plain decimal digits"),
+    (["--slices", "4_0,24"], "value '4_0,24' is not allowed; expected comma-separated positive "
+                             "integers written in plain decimal digits"),
     (["--slices", "8,8"], "--slices: key 'slices': value [8, 8] is not allowed; expected "
                           "slice widths that sum to width (24), not 16"),
     (["--slices", "0,24"], "value [0, 24] is not allowed; expected a list of positive integers"),
@@ -141,7 +145,7 @@ def test_what_if_split_is_refused_in_prefix_modes(write_config, tmp_path, mode, 
     assert r.exit_code == 2 and not dest.parent.exists()
     assert r.output == (f"carrypipe: error: {option}: value '{value}' is not allowed with pipeline "
                         f"'{mode}' (unit.yaml); expected --slice-width or --slices only with "
-                        "pipeline 'slices'\n")
+                        "pipeline 'slices' (or a comparator's 'levels')\n")
 
 
 def test_chart_into_a_folder_or_under_a_file_is_refused(write_config, tmp_path):

@@ -24,7 +24,7 @@ from dataclasses import fields
 from pathlib import Path
 
 from .config import read_regular
-from .toolflow import FLOW_VERSION, FREQ_MHZ, Measurement
+from .toolflow import FLOW_VERSION, Measurement, freq_mhz
 
 STORED = ("ok", "no-fit", "error")  # the statuses an entry may hold (timeouts are not stored)
 FIELDS = frozenset(f.name for f in fields(Measurement))
@@ -42,7 +42,7 @@ def folder() -> Path:
 
 def key(config: dict, device: str, seed: int, tools: dict) -> str:
     text = json.dumps({"config": config, "device": device, "seed": seed, "tools": tools,
-                       "flow": FLOW_VERSION, "freq_mhz": FREQ_MHZ},
+                       "flow": FLOW_VERSION, "freq_mhz": freq_mhz(device)},
                       sort_keys=True, separators=(",", ":"))
     return hashlib.sha256(text.encode()).hexdigest()
 

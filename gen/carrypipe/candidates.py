@@ -2,10 +2,19 @@
 
 Candidates are config variants made with the public config API (`config.from_mapping` on a
 normalized config), so every candidate is validated like a user's file.  Each pipeline mode
-contributes a generator to `GENERATORS`; `generate` runs them all and drops duplicates.
+contributes a generator to `GENERATORS`; `generate` runs those of the modes asked for, with
+the cell styles asked for, and `distinct` keeps one candidate per circuit (`circuit`).
 
 Selection rule: among the candidates that meet the target, the least latency; ties go to
 fewer register bits, then fewer LUTs.
+
+Search: a candidate with a prediction is measured when its corrected prediction (model x
+the measured/predicted ratio of its cell style so far) is within MARGIN of the target.  A
+candidate without one (no delay model for the device, or a pipeline mode the model does not
+describe) is bounded by measurements of its own kind instead: one whose slowest stage is no
+shorter (unit-gate delay) than a measured miss of the same cell and mode is taken to miss,
+and each kind is probed at its middle candidate, so a kind of n splits costs about log2(n)
+runs rather than n.
 """
 
 from __future__ import annotations
@@ -14,7 +23,7 @@ import json
 import statistics
 from dataclasses import dataclass, field
 
-from . import config, harness
+from . import config, harness, units
 from .config import Config
 from .plan import Plan
 
@@ -37,11 +46,12 @@ def variant(base: Config, **keys) -> Config:
     return config.from_mapping(data, where="candidate")
 
 
-def slice_candidates(base: Config, cells: tuple[str, ...]) -> list[Config]:
-    """Even splits from one slice up to MAX_STAGES slices, slices at least 2 bits wide."""
+def slice_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Config]:
+    """Even splits from one slice up to MAX_STAGES slices, slices at least 2 bits wide, for
+    each style of `cells` (None: the config's own cell)."""
     top = max(1, min(MAX_STAGES, base.width // 2))
     return [variant(base, cell=cell, slices=list(balanced(base.width, s)))
-            for cell in cells for s in range(1, top + 1)]
+            for cell in (cells or (base.cell,)) for s in range(1, top + 1)]
 
 
 LEVELS_PER_STAGE = (1, 2, 3)
@@ -54,43 +64,81 @@ BLOCK_WIDTHS = (8, 16, 32)
 DEFAULT_PREFIX_STYLES = ("kogge-stone", "han-carlson")
 
 
-def prefix_candidates(base: Config, cells: tuple[str, ...]) -> list[Config]:
-    """levels x prefix style x levels per stage (and, from 64 bits, 16-bit local networks
-    with 0-2 wire-register ranks); blocks x prefix style x block width.
+def prefix_styles(base: Config, cells: tuple[str, ...] | None) -> list[str]:
+    """The styles the prefix modes try: the prefix styles among `cells` (none when `cells`
+    names none); with no `cells`, the config's cell if it is a prefix style, else
+    DEFAULT_PREFIX_STYLES."""
+    if cells is not None:
+        return [c for c in cells if c in config.PREFIX_CELLS]
+    return [base.cell] if base.cell in config.PREFIX_CELLS else list(DEFAULT_PREFIX_STYLES)
 
-    The prefix styles among `cells`, else DEFAULT_PREFIX_STYLES.  Over two blocks every
-    style is the same single node, so such a block width is tried with one style only."""
-    styles = [c for c in cells if c in config.PREFIX_CELLS] or list(DEFAULT_PREFIX_STYLES)
+
+def levels_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Config]:
+    """levels x prefix style x levels per stage (and, from 64 bits, 16-bit local networks
+    with 0-2 wire-register ranks)."""
+    styles = prefix_styles(base, cells)
     out = [variant(base, pipeline="levels", cell=cell, levels_per_stage=n)
            for cell in styles for n in LEVELS_PER_STAGE]
     if base.width >= LOCAL_FROM:  # local networks kept wiring short at 64 and 256 bits
         out += [variant(base, pipeline="levels", cell=cell, local_width=LOCAL_WIDTH,
                         wire_registers=wires)
                 for cell in styles for wires in (0, 1, 2)]
-    for k in BLOCK_WIDTHS:
-        blocks = -(-base.width // k)
-        if blocks >= 2:
-            out += [variant(base, pipeline="blocks", cell=cell, block_width=k)
-                    for cell in (styles if blocks > 2 else styles[:1])]
     return out
 
 
-GENERATORS = (slice_candidates, prefix_candidates)  # each: (base config, cells) -> configs
+def blocks_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Config]:
+    """blocks x prefix style x block width (block widths that leave at least two blocks)."""
+    return [variant(base, pipeline="blocks", cell=cell, block_width=k)
+            for k in BLOCK_WIDTHS if -(-base.width // k) >= 2
+            for cell in prefix_styles(base, cells)]
 
 
-def identity(cfg: Config) -> str:
-    """A stable text key of a candidate (its normalized config)."""
-    return json.dumps(cfg.normalized(), sort_keys=True)
+# Each mode's generator: (base config, cell styles or None for the default) -> configs.
+GENERATORS = {"slices": slice_candidates, "levels": levels_candidates,
+              "blocks": blocks_candidates}
 
 
-def generate(base: Config, cells: tuple[str, ...]) -> list[Config]:
-    seen, out = set(), []
-    for gen in GENERATORS:
-        for cfg in gen(base, cells):
-            if identity(cfg) not in seen:
-                seen.add(identity(cfg))
-                out.append(cfg)
-    return out
+def generate(base: Config, cells: tuple[str, ...] | None = None,
+             modes: tuple[str, ...] = config.PIPELINES) -> list[Config]:
+    """Every candidate config of the given modes and cell styles (None: the defaults), in
+    the modes the unit kind has (a comparator has no `blocks`, an accumulator only
+    `slices`)."""
+    own = units.KINDS[base.unit].modes
+    return [cfg for mode in GENERATORS if mode in modes and mode in own
+            for cfg in GENERATORS[mode](base, cells)]
+
+
+# Config keys that describe the structure; `circuit` reads the structure from the plan.
+STRUCTURE_KEYS = ("name", "cell", "pipeline", "slices", *config.MODE_KEYS)
+
+
+def circuit(plan: Plan) -> str:
+    """A text key equal for two plans exactly when they describe the same circuit.
+
+    The options (ports, input register, valid, enable, reset) as configured, then the
+    structure as the builders read it: per slice its width and its logic (`ripple`,
+    `native`, or the prefix network's nodes, so two prefix styles whose networks coincide at
+    that width give one key); for the prefix modes the pruned schedule, every kept term with
+    what forms it, its stage and its last reader, numbered among the kept terms.  The cell
+    style, the split and the mode keys themselves do not enter: `levels_per_stage: 2` and
+    `3` give one key when every stage holds the same levels.
+    """
+    options = {k: v for k, v in plan.config.normalized().items() if k not in STRUCTURE_KEYS}
+    sch = getattr(plan, "schedule", None)
+    if sch is None:
+        shape = [[s.width, list(map(list, s.network().levels))
+                  if s.cell in config.PREFIX_CELLS else s.cell] for s in plan.stages]
+    else:
+        kept = sch.kept()
+        order = {t.index: n for n, t in enumerate(kept)}
+        shape = {"mode": sch.mode, "flavour": sch.flavour, "widths": sch.widths,
+                 "final": sch.final,
+                 "terms": [[t.kind, t.pos, t.lsb, t.width, t.op, [order[a] for a in t.args],
+                            t.stage, sch.last[t.index]] for t in kept],
+                 "outputs": {name: [order[i] for i in t] if isinstance(t, tuple) else
+                             None if t is None else order[t]
+                             for name, t in sorted(sch.outputs.items())}}
+    return json.dumps([options, shape], sort_keys=True)
 
 
 def narrowed(cfg: Config, stage: int, bits: int) -> Config | None:
@@ -120,6 +168,8 @@ class Row:
     measured: list = field(default_factory=list)  # Measurement per seed
     forced: bool = False  # measure even when the prediction is low (uneven variants)
     spawned: bool = False  # its uneven variants have been added
+    basis: float | None = None  # the corrected prediction when it was sent to be measured
+    same: list = field(default_factory=list)  # labels of candidates with the same circuit
 
     @property
     def config(self) -> Config:
@@ -163,7 +213,7 @@ class Row:
     def measured_stage(self) -> int | None:
         """The stage whose register ends the measured critical path, when its name tells."""
         for m in self.ok:
-            stage = harness.stage_of(m.end, len(self.plan.slices))
+            stage = harness.stage_of(m.end, self.plan)
             if stage is not None:
                 return stage
         return None
@@ -204,6 +254,16 @@ def best(rows: list[Row]) -> Row | None:
     return max(measured, key=lambda r: (r.mhz, [-x for x in rank(r)])) if measured else None
 
 
+def distinct(rows: list[Row]) -> list[Row]:
+    """One row per circuit (`circuit`), the first of each; the others' labels go to `same`."""
+    kept: dict[str, Row] = {}
+    for r in rows:
+        first = kept.setdefault(circuit(r.plan), r)
+        if first is not r:
+            first.same.append(r.label)
+    return list(kept.values())
+
+
 def scale(rows: list[Row]) -> dict[str, float]:
     """Per cell style: median of measured / predicted, to correct the model as results come."""
     ratios: dict[str, list[float]] = {}
@@ -213,38 +273,93 @@ def scale(rows: list[Row]) -> dict[str, float]:
     return {cell: statistics.median(v) for cell, v in ratios.items()}
 
 
-def promising(row: Row, target: float, factors: dict[str, float]) -> bool:
-    """Could this unmeasured candidate meet the target? (No prediction: assume it could.)"""
-    if row.forced or row.predicted is None:
+def corrected(row: Row, factors: dict[str, float]) -> float | None:
+    """The model's prediction times its cell style's measured/predicted ratio so far."""
+    if row.predicted is None:
+        return None
+    return round(row.predicted * factors.get(row.config.cell, 1.0), 1)
+
+
+def kind(row: Row) -> tuple:
+    """Candidates compared by their slowest stage: same cell style, mode and mode options
+    other than how many levels or bits a stage takes."""
+    c = row.config
+    return (c.cell, c.pipeline, c.local_width if c.pipeline == "levels" else 0,
+            0 if c.pipeline == "slices" else c.wire_registers)
+
+
+def bound(row: Row, rows: list[Row], target: float) -> Row | None:
+    """A measured miss of `row`'s kind whose slowest stage is no deeper than `row`'s (the
+    deepest such, the closest to `row`), or None; with one, `row`, which has no prediction,
+    is taken to miss too."""
+    misses = [m for m in rows if m.mhz is not None and m.mhz < target and kind(m) == kind(row)
+              and m.plan.slowest[0].delay <= row.plan.slowest[0].delay]
+    return max(misses, key=lambda m: (m.plan.slowest[0].delay, m.mhz)) if misses else None
+
+
+def promising(row: Row, target: float, factors: dict[str, float], rows: list[Row]) -> bool:
+    """Could this unmeasured candidate meet the target?  By its corrected prediction, else
+    by the measured misses of its kind (`bound`)."""
+    if row.forced:
         return True
-    return row.predicted * factors.get(row.config.cell, 1.0) >= target * (1 - MARGIN)
+    if row.predicted is None:
+        return bound(row, rows, target) is None
+    return corrected(row, factors) >= target * (1 - MARGIN)
 
 
 def next_batch(rows: list[Row], target: float, size: int) -> list[Row]:
     """The candidates to place and route next; empty when the answer is confirmed.
 
     Confirmed: a measured candidate meets the target and every candidate the rule would
-    prefer is measured or predicted to miss by more than MARGIN.  With no promising
+    prefer is measured or taken to miss (predicted to miss by more than MARGIN, or bounded
+    by a measured miss of its kind).  Candidates with a prediction go in the order of the
+    rule; of the ones without, each kind sends its middle candidate (by the rule's order),
+    which halves what is left of that kind whether it meets or misses.  With no promising
     candidate left and nothing measured, the best `size` predictions are measured so the
     table can show how far off the target is.
     """
     factors = scale(rows)
     chosen = select(rows, target)
     open_rows = [r for r in rows if not r.done]
-    todo = [r for r in open_rows if promising(r, target, factors)
+    todo = [r for r in open_rows if promising(r, target, factors, rows)
             and (chosen is None or rank(r) < rank(chosen))]
     if not todo and not any(r.measured for r in rows):
         todo = sorted(open_rows, key=lambda r: -(r.predicted or 0))[:max(size, 1)]
+    blind: dict[tuple, list[Row]] = {}
+    for r in sorted(todo, key=rank):
+        if r.predicted is None and not r.forced:
+            blind.setdefault(kind(r), []).append(r)
+    probes = {id(group[(len(group) - 1) // 2]) for group in blind.values()}
+    todo = [r for r in todo if r.predicted is not None or r.forced or id(r) in probes]
     return sorted(todo, key=rank)[:max(size, 1)]
+
+
+def why_not_run(row: Row, rows: list[Row], target: float, factors: dict[str, float],
+                chosen: Row | None) -> str:
+    """Why an unmeasured candidate was not placed and routed (for the table)."""
+    if chosen is not None and rank(row) > rank(chosen):
+        what = ("a higher latency" if row.latency > chosen.latency
+                else "the same latency and more register bits" if row.register_bits
+                > chosen.register_bits else "the same latency and register bits")
+        return f"not run: {what} than the chosen {chosen.label}"
+    if row.predicted is None:
+        miss = bound(row, rows, target)
+        if miss is not None:
+            return (f"not run: no shorter stages than {miss.label}, which measured "
+                    f"{miss.mhz:g} < {target:g} MHz")
+        return "not run"
+    return (f"not run: predicted {corrected(row, factors):g} < {1 - MARGIN:g} x "
+            f"{target:g} MHz")
 
 
 def uneven_rows(rows: list[Row], target: float, make_row) -> list[Row]:
     """New uneven variants of even candidates that just missed: narrow the slowest stage.
 
     The slowest stage is where the measured critical path ends (`stage` of the first seed),
-    or the plan's slowest stage.  `make_row(config, origin)` builds the Row.
+    or the plan's slowest stage.  `make_row(config, origin)` builds the Row; a variant whose
+    circuit is already a candidate is left out.
     """
-    known = {identity(r.config) for r in rows}
+    known = {circuit(r.plan) for r in rows}
     new = []
     for r in rows:
         if r.origin != "even" or r.config.pipeline != "slices" or r.mhz is None or r.mhz >= target \
@@ -254,9 +369,11 @@ def uneven_rows(rows: list[Row], target: float, make_row) -> list[Row]:
         stage = r.slowest_stage
         for bits in (1, 2):
             cfg = narrowed(r.config, stage, bits)
-            if cfg is not None and identity(cfg) not in known:
-                known.add(identity(cfg))
-                row = make_row(cfg, f"uneven of {r.label}")
+            if cfg is None:
+                continue
+            row = make_row(cfg, f"uneven of {r.label}")
+            if circuit(row.plan) not in known:
+                known.add(circuit(row.plan))
                 row.forced = True
                 new.append(row)
     return new

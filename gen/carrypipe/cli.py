@@ -10,15 +10,16 @@ are one line on stderr, "carrypipe: error: ...", naming the key, tool or path.
 from __future__ import annotations
 
 import contextlib
-import math
+import re
 import signal
 import sys
 from pathlib import Path
 
 import click
 
-from . import __version__, emit, output, report, sim, tools
-from .config import ConfigError, check_split, load, split_span
+from . import __version__, candidates, devices, emit, output, report, sim, tools, units
+from .config import (CELLS, MAX_CONFIG_BYTES, PIPELINES, TREES, ConfigError, check_split,
+                     load, read_regular, reads, split_span)
 from .plan import make_plan
 from .prove import METHODS as PROOF_METHODS
 from .vectors import suite
@@ -47,6 +48,7 @@ class EnvironmentFault(_OneLineError):
 
 # click >= 8.2 raises this (a UsageError) to show the help of a bare `carrypipe`: keep it.
 _SHOW_HELP = getattr(click.exceptions, "NoArgsIsHelpError", ())
+MAX_DEPTH = 1000  # cycles `prove --depth` may unroll
 
 
 @contextlib.contextmanager
@@ -118,10 +120,11 @@ def load_plan(config_path: str, slice_width=None, slices=None):
         cfg = load(config_path)
         span, what = split_span(cfg)
         for option, value in (("--slice-width", slice_width), ("--slices", slices)):
-            if value is not None and cfg.pipeline != "slices":
+            if value is not None and not reads("slices", cfg.unit, cfg.pipeline, cfg.tree):
                 raise ConfigError(f"{option}: value {value!r} is not allowed with pipeline "
                                   f"{cfg.pipeline!r} ({Path(config_path).name}); expected "
-                                  "--slice-width or --slices only with pipeline 'slices'")
+                                  "--slice-width or --slices only with pipeline 'slices' "
+                                  "(or a comparator's 'levels')")
             if value is not None and span == 0:
                 raise ConfigError(f"{option}: value {value!r} is not allowed: "
                                   f"{Path(config_path).name} has no final adder to split")
@@ -129,19 +132,17 @@ def load_plan(config_path: str, slice_width=None, slices=None):
             raise ConfigError("options --slice-width and --slices are both given; "
                               "expected at most one of them")
         if slice_width is not None:
-            if isinstance(slice_width, str):  # command line: a non-number is reported as given
-                try:
-                    slice_width = int(slice_width)
-                except ValueError:
-                    pass
+            if isinstance(slice_width, str) and PLAIN_INT.match(slice_width):
+                slice_width = int(slice_width)  # else reported as given
             cfg = cfg.with_split(check_split("--slice-width", "slice_width", slice_width,
                                              span, what))
         elif slices is not None:
-            try:
-                parts = [int(x) for x in slices.split(",")]
-            except ValueError:
+            parts = slices.split(",")
+            if not all(PLAIN_INT.match(x) for x in parts):
                 raise ConfigError(f"--slices: key 'slices': value {slices!r} is not allowed; "
-                                  "expected comma-separated positive integers") from None
+                                  "expected comma-separated positive integers written in "
+                                  "plain decimal digits")
+            parts = [int(x) for x in parts]
             cfg = cfg.with_split(check_split("--slices", "slices", parts, span, what))
     except ConfigError as exc:
         raise UserError(str(exc)) from None
@@ -193,7 +194,7 @@ def build(config, out_dir, vectors, seed):
               help="Give up on an external simulator (compile and run) after this many "
                    "seconds.")
 def check(config, vectors, seed, simulator, timeout):
-    """Simulate directed and random vectors and compare with Python integer addition."""
+    """Simulate directed and random vectors and compare with the unit's Python reference."""
     plan = load_plan(config)
     chosen = simulator or sim.default_simulator()
     if simulator is None:
@@ -235,10 +236,10 @@ def plan_cmd(config, slice_width, slices, chart_path):
 
 @main.command()
 @click.argument("target", type=click.Path())
-@click.option("--depth", type=click.IntRange(1, 1000),
-              help="Cycles to unroll, more than the latency; results are compared from cycle "
-                   "latency+1 up to this one [default: latency + 1, which already covers "
-                   "every later cycle].")
+@click.option("--depth", metavar="N",
+              help=f"Cycles to unroll: an integer above the unit's latency, at most "
+                   f"{MAX_DEPTH}; results are compared from cycle latency+1 up to this one "
+                   "[default: latency + 1, which already covers every later cycle].")
 @click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
               help="Give up on the proof (every Yosys run and solver call) after this many "
                    "seconds in all.")
@@ -256,15 +257,27 @@ def prove(target, depth, timeout, method):
     from . import prove as proof
 
     plan, verilog, what = load_target(target)
-    if depth is not None and depth <= plan.latency:
-        raise UserError(f"--depth: value {depth} is not allowed; expected an integer above "
-                        f"the latency ({plan.latency})")
+    if depth is not None:
+        depth = _depth(depth, plan.latency)
     if method == "compositional" and not plan.can_compose:
         raise UserError("--method: value compositional is not allowed for this unit; it "
                         f"covers {proof.COMPOSABLE} (use direct)")
     result = proof.prove(plan, depth=depth, timeout=timeout, method=method, verilog=verilog)
     click.echo(f"{what}: {result.message}")
     sys.exit(0 if result.proved else 1)
+
+
+def _depth(text: str, latency: int) -> int:
+    """`--depth` as an integer above the latency and at most MAX_DEPTH, spelled in plain
+    decimal digits, or a one-line UserError saying so."""
+    value = int(text) if PLAIN_INT.match(text) else None
+    if value is None or not latency < value <= MAX_DEPTH:
+        shown = repr(text) if value is None else value
+        most = f", at most {MAX_DEPTH}" if value is None or value > MAX_DEPTH else ""
+        spelled = ", written in plain decimal digits" if value is None else ""
+        raise UserError(f"--depth: value {shown} is not allowed; expected an integer above "
+                        f"the latency ({latency}){most}{spelled}")
+    return value
 
 
 def load_target(target: str):
@@ -282,15 +295,30 @@ def load_target(target: str):
 
 # ---- fit (timing closure with synthesis and place-and-route; see docs/fit.md) ----
 
+# Numbers on the command line are spelled as in a config: plain decimal digits (no `_`,
+# `0x`, exponent or sign), at most 20 of them before and after the point.
+PLAIN_INT = re.compile(r"(0|[1-9][0-9]{0,19})\Z")
+PLAIN_NUMBER = re.compile(r"(0|[1-9][0-9]{0,19})(\.[0-9]{1,20})?\Z")
+
+
 def _option_number(option: str, text: str, kind, low: float, allowed: str):
     """Parse a numeric option into `kind` (int or float) above `low`, or a one-line UserError."""
-    try:
-        value = kind(text)
-    except (TypeError, ValueError):
-        value = None
-    if value is None or not math.isfinite(value) or not value > low:
-        raise UserError(f"{option}: value {text!r} is not allowed; expected {allowed}")
+    pattern = PLAIN_INT if kind is int else PLAIN_NUMBER
+    value = kind(text) if isinstance(text, str) and pattern.match(text) else None
+    if value is None or not value > low:
+        raise UserError(f"{option}: value {text!r} is not allowed; expected {allowed}, "
+                        "written in plain decimal digits")
     return value
+
+
+def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str, ...]:
+    """A comma-separated option value as a tuple without repeats, each item in `allowed`."""
+    items = tuple(dict.fromkeys(x.strip() for x in text.split(",")))
+    for item in items:
+        if item not in allowed:
+            raise UserError(f"{option}: value {item!r} is not allowed; expected a comma-"
+                            f"separated list of {', '.join(allowed)}")
+    return items
 
 
 @main.command()
@@ -298,9 +326,15 @@ def _option_number(option: str, text: str, kind, low: float, allowed: str):
 @click.option("--target-mhz", "target", required=True, metavar="MHZ",
               help="Clock the unit must reach, in MHz.")
 @click.option("--device", required=True, metavar="DEVICE",
-              help="Device to place and route for: ice40-hx8k, ice40-up5k, ecp5-25k, ecp5-85k.")
-@click.option("--cells", metavar="LIST", help="Comma-separated cell styles to try "
-              "[default: the config's cell].")
+              help="Device to place and route for: " + ", ".join(devices.DEVICES) + ".")
+@click.option("--cells", metavar="LIST", help="Comma-separated cell styles to try, in every "
+              f"mode: {', '.join(CELLS)} [default: the config's cell; in the prefix modes "
+              "the config's cell if it is a prefix style, else "
+              f"{' and '.join(candidates.DEFAULT_PREFIX_STYLES)}].")
+@click.option("--modes", metavar="LIST", help="Comma-separated pipeline modes to try: "
+              f"{', '.join(PIPELINES)} [default: all].")
+@click.option("--trees", metavar="LIST", help="A sum's or multiplier's trees to try: "
+              f"{', '.join(TREES)} [default: all].")
 @click.option("--jobs", default="1", show_default=True, metavar="N",
               help="Candidates placed and routed at once (local worker processes).")
 @click.option("--seeds", default="1", show_default=True, metavar="N",
@@ -313,24 +347,33 @@ def _option_number(option: str, text: str, kind, low: float, allowed: str):
               help="Run candidates on this Dask distributed scheduler instead of locally.")
 @click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False),
               help="Output folder [default: out/<name>].")
-def fit(config, target, device, cells, jobs, seeds, no_cache, tool_kind, timeout, cluster,
-        out_dir):
+def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool_kind, timeout,
+        cluster, out_dir):
     """Measure candidate splits with Yosys and nextpnr; keep the least latency meeting MHZ."""
-    from . import devices, executor, fit as fitting
-    from .config import CELLS
+    from . import executor, fit as fitting
     from .toolflow import TOOLS
 
     base = load_plan(config).config
+    # The file as written: the chosen split goes back into it (config_edit), read once now.
+    source = read_regular(config, MAX_CONFIG_BYTES).decode("utf-8")
     target_mhz = _option_number("--target-mhz", target, float, 0, "a number of MHz above 0")
     if device not in devices.DEVICES:
         raise UserError(f"--device: value {device!r} is not allowed; expected one of "
                         f"{', '.join(devices.DEVICES)}")
-    styles = tuple(cells.split(",")) if cells is not None else (base.cell,)
-    for style in styles:
-        if style not in CELLS:
-            raise UserError(f"--cells: value {style!r} is not allowed; expected a comma-"
-                            f"separated list of {', '.join(CELLS)}")
-    styles = tuple(dict.fromkeys(styles))
+    styles = None if cells is None else _option_list("--cells", cells, CELLS)
+    chosen_modes = PIPELINES if modes is None else _option_list("--modes", modes, PIPELINES)
+    own = units.KINDS[base.unit].modes
+    if not set(chosen_modes) & set(own):
+        raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with unit "
+                        f"{base.unit!r}; expected one of {', '.join(own)}")
+    chosen_trees = TREES if trees is None else _option_list("--trees", trees, TREES)
+    if trees is not None and not units.KINDS[base.unit].tree:
+        raise UserError(f"--trees: value {trees!r} is not allowed with unit {base.unit!r}; "
+                        "expected it only with unit 'sum' or 'multiplier'")
+    if not candidates.generate(base, styles, chosen_modes, chosen_trees):
+        raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with "
+                        f"--cells {','.join(styles or ())}; expected a prefix style in --cells "
+                        "for the levels and blocks modes, or the slices mode")
     n_jobs = _option_number("--jobs", jobs, int, 0, "an integer of 1 or more")
     n_seeds = _option_number("--seeds", seeds, int, 0, "an integer of 1 or more")
     if tool_kind not in TOOLS:
@@ -344,7 +387,7 @@ def fit(config, target, device, cells, jobs, seeds, no_cache, tool_kind, timeout
     dest = Path(out_dir) if out_dir else Path("out") / base.name
     output.check_folder(dest)  # before the long run, not after it
     settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
-                                limit, not no_cache)
+                                limit, not no_cache, chosen_modes, chosen_trees)
     runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)
     try:
         outcome = fitting.run(base, settings, runner, echo=lambda t: click.echo(t, err=True))
@@ -357,6 +400,6 @@ def fit(config, target, device, cells, jobs, seeds, no_cache, tool_kind, timeout
     for note in outcome.notes:
         click.echo(f"note: {note}")
     click.echo(fitting.summary(outcome))
-    written = _write_folder(fitting.files(outcome), dest)
+    written = _write_folder(fitting.files(outcome, source), dest)
     click.echo(f"wrote {len(written)} files -> {dest}/")
     sys.exit(0 if outcome.chosen else 1)

@@ -1,8 +1,9 @@
 """`fit`: predict every candidate split, place and route the promising ones, pick the winner.
 
-Flow: candidates (config variants) -> plan figures and a model prediction for each -> the
-batches `candidates.next_batch` asks for are measured (cache first, then the executor) ->
-uneven variants of near misses join -> stop when the answer is confirmed.  `run` returns an
+Flow: candidates (config variants of the modes and cell styles asked for) -> plan figures
+and a model prediction for each, one candidate per circuit -> the batches
+`candidates.next_batch` asks for are measured (cache first, then the executor) -> uneven
+variants of near misses join -> stop when the answer is confirmed.  `run` returns an
 `Outcome` and writes nothing; `files` turns it into the output folder's contents.
 """
 
@@ -14,9 +15,8 @@ import json
 import time
 from dataclasses import dataclass, field
 
-import yaml
-
-from . import __version__, cache, candidates, devices, emit, harness, model, plot, toolflow
+from . import __version__, cache, candidates, config, config_edit, devices, emit, harness, model
+from . import plot, toolflow
 from .candidates import Row
 from .config import Config
 from .plan import make_plan
@@ -35,11 +35,12 @@ INPUT_RANK_NOTE = ("the config registers the inputs (`register_inputs: true`); w
 class Settings:
     target_mhz: float
     device: devices.Device
-    cells: tuple[str, ...]
+    cells: tuple[str, ...] | None = None  # None: the config's cell (and prefix defaults)
     seeds: int = 1
     tools: str = "wheel"
     timeout: float | None = None
     use_cache: bool = True
+    modes: tuple[str, ...] = config.PIPELINES
 
 
 @dataclass
@@ -50,6 +51,8 @@ class Outcome:
     chosen: Row | None
     best: Row | None
     notes: list[str] = field(default_factory=list)
+    measurements: int = 0  # seeds x candidates measured, from the cache or the tools
+    cached: int = 0  # of those, served from the cache
 
 
 def make_row(cfg: Config, origin: str, device: devices.Device) -> Row:
@@ -96,18 +99,24 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     dev, target = settings.device, settings.target_mhz
     versions = toolflow.versions(dev.family, settings.tools, settings.timeout)
     store = store or cache.Cache(read=settings.use_cache)
-    rows = [make_row(c, "even", dev) for c in candidates.generate(base, settings.cells)]
+    rows = candidates.distinct([make_row(c, "even", dev) for c in
+                                candidates.generate(base, settings.cells, settings.modes)])
     progress, warned = Progress(echo), False
     seeds = tuple(range(1, settings.seeds + 1))
+    measurements = cached = 0
     while batch := candidates.next_batch(rows, target, executor.jobs):
         jobs, keys = {}, {}
+        factors = candidates.scale(rows)
         for row in batch:
+            row.basis = candidates.corrected(row, factors)
             norm = row.config.normalized()
             for seed in seeds:
                 keys[id(row), seed] = cache.key(norm, dev.name, seed, versions)
                 hit = store.get(keys[id(row), seed], seed)
                 if hit is not None:
                     row.measured.append(hit)
+                    cached += 1
+            measurements += len(seeds)
             missing = tuple(s for s in seeds if all(m.seed != s for m in row.measured))
             if missing:
                 jobs[id(row)] = (row, toolflow.Job(row.config.normalized(), dev.name,
@@ -131,7 +140,13 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                 mark_no_fit(row, dev, full[0].logic_used or 0, full[0].message)
         rows += candidates.uneven_rows(rows, target, lambda c, o: make_row(c, o, dev))
     chosen = candidates.select(rows, target)
-    outcome = Outcome(settings, rows, versions, chosen, candidates.best(rows))
+    outcome = Outcome(settings, rows, versions, chosen, candidates.best(rows),
+                      measurements=measurements, cached=cached)
+    if dev.name not in model.models():
+        outcome.notes.append(f"no delay model for {dev.name} yet: candidates are measured "
+                             "without a prediction, each kind (cell style and mode) probed at "
+                             "its middle split, and a split whose slowest stage is no shorter "
+                             "than a measured miss of its kind is taken to miss")
     if base.register_inputs and any(r.config.pipeline == "levels" and r.ok for r in rows):
         outcome.notes.append(INPUT_RANK_NOTE)
     for row in rows:
@@ -157,7 +172,7 @@ def environment_failure(outcome: Outcome) -> str | None:
 
 def _queued(rows: list[Row], target: float) -> int:
     factors = candidates.scale(rows)
-    return sum(1 for r in rows if not r.done and candidates.promising(r, target, factors))
+    return sum(1 for r in rows if not r.done and candidates.promising(r, target, factors, rows))
 
 
 def ordered(rows: list[Row]) -> list[Row]:
@@ -165,103 +180,154 @@ def ordered(rows: list[Row]) -> list[Row]:
     return sorted(rows, key=lambda r: (*candidates.rank(r), r.label))
 
 
-COLUMNS = ("latency", "candidate", "origin", "register_bits", "predicted_mhz", "measured_mhz",
-           "luts", "carry", "flip_flops", "meets", "note")
+COLUMNS = ("latency", "candidate", "origin", "register_bits", "predicted_mhz", "model_mhz",
+           "measured_mhz", "luts", "carry", "flip_flops", "meets", "note")
 
 
-def record(row: Row, target: float, factors: dict[str, float]) -> dict:
+def record(row: Row, outcome: Outcome) -> dict:
     """The figures of one candidate (the CSV columns; the JSON adds the per-seed detail).
 
-    `factors` (`candidates.scale`) tells a candidate skipped for its prediction from one
-    skipped because a preferred candidate was confirmed first.
+    `predicted_mhz` is the prediction that decided: the model's figure corrected by its cell
+    style's measured/predicted ratio when the candidate was sent to be measured (for one
+    never measured, the final ratio); `model_mhz` is the model's own figure, given only
+    where it differs.
     """
+    target, rows = outcome.settings.target_mhz, outcome.rows
+    factors = candidates.scale(rows)
     first = row.measured[0] if row.measured else None
+    decided = row.basis if row.measured else candidates.corrected(row, factors)
     if not row.fits:
         note = "does not fit: " + row.size
     elif row.ok:
-        note = f"critical path {row.ok[0].start} -> {row.ok[0].end}"
-        if row.ok[0].inside is False:
+        path = median_seed(row)
+        note = f"critical path {path.start} -> {path.end}"
+        if path.inside is False:
             note += " (not the unit's: it ends in the harness)"
     elif row.measured:
         note = f"{first.status}: {first.message}"
     else:
-        skipped = not candidates.promising(row, target, factors)
-        note = ("not run: predicted to miss" if skipped
-                else "not run: a preferred candidate was confirmed")
+        note = candidates.why_not_run(row, rows, target, factors, outcome.chosen)
+    if row.same:
+        note += "; same circuit as " + ", ".join(row.same)
     return {"latency": row.latency, "candidate": row.label, "origin": row.origin,
-            "register_bits": row.register_bits, "predicted_mhz": row.predicted,
+            "register_bits": row.register_bits, "predicted_mhz": decided,
+            "model_mhz": row.predicted if row.predicted != decided else None,
             "measured_mhz": row.mhz, "luts": first.luts if first else None,
             "carry": first.carry if first else None,
             "flip_flops": first.flip_flops if first else None,
             "meets": candidates.meets(row, target), "note": note}
 
 
+def median_seed(row: Row):
+    """The measurement at the median Fmax (the lower middle one for an even count)."""
+    ok = sorted(row.ok, key=lambda m: (m.mhz, m.seed))
+    return ok[(len(ok) - 1) // 2]
+
+
 def table(outcome: Outcome) -> str:
     """The table printed on screen."""
-    target = outcome.settings.target_mhz
     wide = max([24, *(len(r.label) for r in outcome.rows)])
-    head = (f"{'lat':>3}  {'candidate':<{wide}} {'regs':>6} {'pred':>6} {'MHz':>7} {'LUTs':>6} "
-            f"{'carry':>5} {'FFs':>6}  {'':4} note")
-    lines, factors = [head], candidates.scale(outcome.rows)
+    head = (f"{'lat':>3}  {'candidate':<{wide}} {'regs':>6} {'pred':>6} {'model':>6} "
+            f"{'MHz':>7} {'LUTs':>6} {'carry':>5} {'FFs':>6}  {'':4} note")
+    lines = [head]
     for row in ordered(outcome.rows):
-        r = record(row, target, factors)
+        r = record(row, outcome)
         mark = ("<- " if row is outcome.chosen else "") + ("ok" if r["meets"] else "")
         lines.append(f"{r['latency']:>3}  {r['candidate']:<{wide}} {r['register_bits']:>6} "
-                     f"{_num(r['predicted_mhz'])} {_num(r['measured_mhz'], 7)} "
-                     f"{_num(r['luts'])} {_num(r['carry'], 5)} {_num(r['flip_flops'])}  "
-                     f"{mark:<4} {r['note']}")
+                     f"{_num(r['predicted_mhz'])} {_num(r['model_mhz'], blank='')} "
+                     f"{_num(r['measured_mhz'], 7)} {_num(r['luts'])} {_num(r['carry'], 5)} "
+                     f"{_num(r['flip_flops'])}  {mark:<4} {r['note']}")
+    lines.append("pred: the model corrected by the measured/predicted ratio of its cell style "
+                 "(what decided); model: the model's own figure where it differs")
     return "\n".join(lines)
 
 
-def _num(v, width: int = 6) -> str:
-    return f"{'-' if v is None else v:>{width}}"
+def _num(v, width: int = 6, blank: str = "-") -> str:
+    return f"{blank if v is None else v:>{width}}"
 
 
 def summary(outcome: Outcome) -> str:
     s = outcome.settings
     seeds = f"median of {s.seeds} seeds" if s.seeds > 1 else "seed 1"
+    if not s.use_cache:
+        source = f"; {outcome.measurements} measurements, the cache not read (--no-cache)"
+    else:
+        source = (f"; {outcome.cached} of {outcome.measurements} measurements from the cache")
     if outcome.chosen:
         c = outcome.chosen
         return (f"chosen: {c.label}, latency {c.latency}, {c.register_bits} register bits, "
-                f"{c.mhz} MHz ({seeds}) >= target {s.target_mhz:g} MHz on {s.device.name}")
+                f"{c.mhz} MHz ({seeds}) >= target {s.target_mhz:g} MHz on {s.device.name}"
+                + source)
     if outcome.best:
         b = outcome.best
         return (f"no candidate meets {s.target_mhz:g} MHz on {s.device.name}; best: {b.label}, "
-                f"latency {b.latency}, {b.mhz} MHz ({seeds})")
-    return f"no candidate meets {s.target_mhz:g} MHz on {s.device.name}; none could be measured"
+                f"latency {b.latency}, {b.mhz} MHz ({seeds})" + source)
+    return (f"no candidate meets {s.target_mhz:g} MHz on {s.device.name}; none could be "
+            "measured" + source)
 
 
-def files(outcome: Outcome) -> dict[str, str | bytes]:
-    """The output folder: the chosen unit as `build` writes it, its config, the figures."""
+def measured_section(outcome: Outcome) -> str:
+    """The chosen unit's measurement, for the end of its report: device, tools, the seeds'
+    Fmax and the critical path at the median seed."""
+    s, row = outcome.settings, outcome.chosen
+    path = median_seed(row)
+    stage = harness.stage_of(path.end, row.plan)
+    where = f", ends in stage {stage}" if stage is not None else ", ends outside the unit's stages"
+    per_seed = ", ".join(f"seed {m.seed}: {m.mhz:g}" for m in row.ok)
+    return "\n".join([
+        "Measured by carrypipe fit (open-tool estimate, not sign-off)",
+        f"  Device    {s.device.name} ({s.device.part}), target {s.target_mhz:g} MHz",
+        f"  Tools     {', '.join(outcome.tool_versions.values())}",
+        f"  Fmax      {row.mhz:g} MHz, median of {len(row.ok)} seed(s) ({per_seed})",
+        f"  Critical path at seed {path.seed}: {path.start} -> {path.end}{where}",
+        ""])
+
+
+def chart_figures(outcome: Outcome) -> tuple[dict[int, float], str]:
+    """The chart's measured figure (stage -> ns) and the words beside it: the median Fmax's
+    period at the stage where the critical path ends (the unit-gate model's slowest stage
+    when the path names none), the seeds, the device and the path."""
+    s, row = outcome.settings, outcome.chosen
+    path = median_seed(row)
+    stage = harness.stage_of(path.end, row.plan)
+    seeds = f"median of seeds 1-{s.seeds}" if s.seeds > 1 else "seed 1"
+    at = "" if stage is not None else "; stage by the unit-gate model"
+    return ({row.plan.slowest[0].index if stage is None else stage: round(1000 / row.mhz, 3)},
+            f"{row.mhz:g} MHz, {seeds}, {s.device.name}, nextpnr; critical path "
+            f"{path.start} -> {path.end}{at}")
+
+
+def files(outcome: Outcome, source: str | None = None) -> dict[str, str | bytes]:
+    """The output folder: the chosen unit as `build` writes it (its report and chart with
+    the measurement), its config, the figures.  `source` is the user's config text: the
+    written `<name>.yaml` is that file with only the keys `fit` chose changed."""
     s = outcome.settings
     target = s.target_mhz
-    rows, factors = ordered(outcome.rows), candidates.scale(outcome.rows)
+    rows = ordered(outcome.rows)
     out: dict[str, str | bytes] = {}
     if outcome.chosen:
         chosen = outcome.chosen
         cfg = chosen.config
-        stage = chosen.measured_stage  # the chart marks it with the measured path
-        out.update(emit.render(chosen.plan, measured=None if stage is None else {
-            stage: round(1000 / chosen.mhz, 3)}, measured_source=(
-                f"critical path at the median Fmax on {s.device.name}, nextpnr")))
-        out[f"{cfg.name}.yaml"] = (
-            f"# Chosen by carrypipe fit: {outcome.chosen.mhz} MHz on {s.device.name} "
-            f"(target {target:g} MHz).\n# Rebuild with: carrypipe build {cfg.name}.yaml\n"
-            + yaml.safe_dump(cfg.normalized(), sort_keys=False, default_flow_style=None))
+        measured, words = chart_figures(outcome)
+        out.update(emit.render(chosen.plan, measured=measured, measured_source=words))
+        out[f"{cfg.name}.txt"] += "\n" + measured_section(outcome)
+        out[f"{cfg.name}.yaml"] = config_edit.rewrite(
+            source if source is not None else f"name: {cfg.name}\nwidth: {cfg.width}\n", cfg)
     buf = io.StringIO()
     writer = csv.DictWriter(buf, fieldnames=COLUMNS, lineterminator="\n")
     writer.writeheader()
-    for row in rows:
-        writer.writerow({k: "" if v is None else v for k, v in record(row, target, factors).items()})
+    records = [record(row, outcome) for row in rows]
+    for rec in records:
+        writer.writerow({k: "" if v is None else v for k, v in rec.items()})
     out["fit.csv"] = buf.getvalue()
     doc = {
         "generator": {"name": "carrypipe", "version": __version__},
         "target_mhz": target, "device": s.device.name, "part": s.device.part,
         "seeds": s.seeds, "tools": outcome.tool_versions,
         "chosen": outcome.chosen.label if outcome.chosen else None,
-        "candidates": [{**record(r, target, factors), "config": r.config.normalized(),
+        "candidates": [{**rec, "config": r.config.normalized(), "same_circuit": r.same,
                         "measurements": [{k: v for k, v in m.as_dict().items() if k != "seconds"}
-                                         for m in r.measured]} for r in rows],
+                                         for m in r.measured]} for r, rec in zip(rows, records)],
     }
     out["fit.json"] = json.dumps(doc, indent=2, sort_keys=True) + "\n"
     title = (f"{rows[0].config.name if rows else ''}: {s.device.name}, target "

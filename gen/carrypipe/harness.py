@@ -41,17 +41,27 @@ def inside_unit(end_cell: str, plan: Plan) -> bool:
     return not (end_cell.startswith(PREFIX) or shift_in)
 
 
-def stage_of(cell: str, stages: int) -> int | None:
-    """The unit stage whose register a path-end cell is, when its name tells.
+def stage_of(cell: str, plan: Plan) -> int | None:
+    """The unit stage (0-based) whose register a path-end cell is, when its name tells.
 
-    Stage registers keep `sum_stage_<i>` / `carry_stage_<i>`; the last stage's registers
-    drive the unit's outputs and are named after them (`unit.cout`, `res_sum`, ...).
+    A register keeps the name of its plan word (`sum_stage_2`, `grp_gen_1_4`, ...) followed
+    by the tool's cell suffix (`_TRELLIS_FF_Q`, `_DFF_Q_3`, `[5]`); a word loaded at edge e
+    ends a path of stage e - 1 (counted after the input register).  The output registers
+    are named after the unit's outputs (`unit.sum`, `unit.cout`, or the harness wire
+    `res_...` they drive): the last stage.  Input registers (loaded from the harness) and
+    harness registers name no stage.
     """
-    m = re.search(r"(?:sum|carry)_stage_(\d+)", cell)
-    if m:
-        return int(m.group(1))
-    if cell.startswith(("res_", f"{INSTANCE}.cout", f"{INSTANCE}.sum")):
-        return stages - 1
+    name = cell[len(INSTANCE) + 1:] if cell.startswith(INSTANCE + ".") else None
+    if name is not None:
+        found = [w for w in plan.words if w.kind != "input" and re.match(
+            rf"{re.escape(w.name)}(?:_[A-Z]|\[|\$|$)", name)]
+        if found:
+            word = max(found, key=lambda w: len(w.name))
+            return word.edge - plan.input_cycles - 1
+    outputs = "|".join(re.escape(p.name) for p in plan.ports if p.direction == "output")
+    if cell.startswith("res_") or re.match(rf"{INSTANCE}\.({outputs})(?:_[A-Z]|\[|\$|$)",
+                                           cell):
+        return len(plan.slices) - 1
     return None
 
 

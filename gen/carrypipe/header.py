@@ -19,11 +19,33 @@ def timing_phrase(plan) -> str:
 
 
 def register_phrase(plan) -> str:
-    return ", ".join(f"{k} {v}" for k, v in plan.registers.as_dict().items())
+    """The register bits of the kinds the unit has, and the total."""
+    return ", ".join(f"{k} {v}" for k, v in plan.registers.as_dict().items()
+                     if v or k == "total")
 
 
 def bits(lo: int, hi: int) -> str:
     return f"{hi}:{lo}" if hi != lo else str(lo)
+
+
+def plural(count: int, noun: str, many: str | None = None) -> str:
+    """`1 stage`, `4 stages`."""
+    return f"{count} {noun if count == 1 else many or noun + 's'}"
+
+
+def stage_list(indices) -> str:
+    """Stage numbers for a sentence, every one named: each number when there are few
+    ("0, 2, 5"), runs of consecutive ones when there are many ("0, 2–255")."""
+    ordered = sorted(indices)
+    if len(ordered) <= 16:
+        return ", ".join(map(str, ordered))
+    runs: list[list[int]] = []
+    for i in ordered:
+        if runs and i == runs[-1][1] + 1:
+            runs[-1][1] = i
+        else:
+            runs.append([i, i])
+    return ", ".join(str(a) if a == b else f"{a}–{b}" for a, b in runs)
 
 
 def reset_phrase(plan) -> str:
@@ -64,7 +86,8 @@ def slice_title(plan, s) -> list[str]:
     """Stage i of a sliced unit: what the slice computes, what waits around it."""
     kind, n = plan.unit, plan.number(s.index)
     cycle = plan.input_cycles + s.index
-    chain = f" with {kind.chain[0]}_stage_{n - 1}" if s.index else ""
+    chain = (" with " + " and ".join(f"{f}_stage_{n - 1}" for f in kind.chain)
+             if s.index else "")
     which = f"the final adder's slice {s.index}" if plan.nest else f"slice {s.index}"
     out = [f"Stage {n}, loaded on edge {cycle + 1}: {which} {kind.verb} bits "
            f"{bits(s.lsb, s.msb)}{chain}."]

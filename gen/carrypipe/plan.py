@@ -134,7 +134,7 @@ class Stage:
     cell: str
     levels: tuple[int, ...]  # prefix levels evaluated here (1-based, as in the report)
     depth: int
-    nodes: int  # prefix nodes of those levels (before pruning)
+    nodes: int  # prefix nodes it evaluates (after pruning: only those some output needs)
     delay: int  # unit-gate critical path, register to register
     logic: str
     wait_before: int = 0
@@ -477,7 +477,8 @@ def make_sliced_plan(config: Config, nest: Nest | None = None) -> SlicedPlan:
         slices.append(Slice(
             index=index, lsb=lsb, width=width, cell=config.cell,
             carry_in=carry_in, carry_out=carry_out,
-            wait_before=index, wait_after=count - 1 - index,
+            wait_before=index,
+            wait_after=count - 1 - index if kind.result else 0,  # verdicts never wait
             depth=net.depth, nodes=net.nodes,
             delay=style.delay(width, carry_in, carry_out)))
         lsb += width

@@ -8,10 +8,11 @@ from __future__ import annotations
 
 import json
 from dataclasses import replace
+import textwrap
 from functools import singledispatch
 
 from . import __version__, cells
-from .header import bits, reset_phrase, timing_phrase
+from .header import bits, plural, reset_phrase, stage_list, timing_phrase
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
 
@@ -101,15 +102,21 @@ def manifest_text(plan: Plan, files: list[str]) -> str:
     return json.dumps(manifest(plan, files), indent=2, sort_keys=True) + "\n"
 
 
+def stages_phrase(stages) -> str:
+    """`stage 3`, `stages 0, 2`: every one named."""
+    indices = [s.index for s in stages]
+    return f"{'stage' if len(indices) == 1 else 'stages'} {stage_list(indices)}"
+
+
 def slowest_sentence(plan: Plan) -> str:
     delays = sorted({s.delay for s in plan.stages}, reverse=True)
     slow = plan.slowest
+    if len(plan.stages) == 1:
+        return f"One stage: {slow[0].delay} units."
     if len(delays) == 1:
         return f"Every stage has the same unit-gate delay: {slow[0].delay} units."
-    tied = [str(s.index) for s in slow]
-    which = f"stage {tied[0]}" if len(tied) == 1 else f"stages {', '.join(tied)}"
-    return (f"Slowest: {which} at {slow[0].delay} units, {slow[0].delay - delays[1]} more "
-            f"than the next slowest ({delays[1]}).")
+    return (f"Slowest: {stages_phrase(slow)} at {slow[0].delay} units, "
+            f"{slow[0].delay - delays[1]} more than the next slowest ({delays[1]}).")
 
 
 def report(plan: Plan) -> str:
@@ -128,9 +135,10 @@ def report(plan: Plan) -> str:
         *table(plan),
         "",
         "Register bits",
-        *(f"  {kind:<8} {n:>8}" for kind, n in plan.registers.as_dict().items()),
+        *(f"  {kind:<8} {n:>8}" for kind, n in plan.registers.as_dict().items()
+          if n or kind == "total"),
         "",
-        slowest_sentence(plan),
+        *textwrap.wrap(slowest_sentence(plan), 92),
         f"Delay model: {DELAY_MODEL}.",
         "",
     ]
@@ -158,12 +166,14 @@ def _(plan: SlicedPlan) -> list[str]:
     lines = ["Slices (LSB first; delay in the unit-gate model, register to register)",
              f"  {'stage':>5}  {'bits':>13}  {'width':>5}  {'levels':>6}  {'nodes':>6}  "
              f"{'delay':>5}  {'waits':>9}"]
+    result = plan.unit.result  # a comparator hands its verdicts on: no result waits
     for s in plan.stages:
+        after = s.wait_after if result else "–"
         lines.append(f"  {s.index:>5}  {slice_range(s):>13}  {s.width:>5}  {s.depth:>6}  "
-                     f"{s.nodes:>6}  {s.delay:>5}  {s.wait_before:>3} / {s.wait_after:<3}"
-                     f"{mark(s)}")
-    lines.append("  (waits: cycles the operand bits wait before the slice / the result "
-                 "bits after)")
+                     f"{s.nodes:>6}  {s.delay:>5}  {s.wait_before:>3} / {after:<3}"
+                     f"{mark(s)}".rstrip())
+    lines.append("  (waits: cycles the operand bits wait before the slice / the "
+                 + (f"{result} bits after)" if result else "verdicts never wait)"))
     return lines
 
 
@@ -171,23 +181,30 @@ def _(plan: SlicedPlan) -> list[str]:
 def _(plan: PrefixPlan) -> list[str]:
     c, sch = plan.config, plan.schedule
     mark = _marks(plan)
-    what = {"bits": "bits", "chains": f"blocks of {c.block_width} bits",
+    tree = sch.flavour == "compare"  # what is left of the network: count the kept nodes
+
+    def nodes(s):
+        return sch.kept_nodes(s.index + 1) if tree else s.nodes
+
+    what = {"bits": "bits", "chains": f"blocks of {plural(c.block_width, 'bit')}",
             "compare": "slices (compared in parallel)"}[sch.flavour]
-    net = "a balanced tree" if sch.flavour == "compare" else c.cell
-    lines = [f"Prefix network  {net} over {len(sch.widths)} {what}: {sch.network.depth} "
-             f"level(s), {sch.network.nodes} nodes",
-             f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or deskew)"]
+    head = "Verdict tree    a balanced tree" if tree else f"Prefix network  {c.cell}"
+    lines = [f"{head} over {len(sch.widths)} {what}: {sch.network.depth} level(s), "
+             f"{sch.kept_nodes() if tree else sch.network.nodes} nodes",
+             f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or deskew "
+             "triangles)"]
     if sch.flavour == "bits" and 0 < c.local_width < c.width:
         lines.append(f"          within local blocks of {c.local_width} bits, then across them")
     if sch.merged:
-        lines.append("          the last prefix level is merged into the sum stage")
+        lines.append("          the last tree level is merged into the verdict stage" if tree
+                     else "          the last prefix level is merged into the sum stage")
     if sch.wired:
         lines.append("          wire registers in front of prefix level(s) "
                      + ", ".join(str(k + 1) for k in sch.wired))
     lines += ["", "Stages (delay in the unit-gate model, register to register)",
               f"  {'stage':>5}  {'levels':>6}  {'nodes':>6}  {'delay':>5}  logic"]
     for s in plan.stages:
-        lines.append(f"  {s.index:>5}  {s.depth:>6}  {s.nodes:>6}  {s.delay:>5}  {s.logic}"
+        lines.append(f"  {s.index:>5}  {s.depth:>6}  {nodes(s):>6}  {s.delay:>5}  {s.logic}"
                      f"{mark(s)}")
     return lines
 
@@ -226,13 +243,17 @@ def _(plan: NativePlan) -> list[str]:
              "Stages (no delay model: synthesis chooses the logic)",
              f"  {'stage':>5}  logic"]
     return lines + [f"  {s.index:>5}  {s.logic}" for s in plan.stages]
+def _tip(text: str) -> list[str]:
+    """One tip as report lines: a dash, then lines of at most 92 characters."""
+    return textwrap.wrap(text, 92, initial_indent="  - ", subsequent_indent="    ",
+                         break_on_hyphens=False, break_long_words=False)
 
 
 def _input_tip(plan: Plan) -> list[str]:
     if plan.config.register_inputs:
         return []
-    return ["  - `register_inputs: true` takes the input routing out of the first stage "
-            "(one cycle more)."]
+    return _tip("`register_inputs: true` takes the input routing out of the first stage (one "
+                "cycle more).")
 
 
 @singledispatch
@@ -242,53 +263,94 @@ def tips(plan) -> list[str]:
 
 @tips.register
 def _(plan: SlicedPlan) -> list[str]:
-    """What a sliced unit could still try: only what its config does not do yet."""
-    c = plan.config
+    """What a sliced unit could still try: only what its config does not do yet, naming
+    every tied slowest stage."""
+    c, kind = plan.config, plan.unit
     slow = plan.slowest
+    more = "one cycle more per extra slice"
     out = []
-    if len(slow) < len(plan.stages) or plan.stages[0].width > 1:
-        where = ", ".join(f"{s.index} (bits {bits(s.lsb, s.msb)})" for s in slow)
-        out += [f"  - narrow the slowest stage{'s' if len(slow) > 1 else ''}: {where}; use an",
-                "    uneven `slices` list or a smaller `slice_width` (one cycle more per extra "
-                "slice);"]
+    if len(plan.stages) == 1 and c.width > 1:
+        out += _tip(f"cut the unit into slices (`slice_width` or `slices`): {more};")
+    elif len(slow) == len(plan.stages) and slow[0].width > 1:
+        out += _tip(f"every stage ties at {slow[0].delay} units: a smaller `slice_width` "
+                    f"narrows them all ({more});")
+    elif any(s.width > 1 for s in slow):
+        if len(slow) <= 4:
+            where = ", ".join(f"{s.index} (bits {bits(s.lsb, s.msb)})" for s in slow)
+        else:
+            widths = sorted({s.width for s in slow})
+            each = f"{widths[0]} bits each" if len(widths) == 1 else "bits " + "/".join(
+                map(str, widths))
+            where = f"{stage_list(s.index for s in slow)} ({each})"
+        out += _tip(f"narrow the slowest {'stages' if len(slow) > 1 else 'stage'} {where}: an "
+                    f"uneven `slices` list, or a smaller `slice_width` ({more});")
     family = cells.STYLES[c.cell].family
     if family != "behavioural":
-        out.append("  - `cell: native` lets FPGA synthesis map each slice onto the carry chain;")
-    if family != "prefix":
-        out.append("  - a prefix cell (kogge-stone, sklansky, ...) shortens the path on ASICs "
-                   "and in LUT fabric;")
-    if "levels" in plan.unit.modes and plan.unit.result:
-        out.append("  - `pipeline: levels` or `blocks` has no triangles: for wide units "
-                   "(docs/modes.md);")
+        out += _tip("`cell: native` lets FPGA synthesis map each slice onto its carry chain;")
+    faster = _faster_cells(plan)
+    if faster and family != "prefix":
+        out += _tip(f"a prefix cell ({', '.join(faster[:2])}, ...) shortens the slowest path "
+                    "on ASICs and in LUT fabric;")
+    elif faster:
+        out += _tip(f"`cell: {faster[0]}` has a shorter path than {c.cell} in the slowest "
+                    f"{'stages' if len(slow) > 1 else 'stage'};")
+    others = [m for m in kind.modes if m != "slices"] if c.width > 1 else []
+    if others == ["levels"]:
+        out += _tip("`pipeline: levels` compares all slices in parallel and joins their "
+                    "verdicts in a tree, without the skew triangle (docs/modes.md);")
+    elif others:
+        out += _tip("`pipeline: " + "` or `".join(others) + "` pipelines the carry network "
+                    "itself, without skew or deskew triangles: for wide units (docs/modes.md);")
     return out + _input_tip(plan)
+
+
+def _faster_cells(plan: SlicedPlan) -> list[str]:
+    """Prefix cells with a shorter unit-gate path than the config's in every slowest stage,
+    fastest first."""
+    slow = plan.slowest
+
+    def worst(name):
+        return max(cells.STYLES[name].delay(s.width, s.carry_in, s.carry_out) for s in slow)
+
+    found = [n for n in cells.PREFIX_STYLES if n != plan.config.cell
+             and worst(n) < slow[0].delay]
+    return sorted(found, key=lambda n: (worst(n), n))
 
 
 @tips.register
 def _(plan: PrefixPlan) -> list[str]:
-    """What a prefix-mode unit could still try: only what its config does not do yet."""
+    """What a prefix-mode unit could still try: only what its config does not do yet,
+    naming every slowest stage a tip would shorten."""
     c, sch = plan.config, plan.schedule
+    slow = plan.slowest
     out = []
-    if c.levels_per_stage > 1:
-        out.append("  - fewer `levels_per_stage` (1 puts a register after every prefix level);")
+    deep = [s for s in slow if s.depth > 1]
+    if deep:
+        out += _tip(f"fewer `levels_per_stage` (now {c.levels_per_stage}) splits the prefix "
+                    f"levels of {stages_phrase(deep)} over more stages;")
+    first = slow[0].index == 0
     if sch.flavour == "compare":
-        return out + ["  - narrower slices (`slice_width`) shorten the first stage's "
-                      "comparisons;"] + _input_tip(plan)
+        if first and max(sch.widths) > 1:
+            out += _tip("narrower slices (`slice_width` or `slices`) shorten the comparisons "
+                        "of stage 0;")
+        return out + _input_tip(plan)
+    if sch.flavour == "chains" and c.block_width > 1 and first:
+        out += _tip(f"a smaller `block_width` (now {c.block_width}) shortens the carry chains "
+                    "of stage 0;")
     if c.cell in ("kogge-stone", "sklansky"):
-        out += ["  - a sparser prefix `cell` (han-carlson, brent-kung) has less wiring and "
-                "fan-out;"]
+        out += _tip("a sparser prefix `cell` (han-carlson, brent-kung) has less wiring and "
+                    "fan-out;")
     if c.wire_registers < sch.network.depth:
-        out += [f"  - `wire_registers: {c.wire_registers + 1}` adds a register rank in front of "
-                "the longest-span", "    level(s): one cycle more, shorter routed nets;"]
-    if sch.flavour == "chains" and c.block_width > 1:
-        out.append("  - a smaller `block_width` shortens the carry chains of the first stage;")
+        which = "one more long-span level" if c.wire_registers else "the longest-span level"
+        out += _tip(f"`wire_registers: {c.wire_registers + 1}` puts a logic-free register "
+                    f"rank in front of {which}: one cycle more, shorter routed nets;")
     moved = plan.moved_input_rank()
     if moved is not None:
         same = ", as now" if moved.latency == plan.latency else ""
-        out += ["  - when the operands come straight from registers, `register_inputs: false` "
-                "with",
-                f"    `wire_registers: {moved.config.wire_registers}` (latency {moved.latency}"
-                f"{same}) moves the logic-free rank from the inputs",
-                "    into the network, where it measured faster on ECP5 (docs/modes.md)."]
+        out += _tip("when the operands come straight from registers, `register_inputs: false` "
+                    f"with `wire_registers: {moved.config.wire_registers}` (latency "
+                    f"{moved.latency}{same}) moves the logic-free rank from the inputs into "
+                    "the network, where it measured faster on ECP5 (docs/modes.md).")
     return out + _input_tip(plan)
 
 
@@ -300,22 +362,24 @@ def _(plan: TreePlan) -> list[str]:
     out = []
     if any(s.index in slow for s in plan.tree_stages):
         if c.tree_levels_per_stage > 1:
-            out.append("  - fewer `tree_levels_per_stage` (1 puts a register rank after every "
-                       "counter level);")
+            out += _tip("fewer `tree_levels_per_stage` (1 puts a register rank after every "
+                        "counter level);")
         if c.unit == "multiplier" and c.partial_products == "booth4":
-            out.append("  - `partial_products: and` forms the partial products with one AND "
-                       "each (Booth's selection is deeper);")
+            out += _tip("`partial_products: and` forms each partial product with one AND "
+                        "(Booth's selection is deeper);")
     if plan.adder is not None and any(s.index in slow for s in plan.adder_stages):
-        view = replace(plan.adder, stages=plan.adder_stages)
-        out += [t for t in tips(view) if "register_inputs" not in t]
+        # The final adder's own tips (its input register is the tree's last rank).
+        inner = replace(plan.adder.config, register_inputs=True)
+        out += tips(replace(plan.adder, stages=plan.adder_stages, config=inner))
     other = "wallace" if c.tree == "dadda" else "dadda"
-    out.append(f"  - `tree: {other}` (a different counter placement) or `tree: native` (the "
-               "operation left to synthesis, DSP blocks allowed);")
+    out += _tip(f"`tree: {other}` (another counter placement) or `tree: native` (the "
+                "operation left to synthesis, DSP blocks allowed);")
     return out + _input_tip(plan)
 
 
 @tips.register
 def _(plan: NativePlan) -> list[str]:
-    return (["  - more `native_stages` give the tools more ranks to retime into (when they "
-             "retime);", "  - `tree: dadda` or `wallace` builds the counter tree in the fabric "
-             "with a register rank per level;"] + _input_tip(plan))
+    return (_tip("more `native_stages` give the tools more ranks to retime into (where they "
+                 "retime);")
+            + _tip("`tree: dadda` or `wallace` builds the counter tree in the fabric with a "
+                   "register rank per level;") + _input_tip(plan))

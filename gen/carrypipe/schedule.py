@@ -84,7 +84,7 @@ class StageInfo:
 
     index: int  # 1-based
     levels: tuple[int, ...]  # prefix levels (0-based) evaluated in it
-    nodes: int  # prefix nodes of those levels
+    nodes: int  # prefix nodes it evaluates, after pruning
     delay: int  # unit-gate critical path, register to register
     logic: str  # a short description
 
@@ -124,6 +124,12 @@ class Schedule:
                 if self.terms[x].stage <= rank < self.last[x]:
                     out.add((x, rank))
         return out
+
+    def kept_nodes(self, stage: int | None = None) -> int:
+        """Prefix nodes left after pruning (each forms one kept group generate term), in
+        all or in one stage: a comparator's tree is what is left of its network."""
+        return sum(1 for t in self.kept() if t.kind in ("grp_gen", "grp_c0")
+                   and stage in (None, t.stage))
 
     def bits(self, kinds) -> int:
         """Register bits of the inner ranks (before the output rank) holding these term kinds."""
@@ -315,10 +321,11 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
         outputs["result"] = tuple(sums)
         if config.carry_out:
             cout = g[-1]
-            if "sub" in flags:  # add/subtract: the borrow is the complement of the carry
-                cout = term("cout", count - 1, "xor", (cout, flags["sub"]), final)
+            if "sub" in flags:  # add/subtract: the borrow is the complement of the carry,
+                # formed with the carry itself (g | p & g' ^ sub: four inputs, one LUT4)
+                cout = term("cout", count - 1, "xor", (cout, flags["sub"]), terms[cout].stage)
             elif kind.inverts_carry_out:  # a tree's final adder with a constant left
-                cout = term("cout", count - 1, "not", (cout,), final)
+                cout = term("cout", count - 1, "not", (cout,), terms[cout].stage)
             outputs["chain"] = cout
         if config.signed:
             outputs["overflow"] = _overflow(term, terms, flavour, g, widths, lsbs, final,
@@ -329,6 +336,9 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
         outputs["eq"] = term("eq", count - 1, "eq", (top_lt, top_le), final)
         outputs["gt"] = term("gt", count - 1, "gt", (top_le,), final)
 
+    # Results formed before the last planned stage (a last prefix level that only a pruned
+    # carry-out needed, or that a carry-out shares with the selects) leave a cycle sooner.
+    final = min(final, max(terms[t].stage for t in _flat(outputs.values())))
     last: dict[int, int] = {}
     for t in _flat(outputs.values()):
         last[t] = final + 1
@@ -343,13 +353,16 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
             inner = [arrival[a] for a in t.args if terms[a].stage == t.stage]
             arrival[t.index] = max(inner, default=0) + _op_delay(t, widths, has_cin, kind)
     stages = []
+    formed = {t.stage for t in terms if t.index in last and t.op != "wire"}
     for s_ in range(1, final + 1):
         levels = tuple(k for k, st in sorted(level_stage.items()) if st == s_)
         delay = max([arrival[t.index] for t in terms if t.index in arrival and t.stage == s_],
                     default=0)
-        stages.append(StageInfo(s_, levels, sum(len(net.levels[k]) for k in levels), delay,
+        nodes = sum(1 for t in terms if t.stage == s_ and t.index in last
+                    and t.kind in ("grp_gen", "grp_c0"))  # the nodes left after pruning
+        stages.append(StageInfo(s_, levels, nodes, delay,
                                 _describe(flavour, s_, final, levels,
-                                          s_ in wire_stage.values())))
+                                          s_ in wire_stage.values(), s_ in formed)))
     return Schedule(config.pipeline, flavour, net, widths, lsbs, final, merged, wired,
                     tuple(terms), last, outputs, tuple(stages))
 
@@ -391,16 +404,19 @@ def _op_delay(t: Term, widths, cin: bool, kind) -> int:
     return OP_DELAY[t.op]
 
 
-def _describe(flavour: str, s: int, final: int, levels, wire: bool) -> str:
+def _describe(flavour: str, s: int, final: int, levels, wire: bool, logic: bool) -> str:
+    """What stage `s` evaluates; `logic` says whether it forms any term at all (the last
+    stage has nothing to form when every result was finished before it)."""
     parts = []
     if wire:
         parts.append("wire registers (no logic)")
     if s == 1:
         parts.append({"bits": "generate/propagate", "chains": "block carry chains",
                       "compare": "slice comparisons"}[flavour])
-    if levels:
+    if levels:  # a comparator's network is the tree that combines the slices' verdicts
         first, end = levels[0] + 1, levels[-1] + 1
-        parts.append(f"prefix level {first}" if first == end else f"prefix levels {first}-{end}")
-    if s == final:
+        what = "tree level" if flavour == "compare" else "prefix level"
+        parts.append(f"{what} {first}" if first == end else f"{what}s {first}-{end}")
+    if s == final and logic:
         parts.append({"bits": "sum", "chains": "block select", "compare": "verdicts"}[flavour])
-    return ", ".join(parts)
+    return ", ".join(parts) or "output register (no logic)"

@@ -71,7 +71,8 @@ def place_report(text: str, family: Family) -> PlaceReport:
 def cell_counts(text: str, family: Family) -> Cells:
     """Parse Yosys `stat -json`: LUTs, carry cells and flip-flops of the whole design."""
     by_type = json.loads(text)["design"]["num_cells_by_type"]
-    return Cells(luts=by_type.get(family.lut, 0), carry=by_type.get(family.carry, 0),
+    return Cells(luts=sum(by_type.get(t, 0) for t in family.luts),
+                 carry=by_type.get(family.carry, 0),
                  flip_flops=sum(n for t, n in by_type.items() if t.startswith(family.ff_prefix)))
 
 

@@ -12,6 +12,7 @@ plain data (one `Measurement` per seed), so it can run in another process or on 
 from __future__ import annotations
 
 import importlib.metadata
+import json
 import tempfile
 import time
 from dataclasses import asdict, dataclass, field
@@ -25,6 +26,7 @@ TOOLS = ("wheel", "system")
 FLOW_VERSION = 7  # bump when the harness, scripts, arguments, path reading or the
 # emitted Verilog change a result
 FREQ_MHZ = 500  # the clock constraint nextpnr optimizes for, above any reachable figure
+PINS = "pins"  # the harness's pin file, `pins.cst` or `pins.pdc` (devices.pin_constraints)
 INSTALL_HINT = "pip install 'carrypipe[fit]'"
 
 
@@ -91,9 +93,38 @@ def scripts(plan, device: devices.Device, seed: int) -> tuple[list[str], list[st
     name = plan.config.name
     synth = ["-q", "-p", f"read_verilog {name}.v {top}.v; {device.family.synth} -top {top} "
              f"-json {top}.json; tee -q -o stat.json stat -json"]
-    pnr = [*device.pnr_args, "--json", f"{top}.json", "--report", f"report_{seed}.json",
-           "--timing-allow-fail", "--seed", str(seed), "--freq", str(FREQ_MHZ)]
+    pins = f"{PINS}.{device.family.pin_file}"
+    pin_args = {"cst": ["--vopt", f"cst={pins}"], "pdc": ["--pdc", pins]}.get(
+        device.family.pin_file, [])
+    pnr = [*device.pnr_args, *pin_args, "--json", f"{top}.json", "--report",
+           f"report_{seed}.json", "--timing-allow-fail", "--seed", str(seed),
+           "--freq", str(freq_mhz(device.name))]
     return synth, pnr
+
+
+def freq_mhz(device: str) -> int:
+    """The clock constraint nextpnr optimizes for on the device called `device` (part of
+    every cache key): above any figure the device reaches, so timing-driven placement works."""
+    return devices.DEVICES[device].family.freq_mhz if device in devices.DEVICES else FREQ_MHZ
+
+
+def untie_carry_in(netlist: str) -> str:
+    """The Yosys JSON netlist with every CCU2 carry-in that a constant-0 cell drives left
+    unconnected.
+
+    synth_nexus feeds each carry chain through a first CCU2 whose CIN it ties to a VLO
+    (constant 0) cell, and nextpnr-nexus 0.11 refuses a chain that starts at a cell not of
+    type CCU2 ("CIN net ... driven by non-CCU2 cell").  An unconnected CIN starts the chain
+    with a carry of 0, the same value, so the logic is unchanged.
+    """
+    data = json.loads(netlist)
+    for module in data["modules"].values():
+        cells = module["cells"].values()
+        low = {bit for c in cells if c["type"] == "VLO" for bit in c["connections"]["Z"]}
+        for c in cells:
+            if c["type"] == "CCU2" and c["connections"].get("CIN", [None])[0] in low:
+                del c["connections"]["CIN"]
+    return json.dumps(data)
 
 
 def measure(job: Job) -> list[Measurement]:
@@ -114,6 +145,8 @@ def place_and_route(plan, unit_text: str, device: devices.Device, seeds, kind: s
         work = Path(tmp)
         (work / f"{plan.config.name}.v").write_text(unit_text)
         (work / f"{harness.top_name(plan)}.v").write_text(harness.harness_verilog(plan))
+        if fam.pin_file:
+            (work / f"{PINS}.{fam.pin_file}").write_text(devices.pin_constraints(device))
         start = time.monotonic()
         synth_args = scripts(plan, device, 0)[0]
         try:
@@ -125,6 +158,9 @@ def place_and_route(plan, unit_text: str, device: devices.Device, seeds, kind: s
         if run.returncode != 0:
             msg = "yosys failed: " + _tail(run.stdout + run.stderr)
             return [Measurement(s, "error", message=msg) for s in seeds]
+        if fam.untie_carry_in:
+            netlist = work / f"{harness.top_name(plan)}.json"
+            netlist.write_text(untie_carry_in(netlist.read_text()))
         cells = timing.cell_counts((work / "stat.json").read_text(), fam)
         unit = dict(luts=cells.luts - harness.luts(plan), carry=cells.carry,
                     flip_flops=cells.flip_flops - harness.flip_flops(plan))

@@ -61,6 +61,8 @@ class Kind:
     chain: tuple[str, ...] = ("carry",)  # bits handed from one slice to the next
     op: str = "add"
     verb: str = "computes"  # what a slice does to its bits, for comments
+    noun: str = "unit"  # what the unit is called in texts ("adder slice", "a 64-bit adder")
+    keeps_result = False  # each slice keeps its result bits and reads them back (a total)
     composable = False  # `prove --method compositional` covers its sliced units
     settle = 0  # cycles a bounded proof needs beyond latency + 1 (a state to build up)
     tree = False  # a carry-save kind: a counter tree, then a final adder (`TreePlan`)
@@ -231,7 +233,7 @@ class Arithmetic(Kind):
     def results(self, c):
         ports = [Port(self.result, "output", c.width, self.result_meaning(c))]
         if c.carry_out:
-            ports.append(Port(self.chain_port[1], "output", 1, self.carry_out_meaning))
+            ports.append(Port(self.chain_port[1], "output", 1, self.carry_out_meaning(c)))
         if c.signed:
             ports.append(Port("overflow", "output", 1,
                               "1 when the two's-complement result differs from the exact one"))
@@ -315,8 +317,12 @@ class Plain(Arithmetic):
     def __init__(self, name: str, verb: str, op: str, result: str, chain: str,
                  chain_port: tuple[str, str], carry_in_meaning: str, carry_out_meaning: str):
         self.name, self.verb, self.op, self.result = name, verb, op, result
+        self.noun = "adder" if op == "add" else "subtractor"
         self.chain, self.chain_port = (chain,), chain_port
-        self.carry_in_meaning, self.carry_out_meaning = carry_in_meaning, carry_out_meaning
+        self.carry_in_meaning, self._carry_out_meaning = carry_in_meaning, carry_out_meaning
+
+    def carry_out_meaning(self, c) -> str:
+        return self._carry_out_meaning.replace(" + bin", " + bin" if c.carry_in else "")
 
     def _rhs(self, c) -> str:
         sym = "+" if self.op == "add" else "-"
@@ -327,8 +333,7 @@ class Plain(Arithmetic):
 
     def phrase(self, c):
         lhs = f"{{{self.chain_port[1]}, {self.result}}}" if c.carry_out else self.result
-        noun = "adder" if self.op == "add" else "subtractor"
-        return f"{c.width}-bit {'signed ' if c.signed else ''}{noun}, {lhs} = {self._rhs(c)}"
+        return f"{c.width}-bit {'signed ' if c.signed else ''}{self.noun}, {lhs} = {self._rhs(c)}"
 
 
 class AddSub(Arithmetic):
@@ -338,11 +343,15 @@ class AddSub(Arithmetic):
 
     name = "addsub"
     verb = "adds or subtracts"
+    noun = "adder/subtractor"
     result = "sum"
     chain = ("carry",)
     travellers = ("sub",)
     carry_in_meaning = "carry into bit 0 when adding, borrow when subtracting"
-    carry_out_meaning = "carry out when adding, borrow out (a < b + cin) when subtracting"
+
+    def carry_out_meaning(self, c):
+        return ("carry out when adding, borrow out (a < b" + (" + cin" if c.carry_in else "")
+                + ") when subtracting")
 
     def flag_inputs(self, c):
         return [Port("sub", "input", 1, "0: add, 1: subtract (travels with its operands)"),
@@ -382,7 +391,7 @@ class AddSub(Arithmetic):
 
     def phrase(self, c):
         cin = " + cin" if c.carry_in else ""
-        return (f"{c.width}-bit {'signed ' if c.signed else ''}adder/subtractor, sum = "
+        return (f"{c.width}-bit {'signed ' if c.signed else ''}{self.noun}, sum = "
                 f"a + b{cin} (sub = 0) or a - b{cin.replace('+', '-')} (sub = 1)")
 
 
@@ -393,6 +402,7 @@ class Comparator(Kind):
 
     name = "comparator"
     verb = "compares"
+    noun = "comparator"
     modes = ("slices", "levels")
     refused = ("carry_in", "carry_out")
     # In levels mode the slices are compared in parallel and a tree combines their verdicts.
@@ -448,7 +458,8 @@ class Comparator(Kind):
         return [{"a": a, "b": b} for a, b in _operand_corners(c.width)]
 
     def phrase(self, c):
-        return f"{c.width}-bit {'signed' if c.signed else 'unsigned'} comparator, lt/eq/gt of a, b"
+        return (f"{c.width}-bit {'signed' if c.signed else 'unsigned'} {self.noun}, lt/eq/gt of "
+                "a, b")
 
 
 class Accumulator(Kind):
@@ -460,6 +471,8 @@ class Accumulator(Kind):
 
     name = "accumulator"
     verb = "accumulates"
+    noun = "accumulator"
+    keeps_result = True
     settle = 8  # the bounded proof checks eight totals after the first clear
     modes = ("slices",)
     refused = ("carry_in", "signed")
@@ -535,7 +548,7 @@ class Accumulator(Kind):
 
     def phrase(self, c):
         cout = ", cout = its carry out" if c.carry_out else ""
-        return f"{c.width}-bit accumulator, acc = clear ? x : acc + x{cout}"
+        return f"{c.width}-bit {self.noun}, acc = clear ? x : acc + x{cout}"
 
 
 class _AccumulatorModel(Model):

@@ -1,0 +1,91 @@
+"""Writing fit's choice into the user's own config file: only the chosen keys change."""
+
+import difflib
+
+import pytest
+from click.testing import CliRunner
+
+from carrypipe import config, config_edit, emit
+from carrypipe.cli import main
+from carrypipe.plan import make_plan
+
+USER = """# Accumulator of the sample-rate converter (demo)
+name: src_acc   # module name
+width: 24
+
+cell: native        # carry chain
+slice_width: 8      # three stages for now
+carry_in: true
+valid: true         # the pipeline's valid bit
+"""
+
+USER_BLOCKS = """name: src_acc
+width: 24
+pipeline: blocks   # tried first
+cell: sklansky
+block_width: 8
+slices_note_is_a_comment: false
+""".replace("slices_note_is_a_comment: false\n", "# slices: [8, 8, 8] was the old split\n")
+
+USER_SEQUENCE = """name: src_acc
+width: 24
+slices:
+  - 12   # low half
+  - 12
+valid: true
+reset: sync
+"""
+
+CHOSEN = [
+    dict(slices=[9, 8, 7]),
+    dict(slices=[6, 6, 6, 6]),
+    dict(slices=[24]),
+    dict(cell="kogge-stone", pipeline="levels", levels_per_stage=2),
+    dict(cell="han-carlson", pipeline="levels", local_width=8, wire_registers=1),
+    dict(cell="brent-kung", pipeline="blocks", block_width=8),
+]
+
+
+def chosen_from(text, keys):
+    data = {k: v for k, v in config.parse_text(text, "t").normalized().items()
+            if k not in ("slices", *config.MODE_KEYS, "pipeline", "cell")}
+    data.update(keys)
+    return config.from_mapping(data)
+
+
+@pytest.mark.parametrize("user", [USER, USER_BLOCKS, USER_SEQUENCE],
+                         ids=["slice_width", "blocks", "sequence"])
+@pytest.mark.parametrize("keys", CHOSEN, ids=lambda k: "-".join(map(str, k.values())))
+def test_only_the_chosen_keys_change(user, keys, tmp_path):
+    chosen = chosen_from(user, keys)
+    written = config_edit.rewrite(user, chosen)
+    # Every line that differs is an entry of a key fit chooses (or its continuation).
+    diff = [line[2:] for line in difflib.ndiff(user.splitlines(), written.splitlines())
+            if line[:1] in "+-"]
+    for line in diff:
+        assert line.startswith(config_edit.EDITED) or line.startswith("  - "), (line, written)
+    # Every comment line and every other entry is kept, in order.
+    keep = [line for line in user.splitlines() if not line.startswith(config_edit.EDITED)
+            and not line.startswith("  - ")]
+    assert [line for line in written.splitlines() if line in keep] == keep
+    # `carrypipe build` of the written file gives the chosen unit's Verilog.
+    path = tmp_path / "src_acc.yaml"
+    path.write_text(written)
+    res = CliRunner().invoke(main, ["build", str(path), "-o", str(tmp_path / "b")])
+    assert res.exit_code == 0, res.output
+    assert (tmp_path / "b" / "src_acc.v").read_text() == emit.unit_verilog(make_plan(chosen))
+
+
+def test_kept_comments_and_replaced_values_in_place():
+    written = config_edit.rewrite(USER, chosen_from(USER, dict(slices=[6, 6, 6, 6])))
+    assert written == USER.replace("slice_width: 8 ", "slice_width: 6 ")
+    written = config_edit.rewrite(USER, chosen_from(USER, dict(slices=[9, 8, 7])))
+    assert written == USER.replace("slice_width: 8 ", "slices: [9, 8, 7] ")
+
+
+def test_a_flow_mapping_is_written_whole():
+    user = "{name: src_acc, width: 24, cell: native}\n"
+    chosen = chosen_from(user, dict(slices=[12, 12]))
+    written = config_edit.rewrite(user, chosen)
+    assert written.startswith("# Written whole by carrypipe fit")
+    assert config.parse_text(written, "t").normalized() == chosen.normalized()

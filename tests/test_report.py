@@ -1,0 +1,177 @@
+"""The text report: tips only about what a config does not do yet, every tied slowest stage
+named, register kinds the unit has, the words of each mode and unit kind."""
+
+from __future__ import annotations
+
+import itertools
+import re
+
+import pytest
+
+from carrypipe import cells, config, report
+from conftest import make
+
+# A spread of configs over every unit kind and pipeline mode, options on and off.
+BASES = [
+    dict(width=24, slice_width=8), dict(width=24, slices=[10, 4, 10], cell="ripple"),
+    dict(width=64, slice_width=16, cell="kogge-stone"), dict(width=12, slice_width=1),
+    dict(width=16, cell="brent-kung"), dict(width=32, unit="subtractor", slice_width=8),
+    dict(width=32, unit="addsub", slices=[8, 16, 8], cell="sklansky"),
+    dict(width=40, unit="comparator", slice_width=8),
+    dict(width=48, unit="accumulator", slice_width=12),
+    dict(width=64, pipeline="levels", cell="kogge-stone"),
+    dict(width=64, pipeline="levels", cell="han-carlson", levels_per_stage=2, local_width=16),
+    dict(width=64, pipeline="blocks", cell="brent-kung", block_width=8),
+    dict(width=130, unit="subtractor", pipeline="blocks", cell="sklansky", block_width=16),
+    dict(width=64, unit="comparator", pipeline="levels", levels_per_stage=2),
+    dict(width=32, unit="addsub", pipeline="levels", cell="ladner-fischer"),
+]
+OPTIONS = [dict(), dict(register_inputs=True), dict(carry_in=True, valid=True, enable=True),
+           dict(signed=True, reset="sync", register_inputs=True), dict(wire_registers=2),
+           dict(cell="native")]
+
+
+def configs():
+    for base, extra in itertools.product(BASES, OPTIONS):
+        keys = {**base, **extra}
+        try:
+            yield make(**keys)
+        except config.ConfigError:
+            continue  # a key the unit kind or mode does not take
+
+
+PLANS = list(configs())
+
+
+def tips(plan) -> str:
+    text = report.report(plan)
+    return text.split("If timing fails\n", 1)[1] if "If timing fails" in text else ""
+
+
+def expand(listed: str) -> list[int]:
+    out = []
+    for part in listed.split(", "):
+        lo, _, hi = part.partition("–")
+        out += range(int(lo), int(hi or lo) + 1)
+    return out
+
+
+@pytest.mark.parametrize("plan", PLANS, ids=[p.label() + f" #{i}" for i, p in enumerate(PLANS)])
+def test_no_tip_offers_what_the_config_already_does(plan):
+    c, said = plan.config, tips(plan)
+    assert ("`register_inputs: true`" in said) == (not c.register_inputs)
+    if c.cell == "native":
+        assert "`cell: native`" not in said
+    assert f"`cell: {c.cell}`" not in said
+    if plan.mode != "slices":
+        assert "`pipeline:" not in said
+        if plan.schedule.flavour != "compare":
+            assert "(`slice_width` or `slices`)" not in said
+        wired = f"`wire_registers: {c.wire_registers}` puts"
+        assert wired not in said  # the tip offers one rank more than the config has
+        if c.levels_per_stage == 1:
+            assert "levels_per_stage" not in said
+    else:
+        others = [m for m in plan.unit.modes if m != "slices"] if c.width > 1 else []
+        for mode in ("levels", "blocks"):
+            assert (f"`{mode}`" in said or f"`pipeline: {mode}`" in said) == (mode in others)
+    for line in said.splitlines():
+        assert len(line) <= 92, line
+
+
+@pytest.mark.parametrize("plan", PLANS, ids=[p.label() + f" #{i}" for i, p in enumerate(PLANS)])
+def test_the_slowest_sentence_names_every_tied_stage(plan):
+    text = report.report(plan)
+    slow = [s.index for s in plan.slowest]
+    if len(plan.stages) == 1:
+        assert f"One stage: {plan.slowest[0].delay} units." in text
+    elif len(slow) == len(plan.stages):
+        assert f"Every stage has the same unit-gate delay: {plan.slowest[0].delay} units." in text
+    else:
+        sentence = " ".join(text.split("\nSlowest: ", 1)[1].split("\n\n")[0].split())
+        named = re.match(r"stages? ([\d, –]+) at ", sentence).group(1)
+        assert expand(named) == slow
+    marked = [int(row.split()[0]) for row in text.splitlines() if row.endswith("<- slowest")]
+    assert marked == (slow if len(slow) < len(plan.stages) else [])
+
+
+@pytest.mark.parametrize("keys, named", [
+    # Ripple slices of 10, 4, 10 bits, all with a carry-in: t_pg + (w-1) t_AO + t_xor
+    # (common practice) gives 22 units for the outer two, 10 for the middle one.
+    (dict(width=24, cell="ripple", carry_in=True, slices=[10, 4, 10]),
+     "narrow the slowest stages 0 (bits 9:0), 2 (bits 23:14): an uneven"),
+    # Without a carry-in slice 0 is 2 units shorter, so the other 255 tie.
+    (dict(width=4096, slice_width=16), "narrow the slowest stages 1–255 (16 bits each): an"),
+])
+def test_the_narrowing_tip_names_every_tied_stage(keys, named):
+    assert named in " ".join(tips(make(**keys)).split())
+
+
+def test_a_full_tie_asks_for_narrower_slices_everywhere():
+    plan = make(width=24, slice_width=8, carry_in=True)
+    assert f"every stage ties at {plan.slowest[0].delay} units: a smaller `slice_width` " \
+        "narrows them all" in " ".join(tips(plan).split())
+
+
+@pytest.mark.parametrize("width, offered", [(2, False), (3, False), (4, True), (16, True)])
+def test_a_prefix_cell_is_offered_only_where_it_shortens_the_path(width, offered):
+    # A carry network of 2 or 3 bits is a ripple chain in every prefix style (Kogge-Stone,
+    # Sklansky, ... all need ceil(log2 w) levels, 1 or 2, as the ripple's w-1 does; common
+    # practice); from 4 bits Kogge-Stone's log2 depth is shorter.
+    plan = make(width=4 * width, slice_width=width, cell="ripple", carry_in=True)
+    assert ("a prefix cell (" in tips(plan)) == offered
+    if offered:
+        fastest = tips(plan).split("a prefix cell (", 1)[1].split(",")[0]
+        slow = plan.slowest[0]
+        assert cells.STYLES[fastest].delay(slow.width, True, True) < slow.delay
+
+
+@pytest.mark.parametrize("plan", PLANS, ids=[p.label() + f" #{i}" for i, p in enumerate(PLANS)])
+def test_register_table_lists_the_kinds_the_unit_has(plan):
+    text = report.report(plan)
+    rows = text.split("Register bits\n", 1)[1].split("\n\n")[0].splitlines()
+    listed = {k: int(v) for k, v in (row.split() for row in rows)}
+    want = {k: v for k, v in plan.registers.as_dict().items() if v or k == "total"}
+    assert listed == want and list(listed)[-1] == "total"
+
+
+def test_a_comparators_verdicts_never_wait():
+    plan = make(width=32, unit="comparator", slice_width=8)
+    text = report.report(plan)
+    rows = [r for r in text.splitlines() if re.match(r"\s+\d+\s+\[", r)]
+    assert all(r.split("/")[1].split()[0] == "–" for r in rows)
+    assert "verdicts never wait" in text and "`pipeline: levels` compares all slices" in text
+
+
+def test_a_comparators_tree_counts_the_nodes_it_keeps():
+    # Pruned to the top position, the network is a tree over the n slices: n - 1 nodes,
+    # ceil(log2 n) levels (a binary tree with n leaves has n - 1 inner nodes; common
+    # practice).
+    for n in (2, 3, 5, 8, 13):
+        plan = make(width=8 * n, unit="comparator", pipeline="levels", slice_width=8)
+        text = report.report(plan)
+        levels = (n - 1).bit_length()
+        assert f"Verdict tree    a balanced tree over {n} slices (compared in parallel): " \
+            f"{levels} level(s), {n - 1} nodes" in text
+        rows = [r.split() for r in text.splitlines() if re.match(r"\s+\d+\s+\d+\s+\d+\s+\d+", r)]
+        assert sum(int(r[2]) for r in rows) == n - 1
+        assert "tree level 1" in text and "prefix level" not in text
+
+
+def test_an_accumulator_is_offered_no_other_pipeline():
+    text = tips(make(width=48, unit="accumulator", slice_width=12))
+    assert "`pipeline:" not in text and "narrow the slowest" in text
+
+
+def test_prefix_tips_name_the_slowest_stages_they_would_shorten():
+    plan = make(width=64, pipeline="levels", cell="brent-kung", levels_per_stage=3)
+    deep = [s.index for s in plan.slowest if s.depth > 1]
+    assert deep
+    said = " ".join(tips(plan).split())
+    listed = said.split("fewer `levels_per_stage` (now 3) splits the prefix levels of ", 1)[1]
+    listed = re.match(r"stages? ([\d, –]+) over", listed).group(1)
+    assert expand(listed) == deep
+    blocks = make(width=64, pipeline="blocks", cell="kogge-stone", block_width=16)
+    assert blocks.slowest[0].index == 0
+    assert "a smaller `block_width` (now 16) shortens the carry chains of stage 0" in \
+        " ".join(tips(blocks).split())
