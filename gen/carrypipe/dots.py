@@ -142,6 +142,8 @@ def _constant(leaf: Leaf, m: int, n: int, signed: bool) -> int | None:
     an unsigned b, bits past a's top), else None: tried on every value of the at most five
     input bits it reads."""
     k, i = leaf.args[0], (leaf.args[1] if len(leaf.args) > 1 else 0)
+    if signed or (2 * k + 1 < n and i < m):  # every bit it reads is an input bit
+        return None
     a_bits = [j for j in (i, i - 1, 0) if 0 <= j < m]
     b_bits = [j for j in (2 * k + 1, 2 * k, 2 * k - 1) if 0 <= j < n]
     if signed:

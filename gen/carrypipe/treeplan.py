@@ -25,9 +25,9 @@ from . import reduction, units
 from .config import Config
 from .plan import DIRECT_UP_TO, MODES, Nest, Plan, Word
 
-# `prove --method auto` proves a tree directly up to this many partial-product rows (a
-# multiplier's width_b) and result bits (docs/verification.md), compositionally above.
-DIRECT_ROWS, DIRECT_BITS = 8, 512
+# `prove --method auto` proves a tree directly up to this many partial-product rows and
+# result bits (docs/verification.md), compositionally above.
+DIRECT_ROWS, DIRECT_BITS = 6, 12
 
 
 @dataclass(frozen=True)
@@ -129,10 +129,10 @@ class TreePlan(Plan):
 
     @property
     def composes_by_default(self) -> bool:
-        # The direct proof of a multiplier took 22 s at 8 x 8 bits and ran past 600 s at
-        # 12 x 10 (docs/verification.md); a sum's stays fast to much larger sizes.
-        return self.can_compose and (self.tree.matrix.booth_rows or len(self.tree.matrix.rows)
-                                     > DIRECT_ROWS or self.result_width > DIRECT_BITS)
+        # The direct proof took 1 s for a 6 x 6 multiplier, 22 s at 8 x 8, more than 300 s
+        # at 10 x 10, and 67 s for a sum of 8 operands of 8 bits (docs/verification.md).
+        return self.can_compose and (len(self.tree.matrix.rows) > DIRECT_ROWS
+                                     or self.result_width > DIRECT_BITS)
 
     def prove_parts(self, net: dict, module: str, timeout):
         from . import treeproof
@@ -163,7 +163,7 @@ class TreePlan(Plan):
     def label(self) -> str:
         c = self.config
         per = f"/{c.tree_levels_per_stage}"
-        pp = f" {c.partial_products}" if c.unit == "multiplier" else ""
+        pp = " booth4" if c.unit == "multiplier" and c.partial_products == "booth4" else ""
         return f"{c.tree}{per}{pp} + " + (self.adder.label() if self.adder else "none")
 
 
