@@ -119,8 +119,8 @@ def tree_title(plan, stage) -> list[str]:
     """Stage i of a carry-save tree: its levels, counters and the heights it leaves."""
     cycle = plan.input_cycles + stage.index
     heights = max(stage.heights, default=0)
-    return [f"Stage {stage.index}, loaded on edge {cycle + 1}: {plan.config.tree} tree, "
-            f"{stage.logic}.",
+    return [f"Stage {stage.index}, loaded on edge {cycle + 1}: {plan.config.tree.capitalize()} "
+            f"tree, {stage.logic}.",
             f"Its register rank holds at most {heights} dot(s) per column: row<r>_stage_"
             f"{stage.index} holds each column's r-th dot, at the column's bit position."]
 
@@ -128,6 +128,7 @@ def tree_title(plan, stage) -> list[str]:
 def low_title(plan, columns: list[int]) -> list[str]:
     """The result bits the tree finished, waiting for the final adder."""
     first, last = plan.adder_stages[0].index, plan.adder_stages[-1].index
+    name = plan.unit.result + "_low_"
+    held = f"{name}{first}" + (f" .. {name}{last}" if last != first else "")
     return [f"{plan.unit.result} bits {bits(columns[0], columns[-1])}, finished by the tree, "
-            f"wait for the final adder in {plan.unit.result}_low_{first} .. "
-            f"{plan.unit.result}_low_{last}."]
+            f"wait for the final adder in {held}."]

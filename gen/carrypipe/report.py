@@ -14,7 +14,7 @@ from functools import singledispatch
 from . import __version__, cells
 from .header import bits, plural, reset_phrase, stage_list, timing_phrase
 from .plan import Plan, PrefixPlan, SlicedPlan
-from .treeplan import NativePlan, TreePlan
+from .treeplan import NativePlan, TreePlan, counters_phrase
 
 DELAY_MODEL = ("unit-gate model (Tyagi 1993; Zimmermann 1997): 2-input AND/OR = 1, XOR = 2, "
                "inverters free")
@@ -215,11 +215,11 @@ def _(plan: TreePlan) -> list[str]:
     mark = _marks(plan)
     heights = t.matrix.heights()
     what = (f"{c.operands} operands of {c.width} bits" if c.unit == "sum" else
-            f"a {c.width} x {c.width_b} {'Booth radix-4' if c.partial_products == 'booth4' else 'AND'}"
+            f"the {c.width} x {c.width_b} {'Booth radix-4' if c.partial_products == 'booth4' else 'AND'}"
             f" array{' (Baugh-Wooley)' if c.signed and c.partial_products == 'and' else ''}")
-    lines = [f"Tree      {c.tree} over {what}: {len(t.matrix.leaves)} dots, height "
-             f"{max(heights)}; {plan.counter_levels} counter level(s), {t.fa()} full and "
-             f"{t.ha()} half adders",
+    lines = [f"Tree      {c.tree.capitalize()} over {what}: {len(t.matrix.leaves)} dots, "
+             f"height {max(heights)}; {plural(plan.counter_levels, 'counter level')}, "
+             f"{counters_phrase(t.fa(), t.ha())}",
              "",
              "Tree stages (heights: most dots in a column after the stage; delay in the "
              "unit-gate model)",
@@ -230,7 +230,7 @@ def _(plan: TreePlan) -> list[str]:
                      f"{s.half:>5}  {s.delay:>5}  {s.logic}{mark(s)}")
     if plan.adder is None:
         return lines + ["", "Final adder  none: the tree leaves at most one dot per column"]
-    low = f"; bits {r.low - 1}:0 are finished by the tree" if r.low else ""
+    low = f"; bits {bits(0, r.low - 1)} are finished by the tree" if r.low else ""
     lines += ["", f"Final adder  columns [{r.top - 1}:{r.low}] ({r.adder_width} bits)"
               + (", its carry out is the top bit" if r.carry_out else "") + low]
     view = replace(plan.adder, stages=plan.adder_stages)

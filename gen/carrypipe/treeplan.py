@@ -23,6 +23,7 @@ from functools import cached_property
 
 from . import reduction, units
 from .config import Config
+from .header import plural
 from .plan import DIRECT_UP_TO, MODES, Nest, Plan, Word
 
 # `prove --method auto` proves a tree directly up to this many partial-product rows and
@@ -141,9 +142,9 @@ class TreePlan(Plan):
 
     def structure(self) -> str:
         c, t = self.config, self.tree
-        counters = f"{t.fa()} full and {t.ha()} half adders"
-        tree = (f"{c.tree} tree of {len(self.tree_stages)} stage(s) ({self.counter_levels} "
-                f"counter level(s), {counters})")
+        tree = (f"{c.tree.capitalize()} tree of {plural(len(self.tree_stages), 'stage')} "
+                f"({plural(self.counter_levels, 'counter level')}, "
+                f"{counters_phrase(t.fa(), t.ha())})")
         if self.adder is None:
             return tree + ", no final adder (at most one dot left per column)"
         return f"{tree}, then a {self.rows.adder_width}-bit final adder: {self.adder.structure()}"
@@ -223,6 +224,13 @@ def _row_runs(rank) -> list[list[tuple[int, int]]]:
     return [_runs([k for k, col in enumerate(rank) if len(col) > r]) for r in range(top)]
 
 
+def counters_phrase(full: int, half: int) -> str:
+    """`12 full and 3 half adders`, `4 half adders`, `1 full adder`."""
+    if full and half:
+        return f"{full} full and {plural(half, 'half adder')}"
+    return plural(full, "full adder") if full else plural(half, "half adder")
+
+
 def _describe(tree: reduction.Tree, stage: int) -> str:
     parts = []
     for lv in tree.stage_levels(stage):
@@ -231,9 +239,8 @@ def _describe(tree: reduction.Tree, stage: int) -> str:
             continue
         cs = [tree.counters[i] for i in lv.counters]
         fa = sum(1 for c in cs if c.kind == "fa")
-        ha = len(cs) - fa
-        what = f"{fa} full adder(s)" + (f", {ha} half adder(s)" if ha else "")
-        parts.append(f"level {lv.index} to height {max(lv.heights)} ({what})")
+        parts.append(f"level {lv.index} (to height {max(lv.heights)}): "
+                     f"{counters_phrase(fa, len(cs) - fa)}")
     return "; ".join(parts)
 
 
