@@ -81,3 +81,13 @@ def test_real_run_keeps_the_critical_path_inside_the_unit(device):
     # about 400-500 MHz (register -> LUT4 -> register, TOOLS-NOTES measurements).
     assert 40 < m.mhz < 550
     assert m.logic_used <= devices.get(device).logic_cells
+
+
+@pytest.mark.slow
+def test_a_unit_named_after_a_device_cell_is_measured():
+    # `LUT4` is an ECP5 cell of Yosys's library: in the work folder the unit gets a name of
+    # carrypipe's own, so synthesis does not meet the library's module.
+    plan = make(name="LUT4", width=8, slice_width=4)
+    got = toolflow.place_and_route(plan, emit.unit_verilog(plan), devices.get("ecp5-25k"), (1,))
+    assert got[0].status == "ok", got[0].message
+    assert got[0].flip_flops == plan.registers.total

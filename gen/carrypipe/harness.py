@@ -82,8 +82,9 @@ def luts(plan: Plan) -> int:
     return max(n_in - 1, 0) + n_out
 
 
-def harness_verilog(plan: Plan) -> str:
-    """Verilog-2005 of the harness top (module `<name>_harness`, ports clk, serial in, out)."""
+def harness_verilog(plan: Plan, module: str | None = None) -> str:
+    """Verilog-2005 of the harness top (module `<name>_harness`, ports clk, serial in, out)
+    around the unit's module (`module`, by default the unit's own name)."""
     inputs = [p for p in plan.ports if p.direction == "input" and p.name != "clk"]
     outputs = [p for p in plan.ports if p.direction == "output"]
     n_in, n_out = widths(plan)
@@ -111,7 +112,7 @@ def harness_verilog(plan: Plan) -> str:
         f"  reg [{n_out - 1}:0] {CAPTURE};",
         *wires,
         f"  always @(posedge clk) {SHIFT_IN} <= {shift_in};",
-        f"  {plan.config.name} {INSTANCE} (",
+        f"  {module or plan.config.name} {INSTANCE} (",
         "    " + ",\n    ".join(conns),
         "  );",
         f"  always @(posedge clk) {CAPTURE} <= {result} ^ {shift_out};",

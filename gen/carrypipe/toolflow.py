@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import importlib.metadata
 import json
+import re
 import tempfile
 import time
 from dataclasses import asdict, dataclass, field
@@ -134,6 +135,9 @@ def measure(job: Job) -> list[Measurement]:
                            job.tools, job.timeout)
 
 
+UNIT_MODULE = "carrypipe_unit"  # the unit's module name inside the work folder
+
+
 def place_and_route(plan, unit_text: str, device: devices.Device, seeds, kind: str = "wheel",
                     timeout: float | None = None) -> list[Measurement]:
     """Measure Verilog `unit_text` (a module with `plan`'s name and ports) in the harness.
@@ -143,8 +147,13 @@ def place_and_route(plan, unit_text: str, device: devices.Device, seeds, kind: s
     results = []
     with tempfile.TemporaryDirectory(prefix="carrypipe-fit-") as tmp:
         work = Path(tmp)
+        # The unit under a name of carrypipe's own (the reserved prefix): a unit named after
+        # one of the device's cells (`LUT4`, `SB_CARRY`, ...) must not meet its library.
+        unit_text = re.sub(rf"^module\s+{re.escape(plan.config.name)}\b", f"module {UNIT_MODULE}",
+                           unit_text, count=1, flags=re.M)
         (work / f"{plan.config.name}.v").write_text(unit_text)
-        (work / f"{harness.top_name(plan)}.v").write_text(harness.harness_verilog(plan))
+        (work / f"{harness.top_name(plan)}.v").write_text(
+            harness.harness_verilog(plan, UNIT_MODULE))
         if fam.pin_file:
             (work / f"{PINS}.{fam.pin_file}").write_text(devices.pin_constraints(device))
         start = time.monotonic()
