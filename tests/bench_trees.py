@@ -88,7 +88,7 @@ PRESETS = {
         _mul(tree="native", native_stages=3),
     ],
     "sum8x32": [
-        _sum(slice_width=35),
+        _sum(slice_width=34),
         _sum(slice_width=18),
         _sum(slice_width=12),
         _sum(slice_width=9),
