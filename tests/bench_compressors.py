@@ -34,7 +34,7 @@ def _rows(w: int, n: int) -> str:
 def design(kind: str, w: int) -> tuple[str, int]:
     """(Verilog of module `cmp`, rows in)."""
     n = 3 if kind == "fa32" else 4
-    head = [f"module cmp (input wire clk, "
+    head = ["module cmp (input wire clk, "
             + ", ".join(f"input wire [{w - 1}:0] x{i}" for i in range(n))
             + f", output reg [{w}:0] s, output reg [{w}:0] c);", _rows(w, n)]
     load = ["  always @(posedge clk) begin"] + [f"    x{i}_r <= x{i};" for i in range(n)]

@@ -85,7 +85,6 @@ class Kind:
         raise NotImplementedError
 
     def ports(self, c) -> list[Port]:
-        w = c.width
         ports = [Port("clk", "input", 1, "clock: every register loads on its rising edge")]
         if c.reset != "none":
             what = "every register" if c.reset_data else "the valid bits"
