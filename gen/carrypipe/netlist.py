@@ -76,6 +76,9 @@ class Expr:
         return Op("^", (self, other))
 
     def __invert__(self):
+        """~x, with ~~x written as x (a constant absorbed twice into one dot)."""
+        if isinstance(self, Op) and self.op == "~":
+            return self.args[0]
         return Op("~", (self,))
 
 
