@@ -307,7 +307,8 @@ def test_compositional_is_for_slices_only(tmp_path):
     assert res.exit_code == 2
     assert res.output.strip() == ("carrypipe: error: --method: value compositional is not "
                                   "allowed for this unit; it covers sliced adders and "
-                                  "subtractors without reset_data (use direct)")
+                                  "subtractors, and sums and multipliers whose final adder "
+                                  "has at most 512 bits, without reset_data (use direct)")
 
 
 def test_the_reference_sum_chained_in_chunks(monkeypatch):

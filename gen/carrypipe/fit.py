@@ -41,6 +41,7 @@ class Settings:
     timeout: float | None = None
     use_cache: bool = True
     modes: tuple[str, ...] = config.PIPELINES
+    trees: tuple[str, ...] = config.TREES  # a sum's or multiplier's trees to try
 
 
 @dataclass
@@ -100,7 +101,8 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     versions = toolflow.versions(dev.family, settings.tools, settings.timeout)
     store = store or cache.Cache(read=settings.use_cache)
     rows = candidates.distinct([make_row(c, "even", dev) for c in
-                                candidates.generate(base, settings.cells, settings.modes)])
+                                candidates.generate(base, settings.cells, settings.modes,
+                                                    settings.trees)])
     progress, warned = Progress(echo), False
     seeds = tuple(range(1, settings.seeds + 1))
     measurements = cached = 0

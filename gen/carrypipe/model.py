@@ -27,8 +27,9 @@ def models() -> dict:
 
 
 def feature(plan: Plan) -> float | None:
-    """The model's x for a plan (None for a structure it does not describe)."""
-    if plan.config.normalized().get("pipeline", "slices") != "slices":
+    """The model's x for a plan (None for a structure it does not describe: the prefix
+    modes, and the carry-save units' trees)."""
+    if plan.mode != "slices":
         return None
     slow = plan.slowest[0]
     return float(slow.width if plan.config.cell == "native" else slow.delay)
