@@ -285,6 +285,9 @@ INCREMENT = [
          levels_per_stage=3, enable=True, valid=True, reset="sync"),
     dict(cell="kogge-stone", width=17, local_width=16, register_inputs=True),
     dict(cell="kogge-stone", width=3, local_width=2, unit="addsub", carry_out=False),
+    # a carry-save unit's final adder (whose second operand is shorter)
+    dict(cell="kogge-stone", width=40, local_width=8, unit="sum", operands=5, wire_registers=1),
+    dict(cell="sklansky", width=24, local_width=5, unit="multiplier", width_b=9, signed=True),
 ]
 
 
