@@ -297,7 +297,8 @@ LOGIC_WIDTHS = DEPTH_WIDTHS[:-2]
 
 def depth_items(family: devices.Family) -> list[tuple]:
     """(family, kind, cell, widths) of every depth table: one Yosys run each."""
-    out = [(family.name, kind, "native", DEPTH_WIDTHS) for kind in units.KINDS]
+    out = [(family.name, name, "native", DEPTH_WIDTHS) for name, kind in units.KINDS.items()
+           if not kind.tree]  # the model does not read the carry-save kinds' trees
     out += [(family.name, "adder", cell, LOGIC_WIDTHS) for cell in cells.STYLES
             if cells.STYLES[cell].family != "behavioural"]
     return out

@@ -9,9 +9,10 @@ seeds), LUTs, carry cells, flip-flops, the ratio to the fabric limit (register -
     python tests/bench_modes.py --width 64 --seeds 3
     python tests/bench_modes.py --width 256 --seeds 3 --only han-carlson/0,kogge-stone/2
 
-A design is `<cell>/<wire_registers>[/<local_width>]` (levels mode, one prefix level per
-stage, registered inputs unless `--no-input-register`, "plain" in the table); with
-`--blocks <k>` the designs are blocks mode, block width k.
+A design is `<cell>/<wire_registers>[/<local_width>[/increment]]` (levels mode, one prefix
+level per stage, registered inputs unless `--no-input-register`, "plain" in the table;
+`increment` adds `carry_increment: true`); with `--blocks <k>` the designs are blocks mode,
+block width k.
 `--pnr-args="--tmg-ripup"` (with `=`) adds nextpnr options to every run of the table (fabric limit and
 peer included), to compare place-and-route options in one flow; results are cached apart.
 """
@@ -34,12 +35,21 @@ DESIGNS = ("kogge-stone/0", "kogge-stone/1", "kogge-stone/2", "han-carlson/0",
 def unit_config(width: int, design: str, blocks: int | None,
                 inputs: bool = True) -> config.Config:
     cell, wires, *local = design.split("/")
+    if local[1:] == ["increment"]:
+        local = local[:1]
+        increment = True
+    elif not local[1:]:
+        increment = False
+    else:
+        raise SystemExit(f"unknown design {design!r}: <cell>/<wires>[/<local>[/increment]]")
     keys = {"name": "gen", "width": width, "pipeline": "blocks" if blocks else "levels",
             "cell": cell, "wire_registers": int(wires), "register_inputs": inputs}
     if blocks:
         keys["block_width"] = blocks
     if local:
         keys["local_width"] = int(local[0])
+    if increment:
+        keys["carry_increment"] = True
     return config.from_mapping(keys)
 
 
@@ -58,7 +68,8 @@ def main(argv=None) -> int:
     ap.add_argument("--device", default="ecp5-85k")
     ap.add_argument("--width", type=int, default=64)
     ap.add_argument("--seeds", type=int, default=1)
-    ap.add_argument("--only", help="comma-separated designs <cell>/<wire_registers>[/<local_width>]")
+    ap.add_argument("--only", help="comma-separated designs "
+                    "<cell>/<wire_registers>[/<local_width>[/increment]]")
     ap.add_argument("--blocks", type=int, help="measure blocks mode with this block width")
     ap.add_argument("--no-peer", action="store_true", help="leave out the registered a + b")
     ap.add_argument("--no-input-register", action="store_true",

@@ -25,6 +25,11 @@ UNITS = [
     dict(unit="accumulator", width=8, slice_width=3, valid=True),
     dict(width=8, slice_width=4, cell="han-carlson", valid=True, reset="async",
          reset_data=True),
+    dict(unit="multiplier", width=4, width_b=3, signed=True, slice_width=3),
+    dict(unit="multiplier", width=4, partial_products="booth4", pipeline="levels",
+         cell="sklansky"),
+    dict(unit="sum", operands=4, width=3, signed=True, tree="wallace", pipeline="blocks",
+         cell="kogge-stone", block_width=2),
 ]
 
 # Operator swaps: each keeps the widths, so the mutant is valid Verilog.

@@ -37,10 +37,26 @@ BAD_VALUES = {
     "enable": ["off", 1, {}],
     "reset": ["async", "", True, None, 0, "SYNC"],
     "register_inputs": ["true", 1],
-    "unit": ["multiplier", None, 1, "Adder", "comparators"],
+    "unit": ["multiply", None, 1, "Adder", "comparators", "Multiplier", "summer"],
     "pipeline": ["stages", None, 3],
     "reset_data": ["yes", 1, None, True],  # true needs a reset
     "signed": ["on", 2, None, "true"],
+}
+# The carry-save kinds' keys, each on a config of a kind that reads it.
+TREE_BASES = {"operands": {"name": "u", "unit": "sum", "width": 8, "operands": 4},
+              "width_b": {"name": "u", "unit": "multiplier", "width": 8},
+              "partial_products": {"name": "u", "unit": "multiplier", "width": 8},
+              "tree": {"name": "u", "unit": "sum", "width": 8, "operands": 4},
+              "tree_levels_per_stage": {"name": "u", "unit": "multiplier", "width": 8},
+              "native_stages": {"name": "u", "unit": "multiplier", "width": 8,
+                                "tree": "native"}}
+BAD_TREE_VALUES = {
+    "operands": [2, 17, 0, -3, "4", 4.0, True, None, [4], "four"],
+    "width_b": [0, -1, 257, 10**30, "8", 8.5, True, None, [8]],
+    "partial_products": ["booth", "AND", "", None, 4, "booth8", ["and"], "and "],
+    "tree": ["dada", "Dadda", None, 3, "wallace ", "", ["native"]],
+    "tree_levels_per_stage": [0, 17, -1, "2", 2.0, True, None],
+    "native_stages": [0, 17, "1", None, 1.5, False],
 }
 # Keys each fine alone but refused together (a unit kind or mode that does not read a key,
 # a reset with nothing to clear).
@@ -51,6 +67,16 @@ BAD_COMBINATIONS = [
     {"unit": "subtractor", "pipeline": "levels", "cell": "native"},
     {"reset": "sync"}, {"reset": "async", "reset_data": False},
     {"reset": "none", "reset_data": True, "valid": True},
+    {"unit": "multiplier", "carry_in": True}, {"unit": "multiplier", "carry_out": True},
+    {"unit": "sum", "operands": 3, "carry_out": False}, {"unit": "sum"},
+    {"unit": "sum", "operands": 3, "width_b": 4}, {"unit": "multiplier", "operands": 3},
+    {"unit": "multiplier", "width": 300}, {"unit": "multiplier", "slices": [4, 4]},
+    {"unit": "multiplier", "tree": "native", "cell": "ripple"},
+    {"unit": "multiplier", "tree": "native", "partial_products": "booth4"},
+    {"unit": "multiplier", "tree": "native", "tree_levels_per_stage": 2},
+    {"unit": "multiplier", "native_stages": 2}, {"operands": 3}, {"tree": "dadda"},
+    {"width_b": 4}, {"unit": "multiplier", "width": 1, "width_b": 1, "slice_width": 1},
+    {"unit": "sum", "operands": 4, "signed": True, "pipeline": "levels", "cell": "native"},
 ]
 
 # Plain scalars that YAML 1.1 (PyYAML's default) reads as a number, boolean, null or date, or
@@ -77,6 +103,10 @@ INT_KEYS = {
     "wire_registers": LEVELS + "wire_registers: {}\n",
     "local_width": LEVELS + "local_width: {}\n",
     "block_width": "name: u\nwidth: 16\ncell: sklansky\npipeline: blocks\nblock_width: {}\n",
+    "operands": "name: u\nunit: sum\nwidth: 8\noperands: {}\n",
+    "width_b": "name: u\nunit: multiplier\nwidth: 8\nwidth_b: {}\n",
+    "tree_levels_per_stage": "name: u\nunit: multiplier\nwidth: 8\ntree_levels_per_stage: {}\n",
+    "native_stages": "name: u\nunit: multiplier\nwidth: 8\ntree: native\nnative_stages: {}\n",
 }
 HUGE = ["9" * 21, "1" + "0" * 99, "9" * 4300, "9" * 4301, "9" * 5000, "-" + "9" * 5000,
         "1" * 200_000]
@@ -103,6 +133,9 @@ def _bad_texts():
         base = {k: v for k, v in GOOD.items() if k != "slice_width" or key != "slices"}
         for value in values:
             cases.append((f"{key}={value!r}", yaml.safe_dump({**base, key: value})))
+    for key, values in BAD_TREE_VALUES.items():
+        for value in values:
+            cases.append((f"{key}={value!r}", yaml.safe_dump({**TREE_BASES[key], key: value})))
     for keys in BAD_COMBINATIONS:
         data = {**GOOD, **keys}
         if "pipeline" in keys:
@@ -116,6 +149,9 @@ def _bad_texts():
     for key in BOOL_KEYS:
         for text in BOOL_SPELLINGS:
             cases.append((f"YAML 1.1 {key}: {text}", f"name: u\nwidth: 8\n{key}: {text}\n"))
+    for text in BOOL_SPELLINGS:  # a levels-mode key: read with local blocks only
+        cases.append((f"YAML 1.1 carry_increment: {text}",
+                      LEVELS + f"local_width: 8\ncarry_increment: {text}\n"))
     for text in HUGE:
         cases.append((f"huge name: {len(text)} chars", f"name: {text}\nwidth: 8\n"))
         cases.append((f"huge key: {len(text)} chars", f"name: u\nwidth: 8\n{text}: 1\n"))

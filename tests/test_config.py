@@ -54,7 +54,8 @@ def test_split(keys, split):
     ({"reset": "asynchronous"}, r"config: key 'reset': value 'asynchronous' is not allowed; expected one of none, sync, async\Z"),
     ({"reset": "sync"}, r"config: key 'reset': value 'sync' is not allowed with nothing to reset; expected 'none', or valid: true or reset_data: true beside it\Z"),
     ({"reset_data": True}, r"config: key 'reset_data': value true is not allowed with reset 'none'; expected reset 'sync' or 'async' beside it\Z"),
-    ({"unit": "divider"}, r"config: key 'unit': value 'divider' is not allowed; expected one of adder, subtractor, addsub, comparator, accumulator\Z"),
+    ({"unit": "divider"}, r"config: key 'unit': value 'divider' is not allowed; expected one of adder, subtractor, addsub, comparator, accumulator, "
+     r"sum, multiplier\Z"),
     ({"unit": "comparator", "carry_in": True}, r"config: key 'carry_in' is given with unit 'comparator'; expected it only with unit 'adder' or 'subtractor' or 'addsub'\Z"),
     ({"unit": "accumulator", "pipeline": "levels"}, r"config: key 'pipeline': value 'levels' is not allowed with unit 'accumulator'; expected one of slices\Z"),
     ({"name": "module"}, r"config: key 'name': value 'module' is not allowed; expected a Verilog identifier"),

@@ -53,6 +53,23 @@ CASES += [
     dict(unit="accumulator", width=12, slice_width=5, valid=True, enable=True),
     dict(unit="accumulator", width=12, slice_width=5, cell="ripple", carry_out=False,
          reset="sync", reset_data=True),
+    dict(unit="multiplier", width=8, width_b=6, signed=True, slice_width=5, **{
+        k: v for k, v in FULL.items() if k != "carry_in"}),
+    dict(unit="multiplier", width=7, partial_products="booth4", tree="wallace",
+         tree_levels_per_stage=2, pipeline="levels", cell="kogge-stone", wire_registers=1),
+    dict(unit="multiplier", width=9, width_b=5, partial_products="booth4", signed=True,
+         pipeline="blocks", cell="brent-kung", block_width=4, valid=True, reset="async",
+         reset_data=True),
+    dict(unit="multiplier", width=1, width_b=1),
+    dict(unit="multiplier", width=2, width_b=7, cell="ripple"),
+    dict(unit="multiplier", width=12, tree="native", signed=True, native_stages=3,
+         register_inputs=True),
+    dict(unit="sum", operands=5, width=9, signed=True, tree="wallace", cell="han-carlson",
+         slice_width=4, valid=True, enable=True, reset="sync"),
+    dict(unit="sum", operands=16, width=3, tree_levels_per_stage=3, pipeline="levels",
+         cell="sklansky"),
+    dict(unit="sum", operands=3, width=1),
+    dict(unit="sum", operands=7, width=10, tree="native", signed=True),
 ]
 IDS = [f"{c.get('unit', 'adder')}-{c['cell'] if 'cell' in c else 'native'}-w{c['width']}-"
        f"{c.get('pipeline', 'slices')}-{n}" for n, c in enumerate(CASES)]

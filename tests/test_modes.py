@@ -197,6 +197,8 @@ PRUNED = [
     {"pipeline": "levels", "cell": "kogge-stone", "width": 32, "wire_registers": 2},
     {"pipeline": "levels", "cell": "sklansky", "width": 40, "local_width": 8, "carry_in": True,
      "valid": True, "wire_registers": 1},
+    {"pipeline": "levels", "cell": "kogge-stone", "width": 64, "local_width": 16,
+     "carry_increment": True, "wire_registers": 1},
 ]
 
 
@@ -269,6 +271,59 @@ def test_local_network_depth(cell, n, local):
     within = {(i // local, j // local) for level in p.schedule.network.levels[:-1]
               for i, j in level if i % local != local - 1}
     assert all(a == b for a, b in within)  # only block tops reach across blocks, but the fill-in
+
+
+# carry_increment: the units against Python integers (the adder kinds, carry-in, signed
+# overflow, enable and reset, several stages' levels, wired levels up to the fill-in).
+INCREMENT = [
+    dict(cell="kogge-stone", width=64, local_width=16, wire_registers=1),
+    dict(cell="kogge-stone", width=256, local_width=16, wire_registers=2, valid=True),
+    dict(cell="sklansky", width=100, local_width=12, carry_in=True, levels_per_stage=2),
+    dict(cell="han-carlson", width=37, local_width=8, unit="subtractor", wire_registers=3),
+    dict(cell="brent-kung", width=45, local_width=7, unit="addsub", signed=True),
+    dict(cell="ladner-fischer", width=23, local_width=3, signed=True, carry_in=True,
+         levels_per_stage=3, enable=True, valid=True, reset="sync"),
+    dict(cell="kogge-stone", width=17, local_width=16, register_inputs=True),
+    dict(cell="kogge-stone", width=3, local_width=2, unit="addsub", carry_out=False),
+    # a carry-save unit's final adder (whose second operand is shorter)
+    dict(cell="kogge-stone", width=40, local_width=8, unit="sum", operands=5, wire_registers=1),
+    dict(cell="sklansky", width=24, local_width=5, unit="multiplier", width_b=9, signed=True),
+]
+
+
+@pytest.mark.parametrize("keys", INCREMENT, ids=lambda k: f"{k['cell']}-{k['width']}-{k['local_width']}")
+def test_carry_increment_matches_python_integers(keys):
+    turn = INCREMENT.index(keys)
+    simulate(make(pipeline="levels", carry_increment=True, **keys), count=120, seed=turn)
+
+
+@needs_icarus
+def test_carry_increment_in_icarus():
+    simulate(make(pipeline="levels", cell="kogge-stone", width=96, local_width=16,
+                  carry_increment=True, wire_registers=2, carry_in=True), simulator="icarus",
+             count=150)
+
+
+def test_carry_increment_waits_with_two_terms():
+    """Bit i of a block q >= 1 (not its lowest) waits for the block carry with its sum for
+    carry-in 0 and one propagate instead of p_i, G and P, and s0 ^ P & C is formed in the
+    stage after the block carry is final.  Counted by hand for 32 bits, Kogge-Stone, blocks
+    of 8 (levels 1-3 within the blocks, 4-5 over the block tops, 6 the fill-in; latency 6):
+    the waiting bits 9-15, 17-23 and 25-31 are complete within their blocks in stage 3.
+    Plain, they hold p, G and P in ranks 3-5 (21 x 3 x 3 = 189 bits), and block 0's carry
+    waits in ranks 4-5 for the merged fill-in (2 bits).  With the increment, block q's carry
+    is final in stage q + 2 (block 0's top in stage 3, then prefix levels 4 and 5), so its
+    bits flip in stage q + 3 and hold s0 and P for q ranks, then their sum bit: 7 x (2 + 2)
+    + 7 x (4 + 1) + 7 x 6 = 105 bits.  Nothing else differs: 189 + 2 - 105 = 86."""
+    keys = dict(pipeline="levels", cell="kogge-stone", width=32, local_width=8)
+    plain, inc = make(**keys), make(**keys, carry_increment=True)
+    assert inc.latency == plain.latency == 6
+    flips = {t.pos: t.stage for t in inc.schedule.terms if t.op == "sum_flip"}
+    assert flips == {q * 8 + r: q + 3 for q in (1, 2, 3) for r in range(1, 8)}
+    assert plain.registers.total - inc.registers.total == 189 + 2 - 105
+    text = emit.unit_verilog(inc)
+    assert re.search(r"sum_stage\[31:26\] <= csum_\w+\[31:26\] \^ \(grp_prop_\w+ & "
+                     r"\{6\{grp_gen_\w+\}\}\);", text), text
 
 
 def test_local_width_zero_or_full_is_the_plain_network():
@@ -372,6 +427,21 @@ def base(**extra):
      r"config: key 'local_width' is given with pipeline 'blocks'; expected it only with pipeline 'levels'\Z"),
     ({"pipeline": "levels", "cell": "kogge-stone", "local_width": 8, "wire_registers": 7},
      r"config: key 'wire_registers': value 7 is not allowed; expected an integer from 0 to the depth of the kogge-stone network \(6\)\Z"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "carry_increment": True},
+     r"config: key 'carry_increment': value true is not allowed with local_width 0; expected local_width from 2 to 31 \(width - 1\) beside it, or carry_increment: false\Z"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "local_width": 32, "carry_increment": True},
+     r"config: key 'carry_increment': value true is not allowed with local_width 32;"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "local_width": 1, "carry_increment": True},
+     r"config: key 'carry_increment': value true is not allowed with local_width 1;"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "width": 2, "local_width": 1,
+      "carry_increment": True},
+     r"config: key 'carry_increment': value true is not allowed with width 2; expected false"),
+    ({"pipeline": "levels", "cell": "kogge-stone", "local_width": 8, "carry_increment": "yes"},
+     r"config: key 'carry_increment': value 'yes' is not allowed; expected true or false\Z"),
+    ({"pipeline": "blocks", "cell": "kogge-stone", "carry_increment": True},
+     r"config: key 'carry_increment' is given with pipeline 'blocks'; expected it only with pipeline 'levels'\Z"),
+    ({"pipeline": "levels", "unit": "comparator", "carry_increment": False},
+     r"config: key 'carry_increment' is given with pipeline 'levels'; expected it only with pipeline"),
 ], ids=lambda v: "-".join(f"{k}={v[k]}" for k in v)[:40] if isinstance(v, dict) else None)
 def test_bad_mode_keys(keys, message):
     with pytest.raises(ConfigError, match="^" + message):

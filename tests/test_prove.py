@@ -39,7 +39,9 @@ def test_every_cell_style_is_proved(cell):
     dict(width=24, pipeline="levels", cell="kogge-stone", levels_per_stage=2, **FULL),
     dict(width=24, pipeline="blocks", cell="brent-kung", block_width=8, wire_registers=1,
          valid=True),
-], ids=["one-slice", "uneven-no-cout", "levels", "blocks"])
+    dict(width=26, pipeline="levels", cell="han-carlson", local_width=6, carry_increment=True,
+         unit="addsub", signed=True, wire_registers=2, **FULL),
+], ids=["one-slice", "uneven-no-cout", "levels", "blocks", "levels-carry-increment"])
 def test_options_and_modes_are_proved(keys):
     result = prove.prove(plan_of(**keys))
     assert result.proved, result.message
@@ -305,7 +307,8 @@ def test_compositional_is_for_slices_only(tmp_path):
     assert res.exit_code == 2
     assert res.output.strip() == ("carrypipe: error: --method: value compositional is not "
                                   "allowed for this unit; it covers sliced adders and "
-                                  "subtractors without reset_data (use direct)")
+                                  "subtractors, and sums and multipliers whose final adder "
+                                  "has at most 512 bits, without reset_data (use direct)")
 
 
 def test_the_reference_sum_chained_in_chunks(monkeypatch):

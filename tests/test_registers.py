@@ -43,9 +43,19 @@ def flip_flop_bits(verilog: str, tmp_path) -> int:
     {"unit": "comparator", "width": 20, "pipeline": "levels", "slice_width": 4},
     {"unit": "accumulator", "width": 20, "slice_width": 6, "valid": True, "enable": True,
      "reset": "sync", "reset_data": True},
+    {"unit": "multiplier", "width": 8, "signed": True, "slice_width": 5, "valid": True,
+     "reset": "sync", "register_inputs": True},
+    {"unit": "multiplier", "width": 7, "width_b": 5, "partial_products": "booth4",
+     "tree": "wallace", "pipeline": "levels", "cell": "han-carlson", "enable": True},
+    {"unit": "multiplier", "width": 6, "width_b": 9, "pipeline": "blocks", "cell": "sklansky",
+     "block_width": 3, "tree_levels_per_stage": 2, "reset": "sync", "reset_data": True},
+    {"unit": "sum", "operands": 9, "width": 11, "signed": True, "slice_width": 4},
+    {"unit": "sum", "operands": 4, "width": 16, "tree": "native", "native_stages": 3,
+     "valid": True, "reset": "async"},
 ], ids=["native-4x16", "ks-uneven", "ripple-bitserial", "bk-single", "sk-everything",
         "async", "sync-data", "async-data-ripple", "levels-async-data", "subtractor",
-        "addsub-blocks", "comparator", "comparator-levels", "accumulator"])
+        "addsub-blocks", "comparator", "comparator-levels", "accumulator", "multiplier",
+        "multiplier-booth-levels", "multiplier-blocks-data", "sum", "sum-native"])
 def test_yosys_counts_the_planned_bits(keys, tmp_path):
     p = make(**keys)
     assert flip_flop_bits(emit.unit_verilog(p), tmp_path) == p.registers.total

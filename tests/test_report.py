@@ -25,6 +25,7 @@ BASES = [
     dict(width=130, unit="subtractor", pipeline="blocks", cell="sklansky", block_width=16),
     dict(width=64, unit="comparator", pipeline="levels", levels_per_stage=2),
     dict(width=32, unit="addsub", pipeline="levels", cell="ladner-fischer"),
+    dict(width=256, pipeline="levels", cell="kogge-stone", local_width=16, carry_increment=True),
 ]
 OPTIONS = [dict(), dict(register_inputs=True), dict(carry_in=True, valid=True, enable=True),
            dict(signed=True, reset="sync", register_inputs=True), dict(wire_registers=2),
@@ -71,6 +72,8 @@ def test_no_tip_offers_what_the_config_already_does(plan):
         assert wired not in said  # the tip offers one rank more than the config has
         if c.levels_per_stage == 1:
             assert "levels_per_stage" not in said
+        local = plan.schedule.flavour == "bits" and 2 <= c.local_width < c.width
+        assert ("`carry_increment: true`" in said) == (local and not c.carry_increment)
     else:
         others = [m for m in plan.unit.modes if m != "slices"] if c.width > 1 else []
         for mode in ("levels", "blocks"):

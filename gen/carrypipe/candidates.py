@@ -42,18 +42,28 @@ def balanced(width: int, stages: int) -> tuple[int, ...]:
 
 
 def variant(base: Config, **keys) -> Config:
-    """`base` with some keys replaced, validated again (keys of the other modes dropped)."""
-    data = {k: v for k, v in base.normalized().items()
-            if k not in config.MODE_KEYS and k not in ("pipeline", "slices")}
+    """`base` with some keys replaced, validated again (keys of the other modes dropped, and
+    the counter tree's keys for `tree: native`)."""
+    drop = set(config.MODE_KEYS) | {"pipeline", "slices"}
+    if keys.get("tree", base.tree) == "native" and units.KINDS[base.unit].tree:
+        drop |= set(config.COUNTER_TREE_KEYS)
+    data = {k: v for k, v in base.normalized().items() if k not in drop}
     data.update(keys)
     return config.from_mapping(data, where="candidate")
 
 
-def slice_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Config]:
-    """Even splits from one slice up to MAX_STAGES slices, slices at least 2 bits wide, for
+def span(base: Config) -> int:
+    """The bits a split divides: the unit's width, or a sum's or multiplier's final adder."""
+    return config.split_span(base)[0]
+
+
+def slice_candidates(base: Config, cells: tuple[str, ...] | None,
+                     most: int = MAX_STAGES) -> list[Config]:
+    """Even splits from one slice up to `most` slices, slices at least 2 bits wide, for
     each style of `cells` (None: the config's own cell)."""
-    top = max(1, min(MAX_STAGES, base.width // 2))
-    return [variant(base, cell=cell, slices=list(balanced(base.width, s)))
+    bits = span(base)
+    top = max(1, min(most, bits // 2))
+    return [variant(base, cell=cell, slices=list(balanced(bits, s)))
             for cell in (cells or (base.cell,)) for s in range(1, top + 1)]
 
 
@@ -82,7 +92,7 @@ def levels_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Confi
     styles = prefix_styles(base, cells)
     out = [variant(base, pipeline="levels", cell=cell, levels_per_stage=n)
            for cell in styles for n in LEVELS_PER_STAGE]
-    if base.width >= LOCAL_FROM:  # local networks kept wiring short at 64 and 256 bits
+    if span(base) >= LOCAL_FROM:  # local networks kept wiring short at 64 and 256 bits
         out += [variant(base, pipeline="levels", cell=cell, local_width=LOCAL_WIDTH,
                         wire_registers=wires)
                 for cell in styles for wires in (0, 1, 2)]
@@ -92,7 +102,7 @@ def levels_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Confi
 def blocks_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Config]:
     """blocks x prefix style x block width (block widths that leave at least two blocks)."""
     return [variant(base, pipeline="blocks", cell=cell, block_width=k)
-            for k in BLOCK_WIDTHS if -(-base.width // k) >= 2
+            for k in BLOCK_WIDTHS if -(-span(base) // k) >= 2
             for cell in prefix_styles(base, cells)]
 
 
@@ -101,13 +111,46 @@ GENERATORS = {"slices": slice_candidates, "levels": levels_candidates,
               "blocks": blocks_candidates}
 
 
+# A sum's or multiplier's trees: each counter tree with these levels per stage (and the
+# final adder's candidates of the modes asked for, sliced into at most TREE_SLICES), and the
+# native operation with these register ranks.
+TREE_LEVELS_PER_STAGE = (1, 2)
+TREE_SLICES = 8
+NATIVE_STAGES = (1, 2, 3, 4)
+
+
+def tree_candidates(base: Config, cells: tuple[str, ...] | None, modes: tuple[str, ...],
+                    trees: tuple[str, ...]) -> list[Config]:
+    """A sum's or multiplier's candidates: tree x levels per stage x final adder, and
+    `tree: native` x register ranks."""
+    out = []
+    for tree in trees:
+        if tree == "native":
+            out += [variant(base, tree="native", native_stages=n) for n in NATIVE_STAGES]
+            continue
+        for per in TREE_LEVELS_PER_STAGE:
+            each = variant(base, tree=tree, tree_levels_per_stage=per)
+            if span(each) == 0:  # no final adder to split
+                out.append(each)
+                continue
+            for mode in GENERATORS:
+                if mode in modes:
+                    made = (slice_candidates(each, cells, TREE_SLICES) if mode == "slices"
+                            else GENERATORS[mode](each, cells))
+                    out += made
+    return out
+
+
 def generate(base: Config, cells: tuple[str, ...] | None = None,
-             modes: tuple[str, ...] = config.PIPELINES) -> list[Config]:
+             modes: tuple[str, ...] = config.PIPELINES,
+             trees: tuple[str, ...] = config.TREES) -> list[Config]:
     """Every candidate config of the given modes and cell styles (None: the defaults), in
     the modes the unit kind has (a comparator has no `blocks`, an accumulator only
-    `slices`)."""
-    own = units.KINDS[base.unit].modes
-    return [cfg for mode in GENERATORS if mode in modes and mode in own
+    `slices`); for a sum or multiplier also each of `trees`."""
+    kind = units.KINDS[base.unit]
+    if kind.tree:
+        return tree_candidates(base, cells, tuple(m for m in modes if m in kind.modes), trees)
+    return [cfg for mode in GENERATORS if mode in modes and mode in kind.modes
             for cfg in GENERATORS[mode](base, cells)]
 
 
@@ -126,6 +169,8 @@ def circuit(plan: Plan) -> str:
     style, the split and the mode keys themselves do not enter: `levels_per_stage: 2` and
     `3` give one key when every stage holds the same levels.
     """
+    if plan.mode in ("tree", "native"):  # no two configs of a carry-save unit coincide
+        return json.dumps(plan.config.normalized(), sort_keys=True)
     options = {k: v for k, v in plan.config.normalized().items() if k not in STRUCTURE_KEYS}
     sch = getattr(plan, "schedule", None)
     if sch is None:
@@ -190,8 +235,11 @@ class Row:
     @property
     def label(self) -> str:
         c = self.config
+        if self.plan.mode in ("tree", "native"):
+            return self.plan.label()
         if c.pipeline == "levels":
             local = f" local {c.local_width}" if 0 < c.local_width < c.width else ""
+            local += " increment" if c.carry_increment else ""
             return f"{c.cell} levels/{c.levels_per_stage}{local}{_wired(c)}"
         if c.pipeline == "blocks":
             return f"{c.cell} blocks of {c.block_width}{_wired(c)}"
@@ -303,8 +351,14 @@ def kind(row: Row) -> tuple:
     """Candidates compared by their slowest stage: same cell style, mode and mode options
     other than how many levels or bits a stage takes."""
     c = row.config
-    return (c.cell, c.pipeline, c.local_width if c.pipeline == "levels" else 0,
-            0 if c.pipeline == "slices" else c.wire_registers)
+    out = (c.cell, c.pipeline, c.local_width if c.pipeline == "levels" else 0,
+           c.pipeline == "levels" and c.carry_increment,
+           0 if c.pipeline == "slices" else c.wire_registers)
+    if row.plan.mode == "native":
+        return ("native",)
+    if row.plan.mode == "tree":  # and the same tree, levels per stage and partial products
+        return out + (c.tree, c.tree_levels_per_stage, c.partial_products)
+    return out
 
 
 def bound(row: Row, rows: list[Row], target: float) -> Row | None:
@@ -382,7 +436,7 @@ def uneven_rows(rows: list[Row], target: float, make_row) -> list[Row]:
     known = {circuit(r.plan) for r in rows}
     new = []
     for r in rows:
-        if r.origin != "even" or r.config.pipeline != "slices" or r.mhz is None or r.mhz >= target \
+        if r.origin != "even" or r.plan.mode != "slices" or r.mhz is None or r.mhz >= target \
                 or r.mhz < target * (1 - JUST_MISSED) or r.spawned:
             continue
         r.spawned = True

@@ -32,9 +32,10 @@ from fractions import Fraction
 from functools import singledispatch
 from html import escape
 
-from . import report
+from . import report, treechart
 from .header import bits, plural, stage_list
 from .plan import Plan, PrefixPlan, SlicedPlan
+from .treeplan import NativePlan, TreePlan
 
 KINDS = ("input", "skew", "stage", "deskew", "control", "prefix", "result", "wire")
 COLOURS = {"input": "#5b7db1", "skew": "#e69a28", "stage": "#2a8c6a", "deskew": "#8a63c2",
@@ -220,6 +221,9 @@ def _(plan: PrefixPlan) -> Words:
         terms = (f"prefix terms: {chain} generate/propagate of bits and groups, each kept "
                  "until its last use")
         finished = f"finished {result} bits, waiting for the output register"
+        if c.carry_increment:
+            finished += (f"; in local blocks, {result} bits for the block's carry-in 0, "
+                         "waiting for that carry")
         local = (f" (in local blocks of {c.local_width} bits first)"
                  if 0 < c.local_width < w else "")
         structure = f"a {c.cell} prefix network over {w} bits{local}"
@@ -495,6 +499,8 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     is given the slowest stage is chosen by it, stage labels show it, and `measured_source`
     (e.g. "nextpnr, ECP5-85F") is named beside it.  Without it the unit-gate model decides.
     """
+    if isinstance(plan, (TreePlan, NativePlan)):  # a carry-save unit: its dot diagram
+        return treechart.svg(plan, measured, measured_source)
     _check_measured(plan, measured)
     lay = _Layout(plan)
     said = words(plan)

@@ -18,8 +18,8 @@ from pathlib import Path
 import click
 
 from . import __version__, candidates, devices, emit, output, report, sim, tools, units
-from .config import (CELLS, MAX_CONFIG_BYTES, PIPELINES, ConfigError, check_split, load,
-                     read_regular, reads)
+from .config import (CELLS, MAX_CONFIG_BYTES, PIPELINES, TREES, ConfigError, check_split,
+                     load, read_regular, reads, split_span)
 from .plan import make_plan
 from .prove import METHODS as PROOF_METHODS
 from .vectors import suite
@@ -118,12 +118,16 @@ def load_plan(config_path: str, slice_width=None, slices=None):
     """Config file (plus command-line what-if split) -> plan, with user errors made one line."""
     try:
         cfg = load(config_path)
+        span, what = split_span(cfg)
         for option, value in (("--slice-width", slice_width), ("--slices", slices)):
-            if value is not None and not reads("slices", cfg.unit, cfg.pipeline):
+            if value is not None and not reads("slices", cfg.unit, cfg.pipeline, cfg.tree):
                 raise ConfigError(f"{option}: value {value!r} is not allowed with pipeline "
                                   f"{cfg.pipeline!r} ({Path(config_path).name}); expected "
                                   "--slice-width or --slices only with pipeline 'slices' "
                                   "(or a comparator's 'levels')")
+            if value is not None and span == 0:
+                raise ConfigError(f"{option}: value {value!r} is not allowed: "
+                                  f"{Path(config_path).name} has no final adder to split")
         if slice_width is not None and slices is not None:
             raise ConfigError("options --slice-width and --slices are both given; "
                               "expected at most one of them")
@@ -131,7 +135,7 @@ def load_plan(config_path: str, slice_width=None, slices=None):
             if isinstance(slice_width, str) and PLAIN_INT.match(slice_width):
                 slice_width = int(slice_width)  # else reported as given
             cfg = cfg.with_split(check_split("--slice-width", "slice_width", slice_width,
-                                             cfg.width))
+                                             span, what))
         elif slices is not None:
             parts = slices.split(",")
             if not all(PLAIN_INT.match(x) for x in parts):
@@ -139,7 +143,7 @@ def load_plan(config_path: str, slice_width=None, slices=None):
                                   "expected comma-separated positive integers written in "
                                   "plain decimal digits")
             parts = [int(x) for x in parts]
-            cfg = cfg.with_split(check_split("--slices", "slices", parts, cfg.width))
+            cfg = cfg.with_split(check_split("--slices", "slices", parts, span, what))
     except ConfigError as exc:
         raise UserError(str(exc)) from None
     return make_plan(cfg)
@@ -173,7 +177,7 @@ def build(config, out_dir, vectors, seed):
     files = emit.render(plan, vectors=vectors, seed=seed)
     _write_folder(files, dest)
     r = plan.registers
-    click.echo(f"{plan.config.name}: {plan.width}-bit {plan.config.cell}, "
+    click.echo(f"{plan.config.name}: {report.headline(plan)}, "
                f"{report.structure_phrase(plan)}, latency {plan.latency}, "
                f"{r.total} register bits -> {dest}/")
     for fname in sorted(files):
@@ -257,7 +261,7 @@ def prove(target, depth, timeout, method):
         depth = _depth(depth, plan.latency)
     if method == "compositional" and not plan.can_compose:
         raise UserError("--method: value compositional is not allowed for this unit; it "
-                        "covers sliced adders and subtractors without reset_data (use direct)")
+                        f"covers {proof.COMPOSABLE} (use direct)")
     result = proof.prove(plan, depth=depth, timeout=timeout, method=method, verilog=verilog)
     click.echo(f"{what}: {result.message}")
     sys.exit(0 if result.proved else 1)
@@ -329,6 +333,8 @@ def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str,
               f"{' and '.join(candidates.DEFAULT_PREFIX_STYLES)}].")
 @click.option("--modes", metavar="LIST", help="Comma-separated pipeline modes to try: "
               f"{', '.join(PIPELINES)} [default: all].")
+@click.option("--trees", metavar="LIST", help="A sum's or multiplier's trees to try: "
+              f"{', '.join(TREES)} [default: all].")
 @click.option("--jobs", default="1", show_default=True, metavar="N",
               help="Candidates placed and routed at once (local worker processes).")
 @click.option("--seeds", default="1", show_default=True, metavar="N",
@@ -341,8 +347,8 @@ def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str,
               help="Run candidates on this Dask distributed scheduler instead of locally.")
 @click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False),
               help="Output folder [default: out/<name>].")
-def fit(config, target, device, cells, modes, jobs, seeds, no_cache, tool_kind, timeout, cluster,
-        out_dir):
+def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool_kind, timeout,
+        cluster, out_dir):
     """Measure candidate splits with Yosys and nextpnr; keep the least latency meeting MHZ."""
     from . import executor, fit as fitting
     from .toolflow import TOOLS
@@ -360,7 +366,11 @@ def fit(config, target, device, cells, modes, jobs, seeds, no_cache, tool_kind, 
     if not set(chosen_modes) & set(own):
         raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with unit "
                         f"{base.unit!r}; expected one of {', '.join(own)}")
-    if not candidates.generate(base, styles, chosen_modes):
+    chosen_trees = TREES if trees is None else _option_list("--trees", trees, TREES)
+    if trees is not None and not units.KINDS[base.unit].tree:
+        raise UserError(f"--trees: value {trees!r} is not allowed with unit {base.unit!r}; "
+                        "expected it only with unit 'sum' or 'multiplier'")
+    if not candidates.generate(base, styles, chosen_modes, chosen_trees):
         raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with "
                         f"--cells {','.join(styles or ())}; expected a prefix style in --cells "
                         "for the levels and blocks modes, or the slices mode")
@@ -377,7 +387,7 @@ def fit(config, target, device, cells, modes, jobs, seeds, no_cache, tool_kind, 
     dest = Path(out_dir) if out_dir else Path("out") / base.name
     output.check_folder(dest)  # before the long run, not after it
     settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
-                                limit, not no_cache, chosen_modes)
+                                limit, not no_cache, chosen_modes, chosen_trees)
     runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)
     try:
         outcome = fitting.run(base, settings, runner, echo=lambda t: click.echo(t, err=True))

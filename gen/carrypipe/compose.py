@@ -173,53 +173,84 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
     return found, None
 
 
-def cut_design(wiring: Wiring, nets: list[SliceNets], op: str) -> dict[str, str]:
-    """Part 2's files: the unit with every flip-flop cut (JSON) and the checker (Verilog)."""
-    cut_q, cut_d = [], []
-    names: dict = {}
+class Cut:
+    """The unit with every flip-flop cut, and a checker module around it: each flip-flop's
+    output becomes a free input (`cut_q`), its data input an output (`cut_d`); `ref(bit)`
+    names a net of the unit in the checker (an input port bit, a cut output or a cut data
+    input), adding it to the cut as it is first named."""
 
-    def ref(bit) -> str:
+    def __init__(self, wiring: Wiring):
+        self.wiring = wiring
+        self.cut_q: list = []
+        self.cut_d: list = []
+        self.names: dict = {}
+
+    def ref(self, bit) -> str:
         if bit in ("0", "1"):
             return f"1'b{bit}"
-        if bit not in names:
-            if bit in wiring.inputs:
-                names[bit] = wiring.inputs[bit]
-            elif bit in wiring.cut:
-                names[bit] = f"cut_q[{len(cut_q)}]"
-                cut_q.append(bit)
+        if bit not in self.names:
+            if bit in self.wiring.inputs:
+                self.names[bit] = self.wiring.inputs[bit]
+            elif bit in self.wiring.cut:
+                self.names[bit] = f"cut_q[{len(self.cut_q)}]"
+                self.cut_q.append(bit)
             else:
-                names[bit] = f"cut_d[{len(cut_d)}]"
-                cut_d.append(bit)
-        return names[bit]
+                self.names[bit] = f"cut_d[{len(self.cut_d)}]"
+                self.cut_d.append(bit)
+        return self.names[bit]
 
-    def cat(bits) -> str:
-        return "{" + ", ".join(ref(b) for b in reversed(bits)) + "}"
+    def cat(self, bits) -> str:
+        return "{" + ", ".join(self.ref(b) for b in reversed(bits)) + "}"
 
+    def files(self, body: list[str], oks: list[str]) -> dict[str, str]:
+        """cut.json (the cut unit) and check.v (module CHECK: `body`, then output `oks`,
+        bit j of it the wire oks[j]); name every net in `body` first."""
+        cut_q, cut_d = self.cut_q, self.cut_d
+        mod = dict(self.wiring.mod)
+        inputs = {n: p for n, p in mod["ports"].items() if p["direction"] == "input"}
+        mod["cells"] = {n: c for n, c in mod["cells"].items() if not is_ff(c)}
+        mod["netnames"] = {}  # the ports and cells name every net that matters; saves time
+        mod["ports"] = {**inputs, "cut_q": {"direction": "input", "bits": cut_q or ["0"]},
+                        "cut_d": {"direction": "output", "bits": cut_d or ["0"]}}
+        decl = [f"  input [{len(p['bits']) - 1}:0] {n};" for n, p in inputs.items()]
+        conns = [f".{n}({n})" for n in inputs] + [".cut_q(cut_q)", ".cut_d(cut_d)"]
+        # `oks` is an output so that no pass drops the comparisons; one bit per part, no
+        # wide AND (a 1024-deep expression would exhaust the Verilog front end's stack).
+        check = [f"module {CHECK}({', '.join(list(inputs) + ['cut_q', 'oks'])});", *decl,
+                 f"  input [{max(len(cut_q), 1) - 1}:0] cut_q;",
+                 f"  output [{len(oks) - 1}:0] oks;",
+                 f"  wire [{max(len(cut_d), 1) - 1}:0] cut_d;",
+                 f"  {CUT} unit ({', '.join(conns)});", *body,
+                 *(f"  assign oks[{j}] = {ok};" for j, ok in enumerate(oks)), "endmodule"]
+        return {"cut.json": json.dumps({"modules": {CUT: mod}}),
+                "check.v": "\n".join(check) + "\n"}
+
+
+def cut_design(wiring: Wiring, nets: list[SliceNets], op: str) -> dict[str, str]:
+    """Part 2's files: the unit with every flip-flop cut (JSON) and the checker (Verilog)."""
+    cut = Cut(wiring)
     body = []
     for n in nets:
         k = len(n.s)
-        body += chained(f"ref_{n.index}", cat(n.a), cat(n.b), ref(n.c), k, op)
-        got = cat(n.s) if n.k is None else "{" + f"{ref(n.k)}, " + cat(n.s)[1:]
+        body += chained(f"ref_{n.index}", cut.cat(n.a), cut.cat(n.b), cut.ref(n.c), k, op)
+        got = cut.cat(n.s) if n.k is None else "{" + f"{cut.ref(n.k)}, " + cut.cat(n.s)[1:]
         want = f"ref_{n.index}[{k - 1}:0]" if n.k is None else f"ref_{n.index}"
         body.append(f"  wire ok_{n.index} = ({got} == {want});")
-    mod = dict(wiring.mod)
-    inputs = {n: p for n, p in mod["ports"].items() if p["direction"] == "input"}
-    mod["cells"] = {n: c for n, c in mod["cells"].items() if not is_ff(c)}
-    mod["netnames"] = {}  # the ports and cells name every net that matters; saves time
-    mod["ports"] = {**inputs, "cut_q": {"direction": "input", "bits": cut_q or ["0"]},
-                    "cut_d": {"direction": "output", "bits": cut_d or ["0"]}}
-    decl = [f"  input [{len(p['bits']) - 1}:0] {n};" for n, p in inputs.items()]
-    conns = [f".{n}({n})" for n in inputs] + [".cut_q(cut_q)", ".cut_d(cut_d)"]
-    # `oks` is an output so that no pass drops the comparisons; one bit per slice, no
-    # wide AND (a 1024-deep expression would exhaust the Verilog front end's stack).
-    check = [f"module {CHECK}({', '.join(list(inputs) + ['cut_q', 'oks'])});", *decl,
-             f"  input [{max(len(cut_q), 1) - 1}:0] cut_q;",
-             f"  output [{len(nets) - 1}:0] oks;",
-             f"  wire [{max(len(cut_d), 1) - 1}:0] cut_d;",
-             f"  {CUT} unit ({', '.join(conns)});", *body,
-             *(f"  assign oks[{n.index}] = ok_{n.index};" for n in nets), "endmodule"]
-    return {"cut.json": json.dumps({"modules": {CUT: mod}}),
-            "check.v": "\n".join(check) + "\n"}
+    return cut.files(body, [f"ok_{n.index}" for n in nets])
+
+
+def solve_parts(files: dict[str, str], count: int, timeout: Deadline) -> list[str] | None:
+    """Prove `oks[j]` of the checker for every part j, one solver run per part on its cone
+    only (one run over every part at once is several times slower: the solver must refute
+    every part's miter together).  The checker names part j's comparison `ok_j`.  Returns
+    the verdicts in order, or None when the solver ended without one for each part."""
+    limit = sat_limit(timeout)
+    script = ["read_json cut.json", "read_verilog check.v", f"hierarchy -top {CHECK} -check",
+              "proc", "flatten", "opt_clean"]
+    script += [f"sat {limit}-prove ok_{j} 1 w:ok_{j} %ci*" for j in range(count)]
+    log, _ = run_yosys("\n".join(script) + "\n", files, timeout)
+    verdicts = re.findall(f"({re.escape(PROVED)}|{re.escape(FAILED)})", log)
+    return verdicts if len(verdicts) == count else None
 
 
 def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outcome:
@@ -232,18 +263,11 @@ def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outco
     if problem:
         return Outcome(method, problem)
     files = cut_design(wiring, nets, "+" if plan.unit.op == "add" else "-")
-    limit = sat_limit(timeout)
-    # One solver run per slice, on that slice's cone only: one run over all slices at once
-    # is several times slower (the solver must refute every slice's miter together).
-    script = ["read_json cut.json", "read_verilog check.v", f"hierarchy -top {CHECK} -check",
-              "proc", "flatten", "opt_clean"]
-    script += [f"sat {limit}-prove ok_{j} 1 w:ok_{j} %ci*" for j in range(count)]
-    log, _ = run_yosys("\n".join(script) + "\n", files, timeout)
-    verdicts = re.findall(f"({re.escape(PROVED)}|{re.escape(FAILED)})", log)
+    verdicts = solve_parts(files, count, timeout)
+    if verdicts is None:
+        raise no_verdict(timeout)
     bad = [j for j, v in enumerate(verdicts) if v == FAILED]
     if bad:
         return Outcome(method, f"slice {bad[0]}: its logic does not compute a + b + c on its "
                                "own operand bits and carry-in (cell check, flip-flops cut)")
-    if len(verdicts) == count:
-        return Outcome(method, None)
-    raise no_verdict(timeout)
+    return Outcome(method, None)

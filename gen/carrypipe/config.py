@@ -25,6 +25,19 @@ RESETS = ("none", "sync", "async")
 PIPELINES = ("slices", "levels", "blocks")
 PREFIX_PIPELINES = ("levels", "blocks")  # modes pipelined by prefix levels, not by slices
 MAX_LEVELS_PER_STAGE = 64
+TREES = ("dadda", "wallace", "native")
+PARTIAL_PRODUCTS = ("and", "booth4")
+MIN_OPERANDS, MAX_OPERANDS = 3, 16
+MAX_TREE_LEVELS_PER_STAGE = 16
+MAX_NATIVE_STAGES = 16
+# Keys only the carry-save kinds read (sum, multiplier), and of those the keys of the
+# counter trees (dadda, wallace) that `tree: native` does not read: the final adder's and
+# the tree's own.
+TREE_KEYS = ("operands", "width_b", "partial_products", "tree", "tree_levels_per_stage",
+             "native_stages")
+COUNTER_TREE_KEYS = ("partial_products", "tree_levels_per_stage", "cell", "pipeline",
+                     "slice_width", "slices", "levels_per_stage", "block_width",
+                     "wire_registers", "local_width", "carry_increment")
 # A config of 4096 one-bit slices, one per line with a comment each, is about 70 KiB;
 # PyYAML reads about 100 KiB a second, so the bound also bounds the time to read one.
 MAX_CONFIG_BYTES = 1 << 18
@@ -98,6 +111,13 @@ class Config:
     block_width: int = 16
     wire_registers: int = 0
     local_width: int = 0
+    operands: int = 0  # unit sum
+    width_b: int = 0  # unit multiplier (the config gives width when it omits width_b)
+    partial_products: str = "and"
+    tree: str = "dadda"
+    tree_levels_per_stage: int = 1
+    native_stages: int = 1
+    carry_increment: bool = False
 
     def normalized(self) -> dict:
         """The config as plain data with every default filled in (for headers, manifests, caches).
@@ -109,9 +129,9 @@ class Config:
         data = asdict(self)
         data["slices"] = list(self.slices)
         for key in list(data):
-            if key in KEYS and not reads(key, self.unit, self.pipeline):
+            if key in KEYS and not reads(key, self.unit, self.pipeline, self.tree):
                 del data[key]
-        if self.pipeline == "slices":
+        if self.pipeline == "slices" and "pipeline" in data:
             del data["pipeline"]
         return data
 
@@ -149,6 +169,13 @@ KEYS = {
     "block_width": ("an integer from 1 to width", 16),
     "wire_registers": ("an integer from 0 to the prefix network's depth", 0),
     "local_width": ("an integer from 0 to width (0: one prefix network over every bit)", 0),
+    "operands": (f"an integer from {MIN_OPERANDS} to {MAX_OPERANDS}", None),
+    "width_b": ("an integer from 1 to the multiplier's largest width", None),
+    "partial_products": ("one of " + ", ".join(PARTIAL_PRODUCTS), "and"),
+    "tree": ("one of " + ", ".join(TREES), "dadda"),
+    "tree_levels_per_stage": (f"an integer from 1 to {MAX_TREE_LEVELS_PER_STAGE}", 1),
+    "native_stages": (f"an integer from 1 to {MAX_NATIVE_STAGES}", 1),
+    "carry_increment": ("true or false", False),
 }
 # Keys that only some pipeline modes read, and the modes that read each.
 MODE_KEYS = {
@@ -158,15 +185,26 @@ MODE_KEYS = {
     "block_width": ("blocks",),
     "wire_registers": PREFIX_PIPELINES,
     "local_width": ("levels",),
+    "carry_increment": ("levels",),
 }
 
 
-def reads(key: str, unit: str, mode: str) -> bool:
-    """Whether a unit of this kind in this pipeline mode reads `key`."""
+def reads(key: str, unit: str, mode: str, tree: str = "dadda") -> bool:
+    """Whether a unit of this kind in this pipeline mode (and, for the carry-save kinds,
+    with this tree) reads `key`."""
     kind = units.KINDS[unit]
-    if key in kind.refused:
+    if refuses(kind, key):
         return False
+    if kind.tree and tree == "native" and key in COUNTER_TREE_KEYS:
+        return False
+    if key == "native_stages":
+        return tree == "native"
     return mode in kind.mode_keys.get(key, MODE_KEYS.get(key, (mode,)))
+
+
+def refuses(kind: units.Kind, key: str) -> bool:
+    """Whether a unit kind never reads `key` (in any mode)."""
+    return key in kind.refused or (key in TREE_KEYS and not kind.tree)
 
 
 class LongInteger(str):
@@ -218,18 +256,21 @@ def _is_int(value) -> bool:
     return isinstance(value, int) and not isinstance(value, bool)
 
 
-def check_split(where: str, key: str, value, width: int) -> tuple[int, ...]:
-    """Validate `slice_width` (an int) or `slices` (a list) against `width`; return the split."""
+def check_split(where: str, key: str, value, width: int,
+                what: str = "width") -> tuple[int, ...]:
+    """Validate `slice_width` (an int) or `slices` (a list) against `width` (the unit's, or
+    `what` names it: a tree's final adder); return the split."""
     if key == "slice_width":
         if not _is_int(value) or not 1 <= value <= width:
-            raise _fail(where, key, value, f"an integer from 1 to width ({width})")
+            raise _fail(where, key, value, f"an integer from 1 to {what} ({width})")
         full, rest = divmod(width, value)
         return (value,) * full + ((rest,) if rest else ())
     if (not isinstance(value, list) or not value
             or not all(_is_int(v) and v >= 1 for v in value)):
-        raise _fail(where, key, value, KEYS["slices"][0])
+        raise _fail(where, key, value, KEYS["slices"][0].replace("width", what))
     if sum(value) != width:
-        raise _fail(where, key, value, f"slice widths that sum to width ({width}), not {sum(value)}")
+        raise _fail(where, key, value, f"slice widths that sum to {what} ({width}), "
+                    f"not {sum(value)}")
     return tuple(value)
 
 
@@ -254,46 +295,101 @@ def from_mapping(data, where: str = "config") -> Config:
     if not _is_int(width) or not 1 <= width <= MAX_WIDTH:
         raise _fail(where, "width", width, KEYS["width"][0])
     for key, choices in (("unit", UNITS), ("cell", CELLS), ("reset", RESETS),
-                         ("pipeline", PIPELINES)):
+                         ("pipeline", PIPELINES), ("tree", TREES),
+                         ("partial_products", PARTIAL_PRODUCTS)):
         if values[key] not in choices:
             raise _fail(where, key, values[key], KEYS[key][0])
-    unit, mode = values["unit"], values["pipeline"]
+    unit, mode, tree = values["unit"], values["pipeline"], values["tree"]
     kind = units.KINDS[unit]
     if mode not in kind.modes:
         raise ConfigError(f"{where}: key 'pipeline': value {mode!r} is not allowed with unit "
                           f"{unit!r}; expected one of {', '.join(kind.modes)}")
     for key in data:
-        _check_read(where, key, unit, mode, data)
+        _check_read(where, key, unit, mode, tree, data)
     for key in ("carry_in", "carry_out", "valid", "enable", "register_inputs", "reset_data",
                 "signed"):
         if not isinstance(values[key], bool):
             raise _fail(where, key, values[key], "true or false")
+    span, what = width, "width"  # the bits the split and the prefix keys refer to
+    if kind.tree:
+        _check_tree(where, kind, values, data)
+        if tree == "native":
+            span = 0
+        else:
+            span, what = kind.adder_width(values), "the final adder's width"
     if "slice_width" in data and "slices" in data:
         raise ConfigError(f"{where}: keys 'slice_width' and 'slices' are both given; "
                           "expected at most one of them")
-    if "slices" in data:
-        split = check_split(where, "slices", data["slices"], width)
+    if span == 0:
+        if reads("slice_width", unit, mode, tree) and ("slices" in data or "slice_width" in data):
+            key = "slices" if "slices" in data else "slice_width"
+            raise ConfigError(f"{where}: key '{key}' is given, but the tree leaves at most one "
+                              "bit in every column: there is no final adder to split")
+        split: tuple[int, ...] = ()
+    elif "slices" in data:
+        split = check_split(where, "slices", data["slices"], span, what)
     elif "slice_width" in data:
-        split = check_split(where, "slice_width", data["slice_width"], width)
+        split = check_split(where, "slice_width", data["slice_width"], span, what)
     else:
-        split = check_split(where, "slice_width", kind.default_slice_width(width, mode), width)
+        split = check_split(where, "slice_width", kind.default_slice_width(span, mode), span,
+                            what)
     _check_reset(where, values)
-    check_mode(where, values, split)
-    own = {f.name for f in fields(Config)}
-    kept = {k: (v if reads(k, unit, mode) else KEYS[k][1]) for k, v in values.items()
+    if span:
+        check_mode(where, {**values, "width": span}, split, what)
+    own = {f.name: f.default for f in fields(Config)}
+    kept = {k: (v if reads(k, unit, mode, tree) else own[k]) for k, v in values.items()
             if k in own and k not in ("width", "slices")}
     return Config(width=width, slices=split, **kept)
 
 
-def _check_read(where: str, key: str, unit: str, mode: str, data: dict) -> None:
-    """A key given for a unit kind or pipeline mode that does not read it is refused."""
-    if reads(key, unit, mode):
+def split_span(c: Config) -> tuple[int, str]:
+    """The bits a config's split refers to, and their name in messages: the unit's width,
+    or a carry-save unit's final adder (0: `tree: native`, or no final adder)."""
+    kind = units.KINDS[c.unit]
+    if not kind.tree:
+        return c.width, "width"
+    if c.tree == "native":
+        return 0, "the final adder's width"
+    return kind.adder_width(c), "the final adder's width"
+
+
+def _check_tree(where: str, kind, values: dict, data: dict) -> None:
+    """The keys of the carry-save kinds: operands, width_b, the levels and ranks."""
+    unit, width = values["unit"], values["width"]
+    if width > kind.max_width:
+        raise _fail(where, "width", width, f"an integer from 1 to {kind.max_width} with unit "
+                    f"{unit!r}")
+    if reads("operands", unit, values["pipeline"], values["tree"]):
+        if "operands" not in data:
+            raise ConfigError(f"{where}: key 'operands' is missing; expected "
+                              f"{KEYS['operands'][0]} with unit {unit!r}")
+        if not _is_int(values["operands"]) or \
+                not MIN_OPERANDS <= values["operands"] <= MAX_OPERANDS:
+            raise _fail(where, "operands", values["operands"], KEYS["operands"][0])
+    if reads("width_b", unit, values["pipeline"], values["tree"]):
+        values["width_b"] = data.get("width_b", width)
+        wb = values["width_b"]
+        if not _is_int(wb) or not 1 <= wb <= kind.max_width:
+            raise _fail(where, "width_b", wb, f"an integer from 1 to {kind.max_width}")
+    for key, top in (("tree_levels_per_stage", MAX_TREE_LEVELS_PER_STAGE),
+                     ("native_stages", MAX_NATIVE_STAGES)):
+        if not _is_int(values[key]) or not 1 <= values[key] <= top:
+            raise _fail(where, key, values[key], KEYS[key][0])
+
+
+def _check_read(where: str, key: str, unit: str, mode: str, tree: str, data: dict) -> None:
+    """A key given for a unit kind, pipeline mode or tree that does not read it is refused."""
+    if reads(key, unit, mode, tree):
         return
-    if key in units.KINDS[unit].refused:
-        users = [k for k in UNITS if key not in units.KINDS[k].refused]
+    if refuses(units.KINDS[unit], key):
+        users = [k for k in UNITS if not refuses(units.KINDS[k], key)]
         raise ConfigError(f"{where}: key '{key}' is given with unit {unit!r}; expected it "
                           f"only with unit {' or '.join(map(repr, users))}")
-    modes = [m for m in PIPELINES if reads(key, unit, m)]
+    trees = [t for t in TREES if reads(key, unit, mode, t)]
+    if units.KINDS[unit].tree and tree not in trees:
+        raise ConfigError(f"{where}: key '{key}' is given with tree {tree!r}; expected it only "
+                          f"with tree {' or '.join(map(repr, trees))}")
+    modes = [m for m in PIPELINES if reads(key, unit, m, tree)]
     if key in ("slice_width", "slices") and "pipeline" in data:
         raise ConfigError(f"{where}: keys '{key}' and 'pipeline' ({mode!r}) are both given; "
                           f"expected '{key}' only with pipeline {' or '.join(map(repr, modes))}")
@@ -318,8 +414,9 @@ def prefix_positions(width: int, pipeline: str, block_width: int) -> int:
     return width if pipeline == "levels" else -(-width // block_width)
 
 
-def check_mode(where: str, values: dict, split: tuple[int, ...]) -> None:
-    """Validate the keys of the prefix modes, alone and in combination."""
+def check_mode(where: str, values: dict, split: tuple[int, ...], what: str = "width") -> None:
+    """Validate the keys of the prefix modes, alone and in combination (`values["width"]`
+    is the width they refer to: the unit's, or `what` names it)."""
     mode, unit = values["pipeline"], values["unit"]
     if mode == "slices":
         return
@@ -333,17 +430,35 @@ def check_mode(where: str, values: dict, split: tuple[int, ...]) -> None:
                           f"key 'pipeline' {mode!r}; expected one of {', '.join(PREFIX_CELLS)}")
     block = values["block_width"]
     if mode == "blocks" and (not _is_int(block) or not 1 <= block <= values["width"]):
-        raise _fail(where, "block_width", block, f"an integer from 1 to width ({values['width']})")
+        raise _fail(where, "block_width", block, f"an integer from 1 to {what} "
+                    f"({values['width']})")
     local = values["local_width"]
     if mode == "levels" and (not _is_int(local) or not 0 <= local <= values["width"]):
         raise _fail(where, "local_width", local,
-                    f"an integer from 0 to width ({values['width']}); 0: one network")
+                    f"an integer from 0 to {what} ({values['width']}); 0: one network")
+    if mode == "levels":
+        _check_increment(where, values, what)
     wires = values["wire_registers"]
     depth = prefix.local_network(values["cell"], prefix_positions(values["width"], mode, block),
                                  local if mode == "levels" else 0).depth
     if not _is_int(wires) or not 0 <= wires <= depth:
         raise _fail(where, "wire_registers", wires,
                     f"an integer from 0 to the depth of the {values['cell']} network ({depth})")
+
+
+def _check_increment(where: str, values: dict, what: str = "width") -> None:
+    """`carry_increment` is a way for the bits of local blocks to wait for their block's
+    carry: it needs at least two blocks of at least two bits."""
+    inc, local, width = values["carry_increment"], values["local_width"], values["width"]
+    if not isinstance(inc, bool):
+        raise _fail(where, "carry_increment", inc, "true or false")
+    if inc and width < 3:
+        raise ConfigError(f"{where}: key 'carry_increment': value true is not allowed with "
+                          f"{what} {width}; expected false (no two local blocks of two bits)")
+    if inc and not 2 <= local < width:
+        raise ConfigError(f"{where}: key 'carry_increment': value true is not allowed with "
+                          f"local_width {local}; expected local_width from 2 to {width - 1} "
+                          f"({what} - 1) beside it, or carry_increment: false")
 
 
 class _StrictLoader(yaml.SafeLoader):

@@ -18,7 +18,8 @@ from .config import KEYS, MODE_KEYS, Config
 
 SPLIT_KEYS = ("slice_width", "slices")
 PREFIX_KEYS = tuple(k for k in MODE_KEYS if k not in SPLIT_KEYS)  # the prefix modes' keys
-EDITED = ("pipeline", "cell", *SPLIT_KEYS, *PREFIX_KEYS)  # the keys `fit` chooses
+TREE_KEYS = ("tree", "tree_levels_per_stage", "native_stages")  # a sum's or multiplier's
+EDITED = ("pipeline", "cell", *SPLIT_KEYS, *PREFIX_KEYS, *TREE_KEYS)  # the keys `fit` chooses
 
 
 def rewrite(text: str, chosen: Config, where: str = "config") -> str:
@@ -49,12 +50,21 @@ def wanted(text_keys: dict, chosen: Config) -> dict:
         elif needed:
             out[key] = value
 
+    for key in TREE_KEYS:  # a sum's or multiplier's tree
+        if key in norm:
+            want(key, norm[key], norm[key] != KEYS[key][1])
+        elif key in text_keys:
+            out[key] = None
+    if "tree" in norm and chosen.tree == "native":  # no final adder: none of its keys
+        out.update({k: None for k in config.COUNTER_TREE_KEYS if k in text_keys})
+        return {k: v for k, v in out.items() if v is None or text_keys.get(k, object()) != v}
     want("pipeline", mode, mode != KEYS["pipeline"][1])
     want("cell", chosen.cell, chosen.cell != KEYS["cell"][1])
     if mode == "slices":
         split = list(chosen.slices)
         k = split[0]
-        even = config.check_split("fit", "slice_width", k, chosen.width) == chosen.slices
+        span, what = config.split_span(chosen)
+        even = config.check_split("fit", "slice_width", k, span, what) == chosen.slices
         key = "slice_width" if even and "slices" not in text_keys else "slices"
         want(key, k if key == "slice_width" else split, len(split) > 1)
         other = "slices" if key == "slice_width" else "slice_width"

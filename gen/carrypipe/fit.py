@@ -41,6 +41,7 @@ class Settings:
     timeout: float | None = None
     use_cache: bool = True
     modes: tuple[str, ...] = config.PIPELINES
+    trees: tuple[str, ...] = config.TREES  # a sum's or multiplier's trees to try
 
 
 @dataclass
@@ -101,7 +102,8 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     store = store or cache.Cache(read=settings.use_cache)
     new_row = lambda c, origin: make_row(c, origin, dev, settings.seeds)  # noqa: E731
     rows = candidates.distinct([new_row(c, "even") for c in
-                                candidates.generate(base, settings.cells, settings.modes)])
+                                candidates.generate(base, settings.cells, settings.modes,
+                                                    settings.trees)])
     progress, warned = Progress(echo), False
     measurements = cached = 0
     margin = model.margin(dev.name)

@@ -62,7 +62,7 @@ def elaborate(net: Netlist, ports: dict[str, Value]) -> Module:
                     for a in e.args]
             out = args[0]
             for a in args[1:]:
-                out = out + a if e.op == "+" else out - a
+                out = out + a if e.op == "+" else out - a if e.op == "-" else out * a
             return out[:e.width]
         if isinstance(e, Cmp):
             x, y = val(e.x), val(e.y)

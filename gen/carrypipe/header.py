@@ -84,20 +84,26 @@ def valid_title(plan) -> list[str]:
 
 def slice_title(plan, s) -> list[str]:
     """Stage i of a sliced unit: what the slice computes, what waits around it."""
-    c, kind = plan.config, plan.unit
+    kind, n = plan.unit, plan.number(s.index)
     cycle = plan.input_cycles + s.index
-    chain = (" with " + " and ".join(f"{f}_stage_{s.index - 1}" for f in kind.chain)
+    chain = (" with " + " and ".join(f"{f}_stage_{n - 1}" for f in kind.chain)
              if s.index else "")
-    out = [f"Stage {s.index}, loaded on edge {cycle + 1}: slice {s.index} {kind.verb} bits "
+    which = f"the final adder's slice {s.index}" if plan.nest else f"slice {s.index}"
+    out = [f"Stage {n}, loaded on edge {cycle + 1}: {which} {kind.verb} bits "
            f"{bits(s.lsb, s.msb)}{chain}."]
     if s.index < len(plan.stages) - 1:
         nxt = plan.stages[s.index + 1]
         flags = f" and {', '.join(kind.travellers)}" if kind.travellers else ""
-        line = (f"Skew: {', '.join(kind.operands)} bits {bits(nxt.lsb, c.width - 1)}{flags} "
-                f"wait for slice {s.index + 1}.")
+        ends = {op: plan.operand_end(op) for op in kind.operands
+                if plan.operand_end(op) > nxt.lsb}
+        if len(set(ends.values())) == 1:
+            what = f"{', '.join(ends)} bits {bits(nxt.lsb, max(ends.values()) - 1)}"
+        else:  # a narrower operand (a tree's final adder)
+            what = ", ".join(f"{op} bits {bits(nxt.lsb, end - 1)}" for op, end in ends.items())
+        line = f"Skew: {what}{flags} wait for slice {s.index + 1}."
         if kind.result:
-            line += (f" Deskew: {kind.result} bits {bits(0, nxt.lsb - 1)} travel on in "
-                     f"{kind.result}_deskew_{s.index + 1}.")
+            line += (f" Deskew: {kind.result} bits {bits(plan.base, nxt.lsb - 1)} travel on in "
+                     f"{kind.result}_deskew_{n + 1}.")
         out.append(line)
     return out
 
@@ -105,4 +111,24 @@ def slice_title(plan, s) -> list[str]:
 def stage_title(plan, stage) -> list[str]:
     """Stage i of a prefix-mode unit: which logic it holds."""
     cycle = plan.input_cycles + stage.index
-    return [f"Stage {stage.index}, loaded on edge {cycle + 1}: {stage.logic}."]
+    what = "the final adder's " if plan.nest else ""
+    return [f"Stage {plan.number(stage.index)}, loaded on edge {cycle + 1}: {what}{stage.logic}."]
+
+
+def tree_title(plan, stage) -> list[str]:
+    """Stage i of a carry-save tree: its levels, counters and the heights it leaves."""
+    cycle = plan.input_cycles + stage.index
+    heights = max(stage.heights, default=0)
+    return [f"Stage {stage.index}, loaded on edge {cycle + 1}: {plan.config.tree.capitalize()} "
+            f"tree, {stage.logic}.",
+            f"Its register rank holds at most {heights} dot(s) per column: row<r>_stage_"
+            f"{stage.index} holds each column's r-th dot, at the column's bit position."]
+
+
+def low_title(plan, columns: list[int]) -> list[str]:
+    """The result bits the tree finished, waiting for the final adder."""
+    first, last = plan.adder_stages[0].index, plan.adder_stages[-1].index
+    name = plan.unit.result + "_low_"
+    held = f"{name}{first}" + (f" .. {name}{last}" if last != first else "")
+    return [f"{plan.unit.result} bits {bits(columns[0], columns[-1])}, finished by the tree, "
+            f"wait for the final adder in {held}."]

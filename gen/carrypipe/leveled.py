@@ -22,16 +22,30 @@ from .pipeline import Frame
 
 
 def build(plan) -> Netlist:
-    c, kind, sch = plan.config, plan.unit, plan.schedule
     f = Frame(plan)
-    b = f.b
+    return f.finish(stages(plan, f, f.src))
+
+
+def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
+    """Build the stages of `plan` into the netlist of frame `f` and return the expressions
+    of its outputs, by port name.
+
+    `src` gives each operand (and flag) as the first stage sees it: a port, the input
+    register, or (for a tree's final adder, `plan.nest`) a register of the tree's last rank
+    holding bits `plan.base` and up.  The frame owns the ports, the valid chain and the
+    output section; the registers come from its words (which include `plan.words`)."""
+    c, kind, sch = plan.config, plan.unit, plan.schedule
+    b, base = f.b, plan.base
     terms = sch.terms
     sub = kind.op == "sub"
-    a_in, b_in = f.src.get("a"), f.src.get("b")
-    flags = {t: f.src[t] for t in kind.travellers}
+    x_name, y_name = kind.operands[0], kind.operands[-1]
+    a_in, b_in = src.get(x_name), src.get(y_name)
+    flags = {t: src[t] for t in kind.travellers}
     port = kind.carry_in_port(c)
-    c0 = kind.core_carry_in(f.src[port] if port else None, flags) \
+    c0 = kind.core_carry_in(src[port] if port else None, flags) \
         if kind.has_carry_in(c) else None
+    if b_in is not None and b_in.width < c.width:  # a narrower second operand: 0 above
+        b_in = cat(b_in, Const(0, c.width - b_in.width))
     y_in = kind.y_operand(b_in, flags) if kind.result else b_in
 
     regs: dict[tuple[str, int], list] = {}  # (term kind, rank) -> [(word, register)]
@@ -42,9 +56,10 @@ def build(plan) -> Netlist:
 
     def held(x: int, rank: int) -> Expr:
         t = terms[x]
+        at = base + t.lsb
         for word, r in regs[(t.kind, rank)]:
-            if word.lsb <= t.lsb < word.lsb + word.width:
-                return r[t.lsb:t.lsb + t.width]
+            if word.lsb <= at < word.lsb + word.width:
+                return r[at:at + t.width]
         raise AssertionError(f"no register for {t.kind} at bit {t.lsb}, rank {rank}")
 
     def at(x: int, stage: int) -> Expr:
@@ -53,7 +68,7 @@ def build(plan) -> Netlist:
 
     def operands(q: int):
         lsb, width = sch.lsbs[q], sch.widths[q]
-        return a_in.vec[lsb:lsb + width], _slice(y_in, lsb, width)
+        return a_in.vec[base + lsb:base + lsb + width], _slice(y_in, lsb, width)
 
     def chain(q: int, plus_one: bool) -> Ref:
         """Block q's chain for carry-in 0 (block 0: the unit's carry-in) or 1, as a wire of
@@ -70,7 +85,7 @@ def build(plan) -> Netlist:
             else:
                 want = any(t.op == f"chain{int(plus_one)}_carry" and t.pos == q
                            and t.index in sch.last for t in terms)
-                slot = cells.Slot(b, f"blk{q}_c{int(plus_one)}", sch.lsbs[q])
+                slot = cells.Slot(b, f"blk{q}_c{int(plus_one)}", base + sch.lsbs[q])
                 total = cells.core(slot, "native", x, y, carry, kind.op, want)
                 chains[q, plus_one] = slot.wire("total", total).all
         return chains[q, plus_one]
@@ -80,6 +95,8 @@ def build(plan) -> Netlist:
         i, op = t.pos, t.op
         if op == "flag":
             return flags[t.kind]
+        if op == "pass":  # the second operand has no bit here: the first passes
+            return bit(a_in, i)
         if op in ("prop", "gen", "gen_cin"):
             xi, yi = bit(a_in, i), bit(y_in, i)
             prop = ~(xi ^ yi) if sub else xi ^ yi
@@ -91,6 +108,9 @@ def build(plan) -> Netlist:
             p = args[0]
             s = p if len(args) == 1 else p ^ args[1]
             return ~s if sub else s
+        if op == "sum_flip":  # carry_increment: s0 ^ P & C, the sum for the block's carry
+            s = args[0] ^ args[1] & args[2]
+            return ~s if sub else s
         if op == "sum_cin":
             return ~(args[0] ^ c0) if sub else args[0] ^ c0
         if op == "dot_g":
@@ -99,6 +119,8 @@ def build(plan) -> Netlist:
             return args[0] & args[1]
         if op in ("wire", "lt", "ovf_gen"):
             return args[0]
+        if op == "not":
+            return ~args[0]
         if op in ("xor", "ovf_cin"):
             return args[0] ^ (args[1] if op == "xor" else c0)
         if op == "select":
@@ -124,7 +146,7 @@ def build(plan) -> Netlist:
         b.section(*header.stage_title(plan, st))
         if stage < sch.final:
             for word in plan.words:
-                if word.stage == stage and word.kind not in ("input", "control"):
+                if word.stage == plan.number(stage) and word.kind not in ("input", "control"):
                     regs.setdefault((word.family, stage), []).append((word, f.reg(word.name)))
         else:
             outs = {w.family: f.reg(w.name) for w in plan.words
@@ -137,9 +159,9 @@ def build(plan) -> Netlist:
         def flush(key):
             group = pending.pop(key)
             name = key[0] if key[1] is None else f"{key[0]}_l{key[1] + 1}"
-            wires = b.wire_runs(name, {pos: e for pos, (_, e) in group.items()})
+            wires = b.wire_runs(name, {base + pos: e for pos, (_, e) in group.items()})
             for pos, (x, _) in group.items():
-                value[x] = wires[pos]
+                value[x] = wires[base + pos]
                 del waiting[x]
 
         for t in terms:
@@ -164,13 +186,14 @@ def build(plan) -> Netlist:
                     continue
                 for word, r in found:
                     inside = [t for t in sch.crossing(stage) if t.kind == family
-                              and word.lsb <= t.lsb < word.lsb + word.width]
-                    _load(b, r, inside, lambda t: at(t.index, stage))
+                              and word.lsb <= base + t.lsb < word.lsb + word.width]
+                    _load(b, r, inside, lambda t: at(t.index, stage), base)
         else:
             out = sch.outputs
             if "result" in out:
                 r = outs[f"{kind.result}_stage"]
-                _load(b, r, [terms[x] for x in out["result"]], lambda t: at(t.index, stage))
+                _load(b, r, [terms[x] for x in out["result"]], lambda t: at(t.index, stage),
+                      base)
             for key, family in (("chain", f"{kind.chain[0]}_stage"),
                                 ("overflow", "overflow_stage"), ("lt", "lt_stage"),
                                 ("eq", "eq_stage"), ("gt", "gt_stage")):
@@ -181,7 +204,7 @@ def build(plan) -> Netlist:
         drives[port_name] = b.names[f"{family}_stage"].all
     if kind.result:
         drives[kind.result] = b.names[f"{kind.result}_stage"].all
-    return f.finish(drives)
+    return drives
 
 
 def _slice(e: Expr, lsb: int, width: int) -> Expr:
@@ -194,15 +217,15 @@ def _flip_top(v: Expr) -> Expr:
     return ~v if w == 1 else cat(part(v, 0, w - 1), ~bit(v, w - 1))
 
 
-def _load(b, reg, inside, value_of) -> None:
-    """Load register `reg` from the terms it holds: one-bit terms packed into runs, wider
-    terms (block sums) one load each."""
+def _load(b, reg, inside, value_of, base: int) -> None:
+    """Load register `reg` from the terms it holds (at bit `base` and up): one-bit terms
+    packed into runs, wider terms (block sums) one load each."""
     bits = {}
     for t in inside:
         if t.width == 1:
-            bits[t.lsb] = value_of(t)
+            bits[base + t.lsb] = value_of(t)
         else:
-            b.load(reg[t.lsb:t.lsb + t.width], value_of(t))
+            b.load(reg[base + t.lsb:base + t.lsb + t.width], value_of(t))
     if bits:
         b.load_bits(reg, bits)
 

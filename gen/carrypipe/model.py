@@ -18,7 +18,8 @@ coefficients fitted, per device and nextpnr placer, to measured units (`calibrat
   - size_ns * log2(the unit's flip-flops + the harness's), for congestion;
   - a unit kind other than the adder adds a fitted offset where the operands enter (the
     add/subtract XOR, the accumulator's select) and a fitted slope per chain bit; a kind the
-    calibration did not measure gets the adder's figures.
+    calibration did not measure gets the adder's figures.  The carry-save units (sums and
+    multipliers: counter trees) get no prediction yet (`describes`).
 
 The unit's period is its slowest stage's, never below the device's register -> one LUT ->
 register figure (`floor_ns`).  A device, or a placer, without a fitted entry gets no
@@ -35,7 +36,7 @@ from functools import cache
 from importlib import resources
 
 from . import cells, devices, harness
-from .plan import Plan, SlicedPlan
+from .plan import Plan, PrefixPlan, SlicedPlan
 
 DATA = "delay_models.json"
 DEFAULT_PLACER = "heap"  # nextpnr 0.11's placer when none is asked for, in every family
@@ -206,10 +207,17 @@ def depth_for(device: str) -> dict:
     return models().get("depth", {}).get(dev.family.name, {}) if dev else {}
 
 
+def describes(plan: Plan) -> bool:
+    """Whether the model reads `plan`: the sliced and prefix modes of the adder kinds, not
+    (yet) the carry-save units' counter trees, which `fit` bounds by measured misses."""
+    return isinstance(plan, (SlicedPlan, PrefixPlan))
+
+
 def predict(plan: Plan, device: str) -> float | None:
-    """Predicted Fmax in MHz of the unit on `device`, or None when there is no model for it."""
+    """Predicted Fmax in MHz of the unit on `device`, or None when there is no model for it
+    (no entry for the device and placer, or a structure the model does not describe)."""
     entry = entry_for(device)
-    if entry is None:
+    if entry is None or not describes(plan):
         return None
     ns, _ = period(figures(plan, depth_for(device)), entry)
     return round(1000.0 / max(ns, entry["floor_ns"]), 1)

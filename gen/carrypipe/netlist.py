@@ -76,6 +76,9 @@ class Expr:
         return Op("^", (self, other))
 
     def __invert__(self):
+        """~x, with ~~x written as x (a constant absorbed twice into one dot)."""
+        if isinstance(self, Op) and self.op == "~":
+            return self.args[0]
         return Op("~", (self,))
 
 
@@ -143,7 +146,7 @@ class Rep(Expr):
 
 @dataclass(frozen=True)
 class Arith(Expr):
-    """`+` or `-` of the operands, each zero-extended to `width`, modulo 2**width."""
+    """`+`, `-` or `*` of the operands, each zero-extended to `width`, modulo 2**width."""
 
     op: str
     args: tuple

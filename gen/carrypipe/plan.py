@@ -37,7 +37,10 @@ from . import cells, schedule, units
 from .config import Config
 from .units import Port
 
-__all__ = ["Plan", "SlicedPlan", "PrefixPlan", "Slice", "Stage", "Word", "Port", "make_plan"]
+DIRECT_UP_TO = 512  # widest adder `prove --method auto` proves directly (docs/verification.md)
+
+__all__ = ["Plan", "SlicedPlan", "PrefixPlan", "Nest", "Slice", "Stage", "Word", "Port",
+           "make_plan"]
 
 
 @dataclass(frozen=True)
@@ -143,11 +146,29 @@ class Stage:
 
 
 @dataclass(frozen=True)
+class Nest:
+    """Where a plan sits inside an enclosing unit: the final adder of a carry-save tree.
+
+    Its stages run after `cycles_before` cycles (the input register and the tree), its
+    registers are numbered after the `stages_before` stages of the tree, its bit 0 is the
+    unit's bit `base`, and operand k has `widths[k]` bits from there (the bits above are 0:
+    a tree column with one dot left).  The enclosing plan owns the ports, the input
+    register and the valid chain."""
+
+    kind: units.Kind
+    base: int
+    stages_before: int
+    cycles_before: int
+    widths: tuple[int, ...]
+
+
+@dataclass(frozen=True)
 class Plan:
     """What every pipeline mode offers; `stages` are its slices or prefix stages."""
 
     config: Config
     stages: tuple
+    nest: Nest | None = None  # set for a plan inside an enclosing unit (a final adder)
 
     mode = ""  # set by each mode
     register_kinds = ()  # kinds the register table always lists
@@ -155,7 +176,22 @@ class Plan:
 
     @property
     def unit(self) -> units.Kind:
-        return units.KINDS[self.config.unit]
+        return self.nest.kind if self.nest else units.KINDS[self.config.unit]
+
+    @property
+    def base(self) -> int:
+        """The unit's bit position of this plan's bit 0."""
+        return self.nest.base if self.nest else 0
+
+    def number(self, index: int) -> int:
+        """The unit's stage number of this plan's stage `index` (in names and comments)."""
+        return index + (self.nest.stages_before if self.nest else 0)
+
+    def operand_end(self, op: str) -> int:
+        """One past the top bit position of operand `op` (the bits above it are 0)."""
+        if self.nest is None:
+            return self.width
+        return self.base + self.nest.widths[self.unit.operands.index(op)]
 
     @property
     def slices(self) -> tuple:
@@ -167,6 +203,9 @@ class Plan:
 
     @property
     def input_cycles(self) -> int:
+        """Cycles before the first stage: the input register (and, nested, the tree)."""
+        if self.nest:
+            return self.nest.cycles_before
         return 1 if self.config.register_inputs else 0
 
     @property
@@ -200,9 +239,12 @@ class Plan:
                 and p.name not in ("clk", "rst", "en")]
 
     def io_words(self) -> list[Word]:
-        """The input-register and valid-chain words, the same in every pipeline mode."""
+        """The input-register and valid-chain words, the same in every pipeline mode (a
+        nested plan has none: the enclosing plan owns them)."""
         c = self.config
         words = []
+        if self.nest:
+            return words
         if c.register_inputs:
             words += [Word("input", f"{p.name}_in", None, 0, p.width, 1)
                       for p in self.data_inputs() if p.name != "in_valid"]
@@ -219,6 +261,18 @@ class Plan:
         """Whether the compositional proof applies (see `compose.py`)."""
         return ("compositional" in self.proof_methods and self.unit.composable
                 and not self.config.reset_data)
+
+    @property
+    def composes_by_default(self) -> bool:
+        """Whether `prove --method auto` takes the compositional proof: where the direct
+        one grows slow (measured: docs/verification.md)."""
+        return self.can_compose and self.width > DIRECT_UP_TO
+
+    def prove_parts(self, net: dict, module: str, timeout):
+        """The compositional proof's parts for this plan (`compose.Outcome`)."""
+        from . import compose
+
+        return compose.prove_slices(self, net, module, timeout)
 
     def structure(self) -> str:
         """How the unit is cut, in a few words."""
@@ -244,23 +298,24 @@ class SlicedPlan(Plan):
 
     @cached_property
     def words(self) -> tuple[Word, ...]:
-        kind, w, first = self.unit, self.width, self.input_cycles
+        kind, first, base = self.unit, self.input_cycles, self.base
         words = self.io_words()
         last = len(self.stages) - 1
         for s in self.stages:
-            edge = first + s.index + 1
+            edge, n = first + s.index + 1, self.number(s.index)
             top = s.index == last
             if kind.result:
-                words.append(Word("stage", f"{kind.result}_stage", s.index, s.lsb, s.width, edge))
+                words.append(Word("stage", f"{kind.result}_stage", n, s.lsb, s.width, edge))
             for name in self.chain_families(top):
-                words.append(Word("stage", f"{name}_stage", s.index, s.lsb + s.width, 1, edge))
+                words.append(Word("stage", f"{name}_stage", n, s.lsb + s.width, 1, edge))
             if s.index > 0:
-                words += [Word("skew", f"{op}_skew", s.index, s.lsb, w - s.lsb, edge - 1)
-                          for op in kind.operands]
-                words += [Word("skew", f"{t}_skew", s.index, 0, 1, edge - 1)
+                words += [Word("skew", f"{op}_skew", n, s.lsb, self.operand_end(op) - s.lsb,
+                               edge - 1)
+                          for op in kind.operands if self.operand_end(op) > s.lsb]
+                words += [Word("skew", f"{t}_skew", n, 0, 1, edge - 1)
                           for t in kind.travellers]
                 if kind.result:
-                    words.append(Word("deskew", f"{kind.result}_deskew", s.index, 0, s.lsb,
+                    words.append(Word("deskew", f"{kind.result}_deskew", n, base, s.lsb - base,
                                       edge))
         return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.name)))
 
@@ -278,6 +333,13 @@ class SlicedPlan(Plan):
         from . import slices
 
         return slices.build(self)
+
+    def build_into(self, frame, sources: dict):
+        """Build its stages into an enclosing unit's frame (a tree's final adder); returns
+        the output expressions by port name (see `slices.stages`)."""
+        from . import slices
+
+        return slices.stages(self, frame, sources)
 
     def structure(self) -> str:
         return f"{len(self.stages)} slice(s)"
@@ -329,17 +391,18 @@ class PrefixPlan(Plan):
                     kind_runs[-1][1] += t.width
                 else:
                     kind_runs.append([t.lsb, t.width, t.pos, (t.index, rank) in kept])
+            shift = self.base if sch.flavour == "bits" else 0  # a position is a bit there
             for tk, found in runs.items():
-                words += [Word(TERM_KIND.get(tk, "wire"), tk, rank, lsb, width, first + rank,
-                               position=pos, keep=keep)
+                words += [Word(TERM_KIND.get(tk, "wire"), tk, self.number(rank), self.base + lsb,
+                               width, first + rank, position=pos + shift, keep=keep)
                           for lsb, width, pos, keep in found]
         edge = first + sch.final
         for name, width, lsb in self.output_registers():
-            words.append(Word("stage", name, None, lsb, width, edge))
+            words.append(Word("stage", name, None, self.base + lsb, width, edge))
         return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.lsb, x.name)))
 
     def output_registers(self) -> list[tuple[str, int, int]]:
-        """(family, width, lsb) of the last rank's registers, the unit's outputs."""
+        """(family, width, lsb from `base`) of the last rank's registers, the unit's outputs."""
         c, kind = self.config, self.unit
         regs = []
         if kind.result:
@@ -357,6 +420,13 @@ class PrefixPlan(Plan):
 
         return leveled.build(self)
 
+    def build_into(self, frame, sources: dict):
+        """Build its stages into an enclosing unit's frame (a tree's final adder); returns
+        the output expressions by port name (see `leveled.stages`)."""
+        from . import leveled
+
+        return leveled.stages(self, frame, sources)
+
     def structure(self) -> str:
         return (f"pipeline {self.config.pipeline}, {len(self.stages)} stage(s), every stage "
                 "all bits")
@@ -369,6 +439,7 @@ class PrefixPlan(Plan):
         wired = f" wired {c.wire_registers}" if c.wire_registers else ""
         if c.pipeline == "levels":
             local = f" local {c.local_width}" if 0 < c.local_width < c.width else ""
+            local += " increment" if c.carry_increment else ""
             return f"{c.cell} levels/{c.levels_per_stage}{local}{wired}"
         return f"{c.cell} blocks of {c.block_width}{wired}"
 
@@ -383,21 +454,23 @@ class PrefixPlan(Plan):
                                     wire_registers=c.wire_registers + 1))
 
 
-def make_prefix_plan(config: Config) -> PrefixPlan:
+def make_prefix_plan(config: Config, nest: Nest | None = None) -> PrefixPlan:
     """The plan of a `levels` or `blocks` config, from its pruned schedule."""
-    sch = schedule.make_schedule(config)
-    stages = tuple(Stage(index=st.index - 1, lsb=0, width=config.width, cell=config.cell,
+    kind = nest.kind if nest else units.KINDS[config.unit]
+    sch = schedule.make_schedule(config, kind, nest.widths if nest else None)
+    base = nest.base if nest else 0
+    stages = tuple(Stage(index=st.index - 1, lsb=base, width=config.width, cell=config.cell,
                          levels=tuple(k + 1 for k in st.levels), depth=len(st.levels),
                          nodes=st.nodes, delay=st.delay, logic=st.logic)
                    for st in sch.stages)
-    return PrefixPlan(config=config, stages=stages, schedule=sch)
+    return PrefixPlan(config=config, stages=stages, nest=nest, schedule=sch)
 
 
-def make_sliced_plan(config: Config) -> SlicedPlan:
+def make_sliced_plan(config: Config, nest: Nest | None = None) -> SlicedPlan:
     count = len(config.slices)
     style = cells.STYLES[config.cell]
-    kind = units.KINDS[config.unit]
-    slices, lsb = [], 0
+    kind = nest.kind if nest else units.KINDS[config.unit]
+    slices, lsb = [], nest.base if nest else 0
     for index, width in enumerate(config.slices):
         carry_in = index > 0 or kind.has_carry_in(config)
         carry_out = index < count - 1 or kind.has_carry_out(config)
@@ -410,12 +483,17 @@ def make_sliced_plan(config: Config) -> SlicedPlan:
             depth=net.depth, nodes=net.nodes,
             delay=style.delay(width, carry_in, carry_out)))
         lsb += width
-    return SlicedPlan(config=config, stages=tuple(slices))
+    return SlicedPlan(config=config, stages=tuple(slices), nest=nest)
 
 
 MODES = {"slices": make_sliced_plan, "levels": make_prefix_plan, "blocks": make_prefix_plan}
 
 
 def make_plan(config: Config) -> Plan:
-    """Derive the plan of a validated config (the mode type is chosen here, once)."""
+    """Derive the plan of a validated config (the plan type is chosen here, once: a
+    carry-save kind's tree, else the pipeline mode)."""
+    if units.KINDS[config.unit].tree:
+        from .treeplan import make_tree_plan
+
+        return make_tree_plan(config)
     return MODES[config.pipeline](config)

@@ -175,7 +175,8 @@ def _ref(output: str, lat: int) -> str:
 
 
 METHODS = ("auto", "direct", "compositional")
-DIRECT_UP_TO = 512  # widest unit `auto` proves directly (measured: docs/verification.md)
+COMPOSABLE = ("sliced adders and subtractors, and sums and multipliers whose final adder has "
+              "at most 512 bits, without reset_data")
 
 
 def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
@@ -186,14 +187,13 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     `direct` unrolls the whole unit against the reference; `compositional` (sliced units
     of the kinds that offer it, see `compose.py`) proves each slice's logic against `+` and
     the pipeline structure apart, which stays fast at any width; `auto` takes the direct
-    proof up to DIRECT_UP_TO bits and the compositional one above, where it applies.
+    proof where the plan says it stays fast (`Plan.composes_by_default`) and the
+    compositional one above.
     """
     if method not in METHODS:
         raise ValueError(f"method must be one of {', '.join(METHODS)}, not {method!r}")
-    can_compose = plan.can_compose
-    if method == "compositional" and not can_compose:
-        raise ValueError("the compositional proof covers sliced adders and subtractors "
-                         "without reset_data; use --method direct")
+    if method == "compositional" and not plan.can_compose:
+        raise ValueError(f"the compositional proof covers {COMPOSABLE}; use --method direct")
     start = time.monotonic()
     limit = tools.Deadline(timeout)  # one limit for the whole proof, shared by every run
     c, lat = plan.config, plan.latency
@@ -202,7 +202,7 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
         raise ValueError(f"depth {depth} must exceed the latency ({lat})")
     text = verilog if verilog is not None else emit.unit_verilog(plan)
     if method == "auto":
-        method = "compositional" if can_compose and plan.width > DIRECT_UP_TO else "direct"
+        method = "compositional" if plan.composes_by_default else "direct"
     net = netlist(c.name, text, limit)
     problem = structure(plan, net)
     if problem:
@@ -211,9 +211,7 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     outputs = tuple(p.name for p in plan.ports if p.direction == "output")
     done, data = "", tuple(o for o in outputs if o != "out_valid")
     if method == "compositional":
-        from . import compose
-
-        found = compose.prove_slices(plan, net, c.name, limit)
+        found = plan.prove_parts(net, c.name, limit)
         if found.problem:
             return Proof(False, found.method, 0, f"not proved: {found.problem}",
                          time.monotonic() - start)

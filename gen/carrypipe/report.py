@@ -7,12 +7,14 @@ table and the tips depend on the pipeline mode and are chosen by the plan's type
 from __future__ import annotations
 
 import json
+from dataclasses import replace
 import textwrap
 from functools import singledispatch
 
 from . import __version__, cells
 from .header import bits, plural, reset_phrase, stage_list, timing_phrase
 from .plan import Plan, PrefixPlan, SlicedPlan
+from .treeplan import NativePlan, TreePlan, counters_phrase
 
 DELAY_MODEL = ("unit-gate model (Tyagi 1993; Zimmermann 1997): 2-input AND/OR = 1, XOR = 2, "
                "inverters free")
@@ -20,6 +22,18 @@ DELAY_MODEL = ("unit-gate model (Tyagi 1993; Zimmermann 1997): 2-input AND/OR = 
 
 def unit_phrase(plan: Plan) -> str:
     return plan.unit.phrase(plan.config)
+
+
+@singledispatch
+def headline(plan) -> str:
+    """The unit in a few words, for the command line."""
+    return f"{plan.width}-bit {plan.config.cell}"
+
+
+@headline.register(TreePlan)
+@headline.register(NativePlan)
+def _(plan) -> str:
+    return unit_phrase(plan)
 
 
 def structure_phrase(plan: Plan) -> str:
@@ -64,6 +78,24 @@ def stage_entries(plan) -> dict:
 def _(plan: PrefixPlan) -> dict:
     return {"stages": [{"index": s.index, "levels": list(s.levels), "logic": s.logic,
                         "delay": s.delay} for s in plan.stages]}
+
+
+@stage_entries.register
+def _(plan: TreePlan) -> dict:
+    t, r = plan.tree, plan.rows
+    tree = {"style": plan.config.tree, "levels_per_stage": plan.config.tree_levels_per_stage,
+            "counter_levels": plan.counter_levels, "full_adders": t.fa(), "half_adders": t.ha(),
+            "heights": list(t.matrix.heights()),
+            "levels": [{"level": lv.index, "stage": lv.stage - 1, "target": lv.target,
+                        "full_adders": sum(1 for i in lv.counters if t.counters[i].kind == "fa"),
+                        "half_adders": sum(1 for i in lv.counters if t.counters[i].kind == "ha"),
+                        "height": max(lv.heights, default=0)} for lv in t.levels]}
+    adder = None
+    if plan.adder is not None:
+        adder = {"lsb": r.low, "msb": r.top - 1, "width": r.adder_width,
+                 "pipeline": plan.config.pipeline, "cell": plan.config.cell,
+                 "carry_out": r.carry_out, "stages": len(plan.adder_stages)}
+    return {"tree": tree, "final_adder": adder}
 
 
 def manifest_text(plan: Plan, files: list[str]) -> str:
@@ -163,6 +195,9 @@ def _(plan: PrefixPlan) -> list[str]:
              "triangles)"]
     if sch.flavour == "bits" and 0 < c.local_width < c.width:
         lines.append(f"          within local blocks of {c.local_width} bits, then across them")
+        if c.carry_increment:
+            lines.append("          carry increment: a block's bits wait for its carry with "
+                         "their sums for carry-in 0")
     if sch.merged:
         lines.append("          the last tree level is merged into the verdict stage" if tree
                      else "          the last prefix level is merged into the sum stage")
@@ -177,6 +212,40 @@ def _(plan: PrefixPlan) -> list[str]:
     return lines
 
 
+@table.register
+def _(plan: TreePlan) -> list[str]:
+    c, t, r = plan.config, plan.tree, plan.rows
+    mark = _marks(plan)
+    heights = t.matrix.heights()
+    what = (f"{c.operands} operands of {c.width} bits" if c.unit == "sum" else
+            f"the {c.width} x {c.width_b} {'Booth radix-4' if c.partial_products == 'booth4' else 'AND'}"
+            f" array{' (Baugh-Wooley)' if c.signed and c.partial_products == 'and' else ''}")
+    lines = [f"Tree      {c.tree.capitalize()} over {what}: {len(t.matrix.leaves)} dots, "
+             f"height {max(heights)}; {plural(plan.counter_levels, 'counter level')}, "
+             f"{counters_phrase(t.fa(), t.ha())}",
+             "",
+             "Tree stages (heights: most dots in a column after the stage; delay in the "
+             "unit-gate model)",
+             f"  {'stage':>5}  {'levels':>6}  {'height':>6}  {'full':>5}  {'half':>5}  "
+             f"{'delay':>5}  logic"]
+    for s in plan.tree_stages:
+        lines.append(f"  {s.index:>5}  {s.depth:>6}  {max(s.heights):>6}  {s.full:>5}  "
+                     f"{s.half:>5}  {s.delay:>5}  {s.logic}{mark(s)}")
+    if plan.adder is None:
+        return lines + ["", "Final adder  none: the tree leaves at most one dot per column"]
+    low = f"; bits {bits(0, r.low - 1)} are finished by the tree" if r.low else ""
+    lines += ["", f"Final adder  columns [{r.top - 1}:{r.low}] ({r.adder_width} bits)"
+              + (", its carry out is the top bit" if r.carry_out else "") + low]
+    view = replace(plan.adder, stages=plan.adder_stages)
+    return lines + [f"  {line}" if line else line for line in table(view)]
+
+
+@table.register
+def _(plan: NativePlan) -> list[str]:
+    lines = [f"Native    {plan.structure()}", "",
+             "Stages (no delay model: synthesis chooses the logic)",
+             f"  {'stage':>5}  logic"]
+    return lines + [f"  {s.index:>5}  {s.logic}" for s in plan.stages]
 def _tip(text: str) -> list[str]:
     """One tip as report lines: a dash, then lines of at most 92 characters."""
     return textwrap.wrap(text, 92, initial_indent="  - ", subsequent_indent="    ",
@@ -278,6 +347,11 @@ def _(plan: PrefixPlan) -> list[str]:
         which = "one more long-span level" if c.wire_registers else "the longest-span level"
         out += _tip(f"`wire_registers: {c.wire_registers + 1}` puts a logic-free register "
                     f"rank in front of {which}: one cycle more, shorter routed nets;")
+    if sch.flavour == "bits" and 2 <= c.local_width < c.width and not c.carry_increment:
+        out += _tip("`carry_increment: true` lets each bit of a local block wait for the "
+                    "block's carry with two bits instead of three (its sum for carry-in 0 "
+                    "and a propagate): fewer flip-flops, measured faster at 256 bits on ECP5, "
+                    "not at 64 or 128 (docs/modes.md);")
     moved = plan.moved_input_rank()
     if moved is not None:
         same = ", as now" if moved.latency == plan.latency else ""
@@ -286,3 +360,34 @@ def _(plan: PrefixPlan) -> list[str]:
                     f"{moved.latency}{same}) moves the logic-free rank from the inputs into "
                     "the network, where it measured faster on ECP5 (docs/modes.md).")
     return out + _input_tip(plan)
+
+
+@tips.register
+def _(plan: TreePlan) -> list[str]:
+    """What a carry-save unit could still try: in the tree or in the final adder."""
+    c = plan.config
+    slow = {s.index for s in plan.slowest}
+    out = []
+    if any(s.index in slow for s in plan.tree_stages):
+        if c.tree_levels_per_stage > 1:
+            out += _tip("fewer `tree_levels_per_stage` (1 puts a register rank after every "
+                        "counter level);")
+        if c.unit == "multiplier" and c.partial_products == "booth4":
+            out += _tip("`partial_products: and` forms each partial product with one AND "
+                        "(Booth's selection is deeper);")
+    if plan.adder is not None and any(s.index in slow for s in plan.adder_stages):
+        # The final adder's own tips (its input register is the tree's last rank).
+        inner = replace(plan.adder.config, register_inputs=True)
+        out += tips(replace(plan.adder, stages=plan.adder_stages, config=inner))
+    other = "wallace" if c.tree == "dadda" else "dadda"
+    out += _tip(f"`tree: {other}` (another counter placement) or `tree: native` (the "
+                "operation left to synthesis, DSP blocks allowed);")
+    return out + _input_tip(plan)
+
+
+@tips.register
+def _(plan: NativePlan) -> list[str]:
+    return (_tip("more `native_stages` give the tools more ranks to retime into (where they "
+                 "retime);")
+            + _tip("`tree: dadda` or `wallace` builds the counter tree in the fabric with a "
+                   "register rank per level;") + _input_tip(plan))

@@ -34,6 +34,14 @@ operand of every node gets its own register, apart from the local copy of that t
 copy per term and level, shared by the term's far readers), which placement can put
 half-way along the long wire.
 
+With `local_width` and `carry_increment` (the carry-increment form; Zimmermann 1997),
+bit i + 1 of a local block, once the network within the block has given it G and P of bits
+k..i of its block (k the block's lowest bit), waits for the block's carry C = G_(k-1) with
+two terms instead of three: its sum for carry-in 0, s0 = p_(i+1) ^ G (kind `csum`, formed
+with the block's last level: four inputs), and P.  The fill-in node (i, k - 1) of the last
+level becomes the sum itself, s = s0 ^ P & C (G and P are never both 1, so G | P & C =
+G ^ P & C).
+
 Every term knows the stage that computes it and the last stage that reads it (the output
 register counts as stage final + 1); terms no output needs are pruned, so a propagate term
 travels only up to its last use and complete groups drop their propagate.  A term computed
@@ -50,7 +58,8 @@ from .config import Config, prefix_positions
 
 # Register kind of each term kind (see `Plan.registers`).
 PREFIX_KINDS = ("gen", "prop", "grp_gen", "grp_prop", "blk_c0", "blk_c1", "grp_c0", "grp_c1")
-RESULT_KINDS = ("sum", "blk_s0", "blk_s1", "blk_v0", "blk_v1", "ovf", "cout", "lt", "eq", "gt")
+RESULT_KINDS = ("sum", "csum", "blk_s0", "blk_s1", "blk_v0", "blk_v1", "ovf", "cout", "lt", "eq",
+                "gt")
 OPERAND_KINDS = ("sub",)  # operand flags that travel with the terms to the output stage
 TREE_STYLE = "sklansky"  # a comparator's tree: Sklansky pruned to the top is a balanced tree
 
@@ -60,7 +69,8 @@ _G = prefix.UNIT_GATES
 OP_DELAY = {"gen": _G.and_or, "prop": _G.xor, "gen_cin": _G.xor + 2 * _G.and_or,
             "dot_g": 2 * _G.and_or, "dot_p": _G.and_or, "wire": 0, "sum": _G.xor,
             "xor": _G.xor, "sum_cin": 2 * _G.xor, "select": 2 * _G.and_or, "flag": 0,
-            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0}
+            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0, "pass": 0,
+            "not": 0, "sum_flip": _G.and_or + _G.xor}
 
 
 @dataclass(frozen=True)
@@ -190,9 +200,17 @@ def _positions(config: Config, kind) -> tuple[str, tuple[int, ...]]:
     return "chains", tuple(min(k, w - k * q) for q in range(prefix_positions(w, "blocks", k)))
 
 
-def make_schedule(config: Config) -> Schedule:
-    """The pruned schedule of a `levels` or `blocks` config."""
-    kind = units.KINDS[config.unit]
+def make_schedule(config: Config, kind: units.Kind | None = None,
+                  operand_widths: tuple[int, ...] | None = None) -> Schedule:
+    """The pruned schedule of a `levels` or `blocks` config (of unit kind `kind`, by default
+    the config's).
+
+    `operand_widths` (a tree's final adder) gives the bits of each operand from bit 0; the
+    second operand may be narrower, its bits above 0.  A position (or block) where it has
+    no bits generates no carry, so its generate term is left out (None) and every group term
+    that would read it is formed without it."""
+    kind = kind or units.KINDS[config.unit]
+    y_end = operand_widths[1] if operand_widths else config.width
     flavour, widths = _positions(config, kind)
     count = len(widths)
     lsbs = tuple(sum(widths[:q]) for q in range(count))
@@ -214,9 +232,10 @@ def make_schedule(config: Config) -> Schedule:
     flags = {f: term(f, 0, "flag", (), 1, lsb=0) for f in kind.travellers}
     sums: list = [None] * count
     if flavour == "bits":
-        prop = [term("prop", i, "prop", (), 1, lsb=i) for i in range(config.width)]
+        prop = [term("prop", i, "prop" if i < y_end else "pass", (), 1, lsb=i)
+                for i in range(config.width)]
         g = [term("gen", i, "gen_cin" if has_cin and i == 0 else "gen", (), 1)
-             for i in range(config.width)]
+             if i < y_end else None for i in range(config.width)]
         p = list(prop)
         if has_cin:
             sums[0] = term("sum", 0, "sum_cin", (prop[0],), 1, lsb=0)
@@ -230,7 +249,8 @@ def make_schedule(config: Config) -> Schedule:
         results = flavour == "chains"
         s0 = [term("blk_s0", q, "chain0_sum", (), 1, widths[q], lsbs[q]) if results else None
               for q in range(count)]
-        g = [term("blk_c0", q, f"{chain}0_carry", (), 1) for q in range(count)]
+        g = [term("blk_c0", q, f"{chain}0_carry", (), 1) if lsbs[q] < y_end else None
+             for q in range(count)]
         low_has_c1 = flavour == "compare"  # a comparator's lowest slice has no carry-in
         s1 = [None] + [term("blk_s1", q, "chain1_sum", (), 1, widths[q], lsbs[q])
                        if results else None for q in range(1, count)]
@@ -251,6 +271,9 @@ def make_schedule(config: Config) -> Schedule:
         """Form position q's result in the stage after its carry-in g[q-1] is final."""
         if flavour == "compare":
             return
+        if g[q - 1] is None:  # no carry can reach it: its result is its own
+            sums[q] = s0[q] if flavour == "chains" else prop[q]
+            return
         stage = after(g[q - 1])
         if flavour == "bits":
             sums[q] = term("sum", q, "sum", (prop[q], g[q - 1]), stage, lsb=q)
@@ -258,6 +281,13 @@ def make_schedule(config: Config) -> Schedule:
             sums[q] = term("sum", q, "select", (s0[q], s1[q], g[q - 1]), stage,
                            widths[q], lsbs[q])
 
+    # carry_increment: once the network within the local blocks is done, bit i of block q
+    # (not the block's lowest bit) holds the sum it has for block carry-in 0, s0 = p ^ G, and
+    # the propagate P of its group in the block; the fill-in node (i, block q's carry) then
+    # becomes the sum itself, s = s0 ^ P & C (G and P are never both 1, so ^ is |).
+    local = config.local_width if flavour == "bits" and config.carry_increment else 0
+    last_local = prefix.network(config.cell, local).depth - 1 if 0 < local < count else None
+    waiting: dict[int, tuple[int, int]] = {}  # bit i -> (bit i + 1's s0, the P of bit i)
     done = [True] + [False] * (count - 1)  # position q's carry-in is final
     low = list(range(count))  # lowest position covered by the group held at each position
     for q in range(1, count):
@@ -279,16 +309,43 @@ def make_schedule(config: Config) -> Schedule:
         for i, j in level:
             gj, pj = g[j], p[j]
             if k in wire_stage:  # the far operands get their own registers
-                gj = far(gj, i)
+                if gj is not None:
+                    gj = far(gj, i)
                 if pj is not None:
                     pj = far(pj, i)
-            new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage, level=k)
+            if k == net.depth - 1 and i in waiting and gj is not None:
+                s0, pi = waiting[i]  # the fill-in: the block carry flips s0
+                sums[i + 1] = term("sum", i + 1, "sum_flip", (s0, pi, gj), after(s0, pi, gj),
+                                   lsb=i + 1)
+                done[i + 1] = True
+                low[i] = before[j]
+                continue
+            if gj is None:  # nothing below generates: the group generates what i does
+                new_g[i] = g[i]
+            elif g[i] is None:  # i generates nothing: the group passes on what j generates
+                new_g[i] = term(g_kind, i, "dot_p", (p[i], gj), stage, level=k)
+            else:
+                new_g[i] = term(g_kind, i, "dot_g", (g[i], p[i], gj), stage, level=k)
             # A block group reaching block 0 needs no carry-in-1 term (cin is folded in).
-            new_p[i] = None if pj is None else term(
-                p_kind, i, p_op, (p[i], pj) if p_op == "dot_p" else (g[i], p[i], pj), stage,
-                level=k)
+            if pj is None:
+                new_p[i] = None
+            elif p_op == "dot_p" or g[i] is None:
+                new_p[i] = term(p_kind, i, "dot_p", (p[i], pj), stage, level=k)
+            else:
+                new_p[i] = term(p_kind, i, p_op, (g[i], p[i], pj), stage, level=k)
             low[i] = before[j]
         g, p = new_g, new_p
+        if k == last_local:  # the in-block groups are complete: s0 and P wait instead
+            for i in range(local, count - 1):
+                if (i % local == local - 1 or done[i + 1] or g[i] is None or p[i] is None
+                        or config.signed and i == count - 2):
+                    continue  # a block top feeds the network over the blocks; the overflow
+                    # of a signed unit reads the carry into its top bit; a group that
+                    # generates nothing (a carry-save final adder's short operand) waits
+                    # as usual
+                x = g[i]  # formed in this stage: s0 with it, one 4-input function
+                at = terms[x].stage if terms[x].level == k else after(prop[i + 1], x)
+                waiting[i] = (term("csum", i + 1, "xor", (prop[i + 1], x), at, lsb=i + 1), p[i])
         for q in range(1, count):
             if not done[q] and low[q - 1] == 0:
                 finish(q)
@@ -302,6 +359,8 @@ def make_schedule(config: Config) -> Schedule:
             if "sub" in flags:  # add/subtract: the borrow is the complement of the carry,
                 # formed with the carry itself (g | p & g' ^ sub: four inputs, one LUT4)
                 cout = term("cout", count - 1, "xor", (cout, flags["sub"]), terms[cout].stage)
+            elif kind.inverts_carry_out:  # a tree's final adder with a constant left
+                cout = term("cout", count - 1, "not", (cout,), terms[cout].stage)
             outputs["chain"] = cout
         if config.signed:
             outputs["overflow"] = _overflow(term, terms, flavour, g, widths, lsbs, final,

@@ -16,7 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from . import cells, header
-from .netlist import Expr, Netlist, cat
+from .netlist import Const, Expr, Netlist, cat
 from .pipeline import Frame
 
 
@@ -35,26 +35,39 @@ class SliceContext:
 
 
 def build(plan) -> Netlist:
-    c, kind = plan.config, plan.unit
     f = Frame(plan)
+    return f.finish(stages(plan, f, f.src))
+
+
+def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
+    """Build the slices of `plan` into the netlist of frame `f` and return the expressions
+    of its outputs, by port name.
+
+    `src` gives each operand (and flag) as slice 0 sees it: a port, the input register, or
+    (for a tree's final adder, `plan.nest`) a register of the tree's last rank holding bits
+    `plan.base` and up.  An operand narrower than the slices is 0 above its top bit: no
+    register holds those bits.  The frame owns the ports, the valid chain and the output
+    section; the registers come from its words (which include `plan.words`)."""
+    c, kind = plan.config, plan.unit
     b = f.b
-    waiting = {op: f.src[op] for op in kind.operands}  # operand bits of slices i.. in cycle i
-    flags = {t: f.src[t] for t in kind.travellers}
+    # Operand bits of slices i.. in cycle i (None once an operand has no bits left).
+    waiting: dict[str, Expr | None] = {op: src[op] for op in kind.operands}
+    flags = {t: src[t] for t in kind.travellers}
     done: list[Expr] = []  # finished result bits below slice i, registered
     chain: dict[str, Expr] = {}
     last = len(plan.stages) - 1
     for s in plan.stages:
-        i, top = s.index, s.index == last
+        i, top, n = s.index, s.index == last, plan.number(s.index)
         b.section(*header.slice_title(plan, s))
         families = ((kind.result,) if kind.result else ()) + plan.chain_families(top)
-        state = {fam: f.reg(f"{fam}_stage_{i}") for fam in families}
+        state = {fam: f.reg(f"{fam}_stage_{n}") for fam in families}
         seen = dict(flags)
         if i == 0 and kind.has_carry_in(c):
             port = kind.carry_in_port(c)
-            seen["carry_in"] = f.src[port] if port else None
+            seen["carry_in"] = src[port] if port else None
         if c.valid:
             seen["valid"] = f.valid[plan.input_cycles + i]
-        ops = {op: bits.vec[s.lsb:s.lsb + s.width] for op, bits in waiting.items()}
+        ops = {op: _bits(bits, s.lsb, s.width) for op, bits in waiting.items()}
         ctx = SliceContext(c, s, top, cells.Slot(b, f"slice{i}", s.lsb), ops, seen, chain,
                            state)
         for fams, value in kind.slice(ctx):
@@ -64,18 +77,31 @@ def build(plan) -> Netlist:
             break
         nxt = plan.stages[i + 1]
         for op in kind.operands:
-            r = f.reg(f"{op}_skew_{i + 1}")
-            b.load(r, waiting[op].vec[nxt.lsb:c.width])
+            if plan.operand_end(op) <= nxt.lsb:
+                waiting[op] = None
+                continue
+            r = f.reg(f"{op}_skew_{n + 1}")
+            b.load(r, waiting[op].vec[nxt.lsb:])
             waiting[op] = r.all
         for t in kind.travellers:
-            r = f.reg(f"{t}_skew_{i + 1}")
+            r = f.reg(f"{t}_skew_{n + 1}")
             b.load(r, flags[t])
             flags[t] = r.all
         if kind.result:
-            r = f.reg(f"{kind.result}_deskew_{i + 1}")
+            r = f.reg(f"{kind.result}_deskew_{n + 1}")
             b.load(r, cat(*done, state[kind.result].all))
             done = [r.all]
     drives = {port: state[fam].all for port, fam in kind.output_families(c).items()}
     if kind.result:
         drives[kind.result] = cat(*done, state[kind.result].all)
-    return f.finish(drives)
+    return drives
+
+
+def _bits(bits: Expr | None, lsb: int, width: int) -> Expr:
+    """Bits lsb.. lsb+width-1 of an operand held in a vector from some bit up to its top,
+    0 above its top (or all 0 when it has no bits left)."""
+    if bits is None:
+        return Const(0, width)
+    have = min(width, bits.vec.msb + 1 - lsb)
+    held = bits.vec[lsb:lsb + have]
+    return held if have == width else cat(held, Const(0, width - have))

@@ -16,7 +16,7 @@ from __future__ import annotations
 import random
 from dataclasses import dataclass
 
-from . import cells
+from . import cells, reduction
 from .miter import chained, signed_overflow
 from .netlist import Cmp, Const, Expr, Mux, Rep, bit, cat, part
 
@@ -65,6 +65,9 @@ class Kind:
     keeps_result = False  # each slice keeps its result bits and reads them back (a total)
     composable = False  # `prove --method compositional` covers its sliced units
     settle = 0  # cycles a bounded proof needs beyond latency + 1 (a state to build up)
+    tree = False  # a carry-save kind: a counter tree, then a final adder (`TreePlan`)
+    max_width = 4096
+    inverts_carry_out = False  # the carry-out port is the chain bit complemented
 
     # ---- ports ----
     def carry_in_port(self, c) -> str | None:
@@ -82,7 +85,6 @@ class Kind:
         raise NotImplementedError
 
     def ports(self, c) -> list[Port]:
-        w = c.width
         ports = [Port("clk", "input", 1, "clock: every register loads on its rising edge")]
         if c.reset != "none":
             what = "every register" if c.reset_data else "the valid bits"
@@ -91,7 +93,7 @@ class Kind:
             ports.append(Port("rst", "input", 1, f"{how} reset, active high: clears {what}"))
         if c.enable:
             ports.append(Port("en", "input", 1, "clock enable: while low every register holds"))
-        ports += [Port(n, "input", w, m) for n, m in self.operand_meanings(c)]
+        ports += self.operand_ports(c)
         ports += self.flag_inputs(c)
         if c.valid:
             ports.append(Port("in_valid", "input", 1, "marks the inputs of this edge as valid"))
@@ -102,6 +104,10 @@ class Kind:
 
     def operand_meanings(self, c) -> list[tuple[str, str]]:
         return [("a", "first operand"), ("b", "second operand")]
+
+    def operand_ports(self, c) -> list[Port]:
+        """The operand inputs (W bits each unless the kind says otherwise)."""
+        return [Port(n, "input", c.width, m) for n, m in self.operand_meanings(c)]
 
     # ---- reference ----
     def model(self, c) -> Model:
@@ -196,7 +202,7 @@ class Arithmetic(Kind):
 
     def slice(self, ctx):
         c, s = ctx.config, ctx.s
-        x, y = ctx.ops["a"], self.y_operand(ctx.ops["b"], ctx.flags)
+        x, y = ctx.ops[self.operands[0]], self.y_operand(ctx.ops[self.operands[1]], ctx.flags)
         cin = (ctx.chain_in[self.chain[0]] if s.index
                else self.core_carry_in(ctx.flags.get("carry_in"), ctx.flags))
         want = not ctx.top or c.carry_out
@@ -400,7 +406,8 @@ class Comparator(Kind):
     refused = ("carry_in", "carry_out")
     # In levels mode the slices are compared in parallel and a tree combines their verdicts.
     mode_keys = {"slice_width": ("slices", "levels"), "slices": ("slices", "levels"),
-                 "block_width": (), "wire_registers": (), "local_width": ()}
+                 "block_width": (), "wire_registers": (), "local_width": (),
+                 "carry_increment": ()}
     TREE_SLICE = 8  # default slice width of the levels mode
 
     def default_slice_width(self, width, mode):
@@ -565,8 +572,173 @@ class _AccumulatorModel(Model):
 
 
 
+class FinalAdder(Plain):
+    """The final adder of a carry-save unit: the two rows of the tree's last rank added
+    (`row0` holds every column's first dot, `row1` the second, where there is one), the
+    result bits named as the unit's.  `flip`: the constant 2^(N-1) of a signed unit met no
+    dot of the tree, so the carry out, the result's top bit, is complemented."""
+
+    operands = ("row0", "row1")
+
+    def __init__(self, result: str, flip: bool):
+        super().__init__("final adder", "adds", "add", result, "carry", ("cin", "cout"),
+                         "carry into bit 0", "carry out of the top bit")
+        self.inverts_carry_out = self.transforms_carry_out = flip
+
+    def core_carry_out(self, chain, flags):
+        return ~chain if self.inverts_carry_out else chain
+
+
+def _clog2(n: int) -> int:
+    return (n - 1).bit_length()
+
+
+class CarrySave(Kind):
+    """What the sum and the multiplier share: a counter tree, then a final adder (the
+    modes are the final adder's), carry-in and carry-out refused."""
+
+    tree = True
+    verb = "adds"
+
+    def adder_width(self, values) -> int:
+        """The final adder's width for a config (or its values): what `slices` sums to."""
+        return reduction.tree_of(values).rows.adder_width
+
+    def result_width(self, c) -> int:
+        raise NotImplementedError
+
+    def results(self, c):
+        return [Port(self.result, "output", self.result_width(c), self.result_meaning(c))]
+
+    def value(self, c, inputs: dict) -> int:
+        """The exact result as an integer (signed operands read as two's complement)."""
+        raise NotImplementedError
+
+    def compute(self, c, inputs):
+        return {self.result: self.value(c, inputs) % (1 << self.result_width(c))}
+
+    def _extend(self, c, name: str, width: int, to: int) -> str:
+        """Verilog of input `name`, `width` bits, extended to `to` bits (sign or zero)."""
+        if to == width:
+            return name
+        top = f"{name}[{width - 1}]" if width > 1 else name
+        pad = f"{{{to - width}{{{top}}}}}" if c.signed else f"{to - width}'d0"
+        return f"{{{pad}, {name}}}"
+
+
+class Sum(CarrySave):
+    """sum = x0 + x1 + ... exactly: W + ceil(log2 N) bits for N operands of W bits."""
+
+    name = "sum"
+    refused = ("carry_in", "carry_out", "width_b", "partial_products")
+    operands = ()
+    result = "sum"
+
+    def operand_ports(self, c):
+        kind = "two's-complement operand" if c.signed else "operand"
+        return [Port(f"x{i}", "input", c.width, f"{kind} {i}") for i in range(c.operands)]
+
+    def result_width(self, c):
+        return c.width + _clog2(c.operands)
+
+    def result_meaning(self, c):
+        how = "two's complement" if c.signed else "unsigned"
+        return f"x0 + ... + x{c.operands - 1}, exact ({how})"
+
+    def value(self, c, inputs):
+        xs = [inputs[f"x{i}"] for i in range(c.operands)]
+        return sum(to_signed(x, c.width) if c.signed else x for x in xs)
+
+    def reference(self, c, en):
+        n, w = self.result_width(c), c.width
+        lines = [f"  wire [{n - 1}:0] ref_acc0 = {self._extend(c, 'x0', w, n)};"]
+        for i in range(1, c.operands):
+            lines += chained(f"ref_add{i}", f"ref_acc{i - 1}", self._extend(c, f"x{i}", w, n),
+                             "1'b0", n)
+            lines.append(f"  wire [{n - 1}:0] ref_acc{i} = ref_add{i}[{n - 1}:0];")
+        lines.append(f"  wire [{n - 1}:0] ref_sum_0 = ref_acc{c.operands - 1};")
+        return lines
+
+    def directed(self, c):
+        w, k = c.width, c.operands
+        top, low = (1 << w) - 1, 1 << (w - 1)
+        five = int("01" * w, 2) & top
+        rows = [[top] * k, [0] * k, [1] * k, [low] * k, [low - 1] * k,
+                [top] + [0] * (k - 1), [0] * (k - 1) + [top], [five, top ^ five] * k,
+                [low] + [low - 1] * (k - 1), [top] + [1] * (k - 1)]
+        rows += [[(1 << j) - 1] * k for j in range(1, w + 1)]  # a carry out of each column
+        return [{f"x{i}": r[i] & top for i in range(k)} for r in rows]
+
+    def random_inputs(self, c, rng):
+        w = c.width
+        picks = (0, (1 << w) - 1, 1 << (w - 1))
+        return {f"x{i}": rng.choice(picks) if rng.random() < 0.15 else rng.getrandbits(w)
+                for i in range(c.operands)}
+
+    def phrase(self, c):
+        how = "signed " if c.signed else ""
+        return (f"{how}sum of {c.operands} {c.width}-bit operands, sum = x0 + ... + "
+                f"x{c.operands - 1} ({self.result_width(c)} bits)")
+
+
+class Multiplier(CarrySave):
+    """product = a * b exactly, a of W bits and b of width_b bits."""
+
+    name = "multiplier"
+    refused = ("carry_in", "carry_out", "operands")
+    result = "product"
+    max_width = 256
+
+    def operand_ports(self, c):
+        kind = "two's-complement " if c.signed else ""
+        return [Port("a", "input", c.width, f"{kind}multiplicand"),
+                Port("b", "input", c.width_b, f"{kind}multiplier")]
+
+    def result_width(self, c):
+        return c.width + c.width_b
+
+    def result_meaning(self, c):
+        return f"a * b, exact ({'two' + chr(39) + 's complement' if c.signed else 'unsigned'})"
+
+    def value(self, c, inputs):
+        a, b = inputs["a"], inputs["b"]
+        if c.signed:
+            a, b = to_signed(a, c.width), to_signed(b, c.width_b)
+        return a * b
+
+    def reference(self, c, en):
+        n = self.result_width(c)
+        a, b = self._extend(c, "a", c.width, n), self._extend(c, "b", c.width_b, n)
+        return [f"  wire [{n - 1}:0] ref_product_0 = {a} * {b};"]
+
+    def directed(self, c):
+        m, n = c.width, c.width_b
+        ta, tb = (1 << m) - 1, (1 << n) - 1
+        na, nb = 1 << (m - 1), 1 << (n - 1)  # the most negative values, read signed
+        fa, fb = int("01" * m, 2) & ta, int("01" * n, 2) & tb
+        pairs = [(ta, tb), (na, nb), (0, 0), (1, 1), (0, tb), (ta, 0), (1, tb), (ta, 1),
+                 (na, tb), (ta, nb), (na, 1), (1, nb), (na - 1, nb - 1), (fa, fb),
+                 (ta ^ fa, tb ^ fb), (fa, tb), (na, nb - 1)]
+        pairs += [(1 << j, tb) for j in range(m)] + [(ta, 1 << j) for j in range(n)]
+        return [{"a": a & ta, "b": b & tb} for a, b in pairs]
+
+    def random_inputs(self, c, rng):
+        def pick(w):
+            r = rng.random()
+            if r < 0.08:
+                return rng.choice((0, (1 << w) - 1, 1 << (w - 1), 1))
+            return rng.getrandbits(w)
+        return {"a": pick(c.width), "b": pick(c.width_b)}
+
+    def phrase(self, c):
+        how = "signed " if c.signed else ""
+        return (f"{c.width} x {c.width_b}-bit {how}multiplier, product = a * b "
+                f"({self.result_width(c)} bits)")
+
+
 ADDER = Plain("adder", "adds", "add", "sum", "carry", ("cin", "cout"), "carry into bit 0",
               "carry out of the top bit")
 SUBTRACTOR = Plain("subtractor", "subtracts", "sub", "diff", "borrow", ("bin", "bout"),
                    "borrow into bit 0", "borrow out: 1 when a < b + bin as unsigned numbers")
-KINDS = {k.name: k for k in (ADDER, SUBTRACTOR, AddSub(), Comparator(), Accumulator())}
+KINDS = {k.name: k for k in (ADDER, SUBTRACTOR, AddSub(), Comparator(), Accumulator(), Sum(),
+                             Multiplier())}

@@ -15,7 +15,7 @@ from .netlist import Arith, Cat, Cmp, Const, Expr, Load, Mux, Netlist, Op, Ref, 
 INDENT = "  "
 
 # Binding strength (higher binds tighter), Verilog-2005 table 5-4.
-_PREC = {"~": 10, "+": 8, "-": 8, "<": 7, "<=": 7, "==": 6, "&": 5, "^": 4, "|": 3, "?": 1}
+_PREC = {"~": 10, "*": 9, "+": 8, "-": 8, "<": 7, "<=": 7, "==": 6, "&": 5, "^": 4, "|": 3, "?": 1}
 _ATOM = 11
 
 

@@ -1,0 +1,327 @@
+"""Carry-save reduction: counters that add a dot matrix down to two rows, level by level.
+
+Pure data, no HDL.  A level takes the dots of each column and places counters on them:
+full adders (3:2, three dots of column k in, a sum dot in column k and a carry dot in
+column k + 1 out) and half adders (2:2).  Levels repeat until every column holds at most
+two dots; a register rank follows every `levels_per_stage` levels (a multiplier's partial
+products count as the first level), and the final adder adds the two rows that are left.
+
+- Dadda (1965): level by level the largest height of the sequence 2, 3, 4, 6, 9, 13, 19,
+  28, 42, 63, ... (d_(j+1) = floor(1.5 d_j)) below the current one is the target, and each
+  column gets just the counters that bring it, with the carries coming in from the column
+  below, down to that target, a full adder while two or more too many, a half adder for one.
+- Wallace (1964): every level takes each column's dots three at a time into full adders and
+  a pair left over into a half adder: the most reduction per level.  Its last level (from
+  height 3 to 2) places just the counters needed, as Dadda's does: greedy half adders there
+  would leave lone dots between pairs, gaps in the rows the final adder takes.
+
+The constant K of the matrix (`dots.py`) is never a register: each one-bit of it waits in
+its column until a dot is there and is absorbed into it for free, x + 2^k = ~x + x 2^(k+1)
+(the complement in column k and the same dot again in column k + 1; in the top column
+N - 1 only the complement, the carry falling outside the result).  A one-bit in the top
+column that never meets a dot (the column stays empty) is left to the final adder, whose
+carry out is then complemented (`Tree.flip_carry`).
+
+Every value is numbered: the matrix's leaves, each counter's sum and carry, and each
+register of a rank.  A dot is a value, possibly complemented; `Tree.evaluate` computes every
+value for given inputs, so the reduction is checked against Python's integers without HDL.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+from . import dots as dm
+
+STYLES = ("dadda", "wallace")
+# Unit-gate delays (Tyagi 1993): AND/OR 1, XOR 2, inverters free.  A full adder's sum is an
+# XOR pair, its carry a majority (AND, then a 3-input OR); a half adder is an XOR and an AND.
+DELAY = {("fa", "sum"): 4, ("fa", "carry"): 3, ("ha", "sum"): 2, ("ha", "carry"): 1}
+# A leaf's logic: a bit is a wire; a partial product an AND; a Booth selection is the digit's
+# one/two selects (an XOR, an AND of three and an OR: 3), an AND-OR (2) and the negating XOR
+# (2); a Booth row's low bit is one AND a_0 (3), its carried negate bit one more AND (4).
+LEAF_DELAY = {"bit": 0, "and": 1, "booth": 7, "booth_low": 3, "booth_carry": 4}
+
+
+def dadda_heights(up_to: int) -> list[int]:
+    """Dadda's sequence 2, 3, 4, 6, 9, ... up to the first value >= `up_to`."""
+    seq = [2]
+    while seq[-1] < up_to:
+        seq.append(seq[-1] * 3 // 2)
+    return seq
+
+
+@dataclass(frozen=True)
+class Dot:
+    """A value in a column, possibly complemented."""
+
+    value: int
+    invert: bool = False
+
+    def flipped(self) -> "Dot":
+        return Dot(self.value, not self.invert)
+
+
+@dataclass(frozen=True)
+class Value:
+    """A leaf of the matrix, a counter output, or a register of a rank."""
+
+    index: int
+    column: int
+    kind: str  # leaf, sum, carry, reg
+    leaf: dm.Leaf | None = None
+    counter: int | None = None  # the counter whose output it is
+    source: Dot | None = None  # what a register holds
+    stage: int | None = None  # the stage at whose end a register loads
+    row: int | None = None  # a register's place in its column (0: first)
+
+
+@dataclass(frozen=True)
+class Counter:
+    index: int
+    level: int  # 1-based (a multiplier's partial products are level 0)
+    column: int
+    kind: str  # fa or ha
+    number: int  # its place among the counters of its kind in its column at its level
+    inputs: tuple[Dot, ...]
+    sum: int
+    carry: int | None  # None in the top column: a carry out of the result is dropped
+
+
+@dataclass(frozen=True)
+class Level:
+    index: int  # 1-based; 0 is a multiplier's partial-product level
+    stage: int  # 1-based stage holding it
+    target: int | None  # Dadda's height for this level (None: Wallace, or level 0)
+    counters: tuple[int, ...]
+    heights: tuple[int, ...]  # dots per column after the level (and absorbed constants)
+    delay: int  # unit-gate arrival of its slowest output, from the stage's registers
+
+
+@dataclass(frozen=True)
+class Tree:
+    matrix: dm.Matrix
+    style: str
+    values: tuple[Value, ...]
+    counters: tuple[Counter, ...]
+    levels: tuple[Level, ...]
+    stages: int  # register ranks: the tree's stages
+    ranks: tuple[tuple[tuple[Dot, ...], ...], ...]  # per stage, its registers by column
+    flip_carry: bool  # 2^(N-1) is left: the final adder's carry out is complemented
+    absorbed: tuple[tuple[int, int], ...] = field(default=())  # (column, level) of each
+    # constant one-bit absorbed into a dot after that level
+
+    @property
+    def width(self) -> int:
+        return self.matrix.width
+
+    @property
+    def final(self) -> tuple[tuple[Dot, ...], ...]:
+        """The last rank by column: at most two registers each."""
+        return self.ranks[-1]
+
+    @property
+    def rows(self) -> "Rows":
+        """Where the final adder sits on the last rank (see `Rows`)."""
+        heights = [len(col) for col in self.final]
+        pairs = [k for k, h in enumerate(heights) if h == 2]
+        filled = [k for k, h in enumerate(heights) if h]
+        if not pairs:
+            if self.flip_carry:
+                raise AssertionError("a constant is left with no final adder")
+            return Rows(self.width, self.width, self.width, self.width, False)
+        low, top = pairs[0], filled[-1]
+        if any(heights[k] < 2 for k in range(low, pairs[-1])) or \
+                any(heights[k] == 0 for k in range(low, top)):
+            raise AssertionError(f"gaps in the final rows: {heights}")
+        if self.flip_carry and top != self.width - 2:
+            raise AssertionError("the left constant does not meet the final carry")
+        return Rows(low, pairs[-1] + 1, top + 1, self.width, top + 1 < self.width)
+
+    def fa(self) -> int:
+        return sum(1 for c in self.counters if c.kind == "fa")
+
+    def ha(self) -> int:
+        return sum(1 for c in self.counters if c.kind == "ha")
+
+    def stage_delay(self, stage: int) -> int:
+        return max((lv.delay for lv in self.levels if lv.stage == stage), default=0)
+
+    def stage_levels(self, stage: int) -> list[Level]:
+        return [lv for lv in self.levels if lv.stage == stage]
+
+    def evaluate(self, inputs: dict, m: int, n: int, signed: bool) -> list[int]:
+        """Every value's bit for the given inputs (registers hold what they load)."""
+        out: list[int] = []
+
+        def dot(d: Dot) -> int:
+            return out[d.value] ^ int(d.invert)
+
+        for v in self.values:
+            if v.kind == "leaf":
+                out.append(dm.value(v.leaf, inputs, m, n, signed))
+            elif v.kind == "reg":
+                out.append(dot(v.source))
+            else:
+                c = self.counters[v.counter]
+                bits = [dot(d) for d in c.inputs]
+                out.append(sum(bits) & 1 if v.kind == "sum" else sum(bits) >> 1)
+        return out
+
+
+@dataclass(frozen=True)
+class Rows:
+    """The two rows the tree leaves, for the final adder: columns low .. top-1 (both rows
+    up to `pairs`, the first row alone above), the result bit `top` its carry out when
+    `carry_out` (the result is wider), and the result bits below `low` finished."""
+
+    low: int
+    pairs: int
+    top: int
+    width: int
+    carry_out: bool
+
+    @property
+    def adder_width(self) -> int:
+        return self.top - self.low
+
+
+@lru_cache(maxsize=64)
+def tree(unit: str, width: int, width_b: int, operands: int, signed: bool,
+         partial_products: str, style: str, levels_per_stage: int) -> Tree:
+    """The tree of a carry-save unit (cached: config checks and plans ask alike)."""
+    if unit == "sum":
+        return reduce(dm.sum_matrix(operands, width, signed), style, levels_per_stage, False)
+    make = dm.booth_matrix if partial_products == "booth4" else dm.and_matrix
+    return reduce(make(width, width_b, signed), style, levels_per_stage, True)
+
+
+def tree_of(c) -> Tree:
+    """The tree of a config (or a config's values as a dict)."""
+    get = c.get if isinstance(c, dict) else lambda k: getattr(c, k)
+    return tree(get("unit"), get("width"), get("width_b") or get("width"),
+                get("operands") or 0, get("signed"), get("partial_products"), get("tree"),
+                get("tree_levels_per_stage"))
+
+
+def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
+           first_level: bool) -> Tree:
+    """Place the counters and register ranks.  `first_level`: the leaves are logic (a
+    multiplier's partial products), which count as level 0 of the first stage."""
+    n_cols = matrix.width
+    values: list[Value] = []
+    counters: list[Counter] = []
+    levels: list[Level] = []
+    absorbed: list[tuple[int, int]] = []
+    cols: list[list[Dot]] = [[] for _ in range(n_cols)]
+    arrival: dict[int, int] = {}  # value -> unit-gate arrival within its stage
+    for leaf in matrix.leaves:
+        values.append(Value(len(values), leaf.column, "leaf", leaf=leaf))
+        arrival[len(values) - 1] = LEAF_DELAY[leaf.op]
+        cols[leaf.column].append(Dot(len(values) - 1))
+    pending = {k for k in range(n_cols) if matrix.constant >> k & 1}
+
+    def absorb(level: int) -> None:
+        """Absorb every waiting one-bit of K whose column holds a dot (low to high)."""
+        for k in sorted(pending):
+            if cols[k]:
+                pending.discard(k)
+                absorbed.append((k, level))
+                d = cols[k][-1]
+                cols[k][-1] = d.flipped()
+                if k + 1 < n_cols:
+                    cols[k + 1].append(d)
+
+    def stage_of(level: int) -> int:
+        return (level - (0 if first_level else 1)) // levels_per_stage + 1
+
+    absorb(0)
+    if first_level:
+        levels.append(Level(0, 1, None, (), tuple(map(len, cols)),
+                            max(arrival.values(), default=0)))
+    ranks: list[tuple[tuple[Dot, ...], ...]] = []
+
+    def register(stage: int) -> None:
+        """The rank at the end of `stage`: every dot of every column into a register."""
+        rank = []
+        for k, col in enumerate(cols):
+            regs = []
+            for row, d in enumerate(col):
+                values.append(Value(len(values), k, "reg", source=d, stage=stage, row=row))
+                arrival[len(values) - 1] = 0
+                regs.append(Dot(len(values) - 1))
+            rank.append(tuple(regs))
+        cols[:] = [list(r) for r in rank]
+        ranks.append(tuple(rank))
+
+    index = 0
+    while max(map(len, cols), default=0) > 2:
+        index += 1
+        stage = stage_of(index)
+        if levels and levels[-1].stage != stage:
+            register(levels[-1].stage)
+        height = max(map(len, cols))
+        # Wallace's last level (height 3 to 2) places just the counters needed, as Dadda's.
+        target = max(d for d in dadda_heights(height) if d < height) \
+            if style == "dadda" or height == 3 else None
+        new: list[list[Dot]] = [[] for _ in range(n_cols)]
+        carries_in: list[Dot] = []
+        placed = []
+        for k in range(n_cols):
+            avail = list(cols[k])
+            total = len(avail) + len(carries_in)
+            plan = _counters(style, len(avail), total, target)
+            outs, carries_out = [], []
+            numbers = {"fa": 0, "ha": 0}
+            for kind in plan:
+                size = 3 if kind == "fa" else 2
+                ins, avail = tuple(avail[:size]), avail[size:]
+                base = max(arrival[d.value] for d in ins)
+                ci = len(counters)
+                s_id = len(values)
+                values.append(Value(s_id, k, "sum", counter=ci))
+                arrival[s_id] = base + DELAY[(kind, "sum")]
+                c_id = None
+                if k + 1 < n_cols:
+                    c_id = len(values)
+                    values.append(Value(c_id, k + 1, "carry", counter=ci))
+                    arrival[c_id] = base + DELAY[(kind, "carry")]
+                    carries_out.append(Dot(c_id))
+                counters.append(Counter(ci, index, k, kind, numbers[kind], ins, s_id, c_id))
+                numbers[kind] += 1
+                placed.append(ci)
+                outs.append(Dot(s_id))
+            new[k] = outs + carries_in + avail
+            carries_in = carries_out
+        cols[:] = new
+        absorb(index)
+        slowest = max((arrival[d.value] for col in cols for d in col), default=0)
+        levels.append(Level(index, stage, target, tuple(placed), tuple(map(len, cols)),
+                            slowest))
+    if not levels:  # nothing to reduce and no partial-product logic: cannot happen (>= 3
+        raise ValueError("a carry-save tree needs at least one level")  # operands)
+    register(levels[-1].stage)
+    flip = bool(pending)
+    if pending - {n_cols - 1}:
+        raise AssertionError(f"constant bits {sorted(pending)} met no dot")  # see docstring
+    return Tree(matrix, style, tuple(values), tuple(counters), tuple(levels),
+                levels[-1].stage, tuple(ranks), flip, tuple(absorbed))
+
+
+def _counters(style: str, avail: int, total: int, target: int | None) -> list[str]:
+    """The counters of one column at one level: `avail` dots of the rank before, `total`
+    with the carries arriving from the column below in this level."""
+    out = []
+    if style == "wallace" and target is None:
+        return ["fa"] * (avail // 3) + (["ha"] if avail % 3 == 2 else [])
+    while total > target:
+        if total - target >= 2 and avail >= 3:
+            out.append("fa")
+            avail, total = avail - 3, total - 2
+        elif avail >= 2:
+            out.append("ha")
+            avail, total = avail - 2, total - 1
+        else:
+            break
+    return out

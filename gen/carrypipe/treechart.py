@@ -1,0 +1,252 @@
+"""The stage chart of a carry-save unit: the tree's dot diagram, rank by rank, then the final
+adder, as SVG text built from the plan alone.
+
+Bit columns run across (most significant on the left) and clock edges down, as in the stage
+chart of the other units (`chart.py`).  At the top the dot matrix the unit adds (the partial
+products, or the operands' bits) is drawn as hollow dots; below it, each register rank of
+the tree as the dots it holds, one per register bit, the r-th dot of each column in row r;
+then the final adder's registers (stage, skew, deskew, prefix ... words, as bars over their
+bits), the finished low result bits waiting beside it, and `valid` at the side.  Every
+register element is a `rect` of class `reg` carrying `data-kind`, `data-name`, `data-bits`,
+`data-edge` and `data-count` (the register bits it stands for), so the elements of one kind
+add up to the plan's count, like the other chart.  Units wider than 96 result bits are
+grouped into bands of columns (and the chart says so).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from html import escape
+
+from . import report
+
+COLOURS = {"input": "#5b7db1", "tree": "#d0762c", "skew": "#e69a28", "stage": "#2a8c6a",
+           "deskew": "#8a63c2", "control": "#c73a6f", "prefix": "#3a9fc0",
+           "result": "#9bb83a", "wire": "#b07c4f"}
+MEANINGS = {
+    "input": "input register: the operands as they arrive",
+    "tree": "tree ranks: the dots left after each stage's counters, by column",
+    "stage": "final adder: a slice's (or the output's) result bits and carry",
+    "skew": "final adder: row bits waiting for their slice",
+    "deskew": "result bits waiting for the upper slices (and bits the tree finished)",
+    "control": "valid bit, delayed like the data",
+    "prefix": "final adder: prefix terms between levels",
+    "result": "final adder: result bits on their way to the output",
+    "wire": "final adder: wire-pipelining copies of long-span terms",
+}
+SLOW, INK, FAINT = "#d62728", "#222222", "#8c8c8c"
+FONT = "DejaVu Sans, Lato, Helvetica, Arial, sans-serif"
+MAX_COLUMNS = 96
+GRID_WIDTH, MARGIN, GUTTER = 900, 24, 150
+MIN_WIDTH = 820
+
+
+def _num(v: float) -> str:
+    text = f"{v:.2f}".rstrip("0").rstrip(".")
+    return "0" if text == "-0" else text
+
+
+class _Svg:
+    def __init__(self):
+        self.parts: list[str] = []
+
+    def add(self, tag: str, body: str | None = None, **attrs) -> None:
+        items = []
+        for key, value in attrs.items():
+            if value is None:
+                continue
+            key = key.rstrip("_").replace("_", "-")
+            shown = _num(value) if isinstance(value, float) else str(value)
+            items.append(f'{key}="{escape(shown, quote=True)}"')
+        head = f"<{tag} {' '.join(items)}"
+        self.parts.append(f"{head}/>" if body is None else f"{head}>{escape(body)}</{tag}>")
+
+    def text(self, x, y, body, size=11.0, anchor="start", fill=INK, weight=None, **attrs):
+        self.add("text", body, x=float(x), y=float(y), font_size=float(size),
+                 text_anchor=anchor, fill=fill, font_weight=weight, **attrs)
+
+
+def _slowest(plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]:
+    if measured:
+        for key, value in measured.items():
+            if key not in {s.index for s in plan.stages}:
+                raise ValueError(f"measured figure for stage {key!r}: the plan has stages "
+                                 f"0..{len(plan.stages) - 1}")
+            if isinstance(value, bool) or not isinstance(value, (int, float)) \
+                    or not math.isfinite(value) or value < 0:
+                raise ValueError(f"measured figure for stage {key}: {value!r} is not a "
+                                 "non-negative number of ns")
+        top = max(measured.values())
+        slow = {i for i, v in measured.items() if v == top}
+        figure, basis = f"{_num(top)} ns", "measured"
+    else:
+        slow = {s.index for s in plan.slowest}
+        figure, basis = f"delay {plan.slowest[0].delay}", "unit-gate model"
+    if len(slow) == len(plan.stages):
+        return set(), f"All {len(slow)} stages tie at {figure} ({basis}): no single slowest."
+    names = ", ".join(str(i) for i in sorted(slow))
+    return slow, f"Slowest: stage{'s' if len(slow) > 1 else ''} {names} at {figure} ({basis})."
+
+
+def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str = "") -> str:
+    """The stage chart of a `TreePlan` or `NativePlan` (see the module docstring)."""
+    slow, slow_text = _slowest(plan, measured)
+    c, regs = plan.config, plan.registers.as_dict()
+    width = plan.result_width
+    band = 1
+    while math.ceil(width / band) > MAX_COLUMNS:
+        band *= 2
+    columns = math.ceil(width / band)
+    cw = min(28.0, max(7.0, GRID_WIDTH / columns))
+    x0 = MARGIN + GUTTER
+    side_x = x0 + columns * cw + 14
+    page_w = max(MIN_WIDTH, math.ceil(side_x + cw + 40 + MARGIN))
+    out = _Svg()
+
+    def col_x(k: int) -> float:
+        return x0 + (columns - 1 - k // band) * cw
+
+    y = MARGIN + 16
+    out.text(MARGIN, y, f"{c.name} — stage chart", size=18, weight="bold")
+    y += 20
+    out.text(MARGIN, y, f"{report.unit_phrase(plan)}; {len(plan.stages)} stage(s); latency "
+             f"{plan.latency} cycle(s)", size=12)
+    y += 17
+    out.text(MARGIN, y, "Result bits across (most significant on the left), clock edges down: "
+             "the dots each tree rank holds, then the final adder's registers.", size=11,
+             fill=FAINT)
+    if band > 1:
+        y += 16
+        out.text(MARGIN, y, f"Grouped into bands to stay readable: one column = {band} bits "
+                 "(a dot stands for the register bits of its row in those columns).", size=11,
+                 fill=SLOW, weight="bold", data_role="banding")
+    y += 24
+    for j in range(columns):
+        if j % max(1, math.ceil(30 / cw)) == 0 or j == columns - 1:
+            out.text(col_x(j * band) + cw / 2, y, str(j * band), size=9, anchor="middle",
+                     fill=FAINT)
+    out.text(MARGIN, y, "bit", size=10, fill=FAINT)
+    y += 10
+
+    tree = getattr(plan, "tree", None)
+    if tree is not None:  # the matrix the unit adds, before any register
+        heights = [0] * columns
+        for leaf in tree.matrix.leaves:
+            heights[leaf.column // band] += 1
+        y = _dots(out, x0, y, cw, [math.ceil(h / band) for h in heights],
+                  f"matrix: {len(tree.matrix.leaves)} dots")
+
+    stage_of_edge = {plan.input_cycles + s.index + 1: s for s in plan.stages}
+    for edge in range(1, plan.latency + 1):
+        words = [w for w in plan.words if w.edge == edge]
+        top = y
+        s = stage_of_edge.get(edge)
+        if s is not None:
+            figure = (f"{_num(measured[s.index])} ns" if measured and s.index in measured
+                      else f"delay {s.delay}")
+            hot = s.index in slow
+            out.text(MARGIN, y + 12, f"stage {s.index} · {figure}", size=10,
+                     fill=SLOW if hot else INK, weight="bold" if hot else None,
+                     data_role="stage", data_stage=s.index, data_slowest=int(hot))
+        out.text(MARGIN, y + 25, f"edge {edge}", size=10, fill=FAINT)
+        tree_words = [w for w in words if w.kind == "tree"]
+        if tree_words:
+            y = _rank(out, x0, y, cw, columns, band, tree_words, col_x)
+        others = [w for w in words if w.kind not in ("tree", "control")]
+        families = sorted({w.family for w in others}, key=lambda f: (f.startswith(("row",)), f))
+        row_h = 10.0
+        for slot, fam in enumerate(families):
+            for w in (w for w in others if w.family == fam):
+                _bar(out, w, y + 2 + slot * row_h, row_h - 2, col_x, cw, band)
+        y += max(30.0, len(families) * row_h + 6) if not tree_words else 6
+        for w in (w for w in words if w.kind == "control"):
+            out.add("rect", x=side_x, y=top + 4, width=cw, height=8.0, fill=COLOURS["control"],
+                    class_="reg", data_kind="control", data_name=w.family,
+                    data_bits="0:0", data_edge=w.edge, data_count=w.width)
+        out.add("line", x1=float(x0), y1=y, x2=x0 + columns * cw, y2=y, stroke="#ececec",
+                stroke_width=0.6)
+        y += 4
+    y += 16
+    out.text(MARGIN, y, f"outputs ready after edge {plan.latency}", size=10, fill=FAINT)
+    y += 26
+    y = _legend(out, regs, y, plan.latency)
+    out.text(MARGIN, y, slow_text, size=12, weight="bold", fill=SLOW, data_role="slowest")
+    y += 16
+    basis = (f"Stage figures measured{f' ({measured_source})' if measured_source else ''}: "
+             "worst register-to-register delay inside each stage, in ns." if measured else
+             f"Stage delays: {report.DELAY_MODEL}; a full adder is one XOR pair.")
+    out.text(MARGIN, y, basis, size=10, fill=FAINT)
+    height = math.ceil(y + MARGIN)
+    head = (f'<svg xmlns="http://www.w3.org/2000/svg" width="{page_w}" height="{height}" '
+            f'viewBox="0 0 {page_w} {height}" font-family="{FONT}" '
+            f'data-latency="{plan.latency}" data-bit-band="{band}" data-edge-band="1">')
+    title = f"<title>{escape(c.name)}: stage chart</title>"
+    background = f'<rect x="0" y="0" width="{page_w}" height="{height}" fill="#ffffff"/>'
+    return "\n".join([head, title, background, *out.parts, "</svg>"]) + "\n"
+
+
+def _dots(out, x0, y, cw, heights: list[int], label: str) -> float:
+    """The matrix's dots as hollow circles (they are logic, not registers), `heights[j]` in
+    column j."""
+    size = min(cw * 0.8, 9.0)
+    out.text(MARGIN, y + 12, label, size=10, fill=FAINT)
+    for j, tall in enumerate(heights):
+        x = x0 + (len(heights) - 1 - j) * cw + (cw - size) / 2
+        for r in range(tall):
+            out.add("circle", cx=x + size / 2, cy=y + 4 + r * (size + 1) + size / 2,
+                    r=size / 2 - 0.5, fill="none", stroke=COLOURS["tree"], stroke_width=0.8,
+                    class_="dot", data_column=j)
+    return y + 8 + max(heights, default=0) * (size + 1)
+
+
+def _rank(out, x0, y, cw, columns, band, words, col_x) -> float:
+    """One tree rank: a dot per register bit (or per band of columns), row r at depth r."""
+    size = min(cw * 0.8, 9.0)
+    rows = 0
+    cells: dict[tuple[int, int], list] = {}
+    for w in words:
+        row = int(w.family[3:].split("_")[0])
+        rows = max(rows, row + 1)
+        for k in range(w.lsb, w.lsb + w.width):
+            cells.setdefault((k // band, row), []).append((k, w))
+    for (j, row), found in sorted(cells.items()):
+        lo, hi = min(k for k, _ in found), max(k for k, _ in found)
+        w = found[0][1]
+        x = col_x(j * band) + (cw - size) / 2
+        out.add("rect", x=x, y=y + 4 + row * (size + 1), width=size, height=size,
+                rx=size / 2, fill=COLOURS["tree"], class_="reg", data_kind="tree",
+                data_name=w.family, data_bits=f"{hi}:{lo}", data_edge=w.edge,
+                data_count=len(found))
+    return y + 8 + rows * (size + 1)
+
+
+def _bar(out, w, y, h, col_x, cw, band) -> None:
+    """A register word of the final adder (or the input register) over its bits."""
+    lo, hi = w.lsb, w.lsb + w.width - 1
+    left = col_x(hi)
+    right = col_x(lo) + cw
+    out.add("rect", x=left + 0.5, y=y, width=max(0.6, right - left - 1.0), height=h,
+            fill=COLOURS.get(w.kind, "#7a7a7a"), class_="reg", data_kind=w.kind,
+            data_name=w.family, data_bits=f"{hi}:{lo}", data_edge=w.edge, data_count=w.width)
+
+
+def _legend(out, regs, y, latency) -> float:
+    out.text(MARGIN, y, "Register bits by kind", size=13, weight="bold")
+    y += 8
+    for kind, bits in regs.items():
+        if kind == "total":
+            continue
+        out.add("rect", x=float(MARGIN), y=float(y), width=14.0, height=12.0,
+                fill=COLOURS.get(kind, "#7a7a7a"), class_="key", data_kind=kind)
+        out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
+        out.text(MARGIN + 140, y + 10, f"{bits:,}".replace(",", " "), size=11, anchor="end",
+                 data_role="bits", data_kind=kind)
+        out.text(MARGIN + 150, y + 10, MEANINGS.get(kind, f"register of kind '{kind}'"),
+                 size=11, fill="#444444")
+        y += 20
+    out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
+    out.text(MARGIN + 140, y + 10, f"{regs['total']:,}".replace(",", " "), size=11,
+             anchor="end", weight="bold", data_role="total")
+    out.text(MARGIN + 150, y + 10, f"register bits; latency {latency} cycle(s)", size=11)
+    return y + 40

@@ -1,0 +1,83 @@
+"""`fit` for the carry-save units: the candidates (trees x levels per stage x the final
+adder's splits, native x ranks), the chosen config written back into the user's file, the
+--trees option, and (slow) a real run."""
+
+import re
+
+import pytest
+from click.testing import CliRunner
+
+from carrypipe import candidates, config, config_edit
+from carrypipe.cli import main
+from carrypipe.plan import make_plan
+
+TAP = "# tap of the test filter\nname: tap12\nunit: multiplier\nwidth: 12   # bits\n" \
+      "signed: true\ncell: native\nslice_width: 8\n"
+
+
+def base():
+    return config.parse_text(TAP, "tap.yaml")
+
+
+def test_candidates_span_trees_levels_and_final_adders():
+    found = candidates.generate(base())
+    trees = {(c.tree, c.tree_levels_per_stage if c.tree != "native" else None,
+              c.native_stages if c.tree == "native" else None) for c in found}
+    assert trees == {("dadda", 1, None), ("dadda", 2, None), ("wallace", 1, None),
+                     ("wallace", 2, None), *(("native", None, n) for n in (1, 2, 3, 4))}
+    for c in found:
+        if c.tree != "native" and c.pipeline == "slices":
+            # The split divides the final adder, in at most TREE_SLICES slices.
+            assert sum(c.slices) == make_plan(c).rows.adder_width
+            assert len(c.slices) <= candidates.TREE_SLICES
+    assert {c.pipeline for c in found if c.tree != "native"} == {"slices", "levels", "blocks"}
+    rows = candidates.distinct([candidates.Row(make_plan(c)) for c in found])
+    assert len(rows) == len(found)  # every config is its own circuit
+    assert all(r.label for r in rows)
+
+
+def test_trees_and_modes_restrict_the_candidates():
+    only = candidates.generate(base(), ("native",), ("slices",), ("wallace",))
+    assert only and {(c.tree, c.pipeline, c.cell) for c in only} == {
+        ("wallace", "slices", "native")}
+    assert {c.tree for c in candidates.generate(base(), None, ("levels",), ("native",))} == {
+        "native"}
+
+
+def test_the_chosen_config_goes_back_into_the_users_file():
+    for c in candidates.generate(base()):
+        text = config_edit.rewrite(TAP, c)
+        assert not text.startswith("# Written whole")
+        assert "# tap of the test filter" in text and "width: 12   # bits" in text
+        assert config.parse_text(text, "x").normalized() == c.normalized()
+
+
+def test_trees_option_needs_a_carry_save_unit(write_config):
+    cfg = write_config("name: a8\nwidth: 8\n")
+    res = CliRunner().invoke(main, ["fit", str(cfg), "--target-mhz", "100", "--device",
+                                    "ice40-hx8k", "--trees", "dadda"])
+    assert res.exit_code == 2
+    assert res.output.strip() == ("carrypipe: error: --trees: value 'dadda' is not allowed "
+                                  "with unit 'adder'; expected it only with unit 'sum' or "
+                                  "'multiplier'")
+    cfg = write_config(TAP)
+    res = CliRunner().invoke(main, ["fit", str(cfg), "--target-mhz", "100", "--device",
+                                    "ice40-hx8k", "--trees", "dadda,maple"])
+    assert res.exit_code == 2 and "--trees: value 'maple' is not allowed" in res.output
+
+
+@pytest.mark.slow
+def test_real_fit_of_a_multiplier(write_config, tmp_path, monkeypatch):
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "cache"))
+    cfg = write_config(TAP.replace("width: 12", "width: 6"))
+    out = tmp_path / "o"
+    res = CliRunner().invoke(main, ["fit", str(cfg), "--target-mhz", "150", "--device",
+                                    "ice40-hx8k", "--modes", "slices", "--cells", "native",
+                                    "--jobs", "2", "-o", str(out)])
+    assert res.exit_code == 0, res.output
+    chosen = re.search(r"^chosen: (.*), latency (\d+)", res.output, re.M)
+    assert chosen, res.output
+    rebuilt = tmp_path / "b"
+    build = CliRunner().invoke(main, ["build", str(out / "tap12.yaml"), "-o", str(rebuilt)])
+    assert build.exit_code == 0, build.output
+    assert (out / "tap12.v").read_bytes() == (rebuilt / "tap12.v").read_bytes()

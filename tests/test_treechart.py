@@ -1,0 +1,88 @@
+"""The stage chart of a carry-save unit (`treechart.py`): its register cells add up to the
+plan's counts by kind, each tree rank's dots are the plan's dots, wide units are banded,
+the slowest stage is marked, and a real renderer (cairosvg) draws it."""
+
+import io
+import xml.etree.ElementTree as ET
+
+import cairosvg
+import pytest
+from PIL import Image
+
+from carrypipe import chart
+from conftest import make
+
+SVG = "{http://www.w3.org/2000/svg}"
+CASES = {
+    "8x8 signed, sliced, valid": dict(unit="multiplier", width=8, signed=True, slice_width=5,
+                                      valid=True, reset="sync", register_inputs=True),
+    "12x9 booth, levels": dict(unit="multiplier", width=12, width_b=9,
+                               partial_products="booth4", pipeline="levels",
+                               cell="kogge-stone"),
+    "sum 5x9 wallace, blocks": dict(unit="sum", operands=5, width=9, tree="wallace",
+                                    tree_levels_per_stage=2, pipeline="blocks",
+                                    cell="brent-kung", block_width=4),
+    "sum 16x200 (banded)": dict(unit="sum", operands=16, width=200, slice_width=64),
+    "native": dict(unit="multiplier", width=16, tree="native", native_stages=3, valid=True),
+    "1x1 (no final adder)": dict(unit="multiplier", width=1, width_b=1),
+}
+
+
+def cells(root, kind=None):
+    return [dict(e.attrib) for e in root.iter(f"{SVG}rect")
+            if e.get("class") == "reg" and kind in (None, e.get("data-kind"))]
+
+
+@pytest.mark.parametrize("keys", CASES.values(), ids=CASES.keys())
+def test_cells_add_up_to_the_plan_by_kind(keys):
+    plan = make(**keys)
+    root = ET.fromstring(chart.svg(plan))
+    drawn = {}
+    for c in cells(root):
+        drawn[c["data-kind"]] = drawn.get(c["data-kind"], 0) + int(c["data-count"])
+    assert drawn == {k: v for k, v in plan.registers.as_dict().items() if k != "total" and v}
+    bits = {e.get("data-kind"): int(e.text.replace(" ", "")) for e in root.iter(f"{SVG}text")
+            if e.get("data-role") == "bits"}
+    assert {k: v for k, v in bits.items() if v} == {k: v for k, v in drawn.items()}
+
+
+def test_each_rank_holds_the_plans_dots():
+    plan = make(unit="multiplier", width=6, width_b=5)
+    root = ET.fromstring(chart.svg(plan))
+    first = plan.input_cycles + 1
+    for stage, rank in enumerate(plan.tree.ranks):
+        dots = sum(int(c["data-count"]) for c in cells(root, "tree")
+                   if c["data-edge"] == str(first + stage))
+        assert dots == sum(len(col) for col in rank)
+    matrix = [e for e in root.iter(f"{SVG}circle") if e.get("class") == "dot"]
+    assert len(matrix) == len(plan.tree.matrix.leaves)  # hollow: logic, not registers
+
+
+def test_wide_units_are_banded_and_say_so():
+    root = ET.fromstring(chart.svg(make(**CASES["sum 16x200 (banded)"])))
+    assert root.get("data-bit-band") == "4"
+    assert any(e.get("data-role") == "banding" for e in root.iter(f"{SVG}text"))
+
+
+def test_the_slowest_stage_is_marked_and_measured_figures_decide():
+    plan = make(**CASES["8x8 signed, sliced, valid"])
+    root = ET.fromstring(chart.svg(plan))
+    marked = {int(e.get("data-stage")) for e in root.iter(f"{SVG}text")
+              if e.get("data-role") == "stage" and e.get("data-slowest") == "1"}
+    assert marked == {s.index for s in plan.slowest}
+    root = ET.fromstring(chart.svg(plan, {0: 2.5, 3: 1.0}, "nextpnr"))
+    marked = {int(e.get("data-stage")) for e in root.iter(f"{SVG}text")
+              if e.get("data-role") == "stage" and e.get("data-slowest") == "1"}
+    assert marked == {0}
+    with pytest.raises(ValueError, match="the plan has stages"):
+        chart.svg(plan, {99: 1.0})
+
+
+def test_same_plan_same_bytes_and_a_real_picture():
+    plan = make(**CASES["12x9 booth, levels"])
+    text = chart.svg(plan)
+    assert text == chart.svg(make(**CASES["12x9 booth, levels"]))
+    png = cairosvg.svg2png(bytestring=text.encode())
+    image = Image.open(io.BytesIO(png))
+    root = ET.fromstring(text)
+    assert image.size == (int(root.get("width")), int(root.get("height")))
