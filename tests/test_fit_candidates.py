@@ -209,10 +209,14 @@ def test_prefix_mode_candidates():
 
 
 def test_local_networks_from_64_bits():
-    local = lambda w: sorted((c.cell, c.wire_registers) for c in candidates.generate(
-        base(width=w), ("kogge-stone",)) if c.pipeline == "levels" and c.local_width)
+    local = lambda w: sorted((c.cell, c.wire_registers, c.carry_increment)
+                             for c in candidates.generate(base(width=w), ("kogge-stone",))
+                             if c.pipeline == "levels" and c.local_width)
     assert local(32) == []
-    assert local(64) == [("kogge-stone", 0), ("kogge-stone", 1), ("kogge-stone", 2)]
+    # docs/modes.md: the carry increment behind two wire ranks was the fastest 256-bit unit.
+    assert local(64) == [("kogge-stone", 0, False), ("kogge-stone", 1, False),
+                         ("kogge-stone", 1, True), ("kogge-stone", 2, False),
+                         ("kogge-stone", 2, True)]
     assert all(c.local_width == candidates.LOCAL_WIDTH for c in candidates.generate(
         base(width=256), ("kogge-stone",)) if c.pipeline == "levels" and c.local_width)
 

@@ -88,14 +88,15 @@ def prefix_styles(base: Config, cells: tuple[str, ...] | None) -> list[str]:
 
 def levels_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Config]:
     """levels x prefix style x levels per stage (and, from 64 bits, 16-bit local networks
-    with 0-2 wire-register ranks)."""
+    with 0-2 wire-register ranks, and with 1-2 ranks in the carry-increment form)."""
     styles = prefix_styles(base, cells)
     out = [variant(base, pipeline="levels", cell=cell, levels_per_stage=n)
            for cell in styles for n in LEVELS_PER_STAGE]
     if span(base) >= LOCAL_FROM:  # local networks kept wiring short at 64 and 256 bits
         out += [variant(base, pipeline="levels", cell=cell, local_width=LOCAL_WIDTH,
-                        wire_registers=wires)
-                for cell in styles for wires in (0, 1, 2)]
+                        wire_registers=wires, carry_increment=increment)
+                for cell in styles for wires in (0, 1, 2) for increment in (False, True)
+                if wires or not increment]  # the increment measured best behind wire ranks
     return out
 
 
