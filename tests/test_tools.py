@@ -102,9 +102,15 @@ def test_a_timeout_ends_the_whole_group(tmp_path):
 
 
 def test_ctrl_c_ends_the_whole_group(tmp_path):
-    threading.Timer(0.5, os.kill, (os.getpid(), signal.SIGINT)).start()
-    with pytest.raises(KeyboardInterrupt):
-        tools.run([str(tree(tmp_path))], tmp_path)
+    # Python's own Ctrl-C handler even when the test run was started in the background: a
+    # shell starts background jobs with SIGINT ignored, and Python then installs none.
+    previous = signal.signal(signal.SIGINT, signal.default_int_handler)
+    try:
+        threading.Timer(0.5, os.kill, (os.getpid(), signal.SIGINT)).start()
+        with pytest.raises(KeyboardInterrupt):
+            tools.run([str(tree(tmp_path))], tmp_path)
+    finally:
+        signal.signal(signal.SIGINT, previous)
     child, grandchild = pids(tmp_path)
     assert gone(child) and gone(grandchild)
     assert not tools._live
