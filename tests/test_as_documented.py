@@ -120,12 +120,18 @@ def run_users_testbench(unit: str, tmp_path, off_by: int = 0) -> tuple[int, int]
     plan = make(name=name, valid=True, enable=True, **keys)
     emit.write(emit.render(plan, vectors=10), tmp_path / "b")
     model = {o: e.replace("sum_exp", f"{outputs[0]}_exp") for o, e in model.items()}
-    (tmp_path / "b" / "tb.v").write_text(users_testbench(name, keys, outputs, model, off_by))
+    return simulate(tmp_path / "b", name, users_testbench(name, keys, outputs, model, off_by))
+
+
+def simulate(folder, name: str, testbench: str, timeout: float = 300) -> tuple[int, int]:
+    """Compile `<name>.v` with the user's `testbench` in Icarus, run it and read its
+    `RESULT errors=E checked=C` line."""
+    (folder / "tb.v").write_text(testbench)
     comp = subprocess.run(["iverilog", "-g2005", "-I", ".", "-o", "tb.vvp", f"{name}.v",
-                           "tb.v"], cwd=tmp_path / "b", capture_output=True, text=True)
+                           "tb.v"], cwd=folder, capture_output=True, text=True)
     assert comp.returncode == 0, comp.stderr
-    out = subprocess.run(["vvp", "-n", "tb.vvp"], cwd=tmp_path / "b", capture_output=True,
-                         text=True, timeout=120)
+    out = subprocess.run(["vvp", "-n", "tb.vvp"], cwd=folder, capture_output=True,
+                         text=True, timeout=timeout)
     line = [x for x in out.stdout.splitlines() if x.startswith("RESULT")][-1]
     errors, checked = (int(v.split("=")[1]) for v in line.split()[1:])
     return errors, checked

@@ -8,12 +8,12 @@ reference the other tests use."""
 from __future__ import annotations
 
 import shutil
-import subprocess
 
 import pytest
 
 from carrypipe import emit
 from conftest import make
+from test_as_documented import simulate
 
 pytestmark = pytest.mark.skipif(not (shutil.which("iverilog") and shutil.which("vvp")),
                                 reason="Icarus Verilog is not installed")
@@ -98,16 +98,8 @@ def run_users_testbench(case: str, tmp_path, off_by: int = 0) -> tuple[int, int]
             and p.name not in ("clk", "rst", "en", "in_valid")} == inputs
     assert plan.port(out).width == width  # as the README's port table says
     emit.write(emit.render(plan, vectors=10), tmp_path / "b")
-    (tmp_path / "b" / "tb.v").write_text(users_testbench(name, inputs, out, width, model,
-                                                         off_by))
-    comp = subprocess.run(["iverilog", "-g2005", "-I", ".", "-o", "tb.vvp", f"{name}.v",
-                           "tb.v"], cwd=tmp_path / "b", capture_output=True, text=True)
-    assert comp.returncode == 0, comp.stderr
-    run = subprocess.run(["vvp", "-n", "tb.vvp"], cwd=tmp_path / "b", capture_output=True,
-                         text=True, timeout=300)
-    line = [x for x in run.stdout.splitlines() if x.startswith("RESULT")][-1]
-    errors, checked = (int(v.split("=")[1]) for v in line.split()[1:])
-    return errors, checked
+    return simulate(tmp_path / "b", name,
+                    users_testbench(name, inputs, out, width, model, off_by))
 
 
 @pytest.mark.parametrize("case", CASES)
