@@ -33,6 +33,7 @@ from functools import singledispatch
 from html import escape
 
 from . import report, treechart
+from .svg import FAINT, FONT, INK, SLOW, Svg, num
 from .header import bits, plural, stage_list
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
@@ -41,14 +42,12 @@ KINDS = ("input", "skew", "stage", "deskew", "control", "prefix", "result", "wir
 COLOURS = {"input": "#5b7db1", "skew": "#e69a28", "stage": "#2a8c6a", "deskew": "#8a63c2",
            "control": "#c73a6f", "prefix": "#3a9fc0", "result": "#9bb83a", "wire": "#b07c4f"}
 EXTRA_COLOURS = ("#7a7a7a", "#a39a2c", "#2b9fb3", "#9c5b3b")  # kinds the chart does not know
-SLOW = "#d62728"
-INK, FAINT, PAPER = "#222222", "#8c8c8c", "#ffffff"
+PAPER = "#ffffff"
 CALM = "#3f5a86"  # notes that inform (banding), not warn
 BLOCK = ("#e3f1ec", "#2a8c6a", "#17553f")  # a stage's logic: fill, outline, text
 SLOW_BLOCK = ("#fde4e1", SLOW, SLOW)
 IDLE_BLOCK = ("#ffffff", "#9aa9a3", "#5d6b66")  # a stage without logic (a wire rank)
 ENABLE = "#56606b"
-FONT = "DejaVu Sans, Lato, Helvetica, Arial, sans-serif"
 CHAR = 0.55  # average glyph width of the font, in ems, for fitting labels
 
 MAX_COLUMNS = 72  # bit columns drawn one bit each; wider units are grouped into bands
@@ -66,11 +65,6 @@ def _band(count: int, limit: int) -> int:
     while math.ceil(count / size) > limit:
         size *= 2
     return size
-
-
-def _num(value: float) -> str:
-    text = f"{value:.2f}".rstrip("0").rstrip(".")
-    return "0" if text == "-0" else text
 
 
 def _span(lo: int, hi: int, sep: str = ":") -> str:
@@ -98,28 +92,6 @@ def _wrap(text: str, size: float, room: float) -> list[str]:
         else:
             lines.append(word)
     return lines
-
-
-class _Svg:
-    """An ordered list of SVG elements with attribute formatting in one place."""
-
-    def __init__(self):
-        self.parts: list[str] = []
-
-    def add(self, tag: str, body: str | None = None, **attrs) -> None:
-        items = []
-        for key, value in attrs.items():
-            if value is None:
-                continue
-            key = key.rstrip("_").replace("_", "-")
-            shown = _num(value) if isinstance(value, float) else str(value)
-            items.append(f'{key}="{escape(shown, quote=True)}"')
-        head = f"<{tag} {' '.join(items)}" if items else f"<{tag}"
-        self.parts.append(f"{head}/>" if body is None else f"{head}>{escape(body)}</{tag}>")
-
-    def text(self, x, y, body, size=11.0, anchor="start", fill=INK, weight=None, **attrs):
-        self.add("text", body, x=float(x), y=float(y), font_size=float(size),
-                 text_anchor=anchor, fill=fill, font_weight=weight, **attrs)
 
 
 # ---- what the chart says: words for each pipeline mode and unit kind ----
@@ -461,7 +433,7 @@ def _slowest(plan: Plan, measured: Mapping[int, float] | None) -> tuple[set[int]
     if measured:
         top = max(measured.values())
         slow = {i for i, v in measured.items() if v == top}
-        figure, basis = f"{_num(top)} ns", "measured"
+        figure, basis = f"{num(top)} ns", "measured"
     else:
         top = plan.slowest[0].delay
         slow = {s.index for s in plan.slowest}
@@ -507,7 +479,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     colours = _colours(plan)
     slow, slow_text = _slowest(plan, measured)
     c = plan.config
-    out = _Svg()
+    out = Svg()
 
     # Title and what the picture shows.
     y = MARGIN + 16
@@ -630,7 +602,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     return "\n".join([head, title, background, *out.parts, "</svg>"]) + "\n"
 
 
-def _axis(out: _Svg, plan: Plan, lay: _Layout, y: float) -> None:
+def _axis(out: Svg, plan: Plan, lay: _Layout, y: float) -> None:
     """Bit numbers along the top at slice (or block) boundaries, the carry-out column's
     name, and the side lanes' names."""
     out.text(MARGIN, y, "bit", size=10, fill=FAINT)
@@ -686,7 +658,7 @@ def _ticks(plan: Plan, lay: _Layout, size: float) -> list[int]:
     return picked
 
 
-def _register_cells(out: _Svg, plan: Plan, lay: _Layout, colours, grid_top: float) -> None:
+def _register_cells(out: Svg, plan: Plan, lay: _Layout, colours, grid_top: float) -> None:
     cells = _cells(plan, lay)
 
     def shared(cell):
@@ -745,7 +717,7 @@ def _groups(stages: list) -> list[list]:
     return [[s] for s in stages] if len({s.index for s in stages}) <= 1 else [stages]
 
 
-def _io_strip(out: _Svg, lay: _Layout, left: float, w: float, y: float, label: str,
+def _io_strip(out: Svg, lay: _Layout, left: float, w: float, y: float, label: str,
               ports: str, when: str, colours: tuple[str, str, str]) -> None:
     """The strip above or below the grid where operands arrive or results leave."""
     fill, stroke, ink = colours
@@ -774,7 +746,7 @@ def _label_texts(plan: Plan, group: list, slow: set[int], measured) -> list[str]
     the stage holds (its bits, or its logic)."""
     first, last = group[0], group[-1]
     worst = max(group, key=lambda s: measured.get(s.index, 0) if measured else s.delay)
-    figure = (f"{_num(measured[worst.index])} ns" if measured and worst.index in measured
+    figure = (f"{num(measured[worst.index])} ns" if measured and worst.index in measured
               else f"delay {worst.delay}")
     if len(group) == 1:
         name, short, what = f"stage {first.index}", str(first.index), _stage_text(plan, first)
@@ -829,7 +801,7 @@ def _block_labels(plan: Plan, lay: _Layout, blocks, slow: set[int], measured) ->
     return labels
 
 
-def _stage_block(out: _Svg, plan: Plan, lay: _Layout, group: list, ly: float, slow: set[int],
+def _stage_block(out: Svg, plan: Plan, lay: _Layout, group: list, ly: float, slow: set[int],
                  label: _Label) -> None:
     lo = min(s.lsb for s in group)
     hi = max(s.msb for s in group)
@@ -857,7 +829,7 @@ def _stage_block(out: _Svg, plan: Plan, lay: _Layout, group: list, ly: float, sl
                  data_role="stage-label", data_stage=stages)
 
 
-def _handoff_arrow(out: _Svg, plan: Plan, lay: _Layout, grid_top: float, cycle: int, s, nxt):
+def _handoff_arrow(out: Svg, plan: Plan, lay: _Layout, grid_top: float, cycle: int, s, nxt):
     """From the chain register (edge cycle+1, bit nxt.lsb) down into the next slice."""
     x, w = lay.x_of(nxt.lsb, nxt.lsb)
     cx = x + w / 2 if lay.bit_band == 1 else x + w - 3
@@ -867,17 +839,17 @@ def _handoff_arrow(out: _Svg, plan: Plan, lay: _Layout, grid_top: float, cycle: 
     out.add("line", x1=cx, y1=y1, x2=cx, y2=y2 - 4, stroke=INK, stroke_width=1.4,
             class_="carry", data_from=s.index, data_to=nxt.index,
             data_chain=" ".join(plan.unit.chain))
-    out.add("path", d=f"M{_num(cx - 3.5)},{_num(y2 - 5)} L{_num(cx + 3.5)},{_num(y2 - 5)} "
-            f"L{_num(cx)},{_num(y2)} Z", fill=INK)
+    out.add("path", d=f"M{num(cx - 3.5)},{num(y2 - 5)} L{num(cx + 3.5)},{num(y2 - 5)} "
+            f"L{num(cx)},{num(y2)} Z", fill=INK)
 
 
-def _enable(out: _Svg, lay: _Layout, grid_top: float) -> None:
+def _enable(out: Svg, lay: _Layout, grid_top: float) -> None:
     """`en`, once: a rail beside the grid that touches every register row, where it acts."""
     band_h = lay.lh + lay.rh
     x = lay.enable_x
     top, bottom = grid_top + lay.lh, grid_top + (lay.rows - 1) * band_h + lay.lh + lay.rh
-    segments = " ".join(f"M{_num(x)},{_num(grid_top + t * band_h + lay.lh + 1)} "
-                        f"V{_num(grid_top + t * band_h + lay.lh + lay.rh - 1)}"
+    segments = " ".join(f"M{num(x)},{num(grid_top + t * band_h + lay.lh + 1)} "
+                        f"V{num(grid_top + t * band_h + lay.lh + lay.rh - 1)}"
                         for t in range(lay.rows))
     out.add("line", x1=float(x), y1=float(top), x2=float(x), y2=float(bottom), stroke=ENABLE,
             stroke_width=0.8, stroke_opacity=0.6)
@@ -885,7 +857,7 @@ def _enable(out: _Svg, lay: _Layout, grid_top: float) -> None:
             class_="enable", data_port="en", data_edges=_span(1, lay.edges))
 
 
-def _legend(out: _Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, slow_text,
+def _legend(out: Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, slow_text,
             measured, source) -> float:
     regs = plan.registers.as_dict()
     out.text(MARGIN, y, "Register bits by kind", size=13, weight="bold")
@@ -931,7 +903,7 @@ def _legend(out: _Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, 
     return y
 
 
-def _symbols(out: _Svg, plan: Plan, lay: _Layout, said: Words, y: float, slow) -> float:
+def _symbols(out: Svg, plan: Plan, lay: _Layout, said: Words, y: float, slow) -> float:
     """The key to the other marks, in a row that wraps: only marks the chart shows."""
     entries = [("block", said.block)]
     if any(s.delay == 0 for s in plan.stages):

@@ -20,6 +20,7 @@ from collections.abc import Mapping
 from html import escape
 
 from . import report
+from .svg import FAINT, FONT, INK, SLOW, Svg, num
 
 COLOURS = {"input": "#5b7db1", "tree": "#d0762c", "skew": "#e69a28", "stage": "#2a8c6a",
            "deskew": "#8a63c2", "control": "#c73a6f", "prefix": "#3a9fc0",
@@ -35,36 +36,9 @@ MEANINGS = {
     "result": "final adder: result bits on their way to the output",
     "wire": "final adder: wire-pipelining copies of long-span terms",
 }
-SLOW, INK, FAINT = "#d62728", "#222222", "#8c8c8c"
-FONT = "DejaVu Sans, Lato, Helvetica, Arial, sans-serif"
 MAX_COLUMNS = 96
 GRID_WIDTH, MARGIN, GUTTER = 900, 24, 150
 MIN_WIDTH = 820
-
-
-def _num(v: float) -> str:
-    text = f"{v:.2f}".rstrip("0").rstrip(".")
-    return "0" if text == "-0" else text
-
-
-class _Svg:
-    def __init__(self):
-        self.parts: list[str] = []
-
-    def add(self, tag: str, body: str | None = None, **attrs) -> None:
-        items = []
-        for key, value in attrs.items():
-            if value is None:
-                continue
-            key = key.rstrip("_").replace("_", "-")
-            shown = _num(value) if isinstance(value, float) else str(value)
-            items.append(f'{key}="{escape(shown, quote=True)}"')
-        head = f"<{tag} {' '.join(items)}"
-        self.parts.append(f"{head}/>" if body is None else f"{head}>{escape(body)}</{tag}>")
-
-    def text(self, x, y, body, size=11.0, anchor="start", fill=INK, weight=None, **attrs):
-        self.add("text", body, x=float(x), y=float(y), font_size=float(size),
-                 text_anchor=anchor, fill=fill, font_weight=weight, **attrs)
 
 
 def _slowest(plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]:
@@ -79,7 +53,7 @@ def _slowest(plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]
                                  "non-negative number of ns")
         top = max(measured.values())
         slow = {i for i, v in measured.items() if v == top}
-        figure, basis = f"{_num(top)} ns", "measured"
+        figure, basis = f"{num(top)} ns", "measured"
     else:
         slow = {s.index for s in plan.slowest}
         figure, basis = f"delay {plan.slowest[0].delay}", "unit-gate model"
@@ -102,7 +76,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     x0 = MARGIN + GUTTER
     side_x = x0 + columns * cw + 14
     page_w = max(MIN_WIDTH, math.ceil(side_x + cw + 40 + MARGIN))
-    out = _Svg()
+    out = Svg()
 
     def col_x(k: int) -> float:
         return x0 + (columns - 1 - k // band) * cw
@@ -143,7 +117,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
         top = y
         s = stage_of_edge.get(edge)
         if s is not None:
-            figure = (f"{_num(measured[s.index])} ns" if measured and s.index in measured
+            figure = (f"{num(measured[s.index])} ns" if measured and s.index in measured
                       else f"delay {s.delay}")
             hot = s.index in slow
             out.text(MARGIN, y + 12, f"stage {s.index} · {figure}", size=10,

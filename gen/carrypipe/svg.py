@@ -1,0 +1,37 @@
+"""SVG text for the charts: one element writer (attribute names and numbers formatted in one
+place, text escaped) and the inks both charts draw with."""
+
+from __future__ import annotations
+
+from html import escape
+
+SLOW, INK, FAINT = "#d62728", "#222222", "#8c8c8c"
+FONT = "DejaVu Sans, Lato, Helvetica, Arial, sans-serif"
+
+
+def num(value: float) -> str:
+    """A coordinate or figure with at most two decimals and no trailing zeros."""
+    text = f"{value:.2f}".rstrip("0").rstrip(".")
+    return "0" if text == "-0" else text
+
+
+class Svg:
+    """An ordered list of SVG elements with attribute formatting in one place."""
+
+    def __init__(self):
+        self.parts: list[str] = []
+
+    def add(self, tag: str, body: str | None = None, **attrs) -> None:
+        items = []
+        for key, value in attrs.items():
+            if value is None:
+                continue
+            key = key.rstrip("_").replace("_", "-")
+            shown = num(value) if isinstance(value, float) else str(value)
+            items.append(f'{key}="{escape(shown, quote=True)}"')
+        head = f"<{tag} {' '.join(items)}" if items else f"<{tag}"
+        self.parts.append(f"{head}/>" if body is None else f"{head}>{escape(body)}</{tag}>")
+
+    def text(self, x, y, body, size=11.0, anchor="start", fill=INK, weight=None, **attrs):
+        self.add("text", body, x=float(x), y=float(y), font_size=float(size),
+                 text_anchor=anchor, fill=fill, font_weight=weight, **attrs)
