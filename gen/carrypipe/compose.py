@@ -239,18 +239,21 @@ def cut_design(wiring: Wiring, nets: list[SliceNets], op: str) -> dict[str, str]
     return cut.files(body, [f"ok_{n.index}" for n in nets])
 
 
-def solve_parts(files: dict[str, str], count: int, timeout: Deadline) -> list[str] | None:
-    """Prove `oks[j]` of the checker for every part j, one solver run per part on its cone
+def first_failing_part(files: dict[str, str], count: int, timeout: Deadline) -> int | None:
+    """Prove `ok_j` of the checker for every part j, one solver run per part on its cone
     only (one run over every part at once is several times slower: the solver must refute
     every part's miter together).  The checker names part j's comparison `ok_j`.  Returns
-    the verdicts in order, or None when the solver ended without one for each part."""
+    the first part whose proof fails, or None when all hold; a solver that ends without a
+    verdict for each part is the environment's failure (`no_verdict`)."""
     limit = sat_limit(timeout)
     script = ["read_json cut.json", "read_verilog check.v", f"hierarchy -top {CHECK} -check",
               "proc", "flatten", "opt_clean"]
     script += [f"sat {limit}-prove ok_{j} 1 w:ok_{j} %ci*" for j in range(count)]
     log, _ = run_yosys("\n".join(script) + "\n", files, timeout)
     verdicts = re.findall(f"({re.escape(PROVED)}|{re.escape(FAILED)})", log)
-    return verdicts if len(verdicts) == count else None
+    if len(verdicts) != count:
+        raise no_verdict(timeout)
+    return next((j for j, v in enumerate(verdicts) if v == FAILED), None)
 
 
 def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outcome:
@@ -263,11 +266,8 @@ def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outco
     if problem:
         return Outcome(method, problem)
     files = cut_design(wiring, nets, "+" if plan.unit.op == "add" else "-")
-    verdicts = solve_parts(files, count, timeout)
-    if verdicts is None:
-        raise no_verdict(timeout)
-    bad = [j for j, v in enumerate(verdicts) if v == FAILED]
-    if bad:
-        return Outcome(method, f"slice {bad[0]}: its logic does not compute a + b + c on its "
+    bad = first_failing_part(files, count, timeout)
+    if bad is not None:
+        return Outcome(method, f"slice {bad}: its logic does not compute a + b + c on its "
                                "own operand bits and carry-in (cell check, flip-flops cut)")
     return Outcome(method, None)

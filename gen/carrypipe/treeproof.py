@@ -39,7 +39,7 @@ from __future__ import annotations
 
 import json
 
-from .compose import Cut, Outcome, Wiring, solve_parts
+from .compose import Cut, Outcome, Wiring, first_failing_part
 from .miter import chained
 from .reduction import Dot, Tree
 from .solver import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
@@ -295,12 +295,9 @@ def prove_tree(plan, net: dict, module: str, timeout: Deadline) -> Outcome:
         files, count = stage_files(plan, wiring)
     except _Trouble as exc:
         return Outcome(method, str(exc))
-    verdicts = solve_parts(files, count, timeout)
-    if verdicts is None:
-        raise no_verdict(timeout)
-    bad = [j for j, v in enumerate(verdicts) if v == FAILED]
-    if bad:
-        return Outcome(method, f"stage {bad[0]}: a register does not load its planned dot "
+    bad = first_failing_part(files, count, timeout)
+    if bad is not None:
+        return Outcome(method, f"stage {bad}: a register does not load its planned dot "
                                "(flip-flops cut)")
     c = plan.config
     lat = len(plan.adder_stages) if plan.adder else 0
