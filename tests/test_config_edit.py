@@ -42,6 +42,9 @@ CHOSEN = [
     dict(slices=[24]),
     dict(cell="kogge-stone", pipeline="levels", levels_per_stage=2),
     dict(cell="han-carlson", pipeline="levels", local_width=8, wire_registers=1),
+    # A boolean key is written as YAML spells it (`true`; Python's `True` is refused).
+    dict(cell="kogge-stone", pipeline="levels", local_width=8, wire_registers=1,
+         carry_increment=True),
     dict(cell="brent-kung", pipeline="blocks", block_width=8),
 ]
 

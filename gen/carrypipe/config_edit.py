@@ -83,8 +83,11 @@ def wanted(text_keys: dict, chosen: Config) -> dict:
 
 
 def _scalar(value) -> str:
+    """A value as the config spells it (YAML 1.2 plain scalars: `true`, not Python's `True`)."""
     if isinstance(value, list):
-        return "[" + ", ".join(map(str, value)) + "]"
+        return "[" + ", ".join(map(_scalar, value)) + "]"
+    if isinstance(value, bool):
+        return "true" if value else "false"
     return str(value)
 
 
