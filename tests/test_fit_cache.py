@@ -284,3 +284,36 @@ def test_entries_are_checked_against_the_schema(tmp_path):
     assert not cache.valid({**ok.as_dict(), "start": None}, 3)
     assert not cache.valid({**ok.as_dict(), "seconds": -1.0}, 3)
     assert not cache.valid({**ok.as_dict(), "luts": True}, 3)
+
+
+def test_last_resort_finds_a_kind_the_model_put_low(monkeypatch, tmp_path):
+    """An invented device where one kind (Kogge-Stone with local blocks) runs 10 % above the
+    model and every other kind as predicted (the shape of an iCE40 HX8K case, docs/fit.md):
+    the target is out of the margin's reach for that kind's prediction, so only the last
+    resort runs it; without the last resort the search would say that none meets."""
+    dev = devices.get("ice40-hx8k")
+    base = config.from_mapping({"name": "acc", "width": 64})
+    fast = lambda c: c.pipeline == "levels" and c.local_width and not c.wire_registers \
+        and not c.carry_increment  # noqa: E731
+
+    def law(job):
+        c = config.from_mapping(job.config)
+        mhz = fit.make_row(c, "even", dev).predicted * (1.1 if fast(c) else 1.0)
+        return [Measurement(s, "ok", mhz=round(mhz, 2), luts=1, carry=0, flip_flops=0,
+                            start="unit.x", end="unit.x", inside=True) for s in job.seeds]
+    monkeypatch.setattr(toolflow, "measure", law)
+    monkeypatch.setattr(toolflow, "versions", lambda *a: {"yosys": "test"})
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path))
+    s = fit.Settings(0.0, dev, ("kogge-stone", "han-carlson"), modes=("levels",))
+    rows = [fit.make_row(c, "even", dev) for c in candidates.generate(base, s.cells, s.modes)]
+    hidden = min((r for r in rows if fast(r.config)), key=candidates.rank)
+    target = round(hidden.predicted * 1.09, 1)
+    assert max(r.predicted for r in rows) < target  # nothing else can meet it
+    assert hidden.predicted < target * (1 - model.margin(dev.name))  # the rule skips it
+    s = fit.Settings(target, dev, s.cells, modes=s.modes)
+    out = fit.run(base, s, executor.Local(1))
+    assert out.chosen is not None and out.chosen.label == hidden.label
+    assert fit.record(out.chosen, out)["note"].startswith("run as the last resort; ")
+    monkeypatch.setattr(candidates, "last_resort", lambda *a: [])
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "again"))
+    assert fit.run(base, s, executor.Local(1)).chosen is None

@@ -246,27 +246,32 @@ def test_margin_decides_what_is_measured():
     rows = [row([64], predicted=236), row([32, 32], predicted=300)]
     assert [r.latency for r in candidates.next_batch(rows, 250, 2, margin=0.05)] == [2]
     assert [r.latency for r in candidates.next_batch(rows, 250, 2, margin=0.10)] == [1, 2]
-    note = candidates.why_not_run(rows[0], rows, 250, {}, None, 0.05)
+    # Its kind measured (factor 1): the margin decided.
+    factors = {candidates.kind(rows[0]): 1.0}
+    note = candidates.why_not_run(rows[0], rows, 250, factors, None, 0.05)
     assert note == "not run: predicted 236 < 0.95 x 250 MHz"
+    # Its kind never measured and nothing met: the last resort (twice the margin) decided.
+    note = candidates.why_not_run(rows[0], rows, 262.5, {}, None, 0.05)
+    assert note == "not run: predicted 236 < 0.9 x 262.5 MHz (the last resort)"
 
 
 def test_last_resort_before_saying_none_meets():
-    # Measured on iCE40 HX8K (docs/modes.md): the model put kogge-stone levels at 353.4 MHz
-    # (measured 375.9) and the local-block network with one wire rank at 343.5 (measured
-    # 385.1); at 380 MHz with a 5 % margin its own prediction never got it run, and fit said
-    # that no candidate meets.  Before saying so, the kinds not measured yet are tried when
-    # the largest correction of the search brings them within the margin.
+    # Measured on iCE40 HX8K (docs/fit.md): the model put kogge-stone levels at 353.4 MHz
+    # (measured 375.9) and the local-block network at 348.5 (measured 384.0); at 380 MHz
+    # with a 5 % margin its own prediction never got it run, and fit said that no candidate
+    # meets.  Before saying so, the kinds not measured yet are tried when their prediction,
+    # times the largest correction of the search, is within twice the margin.
     ks = Row(make(width=64, pipeline="levels", cell="kogge-stone"), predicted=353.4)
     ks.measured = [Measurement(1, "ok", mhz=375.9, luts=1)]
     local = lambda p: Row(make(width=64, pipeline="levels", cell="kogge-stone",  # noqa: E731
                                local_width=16, wire_registers=1), predicted=p)
-    near, far = local(343.5), local(300.0)
+    near, far = local(348.5), local(300.0)
     rows = [ks, near, far]
     assert not candidates.promising(near, 380, candidates.scale(rows), rows, 0.05)
     assert candidates.next_batch(rows, 380, 2, margin=0.05) == [near]
     note = candidates.why_not_run(far, rows, 380, candidates.scale(rows), None, 0.05)
-    assert note == ("not run: predicted 300, 319.1 with this search's largest correction "
-                    "(x1.06) < 0.95 x 380 MHz")
+    assert note == ("not run: predicted 300 (x1.06, this search's largest correction: "
+                    "319.1) < 0.9 x 380 MHz (the last resort)")
     # Measured and still missing: its kind has its own correction now, and the search ends.
     near.measured = [Measurement(1, "ok", mhz=370.0, luts=1)]
     assert candidates.next_batch(rows, 380, 2, margin=0.05) == []

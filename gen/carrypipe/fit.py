@@ -216,6 +216,8 @@ def record(row: Row, outcome: Outcome) -> dict:
     else:
         note = candidates.why_not_run(row, rows, target, factors, outcome.chosen,
                                       model.margin(outcome.settings.device.name))
+    if row.hopeful:
+        note = "run as the last resort; " + note
     if row.same:
         note += "; same circuit as " + ", ".join(row.same)
     return {"latency": row.latency, "candidate": row.label, "origin": row.origin,
