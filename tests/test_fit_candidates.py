@@ -209,16 +209,15 @@ def test_prefix_mode_candidates():
 
 
 def test_local_networks_from_64_bits():
-    local = lambda w: sorted((c.cell, c.wire_registers, c.carry_increment)
+    local = lambda w: sorted((c.local_width, c.wire_registers, c.carry_increment)
                              for c in candidates.generate(base(width=w), ("kogge-stone",))
                              if c.pipeline == "levels" and c.local_width)
     assert local(32) == []
-    # docs/modes.md: the carry increment behind two wire ranks was the fastest 256-bit unit.
-    assert local(64) == [("kogge-stone", 0, False), ("kogge-stone", 1, False),
-                         ("kogge-stone", 1, True), ("kogge-stone", 2, False),
-                         ("kogge-stone", 2, True)]
-    assert all(c.local_width == candidates.LOCAL_WIDTH for c in candidates.generate(
-        base(width=256), ("kogge-stone",)) if c.pipeline == "levels" and c.local_width)
+    # docs/modes.md: the carry increment behind two wire ranks was the fastest 256-bit unit;
+    # 4-bit blocks with one wire rank the fastest 64-bit unit (ECP5-85F).
+    each = [(0, False), (1, False), (1, True), (2, False), (2, True)]
+    assert local(64) == [(k, *w) for k in (4, 16) for w in each]
+    assert local(256) == local(64)
 
 
 def test_every_candidate_has_its_own_label():

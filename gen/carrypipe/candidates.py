@@ -69,7 +69,9 @@ def slice_candidates(base: Config, cells: tuple[str, ...] | None,
 
 
 LEVELS_PER_STAGE = (1, 2, 3)
-LOCAL_WIDTH, LOCAL_FROM = 16, 64  # `local_width` tried for units this wide (docs/modes.md)
+# `local_width` tried for units this wide: 16, and 4 (the fastest 64-bit unit measured on
+# ECP5-85F, and as fast as 16 at 256 bits with less logic; docs/modes.md).
+LOCAL_WIDTHS, LOCAL_FROM = (4, 16), 64
 BLOCK_WIDTHS = (8, 16, 32)
 
 
@@ -88,15 +90,17 @@ def prefix_styles(base: Config, cells: tuple[str, ...] | None) -> list[str]:
 
 
 def levels_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Config]:
-    """levels x prefix style x levels per stage (and, from 64 bits, 16-bit local networks
-    with 0-2 wire-register ranks, and with 1-2 ranks in the carry-increment form)."""
+    """levels x prefix style x levels per stage (and, from 64 bits, 4- and 16-bit local
+    networks with 0-2 wire-register ranks, and with 1-2 ranks in the carry-increment
+    form)."""
     styles = prefix_styles(base, cells)
     out = [variant(base, pipeline="levels", cell=cell, levels_per_stage=n)
            for cell in styles for n in LEVELS_PER_STAGE]
     if span(base) >= LOCAL_FROM:  # local networks kept wiring short at 64 and 256 bits
-        out += [variant(base, pipeline="levels", cell=cell, local_width=LOCAL_WIDTH,
+        out += [variant(base, pipeline="levels", cell=cell, local_width=k,
                         wire_registers=wires, carry_increment=increment)
-                for cell in styles for wires in (0, 1, 2) for increment in (False, True)
+                for cell in styles for k in LOCAL_WIDTHS for wires in (0, 1, 2)
+                for increment in (False, True)
                 if wires or not increment]  # the increment measured best behind wire ranks
     return out
 
