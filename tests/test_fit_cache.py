@@ -311,8 +311,13 @@ def test_last_resort_finds_a_kind_the_model_put_low(monkeypatch, tmp_path):
     assert max(r.predicted for r in rows) < target  # nothing else can meet it
     assert hidden.predicted < target * (1 - model.margin(dev.name))  # the rule skips it
     s = fit.Settings(target, dev, s.cells, modes=s.modes)
-    out = fit.run(base, s, executor.Local(1))
+    lines = []
+    out = fit.run(base, s, executor.Local(1), echo=lines.append)
     assert out.chosen is not None and out.chosen.label == hidden.label
+    # The progress line's "up to N more" counts the last resort's runs too.
+    steps = [tuple(map(int, m.groups())) for m in
+             (re.match(r"\[(\d+) run, up to (\d+) more\]", x) for x in lines) if m]
+    assert len(steps) > 1 and all(done + left >= len(steps) for done, left in steps)
     assert fit.record(out.chosen, out)["note"].startswith("run as the last resort; ")
     monkeypatch.setattr(candidates, "last_resort", lambda *a: [])
     monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "again"))

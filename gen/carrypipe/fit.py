@@ -178,9 +178,14 @@ def environment_failure(outcome: Outcome) -> str | None:
 
 
 def _queued(rows: list[Row], target: float, margin: float) -> int:
+    """Candidates that may still be run: the promising ones and, while none meets the
+    target, the last resort's (so "up to N more" is not an undercount)."""
     factors = candidates.scale(rows)
-    return sum(1 for r in rows if not r.done
-               and candidates.promising(r, target, factors, rows, margin))
+    todo = {id(r) for r in rows if not r.done
+            and candidates.promising(r, target, factors, rows, margin)}
+    if candidates.select(rows, target) is None:
+        todo |= {id(r) for r in candidates.last_resort(rows, target, factors, margin)}
+    return len(todo)
 
 
 def ordered(rows: list[Row]) -> list[Row]:
