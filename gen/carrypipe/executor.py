@@ -36,7 +36,8 @@ class Local:
             return
         ctx = multiprocessing.get_context("spawn")
         pool = ProcessPoolExecutor(max_workers=self.jobs, mp_context=ctx,
-                                   initializer=tools.worker_init)
+                                   initializer=tools.worker_init,
+                                   initargs=(os.getpid(),))
         try:
             futures = {pool.submit(tools.in_worker, fn, item): item for item in items}
             for fut in as_completed(futures):

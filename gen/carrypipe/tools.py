@@ -8,8 +8,9 @@ Running: every tool runs in a process group of its own (inside carrypipe's sessi
 that everything it starts (Verilator's make and compilers, say) can be ended with it.  The
 whole group is ended (SIGTERM, then SIGKILL after `GRACE` seconds) when the time limit
 passes, when carrypipe is interrupted (Ctrl-C, SIGTERM: `signals`) and in worker processes
-(`worker_init`); on Linux each tool also gets PR_SET_PDEATHSIG, so the tool itself (not
-what it started) dies with carrypipe even when carrypipe is killed outright.
+(`worker_init`); on Linux each tool and each worker process also gets PR_SET_PDEATHSIG, so
+the tool itself (not what it started) and the workers die with carrypipe even when
+carrypipe is killed outright.
 
 Errors: `ToolError` and its subclasses are problems of the environment (exit status 3 on
 the command line), each one line naming the tool.
@@ -248,13 +249,19 @@ def signals():
 _busy = False  # a worker is inside `in_worker`
 
 
-def worker_init() -> None:
-    """Initializer of worker processes.  Ctrl-C reaches the whole terminal process group;
-    the parent decides what to do, so workers let it pass (a Python handler, not SIG_IGN,
-    so the tools they start get the default again).  SIGTERM, sent by the parent, unwinds a
-    running job (its tool groups ended, its temporary folders removed) and ends the worker."""
+def worker_init(parent: int) -> None:
+    """Initializer of worker processes started by process `parent`.  Ctrl-C reaches the
+    whole terminal process group; the parent decides what to do, so workers let it pass (a
+    Python handler, not SIG_IGN, so the tools they start get the default again).  SIGTERM,
+    sent by the parent or (Linux) by the kernel when the parent dies, even of SIGKILL,
+    unwinds a running job (its tool groups ended, its temporary folders removed) and ends
+    the worker."""
     signal.signal(signal.SIGINT, lambda signum, frame: None)
     signal.signal(signal.SIGTERM, _worker_stop)
+    if _PRCTL is not None:
+        _PRCTL(_PR_SET_PDEATHSIG, int(signal.SIGTERM))
+    if os.getppid() != parent:  # the parent died before the line above
+        os._exit(128 + signal.SIGTERM)
 
 
 def _worker_stop(signum, frame):
