@@ -253,6 +253,13 @@ def report_manifest(p) -> str:
      r"final adder's width \(14\), not 8"),
     ({"unit": "multiplier", "width": 1, "slice_width": 1},
      r"there is no final adder to split"),
+    # A final-adder key in the wrong pipeline mode names the mode (the tree is not why).
+    ({"unit": "multiplier", "width": 8, "levels_per_stage": 2},
+     r"key 'levels_per_stage' is given with pipeline 'slices'; expected it only with pipeline "
+     r"'levels' or 'blocks' \(unit 'multiplier'\)\Z"),
+    ({"unit": "sum", "width": 8, "operands": 3, "tree": "native", "block_width": 2},
+     r"key 'block_width' is given with tree 'native'; expected it only with tree 'dadda' or "
+     r"'wallace'\Z"),
     ({"unit": "adder", "width": 8, "operands": 3}, r"key 'operands' is given with unit "
                                                    r"'adder'; expected it only with unit 'sum'"),
     ({"unit": "adder", "width": 8, "tree": "dadda"}, r"key 'tree' is given with unit 'adder'"),
@@ -263,7 +270,9 @@ def test_bad_keys(keys, message):
 
 
 def test_normalized_config_round_trips():
-    for keys in (dict(unit="multiplier", width=12, width_b=9, signed=True,
+    for keys in (dict(unit="multiplier", width=13, width_b=1),  # no final adder: no split
+                 dict(unit="multiplier", width=1, signed=True),
+                 dict(unit="multiplier", width=12, width_b=9, signed=True,
                       partial_products="booth4", tree="wallace", tree_levels_per_stage=2,
                       pipeline="blocks", cell="sklansky", block_width=4),
                  dict(unit="sum", width=5, operands=6, tree="native", native_stages=2)):

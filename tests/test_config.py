@@ -71,6 +71,13 @@ def test_bad_values(keys, message):
         from_mapping(data)
 
 
+@pytest.mark.parametrize("width, block", [(8, 8), (16, 16), (64, 16)])
+def test_block_width_default_fits_the_width(width, block):
+    # The documented default, 16, or the width when the unit is narrower.
+    c = from_mapping({**base(), "width": width, "pipeline": "blocks", "cell": "kogge-stone"})
+    assert c.block_width == block
+
+
 def test_missing_required_key():
     with pytest.raises(ConfigError, match=r"^config: key 'width' is missing; expected an integer from 1 to 4096\Z"):
         from_mapping({"name": "u"})

@@ -148,6 +148,15 @@ def test_what_if_split_is_refused_in_prefix_modes(write_config, tmp_path, mode, 
                         "pipeline 'slices' (or a comparator's 'levels')\n")
 
 
+def test_what_if_split_of_a_native_tree_names_the_tree(write_config):
+    # The native tree leaves the whole operation to synthesis: no final adder, no split.
+    cfg = write_config("name: m8\nunit: multiplier\nwidth: 8\ntree: native\n")
+    r = run("plan", cfg, "--slice-width", "4")
+    assert r.exit_code == 2
+    assert r.output == ("carrypipe: error: --slice-width: value '4' is not allowed: unit.yaml "
+                        "has no final adder to split (tree 'native')\n")
+
+
 def test_chart_into_a_folder_or_under_a_file_is_refused(write_config, tmp_path):
     cfg = write_config(UNIT)
     (tmp_path / "taken.svg").mkdir()

@@ -120,14 +120,16 @@ def load_plan(config_path: str, slice_width=None, slices=None):
         cfg = load(config_path)
         span, what = split_span(cfg)
         for option, value in (("--slice-width", slice_width), ("--slices", slices)):
+            if value is not None and span == 0:
+                native = " (tree 'native')" if cfg.tree == "native" else ""
+                raise ConfigError(f"{option}: value {value!r} is not allowed: "
+                                  f"{Path(config_path).name} has no final adder to split"
+                                  f"{native}")
             if value is not None and not reads("slices", cfg.unit, cfg.pipeline, cfg.tree):
                 raise ConfigError(f"{option}: value {value!r} is not allowed with pipeline "
                                   f"{cfg.pipeline!r} ({Path(config_path).name}); expected "
                                   "--slice-width or --slices only with pipeline 'slices' "
                                   "(or a comparator's 'levels')")
-            if value is not None and span == 0:
-                raise ConfigError(f"{option}: value {value!r} is not allowed: "
-                                  f"{Path(config_path).name} has no final adder to split")
         if slice_width is not None and slices is not None:
             raise ConfigError("options --slice-width and --slices are both given; "
                               "expected at most one of them")

@@ -128,6 +128,8 @@ class Config:
         """
         data = asdict(self)
         data["slices"] = list(self.slices)
+        if not self.slices:  # no final adder (a tree that leaves one bit a column): no split
+            del data["slices"]
         for key in list(data):
             if key in KEYS and not reads(key, self.unit, self.pipeline, self.tree):
                 del data[key]
@@ -166,7 +168,7 @@ KEYS = {
     "register_inputs": ("true or false", False),
     "pipeline": ("one of " + ", ".join(PIPELINES), "slices"),
     "levels_per_stage": (f"an integer from 1 to {MAX_LEVELS_PER_STAGE}", 1),
-    "block_width": ("an integer from 1 to width", 16),
+    "block_width": ("an integer from 1 to width", 16),  # or the width, if narrower
     "wire_registers": ("an integer from 0 to the prefix network's depth", 0),
     "local_width": ("an integer from 0 to width (0: one prefix network over every bit)", 0),
     "operands": (f"an integer from {MIN_OPERANDS} to {MAX_OPERANDS}", None),
@@ -334,6 +336,8 @@ def from_mapping(data, where: str = "config") -> Config:
         split = check_split(where, "slice_width", kind.default_slice_width(span, mode), span,
                             what)
     _check_reset(where, values)
+    if "block_width" not in data and span:  # the default, down to a narrower width
+        values["block_width"] = min(values["block_width"], span)
     if span:
         check_mode(where, {**values, "width": span}, split, what)
     own = {f.name: f.default for f in fields(Config)}
@@ -385,7 +389,7 @@ def _check_read(where: str, key: str, unit: str, mode: str, tree: str, data: dic
         users = [k for k in UNITS if not refuses(units.KINDS[k], key)]
         raise ConfigError(f"{where}: key '{key}' is given with unit {unit!r}; expected it "
                           f"only with unit {' or '.join(map(repr, users))}")
-    trees = [t for t in TREES if reads(key, unit, mode, t)]
+    trees = [t for t in TREES if any(reads(key, unit, m, t) for m in PIPELINES)]
     if units.KINDS[unit].tree and tree not in trees:
         raise ConfigError(f"{where}: key '{key}' is given with tree {tree!r}; expected it only "
                           f"with tree {' or '.join(map(repr, trees))}")
