@@ -112,7 +112,8 @@ def test_command_line_mistakes_are_one_line(write_config, args, message):
 
 def test_missing_config_file(tmp_path):
     r = run("build", tmp_path / "nope.yaml")
-    assert r.exit_code == 2 and "nope.yaml: cannot read config" in r.output
+    # The path as given: the file name alone would not say which folder was looked in.
+    assert r.exit_code == 2 and f"{tmp_path / 'nope.yaml'}: cannot read config" in r.output
 
 
 def test_plan_what_if(write_config):

@@ -326,12 +326,14 @@ def test_carry_increment_waits_with_two_terms():
                      r"\{6\{grp_gen_\w+\}\}\);", text), text
 
 
-def test_local_width_zero_or_full_is_the_plain_network():
+def test_local_width_zero_one_or_full_is_the_plain_network():
+    # Blocks of one bit have every bit as a top: the network over the tops is the plain one.
     plain = make(pipeline="levels", cell="sklansky", width=40)
-    for local in (0, 40):
+    for local in (0, 1, 40):
         p = make(pipeline="levels", cell="sklansky", width=40, local_width=local)
         assert p.schedule.network == plain.schedule.network
         assert p.registers == plain.registers
+        assert "local" not in p.label() and "local blocks" not in report.report(p)
 
 
 ECP5_WIRED = [{"cell": "kogge-stone", "width": 32, "wire_registers": 2},
@@ -441,7 +443,7 @@ def base(**extra):
     ({"pipeline": "blocks", "cell": "kogge-stone", "carry_increment": True},
      r"config: key 'carry_increment' is given with pipeline 'blocks'; expected it only with pipeline 'levels'\Z"),
     ({"pipeline": "levels", "unit": "comparator", "carry_increment": False},
-     r"config: key 'carry_increment' is given with pipeline 'levels'; expected it only with pipeline"),
+     r"config: key 'carry_increment' is given with unit 'comparator'; expected it only with unit 'adder' or 'subtractor' or 'addsub' or 'sum' or 'multiplier'\Z"),
 ], ids=lambda v: "-".join(f"{k}={v[k]}" for k in v)[:40] if isinstance(v, dict) else None)
 def test_bad_mode_keys(keys, message):
     with pytest.raises(ConfigError, match="^" + message):

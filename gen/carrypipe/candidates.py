@@ -241,19 +241,7 @@ class Row:
 
     @property
     def label(self) -> str:
-        c = self.config
-        if self.plan.mode in ("tree", "native"):
-            return self.plan.label()
-        if c.pipeline == "levels":
-            local = f" local {c.local_width}" if 0 < c.local_width < c.width else ""
-            local += " increment" if c.carry_increment else ""
-            return f"{c.cell} levels/{c.levels_per_stage}{local}{_wired(c)}"
-        if c.pipeline == "blocks":
-            return f"{c.cell} blocks of {c.block_width}{_wired(c)}"
-        split = self.config.slices
-        shape = (f"{split[0]}x{len(split)}" if len(set(split)) == 1
-                 else "+".join(map(str, split)))
-        return f"{self.config.cell} {shape}"
+        return self.plan.label()
 
     @property
     def ok(self) -> list:
@@ -298,10 +286,6 @@ class Row:
     @property
     def done(self) -> bool:
         return not self.fits or not self.seeds_to_run()
-
-
-def _wired(c: Config) -> str:
-    return f" wired {c.wire_registers}" if c.wire_registers else ""
 
 
 def meets(row: Row, target: float) -> bool:

@@ -32,7 +32,7 @@ from fractions import Fraction
 from functools import singledispatch
 from html import escape
 
-from . import report, treechart
+from . import prefix, report, treechart
 from .svg import FAINT, FONT, INK, SLOW, Svg, num
 from .header import bits, plural, stage_list
 from .plan import Plan, PrefixPlan, SlicedPlan
@@ -197,7 +197,7 @@ def _(plan: PrefixPlan) -> Words:
             finished += (f"; in local blocks, {result} bits for the block's carry-in 0, "
                          "waiting for that carry")
         local = (f" (in local blocks of {c.local_width} bits first)"
-                 if 0 < c.local_width < w else "")
+                 if prefix.has_local_blocks(c.local_width, w) else "")
         structure = f"a {c.cell} prefix network over {w} bits{local}"
     common = _common(plan)
     meanings = {"input": common["input"], "prefix": terms,
@@ -234,7 +234,7 @@ def _(plan: PrefixPlan) -> list[int]:
     sch, w, local = plan.schedule, plan.width, plan.config.local_width
     if sch.flavour != "bits":  # blocks, or a comparator's slices
         return [b for b in sch.lsbs if 0 < b < w]
-    return list(range(local, w, local)) if 0 < local < w else []
+    return list(range(local, w, local)) if prefix.has_local_blocks(local, w) else []
 
 
 def _lane(plan: Plan, w) -> str | None:

@@ -385,15 +385,19 @@ def _check_read(where: str, key: str, unit: str, mode: str, tree: str, data: dic
     """A key given for a unit kind, pipeline mode or tree that does not read it is refused."""
     if reads(key, unit, mode, tree):
         return
-    if refuses(units.KINDS[unit], key):
-        users = [k for k in UNITS if not refuses(units.KINDS[k], key)]
+
+    def used(k: str, t: str = "dadda") -> list[str]:  # the modes of unit kind k that read it
+        return [m for m in units.KINDS[k].modes if reads(key, k, m, t)]
+
+    if not any(used(unit, t) for t in TREES):
+        users = [k for k in UNITS if any(used(k, t) for t in TREES)]
         raise ConfigError(f"{where}: key '{key}' is given with unit {unit!r}; expected it "
                           f"only with unit {' or '.join(map(repr, users))}")
-    trees = [t for t in TREES if any(reads(key, unit, m, t) for m in PIPELINES)]
+    trees = [t for t in TREES if used(unit, t)]
     if units.KINDS[unit].tree and tree not in trees:
         raise ConfigError(f"{where}: key '{key}' is given with tree {tree!r}; expected it only "
                           f"with tree {' or '.join(map(repr, trees))}")
-    modes = [m for m in PIPELINES if reads(key, unit, m, tree)]
+    modes = used(unit, tree)
     if key in ("slice_width", "slices") and "pipeline" in data:
         raise ConfigError(f"{where}: keys '{key}' and 'pipeline' ({mode!r}) are both given; "
                           f"expected '{key}' only with pipeline {' or '.join(map(repr, modes))}")
@@ -587,11 +591,11 @@ def read_regular(path: str | Path, limit: int) -> bytes:
 
 def load(path: str | Path) -> Config:
     """Read and validate a config file."""
-    where = Path(path).name or str(path)
+    where = Path(path).name or str(path)  # a file it cannot open is named by its path
     try:
         raw = read_regular(path, MAX_CONFIG_BYTES)
     except OSError as exc:
-        raise ConfigError(f"{where}: cannot read config: {exc.strerror or exc}") from None
+        raise ConfigError(f"{path}: cannot read config: {exc.strerror or exc}") from None
     if len(raw) > MAX_CONFIG_BYTES:
         raise ConfigError(f"{where}: config is larger than {MAX_CONFIG_BYTES} bytes; expected "
                           f"a file of at most {MAX_CONFIG_BYTES} bytes")

@@ -33,7 +33,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
-from . import cells, schedule, units
+from . import cells, prefix, schedule, units
 from .config import Config
 from .units import Port
 
@@ -438,7 +438,8 @@ class PrefixPlan(Plan):
         c = self.config
         wired = f" wired {c.wire_registers}" if c.wire_registers else ""
         if c.pipeline == "levels":
-            local = f" local {c.local_width}" if 0 < c.local_width < c.width else ""
+            local = (f" local {c.local_width}" if prefix.has_local_blocks(c.local_width, c.width)
+                     else "")
             local += " increment" if c.carry_increment else ""
             return f"{c.cell} levels/{c.levels_per_stage}{local}{wired}"
         return f"{c.cell} blocks of {c.block_width}{wired}"

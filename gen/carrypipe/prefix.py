@@ -111,15 +111,21 @@ def network(style: str, width: int) -> Network:
     return net
 
 
+def has_local_blocks(local: int, width: int) -> bool:
+    """Whether `local_width: local` splits a `width`-bit network into local blocks: 0, 1
+    (every bit a block top) and `width` or more give the plain network."""
+    return 1 < local < width
+
+
 def local_network(style: str, width: int, local: int) -> Network:
     """The `style` network within each block of `local` bits, then over the blocks' top bits,
     then one fill-in level joining every other bit to the top of the block below.
 
     The sparse-tree arrangement (a carry network over block carries, each block completing its
     bits from its carry-in): all but the last two parts are wired within a block.  `local` 0
-    (or at least `width`) is the plain network.
+    or 1 (blocks of one bit: every bit a top) or at least `width` is the plain network.
     """
-    if not 0 < local < width:
+    if not has_local_blocks(local, width):
         return network(style, width)
     blocks = -(-width // local)
     tops = [min(local * (q + 1), width) - 1 for q in range(blocks)]

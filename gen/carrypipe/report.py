@@ -11,7 +11,7 @@ from dataclasses import replace
 import textwrap
 from functools import singledispatch
 
-from . import __version__, cells
+from . import __version__, cells, prefix
 from .header import bits, plural, reset_phrase, stage_list, timing_phrase
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan, counters_phrase
@@ -193,7 +193,7 @@ def _(plan: PrefixPlan) -> list[str]:
              f"{sch.kept_nodes() if tree else sch.network.nodes} nodes",
              f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or deskew "
              "triangles)"]
-    if sch.flavour == "bits" and 0 < c.local_width < c.width:
+    if sch.flavour == "bits" and prefix.has_local_blocks(c.local_width, c.width):
         lines.append(f"          within local blocks of {c.local_width} bits, then across them")
         if c.carry_increment:
             lines.append("          carry increment: a block's bits wait for its carry with "
