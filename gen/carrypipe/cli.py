@@ -387,7 +387,10 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
         raise UserError(f"--cluster: value {cluster!r} is not allowed; expected "
                         "tcp://HOST:PORT of a Dask scheduler")
     dest = Path(out_dir) if out_dir else Path("out") / base.name
-    output.check_folder(dest)  # before the long run, not after it
+    try:
+        output.probe_folder(dest)  # before the long run, not after it
+    except OSError as exc:
+        raise EnvironmentFault(f"cannot write the folder {dest}: {exc.strerror or exc}") from None
     settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
                                 limit, not no_cache, chosen_modes, chosen_trees)
     runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)

@@ -105,13 +105,16 @@ def get(name: str) -> Device:
 
 
 def room_for(device: Device, logic: int, flip_flops: int) -> Device | None:
-    """The first device from `device` upwards with room for this many LUT sites and flip-flops."""
+    """The first device from `device` upwards (its `larger` chain) with room for this many
+    LUT sites and flip-flops; past the chain's end, the smallest device in the table with
+    room; None when no device has room."""
     d: Device | None = device
     while d is not None:
         if logic <= d.logic_cells and flip_flops <= d.flip_flops:
             return d
         d = DEVICES[d.larger] if d.larger else None
-    return None
+    roomy = [d for d in DEVICES.values() if logic <= d.logic_cells and flip_flops <= d.flip_flops]
+    return min(roomy, key=lambda d: (d.flip_flops, d.logic_cells), default=None)
 
 
 def pin_constraints(device: Device) -> str:

@@ -76,6 +76,19 @@ def check_folder(out: str | Path, option: str = "-o") -> Path:
     return target
 
 
+def probe_folder(out: str | Path, option: str = "-o") -> Path:
+    """`check_folder`, then a trial write: the missing folders above `out` and a temporary
+    folder beside it are made and removed again, so that a folder that cannot be written
+    fails (OSError) before a long run rather than after it."""
+    target = check_folder(out, option)
+    created = _make_parents(target.parent)
+    try:
+        os.rmdir(_fresh(target.parent, target.name, folder=True))
+    finally:
+        _remove(created)
+    return target
+
+
 def _ours(folder: Path) -> bool:
     return (folder / MARKER).is_file()
 
