@@ -11,7 +11,7 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
-from carrypipe import cells
+from carrypipe import cells, toolflow, tools
 from carrypipe.cli import main
 from conftest import needs_icarus
 
@@ -63,6 +63,21 @@ def test_check_passes(write_config, sim):
 def test_check_says_which_simulator(write_config):
     r = run("check", write_config(DEMO), "--vectors", 50)
     assert r.output.startswith("note: simulating with ")
+
+
+def test_check_names_the_icarus_tool_that_is_missing(write_config, monkeypatch):
+    monkeypatch.setattr(tools, "which", lambda name: None if name == "vvp" else f"/x/{name}")
+    r = run("check", write_config(DEMO), "--vectors", 50)
+    assert r.output.startswith("note: simulating with amaranth (vvp not found; choose with "
+                               "--sim)\n"), r.output
+
+
+def test_missing_system_yosys_names_the_package_once(monkeypatch):
+    monkeypatch.setattr(tools, "which", lambda name: None)
+    with pytest.raises(tools.ToolMissing, match=r"apt-get install yosys\)"):
+        toolflow.executable("yosys", "system")
+    with pytest.raises(tools.ToolMissing, match=r"apt-get install yosys nextpnr-ice40\)"):
+        toolflow.executable("nextpnr-ice40", "system")
 
 
 @pytest.mark.parametrize("sim", ["amaranth", pytest.param("icarus", marks=needs_icarus)])

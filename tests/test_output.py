@@ -180,6 +180,21 @@ def test_build_refuses_a_file_as_its_folder(tmp_path):
         assert res.output.startswith("carrypipe: error: ")
 
 
+def test_the_default_folder_and_an_empty_one_are_named_as_such(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text("name: u\nwidth: 4\n")
+    res = CliRunner().invoke(main, ["build", str(cfg), "-o", ""])
+    assert res.exit_code == 2
+    assert res.output == "carrypipe: error: -o: value '' is not allowed; expected a folder path\n"
+    (tmp_path / "out").mkdir()
+    (tmp_path / "out" / "u").write_text("a file where the default folder goes")
+    res = CliRunner().invoke(main, ["build", str(cfg)])  # no -o given: the message says so
+    assert res.exit_code == 2
+    assert res.output == ("carrypipe: error: -o (default): value 'out/u' is not allowed; "
+                          "expected a folder (it is a file)\n")
+
+
 def test_an_unwritable_parent_is_the_environment(tmp_path, monkeypatch):
     cfg = tmp_path / "u.yaml"
     cfg.write_text("name: u\nwidth: 4\n")

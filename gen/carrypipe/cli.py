@@ -149,10 +149,19 @@ class _Group(_OneLineParse, click.Group):
             raise click.exceptions.Exit(128 + signum) from None
 
 
-def _write_folder(files: dict, dest: Path) -> list[Path]:
+def _out_folder(out_dir: str | None, name: str) -> tuple[Path, str]:
+    """The output folder (`-o`, or `out/<name>`) and how messages name it."""
+    if out_dir is None:
+        return Path("out") / name, "-o (default)"
+    if not out_dir:
+        raise UserError("-o: value '' is not allowed; expected a folder path")
+    return Path(out_dir), "-o"
+
+
+def _write_folder(files: dict, dest: Path, option: str) -> list[Path]:
     """`emit.write` with a folder that cannot be written as one line (exit status 3)."""
     try:
-        return emit.write(files, dest)
+        return emit.write(files, dest, option)
     except OSError as exc:
         raise EnvironmentFault(f"cannot write the folder {dest}: "
                                f"{exc.strerror or exc}") from None
@@ -198,7 +207,8 @@ def load_plan(config_path: str, slice_width=None, slices=None):
 config_arg = click.argument("config", type=click.Path(dir_okay=False))
 vectors_opt = click.option("--vectors", default=emit.DEFAULT_VECTORS, show_default=True,
                            type=click.IntRange(1, 10_000_000),
-                           help="Vectors in all: the directed corner cases, then seeded random ones.")
+                           help="Vectors in all: the directed corner cases (all of them, even when "
+                                "more than N), then seeded random ones up to N.")
 seed_opt = click.option("--seed", default=emit.DEFAULT_SEED, show_default=True,
                         type=click.IntRange(0), help="Seed of the random vectors.")
 
@@ -218,10 +228,10 @@ def main():
 def build(config, out_dir, vectors, seed):
     """Emit the unit, its testbench and vectors, manifest and report."""
     plan = load_plan(config)
-    dest = Path(out_dir) if out_dir else Path("out") / plan.config.name
-    output.check_folder(dest)
+    dest, option = _out_folder(out_dir, plan.config.name)
+    output.check_folder(dest, option)
     files = emit.render(plan, vectors=vectors, seed=seed)
-    _write_folder(files, dest)
+    _write_folder(files, dest, option)
     r = plan.registers
     click.echo(f"{plan.config.name}: {report.headline(plan)}, "
                f"{report.structure_phrase(plan)}, latency {plan.latency}, "
@@ -244,7 +254,9 @@ def check(config, vectors, seed, simulator, timeout):
     plan = load_plan(config)
     chosen = simulator or sim.default_simulator()
     if simulator is None:
-        why = "iverilog found" if chosen == "icarus" else "iverilog not found"
+        missing = [t for t in ("iverilog", "vvp") if not tools.which(t)]
+        why = ("iverilog and vvp found" if chosen == "icarus"
+               else f"{' and '.join(missing)} not found")
         click.echo(f"note: simulating with {chosen} ({why}; choose with --sim)")
     vecs = suite(plan, vectors, seed)
     result = sim.run(plan, vecs, chosen, timeout=timeout)
@@ -292,8 +304,10 @@ def plan_cmd(config, slice_width, slices, chart_path):
 @click.option("--method", type=click.Choice(PROOF_METHODS),
               default="auto", show_default=True,
               help="direct: unroll the whole unit; compositional (sliced adders and "
-                   "subtractors): each slice against +, then the structure; auto: direct up "
-                   "to 512 bits.")
+                   "subtractors: each slice against +, then the structure; sums and "
+                   "multipliers: the tree's arithmetic, each stage, the final adder); auto: "
+                   "direct for adders up to 512 bits, for trees up to 6 rows and 12 result "
+                   "bits, else compositional where it applies.")
 def prove(target, depth, timeout, method):
     """Prove a unit equals its specification delayed by the latency, from any state.
 
@@ -430,9 +444,9 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
     if cluster is not None and not executor.CLUSTER_ADDRESS.match(cluster):
         raise UserError(f"--cluster: value {cluster!r} is not allowed; expected "
                         "tcp://HOST:PORT of a Dask scheduler")
-    dest = Path(out_dir) if out_dir else Path("out") / base.name
+    dest, option = _out_folder(out_dir, base.name)
     try:
-        output.probe_folder(dest)  # before the long run, not after it
+        output.probe_folder(dest, option)  # before the long run, not after it
     except OSError as exc:
         raise EnvironmentFault(f"cannot write the folder {dest}: {exc.strerror or exc}") from None
     settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
@@ -449,6 +463,6 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
     for note in outcome.notes:
         click.echo(f"note: {note}")
     click.echo(fitting.summary(outcome))
-    written = _write_folder(fitting.files(outcome, source), dest)
+    written = _write_folder(fitting.files(outcome, source), dest, option)
     click.echo(f"wrote {len(written)} files -> {dest}/")
     sys.exit(0 if outcome.chosen else 1)

@@ -85,9 +85,9 @@ def read_build(folder: Path):
     return plan, text
 
 
-def write(files: dict[str, str | bytes], out_dir: str | Path) -> list[Path]:
+def write(files: dict[str, str | bytes], out_dir: str | Path, option: str = "-o") -> list[Path]:
     """Make `out_dir` a folder of exactly these files, replacing it whole and atomically, so
-    that a failure leaves it as it was (`output.replace_folder`; `output.FolderRefused` when
-    it holds files carrypipe did not write)."""
-    output.replace_folder(files, out_dir)
+    that a failure leaves it as it was (`output.replace_folder`; `output.FolderRefused`,
+    naming `option`, when it holds files carrypipe did not write)."""
+    output.replace_folder(files, out_dir, option)
     return [Path(out_dir) / fname for fname in files]

@@ -38,7 +38,8 @@ def executable(tool: str, kind: str) -> str:
         name = f"yowasp-{tool}"
         return tools.find(name, f"install the {name} wheel with {INSTALL_HINT}, or use "
                                 f"--tools system with {tool} on PATH")
-    return tools.find(tool, f"install it (Debian/Ubuntu: apt-get install yosys {tool}), or "
+    packages = " ".join(dict.fromkeys(("yosys", tool)))  # yosys once, with nextpnr-* beside
+    return tools.find(tool, f"install it (Debian/Ubuntu: apt-get install {packages}), or "
                             f"use --tools wheel after {INSTALL_HINT}")
 
 
