@@ -224,7 +224,7 @@ def record(row: Row, outcome: Outcome) -> dict:
     if row.hopeful:
         note = "run as the last resort; " + note
     if row.same:
-        note += "; same circuit as " + ", ".join(row.same)
+        note += "; also stands for " + ", ".join(row.same) + " (the same circuit, not listed)"
     return {"latency": row.latency, "candidate": row.label, "origin": row.origin,
             "register_bits": row.register_bits, "predicted_mhz": decided,
             "model_mhz": row.predicted if row.predicted != decided else None,
