@@ -86,6 +86,14 @@ def test_kept_comments_and_replaced_values_in_place():
     assert written == USER.replace("slice_width: 8 ", "slices: [9, 8, 7] ")
 
 
+def test_a_block_list_keeps_the_comment_on_its_key_line():
+    user = ("name: frame_add\nwidth: 24\nslices:       # hand-tuned split\n  - 12   # low\n"
+            "  - 12   # high\ncarry_in: true\n")
+    written = config_edit.rewrite(user, chosen_from(user, dict(slices=[8, 8, 8])))
+    assert written == ("name: frame_add\nwidth: 24\nslices: [8, 8, 8]       # hand-tuned split\n"
+                       "carry_in: true\n")
+
+
 def test_a_flow_mapping_is_written_whole():
     user = "{name: src_acc, width: 24, cell: native}\n"
     chosen = chosen_from(user, dict(slices=[12, 12]))

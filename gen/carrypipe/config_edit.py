@@ -106,6 +106,10 @@ def _edit(text: str, chosen: Config) -> str:
         first, end = key_node.start_mark.line, value_node.end_mark
         last = end.line if end.column > 0 else end.line - 1
         tail = lines[end.line][end.column:] if end.column > 0 else "\n"
+        if value_node.start_mark.line > first:  # a block value below its key: keep the
+            # key line's comment (the items' own go with the items)
+            rest = lines[first][key_node.end_mark.column:].removeprefix(":")
+            tail = rest if rest.strip().startswith("#") else "\n"
         if first <= previous_end or key_node.start_mark.column != 0 or \
                 tail.strip() and not tail.strip().startswith("#"):
             raise _NoLineEdit  # two entries share a line, or something follows the value
