@@ -47,6 +47,13 @@ def test_options_and_modes_are_proved(keys):
     assert result.proved, result.message
 
 
+def test_a_tree_with_no_final_adder_says_so():
+    # 13 x 1 bits: each column holds one partial product, a AND b0 (no adder needed).
+    result = prove.prove(plan_of(unit="multiplier", width=13, width_b=1), method="compositional")
+    assert result.proved, result.message
+    assert "the result (no final adder: one bit a column) proved" in result.message
+
+
 def _check_counterexample(plan, message):
     """Recompute the promised result from the printed vectors with Python integers."""
     rows = dict(re.findall(r"cycle (\d+): (.*)", message))

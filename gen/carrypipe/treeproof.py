@@ -282,9 +282,11 @@ def prove_tree(plan, net: dict, module: str, timeout: Deadline) -> Outcome:
     """Parts 1 to 3 (see the module docstring)."""
     tree: Tree = plan.tree
     stages = tree.stages
+    last = ("the final adder proved on the cut rows" if plan.adder
+            else "the result (no final adder: one bit a column) proved on the cut rows")
     method = (f"compositional: the tree's arithmetic checked exactly, each of {stages} "
               "tree stage(s) proved register by register against the plan with every "
-              "flip-flop cut, the final adder proved on the cut rows (Yosys sat)")
+              f"flip-flop cut, {last} (Yosys sat)")
     problem = arithmetic(tree)
     if problem:
         return Outcome(method, f"the plan's tree: {problem}")
