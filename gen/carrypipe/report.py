@@ -150,19 +150,23 @@ def report(plan: Plan) -> str:
 
 
 def _marks(plan: Plan):
+    """The `<- slowest` mark of a stage row: every stage of the unit ranked together (a
+    carry-save unit's final adder against the tree too), none when all tie."""
     slow = {s.index for s in plan.slowest}
     tie_all = len(slow) == len(plan.stages)
     return lambda s: "  <- slowest" if s.index in slow and not tie_all else ""
 
 
 @singledispatch
-def table(plan) -> list[str]:
+def table(plan, mark=None) -> list[str]:
+    """The stage table; `mark` (of the enclosing unit, for a nested final adder) marks the
+    slowest rows, by default `_marks(plan)`."""
     raise TypeError(type(plan).__name__)
 
 
 @table.register
-def _(plan: SlicedPlan) -> list[str]:
-    mark = _marks(plan)
+def _(plan: SlicedPlan, mark=None) -> list[str]:
+    mark = mark or _marks(plan)
     lines = ["Slices (LSB first; delay in the unit-gate model, register to register)",
              f"  {'stage':>5}  {'bits':>13}  {'width':>5}  {'levels':>6}  {'nodes':>6}  "
              f"{'delay':>5}  {'waits':>9}"]
@@ -178,9 +182,9 @@ def _(plan: SlicedPlan) -> list[str]:
 
 
 @table.register
-def _(plan: PrefixPlan) -> list[str]:
+def _(plan: PrefixPlan, mark=None) -> list[str]:
     c, sch = plan.config, plan.schedule
-    mark = _marks(plan)
+    mark = mark or _marks(plan)
     tree = sch.flavour == "compare"  # what is left of the network: count the kept nodes
 
     def nodes(s):
@@ -213,7 +217,7 @@ def _(plan: PrefixPlan) -> list[str]:
 
 
 @table.register
-def _(plan: TreePlan) -> list[str]:
+def _(plan: TreePlan, mark=None) -> list[str]:
     c, t, r = plan.config, plan.tree, plan.rows
     mark = _marks(plan)
     heights = t.matrix.heights()
@@ -237,11 +241,11 @@ def _(plan: TreePlan) -> list[str]:
     lines += ["", f"Final adder  columns [{r.top - 1}:{r.low}] ({r.adder_width} bits)"
               + (", its carry out is the top bit" if r.carry_out else "") + low]
     view = replace(plan.adder, stages=plan.adder_stages)
-    return lines + [f"  {line}" if line else line for line in table(view)]
+    return lines + [f"  {line}" if line else line for line in table(view, mark)]
 
 
 @table.register
-def _(plan: NativePlan) -> list[str]:
+def _(plan: NativePlan, mark=None) -> list[str]:
     lines = [f"Native    {plan.structure()}", "",
              "Stages (no delay model: synthesis chooses the logic)",
              f"  {'stage':>5}  logic"]
