@@ -13,7 +13,7 @@ from functools import singledispatch
 
 from . import __version__, cells
 from .header import bits, plural, reset_phrase, stage_list, timing_phrase
-from .plan import Plan, PrefixPlan, SlicedPlan
+from .plan import MODE_TYPES, Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan, counters_phrase
 
 DELAY_MODEL = ("unit-gate model (Tyagi 1993; Zimmermann 1997): 2-input AND/OR = 1, XOR = 2, "
@@ -81,6 +81,11 @@ def _(plan: PrefixPlan) -> dict:
 
 
 @stage_entries.register
+def _(plan: NativePlan) -> dict:
+    return {"tree": None, "final_adder": None}  # synthesis builds the operation
+
+
+@stage_entries.register
 def _(plan: TreePlan) -> dict:
     t, r = plan.tree, plan.rows
     tree = {"style": plan.config.tree, "levels_per_stage": plan.config.tree_levels_per_stage,
@@ -90,12 +95,15 @@ def _(plan: TreePlan) -> dict:
                         "full_adders": sum(1 for i in lv.counters if t.counters[i].kind == "fa"),
                         "half_adders": sum(1 for i in lv.counters if t.counters[i].kind == "ha"),
                         "height": max(lv.heights, default=0)} for lv in t.levels]}
-    adder = None
-    if plan.adder is not None:
-        adder = {"lsb": r.low, "msb": r.top - 1, "width": r.adder_width,
-                 "pipeline": plan.config.pipeline, "cell": plan.config.cell,
-                 "carry_out": r.carry_out, "stages": len(plan.adder_stages)}
-    return {"tree": tree, "final_adder": adder}
+    if plan.adder is None:  # a prefix mode still lists its (no) stages, like an adder's
+        prefix = MODE_TYPES[plan.config.pipeline] is PrefixPlan
+        return {"tree": tree, "final_adder": None, **({"stages": []} if prefix else {})}
+    adder = {"lsb": r.low, "msb": r.top - 1, "width": r.adder_width,
+             "pipeline": plan.config.pipeline, "cell": plan.config.cell,
+             "carry_out": r.carry_out, "stages": len(plan.adder_stages)}
+    # The final adder's stages (numbered as the unit's) in `stages`, as its mode lists them.
+    return {"tree": tree, "final_adder": adder,
+            **stage_entries(replace(plan.adder, stages=plan.adder_stages))}
 
 
 def manifest_text(plan: Plan, files: list[str]) -> str:
