@@ -287,7 +287,8 @@ def _(plan: SlicedPlan) -> list[str]:
     if len(plan.stages) == 1 and c.width > 1:
         out += _tip(f"cut the unit into slices (`slice_width` or `slices`): {more};")
     elif len(slow) == len(plan.stages) and slow[0].width > 1:
-        out += _tip(f"every stage ties at {slow[0].delay} units: a smaller `slice_width` "
+        every = "every slice of the final adder ties" if plan.nest else "every stage ties"
+        out += _tip(f"{every} at {slow[0].delay} units: a smaller `slice_width` "
                     f"narrows them all ({more});")
     elif any(s.width > 1 for s in slow):
         if len(slow) <= 4:
