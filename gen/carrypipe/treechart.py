@@ -149,9 +149,9 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
             _stage_block(block, s, s.index in slow, tree is not None and s.delay == 0,
                          col_x, cw, top, y - top)
             out.parts[at:at] = block.parts
-        out.text(bits_x, top + 12, f"{sum(w.width for w in words):,}".replace(",", " "),
-                 size=9.5, anchor="end", fill=FAINT, data_role="row-bits", data_edge=edge,
-                 data_count=sum(w.width for w in words))
+        loaded = sum(w.width for w in words)
+        out.text(bits_x, top + 12, f"{loaded:,}".replace(",", " "), size=9.5, anchor="end",
+                 fill=FAINT, data_role="row-bits", data_edge=edge, data_count=loaded)
         out.add("line", x1=float(x0), y1=y, x2=x0 + columns * cw, y2=y, stroke="#ececec",
                 stroke_width=0.6)
         y += 4
