@@ -280,3 +280,42 @@ def test_normalized_config_round_trips():
         data = c.normalized()
         assert config.from_mapping(data) == c
         assert "carry_in" not in data and "operands" in data if c.unit == "sum" else True
+
+
+# The manifest's documented keys (README, *The manifest*): the same for every unit kind in a
+# mode, plus a sum's or multiplier's `tree` and `final_adder`; `registers` lists every kind
+# of the mode, 0 included, and `tree`.
+MANIFEST_CASES = {
+    "sliced": dict(unit="multiplier", width=6, slice_width=4),
+    "levels": dict(unit="sum", operands=5, width=8, pipeline="levels", cell="kogge-stone"),
+    "blocks": dict(unit="multiplier", width=7, width_b=5, signed=True, pipeline="blocks",
+                   cell="brent-kung", block_width=3),
+    "native": dict(unit="multiplier", width=8, tree="native", native_stages=2),
+    "no final adder": dict(unit="multiplier", width=1, width_b=1),
+    "no final adder, levels": dict(unit="multiplier", width=1, width_b=1, pipeline="levels",
+                                   cell="kogge-stone"),
+}
+
+
+@pytest.mark.parametrize("keys", MANIFEST_CASES.values(), ids=MANIFEST_CASES.keys())
+def test_manifest_has_the_keys_of_an_adder_in_its_mode(keys):
+    p = make(**keys)
+    mode = p.config.pipeline
+    adder = make(width=8, pipeline=mode, **({} if mode == "slices" else {"cell": "sklansky"}),
+                 **({"block_width": 4} if mode == "blocks" else {}))
+    found = json.loads(report_manifest(p))
+    like = json.loads(report_manifest(adder))
+    assert set(found) == set(like) | {"tree", "final_adder"}
+    assert set(found["registers"]) == set(like["registers"]) | {"tree"}
+    assert sum(found["registers"].values()) == 2 * found["registers"]["total"]
+    if p.mode == "native":
+        assert found["tree"] is None and found["final_adder"] is None
+    elif p.adder is None:
+        assert found["final_adder"] is None and found.get("stages", []) == []
+    else:
+        assert found["final_adder"]["stages"] == len(p.adder.stages)
+    if "stages" in found and p.mode != "native" and p.adder is not None:
+        first = len(p.tree_stages)  # the final adder's stages, numbered as the unit's
+        assert [s["index"] for s in found["stages"]] == list(range(first, p.latency))
+        assert [s["levels"] for s in found["stages"]] == [list(s.levels)
+                                                          for s in p.adder.stages]

@@ -6,10 +6,20 @@ from __future__ import annotations
 import itertools
 import re
 
+from pathlib import Path
+
 import pytest
 
 from carrypipe import cells, config, report
+from carrypipe.plan import make_plan
 from conftest import make
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def load_plan(path):
+    return make_plan(config.load(path))
+
 
 # A spread of configs over every unit kind and pipeline mode, options on and off.
 BASES = [
@@ -82,7 +92,22 @@ def test_no_tip_offers_what_the_config_already_does(plan):
         assert len(line) <= 92, line
 
 
-@pytest.mark.parametrize("plan", PLANS, ids=[p.label() + f" #{i}" for i, p in enumerate(PLANS)])
+# Sums and multipliers: the tree's stages and the final adder's ranked together.
+TREE_PLANS = [load_plan(ROOT / "configs" / name) for name in ("tap_mul18.yaml",
+                                                               "beam_sum12.yaml")] + [
+    make(unit="multiplier", width=8, partial_products="booth4", tree_levels_per_stage=3,
+         slice_width=4),
+    make(unit="multiplier", width=13, width_b=5, signed=True, partial_products="booth4",
+         tree="wallace", tree_levels_per_stage=2, pipeline="blocks", cell="brent-kung",
+         block_width=3),
+    make(unit="sum", operands=4, width=24, slice_width=12, tree_levels_per_stage=2),
+    make(unit="sum", operands=16, width=17, pipeline="levels", cell="kogge-stone"),
+    make(unit="multiplier", width=1, width_b=1),
+]
+
+
+@pytest.mark.parametrize("plan", PLANS + TREE_PLANS,
+                         ids=[p.label() + f" #{i}" for i, p in enumerate(PLANS + TREE_PLANS)])
 def test_the_slowest_sentence_names_every_tied_stage(plan):
     text = report.report(plan)
     slow = [s.index for s in plan.slowest]
@@ -96,6 +121,8 @@ def test_the_slowest_sentence_names_every_tied_stage(plan):
         assert expand(named) == slow
     marked = [int(row.split()[0]) for row in text.splitlines() if row.endswith("<- slowest")]
     assert marked == (slow if len(slow) < len(plan.stages) else [])
+    if len(slow) < len(plan.stages):  # no tip may say otherwise
+        assert "every stage ties" not in tips(plan)
 
 
 @pytest.mark.parametrize("keys, named", [

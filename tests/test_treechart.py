@@ -43,7 +43,11 @@ def test_cells_add_up_to_the_plan_by_kind(keys):
     assert drawn == {k: v for k, v in plan.registers.as_dict().items() if k != "total" and v}
     bits = {e.get("data-kind"): int(e.text.replace(" ", "")) for e in root.iter(f"{SVG}text")
             if e.get("data-role") == "bits"}
-    assert {k: v for k, v in bits.items() if v} == {k: v for k, v in drawn.items()}
+    assert bits == drawn  # the legend: only the kinds the unit has (docs/chart.md)
+    rows = sum(int(e.get("data-count")) for e in root.iter(f"{SVG}text")
+               if e.get("data-role") == "row-bits")
+    assert rows == plan.registers.total
+    assert all(c["data-families"] == c["data-name"] for c in cells(root))
 
 
 def test_each_rank_holds_the_plans_dots():
@@ -64,15 +68,17 @@ def test_wide_units_are_banded_and_say_so():
     assert any(e.get("data-role") == "banding" for e in root.iter(f"{SVG}text"))
 
 
+def blocks(root) -> list[dict]:
+    return [dict(e.attrib) for e in root.iter(f"{SVG}rect") if e.get("class") == "slice"]
+
+
 def test_the_slowest_stage_is_marked_and_measured_figures_decide():
     plan = make(**CASES["8x8 signed, sliced, valid"])
     root = ET.fromstring(chart.svg(plan))
-    marked = {int(e.get("data-stage")) for e in root.iter(f"{SVG}text")
-              if e.get("data-role") == "stage" and e.get("data-slowest") == "1"}
+    marked = {int(b["data-stage"]) for b in blocks(root) if b["data-slowest"] == "1"}
     assert marked == {s.index for s in plan.slowest}
     root = ET.fromstring(chart.svg(plan, {0: 2.5, 3: 1.0}, "nextpnr"))
-    marked = {int(e.get("data-stage")) for e in root.iter(f"{SVG}text")
-              if e.get("data-role") == "stage" and e.get("data-slowest") == "1"}
+    marked = {int(b["data-stage"]) for b in blocks(root) if b["data-slowest"] == "1"}
     assert marked == {0}
     with pytest.raises(ValueError, match="the plan has stages"):
         chart.svg(plan, {99: 1.0})
@@ -86,3 +92,35 @@ def test_same_plan_same_bytes_and_a_real_picture():
     image = Image.open(io.BytesIO(png))
     root = ET.fromstring(text)
     assert image.size == (int(root.get("width")), int(root.get("height")))
+
+
+@pytest.mark.parametrize("keys", [*CASES.values(), dict(width=16, slice_width=4),
+                                  dict(width=32, pipeline="levels", cell="sklansky")],
+                         ids=[*CASES.keys(), "adder, slices", "adder, levels"])
+def test_every_chart_carries_the_documented_data_attributes(keys):
+    """One script reads every chart (docs/chart.md, *Data attributes*): the root's unit,
+    mode, width and stages, and one stage block per stage with its bits, delay and mark."""
+    plan = make(**keys)
+    root = ET.fromstring(chart.svg(plan))
+    assert root.get("data-mode") == plan.mode and root.get("data-unit") == plan.unit.name
+    assert root.get("data-stages") == str(len(plan.stages))
+    assert root.get("data-latency") == str(plan.latency)
+    assert root.get("data-width") == str(getattr(plan, "result_width", plan.width))
+    found = blocks(root)
+    assert [b["data-stage"] for b in found] == [str(s.index) for s in plan.stages]
+    slow = {s.index for s in plan.slowest} if len(plan.slowest) < len(plan.stages) else set()
+    for b, s in zip(found, plan.stages):
+        assert b["data-bits"] == f"{s.msb}:{s.lsb}" and b["data-delay"] == str(s.delay)
+        assert b["data-slowest"] == ("1" if s.index in slow else "0")
+    labels = [e.get("data-stage") for e in root.iter(f"{SVG}text")
+              if e.get("data-role") == "stage-label"]
+    assert sorted(set(labels), key=int) == [b["data-stage"] for b in found]
+
+
+def test_a_tree_stage_block_says_which_counter_levels_it_holds():
+    plan = make(**CASES["12x9 booth, levels"])
+    found = blocks(ET.fromstring(chart.svg(plan)))
+    for b, s in zip(found, plan.tree_stages):
+        assert b["data-levels"] == " ".join(map(str, s.levels)) and b["data-logic"] == s.logic
+    for b, s in zip(found[len(plan.tree_stages):], plan.adder_stages):  # prefix levels
+        assert b["data-levels"] == " ".join(map(str, s.levels))

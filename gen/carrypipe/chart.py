@@ -33,7 +33,7 @@ from functools import singledispatch
 from html import escape
 
 from . import prefix, report, treechart
-from .svg import FAINT, FONT, INK, SLOW, Svg, num
+from .svg import BLOCK, FAINT, FONT, IDLE_BLOCK, INK, SLOW, SLOW_BLOCK, Svg, num
 from .header import bits, plural, stage_list
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
@@ -44,9 +44,6 @@ COLOURS = {"input": "#5b7db1", "skew": "#e69a28", "stage": "#2a8c6a", "deskew": 
 EXTRA_COLOURS = ("#7a7a7a", "#a39a2c", "#2b9fb3", "#9c5b3b")  # kinds the chart does not know
 PAPER = "#ffffff"
 CALM = "#3f5a86"  # notes that inform (banding), not warn
-BLOCK = ("#e3f1ec", "#2a8c6a", "#17553f")  # a stage's logic: fill, outline, text
-SLOW_BLOCK = ("#fde4e1", SLOW, SLOW)
-IDLE_BLOCK = ("#ffffff", "#9aa9a3", "#5d6b66")  # a stage without logic (a wire rank)
 ENABLE = "#56606b"
 CHAR = 0.55  # average glyph width of the font, in ems, for fitting labels
 

@@ -488,6 +488,7 @@ def make_sliced_plan(config: Config, nest: Nest | None = None) -> SlicedPlan:
 
 
 MODES = {"slices": make_sliced_plan, "levels": make_prefix_plan, "blocks": make_prefix_plan}
+MODE_TYPES = {"slices": SlicedPlan, "levels": PrefixPlan, "blocks": PrefixPlan}
 
 
 def make_plan(config: Config) -> Plan:

@@ -13,7 +13,7 @@ from functools import singledispatch
 
 from . import __version__, cells, prefix
 from .header import bits, plural, reset_phrase, stage_list, timing_phrase
-from .plan import Plan, PrefixPlan, SlicedPlan
+from .plan import MODE_TYPES, Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan, counters_phrase
 
 DELAY_MODEL = ("unit-gate model (Tyagi 1993; Zimmermann 1997): 2-input AND/OR = 1, XOR = 2, "
@@ -81,6 +81,11 @@ def _(plan: PrefixPlan) -> dict:
 
 
 @stage_entries.register
+def _(plan: NativePlan) -> dict:
+    return {"tree": None, "final_adder": None}  # synthesis builds the operation
+
+
+@stage_entries.register
 def _(plan: TreePlan) -> dict:
     t, r = plan.tree, plan.rows
     tree = {"style": plan.config.tree, "levels_per_stage": plan.config.tree_levels_per_stage,
@@ -90,12 +95,15 @@ def _(plan: TreePlan) -> dict:
                         "full_adders": sum(1 for i in lv.counters if t.counters[i].kind == "fa"),
                         "half_adders": sum(1 for i in lv.counters if t.counters[i].kind == "ha"),
                         "height": max(lv.heights, default=0)} for lv in t.levels]}
-    adder = None
-    if plan.adder is not None:
-        adder = {"lsb": r.low, "msb": r.top - 1, "width": r.adder_width,
-                 "pipeline": plan.config.pipeline, "cell": plan.config.cell,
-                 "carry_out": r.carry_out, "stages": len(plan.adder_stages)}
-    return {"tree": tree, "final_adder": adder}
+    if plan.adder is None:  # a prefix mode still lists its (no) stages, like an adder's
+        prefix = MODE_TYPES[plan.config.pipeline] is PrefixPlan
+        return {"tree": tree, "final_adder": None, **({"stages": []} if prefix else {})}
+    adder = {"lsb": r.low, "msb": r.top - 1, "width": r.adder_width,
+             "pipeline": plan.config.pipeline, "cell": plan.config.cell,
+             "carry_out": r.carry_out, "stages": len(plan.adder_stages)}
+    # The final adder's stages (numbered as the unit's) in `stages`, as its mode lists them.
+    return {"tree": tree, "final_adder": adder,
+            **stage_entries(replace(plan.adder, stages=plan.adder_stages))}
 
 
 def manifest_text(plan: Plan, files: list[str]) -> str:
@@ -150,19 +158,23 @@ def report(plan: Plan) -> str:
 
 
 def _marks(plan: Plan):
+    """The `<- slowest` mark of a stage row: every stage of the unit ranked together (a
+    carry-save unit's final adder against the tree too), none when all tie."""
     slow = {s.index for s in plan.slowest}
     tie_all = len(slow) == len(plan.stages)
     return lambda s: "  <- slowest" if s.index in slow and not tie_all else ""
 
 
 @singledispatch
-def table(plan) -> list[str]:
+def table(plan, mark=None) -> list[str]:
+    """The stage table; `mark` (of the enclosing unit, for a nested final adder) marks the
+    slowest rows, by default `_marks(plan)`."""
     raise TypeError(type(plan).__name__)
 
 
 @table.register
-def _(plan: SlicedPlan) -> list[str]:
-    mark = _marks(plan)
+def _(plan: SlicedPlan, mark=None) -> list[str]:
+    mark = mark or _marks(plan)
     lines = ["Slices (LSB first; delay in the unit-gate model, register to register)",
              f"  {'stage':>5}  {'bits':>13}  {'width':>5}  {'levels':>6}  {'nodes':>6}  "
              f"{'delay':>5}  {'waits':>9}"]
@@ -178,9 +190,9 @@ def _(plan: SlicedPlan) -> list[str]:
 
 
 @table.register
-def _(plan: PrefixPlan) -> list[str]:
+def _(plan: PrefixPlan, mark=None) -> list[str]:
     c, sch = plan.config, plan.schedule
-    mark = _marks(plan)
+    mark = mark or _marks(plan)
     tree = sch.flavour == "compare"  # what is left of the network: count the kept nodes
 
     def nodes(s):
@@ -213,7 +225,7 @@ def _(plan: PrefixPlan) -> list[str]:
 
 
 @table.register
-def _(plan: TreePlan) -> list[str]:
+def _(plan: TreePlan, mark=None) -> list[str]:
     c, t, r = plan.config, plan.tree, plan.rows
     mark = _marks(plan)
     heights = t.matrix.heights()
@@ -237,11 +249,11 @@ def _(plan: TreePlan) -> list[str]:
     lines += ["", f"Final adder  columns [{r.top - 1}:{r.low}] ({r.adder_width} bits)"
               + (", its carry out is the top bit" if r.carry_out else "") + low]
     view = replace(plan.adder, stages=plan.adder_stages)
-    return lines + [f"  {line}" if line else line for line in table(view)]
+    return lines + [f"  {line}" if line else line for line in table(view, mark)]
 
 
 @table.register
-def _(plan: NativePlan) -> list[str]:
+def _(plan: NativePlan, mark=None) -> list[str]:
     lines = [f"Native    {plan.structure()}", "",
              "Stages (no delay model: synthesis chooses the logic)",
              f"  {'stage':>5}  logic"]
@@ -275,7 +287,8 @@ def _(plan: SlicedPlan) -> list[str]:
     if len(plan.stages) == 1 and c.width > 1:
         out += _tip(f"cut the unit into slices (`slice_width` or `slices`): {more};")
     elif len(slow) == len(plan.stages) and slow[0].width > 1:
-        out += _tip(f"every stage ties at {slow[0].delay} units: a smaller `slice_width` "
+        every = "every slice of the final adder ties" if plan.nest else "every stage ties"
+        out += _tip(f"{every} at {slow[0].delay} units: a smaller `slice_width` "
                     f"narrows them all ({more});")
     elif any(s.width > 1 for s in slow):
         if len(slow) <= 4:

@@ -6,6 +6,9 @@ from __future__ import annotations
 from html import escape
 
 SLOW, INK, FAINT = "#d62728", "#222222", "#8c8c8c"
+BLOCK = ("#e3f1ec", "#2a8c6a", "#17553f")  # a stage's logic: fill, outline, text
+SLOW_BLOCK = ("#fde4e1", SLOW, SLOW)
+IDLE_BLOCK = ("#ffffff", "#9aa9a3", "#5d6b66")  # a stage without logic (a wire rank)
 FONT = "DejaVu Sans, Lato, Helvetica, Arial, sans-serif"
 
 

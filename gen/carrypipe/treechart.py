@@ -7,10 +7,12 @@ products, or the operands' bits) is drawn as hollow dots; below it, each registe
 the tree as the dots it holds, one per register bit, the r-th dot of each column in row r;
 then the final adder's registers (stage, skew, deskew, prefix ... words, as bars over their
 bits), the finished low result bits waiting beside it, and `valid` at the side.  Every
-register element is a `rect` of class `reg` carrying `data-kind`, `data-name`, `data-bits`,
-`data-edge` and `data-count` (the register bits it stands for), so the elements of one kind
-add up to the plan's count, like the other chart.  Units wider than 96 result bits are
-grouped into bands of columns (and the chart says so).
+register element is a `rect` of class `reg` carrying `data-kind`, `data-name`,
+`data-families`, `data-bits`, `data-edge` and `data-count` (the register bits it stands
+for), so the elements of one kind add up to the plan's count, like the other chart; each
+stage is a `rect` of class `slice` behind its row with the other chart's data attributes, and
+the root carries the same ones too, so one script reads every chart (docs/chart.md).  Units
+wider than 96 result bits are grouped into bands of columns (and the chart says so).
 """
 
 from __future__ import annotations
@@ -20,7 +22,7 @@ from collections.abc import Mapping
 from html import escape
 
 from . import report
-from .svg import FAINT, FONT, INK, SLOW, Svg, num
+from .svg import BLOCK, FAINT, FONT, IDLE_BLOCK, INK, SLOW, SLOW_BLOCK, Svg, num
 
 COLOURS = {"input": "#5b7db1", "tree": "#d0762c", "skew": "#e69a28", "stage": "#2a8c6a",
            "deskew": "#8a63c2", "control": "#c73a6f", "prefix": "#3a9fc0",
@@ -57,6 +59,8 @@ def _slowest(plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]
     else:
         slow = {s.index for s in plan.slowest}
         figure, basis = f"delay {plan.slowest[0].delay}", "unit-gate model"
+    if len(plan.stages) == 1:
+        return set(), f"One stage: {figure} ({basis})."
     if len(slow) == len(plan.stages):
         return set(), f"All {len(slow)} stages tie at {figure} ({basis}): no single slowest."
     names = ", ".join(str(i) for i in sorted(slow))
@@ -75,7 +79,8 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     cw = min(28.0, max(7.0, GRID_WIDTH / columns))
     x0 = MARGIN + GUTTER
     side_x = x0 + columns * cw + 14
-    page_w = max(MIN_WIDTH, math.ceil(side_x + cw + 40 + MARGIN))
+    bits_x = side_x + cw + 56  # right edge of each row's register-bit count
+    page_w = max(MIN_WIDTH, math.ceil(bits_x + MARGIN))
     out = Svg()
 
     def col_x(k: int) -> float:
@@ -99,7 +104,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     for j in range(columns):
         if j % max(1, math.ceil(30 / cw)) == 0 or j == columns - 1:
             out.text(col_x(j * band) + cw / 2, y, str(j * band), size=9, anchor="middle",
-                     fill=FAINT)
+                     fill=FAINT, data_role="tick", data_bit=j * band)
     out.text(MARGIN, y, "bit", size=10, fill=FAINT)
     y += 10
 
@@ -114,7 +119,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     stage_of_edge = {plan.input_cycles + s.index + 1: s for s in plan.stages}
     for edge in range(1, plan.latency + 1):
         words = [w for w in plan.words if w.edge == edge]
-        top = y
+        top, at = y, len(out.parts)
         s = stage_of_edge.get(edge)
         if s is not None:
             figure = (f"{num(measured[s.index])} ns" if measured and s.index in measured
@@ -122,7 +127,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
             hot = s.index in slow
             out.text(MARGIN, y + 12, f"stage {s.index} · {figure}", size=10,
                      fill=SLOW if hot else INK, weight="bold" if hot else None,
-                     data_role="stage", data_stage=s.index, data_slowest=int(hot))
+                     data_role="stage-label", data_stage=s.index)
         out.text(MARGIN, y + 25, f"edge {edge}", size=10, fill=FAINT)
         tree_words = [w for w in words if w.kind == "tree"]
         if tree_words:
@@ -137,7 +142,16 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
         for w in (w for w in words if w.kind == "control"):
             out.add("rect", x=side_x, y=top + 4, width=cw, height=8.0, fill=COLOURS["control"],
                     class_="reg", data_kind="control", data_name=w.family,
-                    data_bits="0:0", data_edge=w.edge, data_count=w.width)
+                    data_families=w.family, data_bits="0:0", data_edge=w.edge,
+                    data_count=w.width)
+        if s is not None:  # behind the row's registers: drawn first
+            block = Svg()
+            _stage_block(block, s, s.index in slow, tree is not None and s.delay == 0,
+                         col_x, cw, top, y - top)
+            out.parts[at:at] = block.parts
+        loaded = sum(w.width for w in words)
+        out.text(bits_x, top + 12, f"{loaded:,}".replace(",", " "), size=9.5, anchor="end",
+                 fill=FAINT, data_role="row-bits", data_edge=edge, data_count=loaded)
         out.add("line", x1=float(x0), y1=y, x2=x0 + columns * cw, y2=y, stroke="#ececec",
                 stroke_width=0.6)
         y += 4
@@ -145,7 +159,8 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     out.text(MARGIN, y, f"outputs ready after edge {plan.latency}", size=10, fill=FAINT)
     y += 26
     y = _legend(out, regs, y, plan.latency)
-    out.text(MARGIN, y, slow_text, size=12, weight="bold", fill=SLOW, data_role="slowest")
+    out.text(MARGIN, y, slow_text, size=12, weight="bold", fill=SLOW if slow else INK,
+             data_role="slowest")
     y += 16
     basis = (f"Stage figures measured{f' ({measured_source})' if measured_source else ''}: "
              "worst register-to-register delay inside each stage, in ns." if measured else
@@ -154,10 +169,28 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     height = math.ceil(y + MARGIN)
     head = (f'<svg xmlns="http://www.w3.org/2000/svg" width="{page_w}" height="{height}" '
             f'viewBox="0 0 {page_w} {height}" font-family="{FONT}" '
-            f'data-latency="{plan.latency}" data-bit-band="{band}" data-edge-band="1">')
+            f'data-latency="{plan.latency}" data-bit-band="{band}" data-edge-band="1" '
+            f'data-mode="{escape(plan.mode)}" data-unit="{escape(plan.unit.name)}" '
+            f'data-width="{width}" data-stages="{len(plan.stages)}">')
     title = f"<title>{escape(c.name)}: stage chart</title>"
     background = f'<rect x="0" y="0" width="{page_w}" height="{height}" fill="#ffffff"/>'
     return "\n".join([head, title, background, *out.parts, "</svg>"]) + "\n"
+
+
+def _stage_block(out, s, hot: bool, idle: bool, col_x, cw, y, h) -> None:
+    """Stage `s` as a block over its bits and its register row (the same element and data
+    attributes as a slice block of the other chart); `idle`: a rank without logic."""
+    fill, stroke, _ = SLOW_BLOCK if hot else IDLE_BLOCK if idle else BLOCK
+    idle = idle and not hot
+    left, right = col_x(s.msb), col_x(s.lsb) + cw
+    levels = getattr(s, "levels", ())
+    out.add("rect", x=left + 0.5, y=y + 1.0, width=max(1.0, right - left - 1.0),
+            height=max(1.0, h - 2.0), rx=3.0, fill=fill, fill_opacity=0.6, stroke=stroke,
+            stroke_width=1.6 if hot else 0.6, stroke_dasharray="4 3" if idle else None,
+            class_="slice", data_stage=s.index, data_bits=f"{s.msb}:{s.lsb}",
+            data_slowest="1" if hot else "0", data_delay=s.delay,
+            data_logic=getattr(s, "logic", "") or None,
+            data_levels=" ".join(map(str, levels)) if levels else None)
 
 
 def _dots(out, x0, y, cw, heights: list[int], label: str) -> float:
@@ -190,8 +223,8 @@ def _rank(out, x0, y, cw, columns, band, words, col_x) -> float:
         x = col_x(j * band) + (cw - size) / 2
         out.add("rect", x=x, y=y + 4 + row * (size + 1), width=size, height=size,
                 rx=size / 2, fill=COLOURS["tree"], class_="reg", data_kind="tree",
-                data_name=w.family, data_bits=f"{hi}:{lo}", data_edge=w.edge,
-                data_count=len(found))
+                data_name=w.family, data_families=w.family, data_bits=f"{hi}:{lo}",
+                data_edge=w.edge, data_count=len(found))
     return y + 8 + rows * (size + 1)
 
 
@@ -202,14 +235,15 @@ def _bar(out, w, y, h, col_x, cw, band) -> None:
     right = col_x(lo) + cw
     out.add("rect", x=left + 0.5, y=y, width=max(0.6, right - left - 1.0), height=h,
             fill=COLOURS.get(w.kind, "#7a7a7a"), class_="reg", data_kind=w.kind,
-            data_name=w.family, data_bits=f"{hi}:{lo}", data_edge=w.edge, data_count=w.width)
+            data_name=w.family, data_families=w.family, data_bits=f"{hi}:{lo}",
+            data_edge=w.edge, data_count=w.width)
 
 
 def _legend(out, regs, y, latency) -> float:
     out.text(MARGIN, y, "Register bits by kind", size=13, weight="bold")
     y += 8
     for kind, bits in regs.items():
-        if kind == "total":
+        if kind == "total" or not bits:  # only the kinds the unit has
             continue
         out.add("rect", x=float(MARGIN), y=float(y), width=14.0, height=12.0,
                 fill=COLOURS.get(kind, "#7a7a7a"), class_="key", data_kind=kind)

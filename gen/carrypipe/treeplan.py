@@ -24,7 +24,7 @@ from functools import cached_property
 from . import reduction, units
 from .config import Config
 from .header import plural
-from .plan import DIRECT_UP_TO, MODES, Nest, Plan, Word
+from .plan import DIRECT_UP_TO, MODE_TYPES, MODES, Nest, Plan, Word
 
 # `prove --method auto` proves a tree directly up to this many partial-product rows and
 # result bits (docs/verification.md), compositionally above.
@@ -88,7 +88,9 @@ class TreePlan(Plan):
 
     @property
     def register_kinds(self) -> tuple[str, ...]:
-        inner = self.adder.register_kinds if self.adder else ()
+        """The tree's kind and every kind of the final adder's mode, present or not (a
+        unit without a final adder lists them at 0 too)."""
+        inner = MODE_TYPES[self.config.pipeline].register_kinds
         return ("input", "tree", *[k for k in inner if k not in ("input", "control")],
                 "control")
 
@@ -175,7 +177,8 @@ class NativePlan(Plan):
     the tools to retime into."""
 
     mode = "native"
-    register_kinds = ("input", "stage", "control")
+    # Every kind a sliced tree lists (a native unit reads no `pipeline`), most of them 0.
+    register_kinds = ("input", "tree", "stage", "skew", "deskew", "control")
 
     @property
     def result_width(self) -> int:
