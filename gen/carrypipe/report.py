@@ -96,8 +96,8 @@ def _(plan: TreePlan) -> dict:
                         "half_adders": sum(1 for i in lv.counters if t.counters[i].kind == "ha"),
                         "height": max(lv.heights, default=0)} for lv in t.levels]}
     if plan.adder is None:  # a prefix mode still lists its (no) stages, like an adder's
-        prefix = MODE_TYPES[plan.config.pipeline] is PrefixPlan
-        return {"tree": tree, "final_adder": None, **({"stages": []} if prefix else {})}
+        prefix_mode = MODE_TYPES[plan.config.pipeline] is PrefixPlan
+        return {"tree": tree, "final_adder": None, **({"stages": []} if prefix_mode else {})}
     adder = {"lsb": r.low, "msb": r.top - 1, "width": r.adder_width,
              "pipeline": plan.config.pipeline, "cell": plan.config.cell,
              "carry_out": r.carry_out, "stages": len(plan.adder_stages)}
