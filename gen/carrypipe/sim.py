@@ -141,7 +141,8 @@ EXTERNAL = {
     "verilator": _External(
         "install Verilator 5 (Debian/Ubuntu: apt-get install verilator) or use --sim icarus "
         "/ --sim amaranth",
-        ("verilator", "--binary", "--timing", "-Wno-fatal", "-O1", "--top-module",
+        ("verilator", "--binary", "--timing", "--timescale", "1ns/1ps", "-Wno-fatal", "-O1",
+         "--top-module",
          "{name}_tb", "-o", "{name}_tb", "{name}.v", "{name}_tb.v"),
         "obj_dir/{name}_tb", ("obj_dir/{name}_tb",)),
 }
