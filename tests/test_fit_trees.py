@@ -10,6 +10,7 @@ from click.testing import CliRunner
 from carrypipe import candidates, config, config_edit
 from carrypipe.cli import main
 from carrypipe.plan import make_plan
+from carrypipe.toolflow import Measurement
 
 TAP = "# tap of the test filter\nname: tap12\nunit: multiplier\nwidth: 12   # bits\n" \
       "signed: true\ncell: native\nslice_width: 8\n"
@@ -81,3 +82,24 @@ def test_real_fit_of_a_multiplier(write_config, tmp_path, monkeypatch):
     build = CliRunner().invoke(main, ["build", str(out / "tap12.yaml"), "-o", str(rebuilt)])
     assert build.exit_code == 0, build.output
     assert (out / "tap12.v").read_bytes() == (rebuilt / "tap12.v").read_bytes()
+
+
+def test_a_miss_bounds_others_only_where_the_model_placed_its_limit():
+    # A candidate with no prediction is taken to miss when a measured miss of its kind has a
+    # slowest stage (unit-gate model) no deeper than its own -- but only if that miss's
+    # critical path ended in one of the stages the model calls slowest.  Otherwise the
+    # model misjudged where the limit is and says nothing about the other candidate.
+    keys = {"name": "px", "unit": "sum", "operands": 4, "width": 16,
+            "tree_levels_per_stage": 2, "pipeline": "levels", "cell": "han-carlson"}
+    three, one = (candidates.Row(make_plan(config.from_mapping({**keys, "levels_per_stage": n})))
+                  for n in (3, 1))
+    assert three.plan.slowest[0].delay <= one.plan.slowest[0].delay
+    assert candidates.kind(three) == candidates.kind(one)
+    slow = {s.index for s in three.plan.slowest}
+    words = {w.edge - three.plan.input_cycles - 1: w for w in three.plan.words
+             if w.kind != "input"}
+    for stage, bounded in ((min(slow), True), (max(words.keys() - slow), False)):
+        end = f"unit.{words[stage].name}_SB_DFF_Q"
+        three.measured = [Measurement(1, "ok", mhz=260.7, start="x", end=end, inside=True)]
+        assert three.measured_stage == stage
+        assert (candidates.bound(one, [three, one], 350) is three) is bounded

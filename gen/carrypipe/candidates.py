@@ -355,9 +355,14 @@ def kind(row: Row) -> tuple:
 def bound(row: Row, rows: list[Row], target: float) -> Row | None:
     """A measured miss of `row`'s kind whose slowest stage is no deeper than `row`'s (the
     deepest such, the closest to `row`), or None; with one, `row`, which has no prediction,
-    is taken to miss too."""
+    is taken to miss too.  Only a miss whose measured critical path ended in a stage the
+    model calls its slowest counts: one that failed elsewhere (a final adder's three prefix
+    levels in a stage, where the model put a counter level first) says nothing of `row`,
+    which may split that stage (measured: iCE40 HX8K, a 4 x 16 sum, Dadda with 2 levels per
+    stage, Han-Carlson 3 levels per stage 260.7 MHz, 1 level per stage 390.3)."""
     misses = [m for m in rows if m.mhz is not None and m.mhz < target and kind(m) == kind(row)
-              and m.plan.slowest[0].delay <= row.plan.slowest[0].delay]
+              and m.plan.slowest[0].delay <= row.plan.slowest[0].delay
+              and m.measured_stage in {s.index for s in m.plan.slowest}]
     return max(misses, key=lambda m: (m.plan.slowest[0].delay, m.mhz)) if misses else None
 
 
