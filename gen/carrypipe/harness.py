@@ -77,9 +77,10 @@ def flip_flops(plan: Plan) -> int:
 
 
 def luts(plan: Plan) -> int:
-    """The harness's own LUTs: one XOR per shift-in bit but the last, one per captured bit."""
+    """The harness's own LUTs: one XOR per shift-in bit (none when only one bit is shifted
+    in: it loads the pin), one per captured bit."""
     n_in, n_out = widths(plan)
-    return max(n_in - 1, 0) + n_out
+    return (n_in if n_in > 1 else 0) + n_out
 
 
 def harness_verilog(plan: Plan, module: str | None = None) -> str:

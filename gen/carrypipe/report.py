@@ -103,7 +103,7 @@ def _(plan: TreePlan) -> dict:
              "carry_out": r.carry_out, "stages": len(plan.adder_stages)}
     # The final adder's stages (numbered as the unit's) in `stages`, as its mode lists them.
     return {"tree": tree, "final_adder": adder,
-            **stage_entries(replace(plan.adder, stages=plan.adder_stages))}
+            **stage_entries(plan.numbered_adder)}
 
 
 def manifest_text(plan: Plan, files: list[str]) -> str:
@@ -248,7 +248,7 @@ def _(plan: TreePlan, mark=None) -> list[str]:
     low = f"; bits {bits(0, r.low - 1)} are finished by the tree" if r.low else ""
     lines += ["", f"Final adder  columns [{r.top - 1}:{r.low}] ({r.adder_width} bits)"
               + (", its carry out is the top bit" if r.carry_out else "") + low]
-    view = replace(plan.adder, stages=plan.adder_stages)
+    view = plan.numbered_adder
     return lines + [f"  {line}" if line else line for line in table(view, mark)]
 
 
@@ -391,7 +391,7 @@ def _(plan: TreePlan) -> list[str]:
     if plan.adder is not None and any(s.index in slow for s in plan.adder_stages):
         # The final adder's own tips (its input register is the tree's last rank).
         inner = replace(plan.adder.config, register_inputs=True)
-        out += tips(replace(plan.adder, stages=plan.adder_stages, config=inner))
+        out += tips(replace(plan.numbered_adder, config=inner))
     other = "wallace" if c.tree == "dadda" else "dadda"
     out += _tip(f"`tree: {other}` (another counter placement) or `tree: native` (the "
                 "operation left to synthesis, DSP blocks allowed);")

@@ -87,6 +87,12 @@ class TreePlan(Plan):
         return self.stages[self.tree.stages:]
 
     @property
+    def numbered_adder(self) -> Plan | None:
+        """The final adder's plan with its stages numbered as the unit's (for every text
+        that shows them: the header, the report, the manifest)."""
+        return None if self.adder is None else replace(self.adder, stages=self.adder_stages)
+
+    @property
     def register_kinds(self) -> tuple[str, ...]:
         """The tree's kind and every kind of the final adder's mode, present or not (a
         unit without a final adder lists them at 0 too)."""
@@ -161,7 +167,7 @@ class TreePlan(Plan):
             return t
         r = self.rows
         return (f"{t}. Final adder on columns [{r.top - 1}:{r.low}]; "
-                f"{self.adder.layout()}")
+                f"{self.numbered_adder.layout()}")
 
     def label(self) -> str:
         c = self.config
