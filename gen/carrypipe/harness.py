@@ -57,7 +57,12 @@ def stage_of(cell: str, plan: Plan) -> int | None:
             rf"{re.escape(w.name)}(?:_[A-Z]|\[|\$|$)", name)]
         if found:
             word = max(found, key=lambda w: len(w.name))
-            return word.edge - plan.input_cycles - 1
+            stage = word.edge - plan.input_cycles - 1
+            # An iCE40 logic cell is named after its LUT, and a LUT after a net it reads
+            # (`<word>_SB_LUT4_I1_LC`): its flip-flop loads from that LUT, a stage later.
+            if re.match(r"_SB_LUT4_I\d", name[len(word.name):]):
+                stage = min(stage + 1, len(plan.stages) - 1)
+            return stage
     outputs = "|".join(re.escape(p.name) for p in plan.ports if p.direction == "output")
     if cell.startswith("res_") or re.match(rf"{INSTANCE}\.({outputs})(?:_[A-Z]|\[|\$|$)",
                                            cell):
