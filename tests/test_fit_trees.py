@@ -84,21 +84,25 @@ def test_real_fit_of_a_multiplier(write_config, tmp_path, monkeypatch):
     assert (out / "tap12.v").read_bytes() == (rebuilt / "tap12.v").read_bytes()
 
 
-def test_a_miss_bounds_others_only_where_the_model_placed_its_limit():
-    # A candidate with no prediction is taken to miss when a measured miss of its kind has a
-    # slowest stage (unit-gate model) no deeper than its own -- but only if that miss's
-    # critical path ended in one of the stages the model calls slowest.  Otherwise the
-    # model misjudged where the limit is and says nothing about the other candidate.
+def test_a_miss_bounds_others_only_by_a_stage_of_the_same_part():
+    # A candidate with no prediction is taken to miss when a measured miss of its kind
+    # failed in a stage no deeper (unit-gate model) than the deepest stage of the same part
+    # (tree or final adder) of its own: the model's delays compare within a part only.
+    # Here (a 4 x 16 sum, Dadda 2 levels per stage, Han-Carlson final adder) 3 prefix
+    # levels per stage give stages of delay 8 (tree), 8 (g/p and 3 levels), 2, 4; one level
+    # per stage gives 8 (tree), 4, 2, 2, 2, 4.  A miss in the tree stage bounds the other
+    # (the same tree); a miss in the 3-level adder stage does not (iCE40 HX8K measured
+    # 260.7 MHz for the first, 390.3 for the second).
     keys = {"name": "px", "unit": "sum", "operands": 4, "width": 16,
             "tree_levels_per_stage": 2, "pipeline": "levels", "cell": "han-carlson"}
     three, one = (candidates.Row(make_plan(config.from_mapping({**keys, "levels_per_stage": n})))
                   for n in (3, 1))
-    assert three.plan.slowest[0].delay <= one.plan.slowest[0].delay
+    assert [s.delay for s in three.plan.stages] == [8, 8, 2, 4]
+    assert [s.delay for s in one.plan.stages] == [8, 4, 2, 2, 2, 4]
     assert candidates.kind(three) == candidates.kind(one)
-    slow = {s.index for s in three.plan.slowest}
     words = {w.edge - three.plan.input_cycles - 1: w for w in three.plan.words
              if w.kind != "input"}
-    for stage, bounded in ((min(slow), True), (max(words.keys() - slow), False)):
+    for stage, bounded in ((0, True), (1, False)):
         end = f"unit.{words[stage].name}_SB_DFF_Q"
         three.measured = [Measurement(1, "ok", mhz=260.7, start="x", end=end, inside=True)]
         assert three.measured_stage == stage

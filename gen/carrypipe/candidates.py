@@ -352,17 +352,32 @@ def kind(row: Row) -> tuple:
     return out
 
 
+def _part(plan: Plan, stage: int) -> str:
+    """Which part of a unit a stage belongs to: a counter tree's stages, or the adder's."""
+    return "tree" if plan.mode == "tree" and stage < plan.tree.stages else "adder"
+
+
+def _deepest(plan: Plan, part: str) -> int:
+    """The largest unit-gate delay among a unit's stages of one part (0 when it has none)."""
+    return max((s.delay for s in plan.stages if _part(plan, s.index) == part), default=0)
+
+
 def bound(row: Row, rows: list[Row], target: float) -> Row | None:
-    """A measured miss of `row`'s kind whose slowest stage is no deeper than `row`'s (the
-    deepest such, the closest to `row`), or None; with one, `row`, which has no prediction,
-    is taken to miss too.  Only a miss whose measured critical path ended in a stage the
-    model calls its slowest counts: one that failed elsewhere (a final adder's three prefix
-    levels in a stage, where the model put a counter level first) says nothing of `row`,
-    which may split that stage (measured: iCE40 HX8K, a 4 x 16 sum, Dadda with 2 levels per
-    stage, Han-Carlson 3 levels per stage 260.7 MHz, 1 level per stage 390.3)."""
-    misses = [m for m in rows if m.mhz is not None and m.mhz < target and kind(m) == kind(row)
-              and m.plan.slowest[0].delay <= row.plan.slowest[0].delay
-              and m.measured_stage in {s.index for s in m.plan.slowest}]
+    """A measured miss of `row`'s kind that failed in a stage no deeper, in unit-gate delay,
+    than the deepest stage of the same part of `row` (a counter tree's stages, or the
+    adder's: the model's delays compare within a part, not across), or None; with one,
+    `row`, which has no prediction, is taken to miss too (the deepest such miss is given).
+    A miss whose critical path names no stage bounds nothing.  Measured: on iCE40 HX8K a
+    4 x 16 sum, Dadda with 2 levels per stage, missed 350 MHz with Han-Carlson 3 levels per
+    stage (260.7 MHz, the path in the final adder), while 1 level per stage, whose slowest
+    stage in the model is its tree's, as deep, measured 390.3."""
+    misses = []
+    for m in rows:
+        stage = m.measured_stage if m.mhz is not None and m.mhz < target else None
+        if stage is None or kind(m) != kind(row):
+            continue
+        if m.plan.stages[stage].delay <= _deepest(row.plan, _part(m.plan, stage)):
+            misses.append(m)
     return max(misses, key=lambda m: (m.plan.slowest[0].delay, m.mhz)) if misses else None
 
 
