@@ -449,10 +449,10 @@ def why_not_run(row: Row, rows: list[Row], target: float, factors: dict[tuple, f
                 chosen: Row | None, margin: float = MARGIN) -> str:
     """Why an unmeasured candidate was not placed and routed (for the table)."""
     if chosen is not None and rank(row) > rank(chosen):
-        what = ("a higher latency" if row.latency > chosen.latency
-                else "the same latency and more register bits" if row.register_bits
-                > chosen.register_bits else "the same latency and register bits")
-        return f"not run: {what} than the chosen {chosen.label}"
+        what = ("a higher latency than" if row.latency > chosen.latency
+                else "the same latency and more register bits than" if row.register_bits
+                > chosen.register_bits else "the same latency and register bits as")
+        return f"not run: {what} the chosen {chosen.label}"
     if row.predicted is None:
         miss = bound(row, rows, target)
         if miss is not None:
