@@ -158,13 +158,19 @@ def _out_folder(out_dir: str | None, name: str) -> tuple[Path, str]:
     return Path(out_dir), "-o"
 
 
-def _write_folder(files: dict, dest: Path, option: str) -> list[Path]:
-    """`emit.write` with a folder that cannot be written as one line (exit status 3)."""
+@contextlib.contextmanager
+def _writing(dest: Path):
+    """A folder that cannot be written, as one line (exit status 3)."""
     try:
-        return emit.write(files, dest, option)
+        yield
     except OSError as exc:
         raise EnvironmentFault(f"cannot write the folder {dest}: "
                                f"{exc.strerror or exc}") from None
+
+
+def _write_folder(files: dict, dest: Path, option: str) -> list[Path]:
+    with _writing(dest):
+        return emit.write(files, dest, option)
 
 
 def load_plan(config_path: str, slice_width=None, slices=None):
@@ -445,10 +451,8 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
         raise UserError(f"--cluster: value {cluster!r} is not allowed; expected "
                         "tcp://HOST:PORT of a Dask scheduler")
     dest, option = _out_folder(out_dir, base.name)
-    try:
+    with _writing(dest):
         output.probe_folder(dest, option)  # before the long run, not after it
-    except OSError as exc:
-        raise EnvironmentFault(f"cannot write the folder {dest}: {exc.strerror or exc}") from None
     settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
                                 limit, not no_cache, chosen_modes, chosen_trees)
     runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)
