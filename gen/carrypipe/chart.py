@@ -33,7 +33,7 @@ from functools import singledispatch
 from html import escape
 
 from . import prefix, report, treechart
-from .svg import BLOCK, FAINT, FONT, IDLE_BLOCK, INK, SLOW, SLOW_BLOCK, Svg, num
+from .svg import BLOCK, FAINT, FONT, IDLE_BLOCK, INK, SLOW, SLOW_BLOCK, Svg, num, stage_block
 from .header import bits, plural, stage_list
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
@@ -805,25 +805,18 @@ def _stage_block(out: Svg, plan: Plan, lay: _Layout, group: list, ly: float, slo
     x, w = lay.x_of(lo, hi)
     is_slow = any(s.index in slow for s in group)
     idle = all(s.delay == 0 for s in group)
-    fill, stroke, ink = SLOW_BLOCK if is_slow else IDLE_BLOCK if idle else BLOCK
+    (fill, stroke, ink), data = stage_block(group, is_slow, idle)
     pad = min(4.0, lay.lh * 0.15)
     h = lay.lh - 2 * pad
-    first, last = group[0], group[-1]
-    stages = str(first.index) if len(group) == 1 else f"{first.index}–{last.index}"
-    levels = sorted({k for s in group for k in getattr(s, "levels", ())})
-    logic = "; ".join(s.logic for s in group if getattr(s, "logic", ""))
     out.add("rect", x=x + 1.0, y=ly + pad, width=max(1.0, w - 2.0), height=h, rx=3.0,
             fill=fill, stroke=stroke, stroke_width=2.2 if is_slow else 1.0,
-            stroke_dasharray="4 3" if idle and not is_slow else None, class_="slice",
-            data_stage=stages, data_bits=f"{hi}:{lo}", data_slowest="1" if is_slow else "0",
-            data_delay=max(s.delay for s in group), data_logic=logic or None,
-            data_levels=" ".join(map(str, levels)) if levels else None)
+            stroke_dasharray="4 3" if idle and not is_slow else None, **data)
     size = min(label.size, (h if label.anchor == "middle" else lay.lh) * 0.8)
     if size >= 7:
         out.text(label.x, ly + pad + h / 2 + size * 0.36, label.text, size=size,
                  anchor=label.anchor, fill=ink,
                  weight="bold" if is_slow and label.anchor == "middle" else None,
-                 data_role="stage-label", data_stage=stages)
+                 data_role="stage-label", data_stage=data["data_stage"])
 
 
 def _handoff_arrow(out: Svg, plan: Plan, lay: _Layout, grid_top: float, cycle: int, s, nxt):

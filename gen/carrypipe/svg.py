@@ -12,6 +12,22 @@ IDLE_BLOCK = ("#ffffff", "#9aa9a3", "#5d6b66")  # a stage without logic (a wire 
 FONT = "DejaVu Sans, Lato, Helvetica, Arial, sans-serif"
 
 
+def stage_block(group, hot: bool, idle: bool) -> tuple[tuple[str, str, str], dict]:
+    """The colours (fill, outline, text) and the data attributes of the block drawn for
+    one stage or a run of stages (`group`) in either chart, the same for every unit kind:
+    `hot` the slowest, `idle` a rank without logic."""
+    first, last = group[0], group[-1]
+    levels = sorted({k for s in group for k in getattr(s, "levels", ())})
+    logic = "; ".join(s.logic for s in group if getattr(s, "logic", ""))
+    data = dict(class_="slice",
+                data_stage=str(first.index) if len(group) == 1 else f"{first.index}–{last.index}",
+                data_bits=f"{max(s.msb for s in group)}:{min(s.lsb for s in group)}",
+                data_slowest="1" if hot else "0", data_delay=max(s.delay for s in group),
+                data_logic=logic or None,
+                data_levels=" ".join(map(str, levels)) if levels else None)
+    return (SLOW_BLOCK if hot else IDLE_BLOCK if idle else BLOCK), data
+
+
 def num(value: float) -> str:
     """A coordinate or figure with at most two decimals and no trailing zeros."""
     text = f"{value:.2f}".rstrip("0").rstrip(".")

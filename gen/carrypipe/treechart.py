@@ -22,7 +22,7 @@ from collections.abc import Mapping
 from html import escape
 
 from . import report
-from .svg import BLOCK, FAINT, FONT, IDLE_BLOCK, INK, SLOW, SLOW_BLOCK, Svg, num
+from .svg import FAINT, FONT, INK, SLOW, Svg, num, stage_block
 
 COLOURS = {"input": "#5b7db1", "tree": "#d0762c", "skew": "#e69a28", "stage": "#2a8c6a",
            "deskew": "#8a63c2", "control": "#c73a6f", "prefix": "#3a9fc0",
@@ -180,17 +180,13 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
 def _stage_block(out, s, hot: bool, idle: bool, col_x, cw, y, h) -> None:
     """Stage `s` as a block over its bits and its register row (the same element and data
     attributes as a slice block of the other chart); `idle`: a rank without logic."""
-    fill, stroke, _ = SLOW_BLOCK if hot else IDLE_BLOCK if idle else BLOCK
+    (fill, stroke, _), data = stage_block([s], hot, idle)
     idle = idle and not hot
     left, right = col_x(s.msb), col_x(s.lsb) + cw
-    levels = getattr(s, "levels", ())
     out.add("rect", x=left + 0.5, y=y + 1.0, width=max(1.0, right - left - 1.0),
             height=max(1.0, h - 2.0), rx=3.0, fill=fill, fill_opacity=0.6, stroke=stroke,
             stroke_width=1.6 if hot else 0.6, stroke_dasharray="4 3" if idle else None,
-            class_="slice", data_stage=s.index, data_bits=f"{s.msb}:{s.lsb}",
-            data_slowest="1" if hot else "0", data_delay=s.delay,
-            data_logic=getattr(s, "logic", "") or None,
-            data_levels=" ".join(map(str, levels)) if levels else None)
+            **data)
 
 
 def _dots(out, x0, y, cw, heights: list[int], label: str) -> float:
