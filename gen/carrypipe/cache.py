@@ -53,6 +53,7 @@ class Cache:
     def __init__(self, path: Path | None = None, read: bool = True):
         self.path = Path(path) if path else folder()
         self.read = read
+        self.unwritable: str | None = None  # why the first write failed, for fit's note
 
     def _file(self, k: str) -> Path:
         return self.path / k[:2] / f"{k}.json"
@@ -81,8 +82,8 @@ class Cache:
             with os.fdopen(fd, "w") as fh:
                 json.dump(data, fh, sort_keys=True, allow_nan=False)
             os.replace(tmp, dest)
-        except OSError:
-            pass  # a cache that cannot be written only costs time
+        except OSError as e:  # a cache that cannot be written only costs time: fit says so
+            self.unwritable = self.unwritable or (e.strerror or type(e).__name__)
 
 
 def valid(data, seed: int) -> bool:

@@ -154,6 +154,10 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                              "without a prediction, each kind (cell style and mode) probed at "
                              "its middle split, and a split whose slowest stage is no shorter "
                              "than a measured miss of its kind is taken to miss")
+    if store.unwritable:
+        outcome.notes.append(f"the cache folder {store.path} could not be written "
+                             f"({store.unwritable}): these measurements are not kept for "
+                             "the next run")
     if base.register_inputs and any(r.config.pipeline == "levels" and r.ok for r in rows):
         outcome.notes.append(INPUT_RANK_NOTE)
     for row in rows:
