@@ -394,7 +394,7 @@ def base(**extra):
     ({"pipeline": "stages"},
      r"config: key 'pipeline': value 'stages' is not allowed; expected one of slices, levels, blocks\Z"),
     ({"pipeline": "levels"},
-     r"config: key 'cell': value 'native' is not allowed with key 'pipeline' 'levels'; expected one of kogge-stone, brent-kung, sklansky, han-carlson, ladner-fischer\Z"),
+     r"config: key 'cell': value 'native' \(the default\) is not allowed with key 'pipeline' 'levels'; expected one of kogge-stone, brent-kung, sklansky, han-carlson, ladner-fischer\Z"),
     ({"pipeline": "blocks", "cell": "ripple"},
      r"config: key 'cell': value 'ripple' is not allowed with key 'pipeline' 'blocks'; expected one of kogge-stone"),
     ({"pipeline": "levels", "cell": "sklansky", "slice_width": 8},

@@ -339,7 +339,7 @@ def from_mapping(data, where: str = "config") -> Config:
     if "block_width" not in data and span:  # the default, down to a narrower width
         values["block_width"] = min(values["block_width"], span)
     if span:
-        check_mode(where, {**values, "width": span}, split, what)
+        check_mode(where, {**values, "width": span}, split, what, given=data)
     own = {f.name: f.default for f in fields(Config)}
     kept = {k: (v if reads(k, unit, mode, tree) else own[k]) for k, v in values.items()
             if k in own and k not in ("width", "slices")}
@@ -422,9 +422,11 @@ def prefix_positions(width: int, pipeline: str, block_width: int) -> int:
     return width if pipeline == "levels" else -(-width // block_width)
 
 
-def check_mode(where: str, values: dict, split: tuple[int, ...], what: str = "width") -> None:
+def check_mode(where: str, values: dict, split: tuple[int, ...], what: str = "width",
+               given=()) -> None:
     """Validate the keys of the prefix modes, alone and in combination (`values["width"]`
-    is the width they refer to: the unit's, or `what` names it)."""
+    is the width they refer to: the unit's, or `what` names it; `given` holds the keys the
+    config wrote, so a refused default says it is one)."""
     mode, unit = values["pipeline"], values["unit"]
     if mode == "slices":
         return
@@ -434,8 +436,10 @@ def check_mode(where: str, values: dict, split: tuple[int, ...], what: str = "wi
     if not reads("wire_registers", unit, mode):  # a comparator's tree: any cell style
         return
     if values["cell"] not in PREFIX_CELLS:
-        raise ConfigError(f"{where}: key 'cell': value {values['cell']!r} is not allowed with "
-                          f"key 'pipeline' {mode!r}; expected one of {', '.join(PREFIX_CELLS)}")
+        default = "" if "cell" in given else " (the default)"
+        raise ConfigError(f"{where}: key 'cell': value {values['cell']!r}{default} is not "
+                          f"allowed with key 'pipeline' {mode!r}; expected one of "
+                          f"{', '.join(PREFIX_CELLS)}")
     block = values["block_width"]
     if mode == "blocks" and (not _is_int(block) or not 1 <= block <= values["width"]):
         raise _fail(where, "block_width", block, f"an integer from 1 to {what} "
