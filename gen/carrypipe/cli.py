@@ -258,11 +258,9 @@ def build(config, out_dir, vectors, seed):
 def check(config, vectors, seed, simulator, timeout):
     """Simulate directed and random vectors and compare with the unit's Python reference."""
     plan = load_plan(config)
-    chosen = simulator or sim.default_simulator()
-    if simulator is None:
-        missing = [t for t in ("iverilog", "vvp") if not tools.which(t)]
-        why = ("iverilog and vvp found" if chosen == "icarus"
-               else f"{' and '.join(missing)} not found")
+    chosen = simulator
+    if chosen is None:
+        chosen, why = sim.default_simulator()
         click.echo(f"note: simulating with {chosen} ({why}; choose with --sim)")
     vecs = suite(plan, vectors, seed)
     result = sim.run(plan, vecs, chosen, timeout=timeout)

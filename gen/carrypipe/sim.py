@@ -30,8 +30,12 @@ class Result:
     message: str  # PASS ... or FAIL ... (one line)
 
 
-def default_simulator() -> str:
-    return "icarus" if tools.which("iverilog") and tools.which("vvp") else "amaranth"
+def default_simulator() -> tuple[str, str]:
+    """The simulator `check` uses when none is chosen, and why (for its note)."""
+    missing = [t for t in ("iverilog", "vvp") if not tools.which(t)]
+    if missing:
+        return "amaranth", f"{' and '.join(missing)} not found"
+    return "icarus", "iverilog and vvp found"
 
 
 def run(plan: Plan, vecs: list[Vector], simulator: str, timeout: float | None = None,
