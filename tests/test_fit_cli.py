@@ -50,8 +50,11 @@ BAD = [
      "--jobs: value '0' is not allowed; expected an integer of 1 or more, written in "
      "plain decimal digits"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--seeds", "two"],
-     "--seeds: value 'two' is not allowed; expected an integer of 1 or more, written in "
+     "--seeds: value 'two' is not allowed; expected an integer from 1 to 1000, written in "
      "plain decimal digits"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--seeds", "100000000000"],
+     "--seeds: value '100000000000' is not allowed; expected an integer from 1 to 1000, "
+     "written in plain decimal digits"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--tools", "vendor"],
      "--tools: value 'vendor' is not allowed; expected wheel or system"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--timeout", "0"],

@@ -10,6 +10,7 @@ are one line on stderr, "carrypipe: error: ...", naming the key, tool or path.
 from __future__ import annotations
 
 import contextlib
+import math
 import os
 import re
 import signal
@@ -361,15 +362,18 @@ def load_target(target: str):
 
 # Numbers on the command line are spelled as in a config: plain decimal digits (no `_`,
 # `0x`, exponent or sign), at most 20 of them before and after the point.
+MAX_SEEDS = 1000  # seeds 1..N of every candidate measured: more is a typo, not a soak
 PLAIN_INT = re.compile(r"(0|[1-9][0-9]{0,19})\Z")
 PLAIN_NUMBER = re.compile(r"(0|[1-9][0-9]{0,19})(\.[0-9]{1,20})?\Z")
 
 
-def _option_number(option: str, text: str, kind, low: float, allowed: str):
-    """Parse a numeric option into `kind` (int or float) above `low`, or a one-line UserError."""
+def _option_number(option: str, text: str, kind, low: float, allowed: str,
+                   high: float = math.inf):
+    """Parse a numeric option into `kind` (int or float) above `low` and at most `high`, or a
+    one-line UserError."""
     pattern = PLAIN_INT if kind is int else PLAIN_NUMBER
     value = kind(text) if isinstance(text, str) and pattern.match(text) else None
-    if value is None or not value > low:
+    if value is None or not low < value <= high:
         raise UserError(f"{option}: value {text!r} is not allowed; expected {allowed}, "
                         "written in plain decimal digits")
     return value
@@ -439,7 +443,8 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
                         f"--cells {','.join(styles or ())}; expected a prefix style in --cells "
                         "for the levels and blocks modes, or the slices mode")
     n_jobs = _option_number("--jobs", jobs, int, 0, "an integer of 1 or more")
-    n_seeds = _option_number("--seeds", seeds, int, 0, "an integer of 1 or more")
+    n_seeds = _option_number("--seeds", seeds, int, 0, f"an integer from 1 to {MAX_SEEDS}",
+                             MAX_SEEDS)
     if tool_kind not in TOOLS:
         raise UserError(f"--tools: value {tool_kind!r} is not allowed; expected wheel or "
                         "system")
