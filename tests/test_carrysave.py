@@ -12,7 +12,7 @@ import random
 
 import pytest
 
-from carrypipe import config, dots, emit, reduction, treeproof
+from carrypipe import config, dots, emit, reduction, treeproof, units
 from carrypipe.config import ConfigError
 from conftest import make, needs_icarus, simulate
 
@@ -44,7 +44,7 @@ def keys_for(unit: str, width: int, tree: str, mode: str, turn: int) -> dict:
         keys.pop("tree_levels_per_stage", None)
         keys["native_stages"] = 1 + turn % 3
         return keys
-    span = reduction.tree_of(config.from_mapping({"name": "t", **keys})).rows.adder_width
+    span = units.KINDS[unit].adder_width(config.from_mapping({"name": "t", **keys}))
     if mode != "slices":
         keys.update(pipeline=mode, cell=("kogge-stone", "brent-kung", "sklansky")[turn % 3])
         if mode == "blocks":

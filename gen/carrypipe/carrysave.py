@@ -80,35 +80,45 @@ def _bit_of(src: Expr, width: int, signed: bool, j: int) -> Expr | None:
 
 
 def _leaves(plan, f: Frame) -> dict[int, Expr]:
-    """Stage 0's section and the expression of every leaf of the matrix."""
-    c, tree = plan.config, plan.tree
+    """Stage 0's section and the expression of every leaf of the matrix (by the matrix's
+    family: operand bits, AND products or Booth rows)."""
+    f.b.section(*header.tree_title(plan, plan.stages[0]))
+    leaves = [v for v in plan.tree.values if v.kind == "leaf"]
+    return LEAVES[plan.tree.matrix.family](plan.config, f, leaves)
+
+
+def _operand_bits(c, f: Frame, leaves) -> dict[int, Expr]:
+    """A sum's leaves: the operands' bits (the sign bits inverted, their constant in K)."""
+    expr = {}
+    for v in leaves:
+        name, j = v.leaf.args
+        e = bit(f.src[name], j)
+        expr[v.index] = ~e if v.leaf.invert else e
+    return expr
+
+
+def _and_rows(c, f: Frame, leaves) -> dict[int, Expr]:
+    """The AND array: row j is a & b_j, one wire `pp<j>` per row (Baugh-Wooley inversions)."""
+    a_src, b_src = f.src["a"], f.src["b"]
+    rows: dict[int, dict[int, Expr]] = {}
+    for v in leaves:
+        i, j = v.leaf.args
+        e = bit(a_src, i) & bit(b_src, j)
+        rows.setdefault(j, {})[v.column] = ~e if v.leaf.invert else e
+    wires = {j: f.b.wire_runs(f"pp{j}", bits) for j, bits in sorted(rows.items())}
+    return {v.index: wires[v.leaf.args[1]][v.column] for v in leaves}
+
+
+def _booth_rows(c, f: Frame, leaves) -> dict[int, Expr]:
+    """Radix-4 Booth: the digit selects of every row, then the rows and their negate bits."""
     b = f.b
-    b.section(*header.tree_title(plan, plan.stages[0]))
     expr: dict[int, Expr] = {}
-    leaves = [v for v in tree.values if v.kind == "leaf"]
-    if c.unit == "sum":
-        for v in leaves:
-            name, j = v.leaf.args
-            e = bit(f.src[name], j)
-            expr[v.index] = ~e if v.leaf.invert else e
-        return expr
     m, n = c.width, c.width_b
     a_src, b_src = f.src["a"], f.src["b"]
 
     def a(i):
         return _bit_of(a_src, m, c.signed, i)
 
-    if c.partial_products == "and":
-        rows: dict[int, dict[int, Expr]] = {}
-        for v in leaves:
-            i, j = v.leaf.args
-            e = bit(a_src, i) & bit(b_src, j)
-            rows.setdefault(j, {})[v.column] = ~e if v.leaf.invert else e
-        wires = {j: b.wire_runs(f"pp{j}", bits) for j, bits in sorted(rows.items())}
-        for v in leaves:
-            expr[v.index] = wires[v.leaf.args[1]][v.column]
-        return expr
-    # Radix-4 Booth: the digit selects of every row, then the rows.
     used = sorted({v.leaf.args[0] for v in leaves})
     selects: dict[str, dict[int, Expr]] = {"one": {}, "two": {}, "neg": {}}
     for k in used:
@@ -149,6 +159,9 @@ def _leaves(plan, f: Frame) -> dict[int, Expr]:
         k = v.leaf.args[0]
         expr[v.index] = carry[k] if v.leaf.op == "booth_carry" else wires[k][v.column]
     return expr
+
+
+LEAVES = {"operands": _operand_bits, "and": _and_rows, "booth4": _booth_rows}
 
 
 def _dot(expr: dict[int, Expr], d: Dot) -> Expr:
@@ -280,10 +293,8 @@ def build_native(plan) -> Netlist:
             return src
         return cat(src, Rep(bit(src, w - 1), width - w) if width - w > 1 else bit(src, w - 1))
 
-    if c.unit == "sum":
-        value = Arith("+", tuple(ext(f"x{i}", c.width) for i in range(c.operands)), width)
-    else:
-        value = Arith("*", (ext("a", c.width), ext("b", c.width_b)), width)
+    value = Arith(plan.unit.operator,
+                  tuple(ext(p.name, p.width) for p in plan.unit.operand_ports(c)), width)
     for s in plan.stages:
         b.section(*header.stage_title(plan, s))
         reg = f.reg(f"{plan.unit.result}_stage_{s.index}")

@@ -57,7 +57,7 @@ class Matrix:
     leaves: tuple[Leaf, ...]
     constant: int  # K, 0 <= K < 2^N
     rows: tuple[tuple[int, int], ...]  # (first column, bits) of every partial-product row
-    booth_rows: int = 0  # radix-4 digits (rows of Booth selections), 0 for other matrices
+    family: str  # what the leaves are: "operands" (input bits), "and" or "booth4" products
 
     def heights(self) -> list[int]:
         out = [0] * self.width
@@ -121,7 +121,7 @@ def sum_matrix(operands: int, w: int, signed: bool) -> Matrix:
               for i in range(operands) for j in range(w)]
     constant = -operands * (1 << (w - 1)) if signed else 0
     return Matrix(width, _by_column(leaves), constant % (1 << width),
-                  tuple((0, w) for _ in range(operands)))
+                  tuple((0, w) for _ in range(operands)), "operands")
 
 
 def and_matrix(m: int, n: int, signed: bool) -> Matrix:
@@ -134,7 +134,7 @@ def and_matrix(m: int, n: int, signed: bool) -> Matrix:
             leaves.append(Leaf(i + j, "and", (i, j), mixed))
     constant = ((1 << (m - 1)) + (1 << (n - 1)) + (1 << (width - 1))) if signed else 0
     return Matrix(width, _by_column(leaves), constant % (1 << width),
-                  tuple((j, m) for j in range(n)))
+                  tuple((j, m) for j in range(n)), "and")
 
 
 def _constant(leaf: Leaf, m: int, n: int, signed: bool) -> int | None:
@@ -185,19 +185,10 @@ def booth_matrix(m: int, n: int, signed: bool) -> Matrix:
             kept.append(leaf)
         else:
             constant += fixed << leaf.column
-    return Matrix(width, _by_column(kept), constant % (1 << width), tuple(shape), rows)
+    return Matrix(width, _by_column(kept), constant % (1 << width), tuple(shape), "booth4")
 
 
 def _by_column(leaves: list[Leaf]) -> tuple[Leaf, ...]:
     """Leaves sorted by column, keeping their order (row by row) inside a column."""
     return tuple(sorted(leaves, key=lambda leaf: leaf.column))
 
-
-def matrix_of(config) -> Matrix:
-    """The matrix of a `sum` or `multiplier` config."""
-    if config.unit == "sum":
-        return sum_matrix(config.operands, config.width, config.signed)
-    m, n = config.width, config.width_b
-    if config.partial_products == "booth4":
-        return booth_matrix(m, n, config.signed)
-    return and_matrix(m, n, config.signed)

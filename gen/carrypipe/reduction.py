@@ -188,20 +188,19 @@ class Rows:
 
 
 @lru_cache(maxsize=64)
-def tree(unit: str, width: int, width_b: int, operands: int, signed: bool,
-         partial_products: str, style: str, levels_per_stage: int) -> Tree:
-    """The tree of a carry-save unit (cached: config checks and plans ask alike)."""
-    if unit == "sum":
-        return reduce(dm.sum_matrix(operands, width, signed), style, levels_per_stage, False)
-    make = dm.booth_matrix if partial_products == "booth4" else dm.and_matrix
-    return reduce(make(width, width_b, signed), style, levels_per_stage, True)
+def tree(kind, width: int, width_b: int, operands: int, signed: bool, partial_products: str,
+         style: str, levels_per_stage: int) -> Tree:
+    """The tree of a carry-save unit of `kind` (a `units.CarrySave`, which gives its dot
+    matrix); cached: config checks and plans ask alike."""
+    matrix = kind.matrix(width, width_b, operands, signed, partial_products)
+    return reduce(matrix, style, levels_per_stage, matrix.family != "operands")
 
 
-def tree_of(c) -> Tree:
-    """The tree of a config (or a config's values as a dict)."""
+def tree_of(kind, c) -> Tree:
+    """The tree of a config (or a config's values as a dict) of `kind`."""
     get = c.get if isinstance(c, dict) else lambda k: getattr(c, k)
-    return tree(get("unit"), get("width"), get("width_b") or get("width"),
-                get("operands") or 0, get("signed"), get("partial_products"), get("tree"),
+    return tree(kind, get("width"), get("width_b") or get("width"), get("operands") or 0,
+                get("signed"), get("partial_products"), get("tree"),
                 get("tree_levels_per_stage"))
 
 

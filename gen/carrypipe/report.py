@@ -229,10 +229,7 @@ def _(plan: TreePlan, mark=None) -> list[str]:
     c, t, r = plan.config, plan.tree, plan.rows
     mark = _marks(plan)
     heights = t.matrix.heights()
-    what = (f"{c.operands} operands of {c.width} bits" if c.unit == "sum" else
-            f"the {c.width} x {c.width_b} {'Booth radix-4' if c.partial_products == 'booth4' else 'AND'}"
-            f" array{' (Baugh-Wooley)' if c.signed and c.partial_products == 'and' else ''}")
-    lines = [f"Tree      {c.tree.capitalize()} over {what}: {len(t.matrix.leaves)} dots, "
+    lines = [f"Tree      {c.tree.capitalize()} over {plan.unit.tree_phrase(c)}: {len(t.matrix.leaves)} dots, "
              f"height {max(heights)}; {plural(plan.counter_levels, 'counter level')}, "
              f"{counters_phrase(t.fa(), t.ha())}",
              "",
@@ -385,7 +382,7 @@ def _(plan: TreePlan) -> list[str]:
         if c.tree_levels_per_stage > 1:
             out += _tip("fewer `tree_levels_per_stage` (1 puts a register rank after every "
                         "counter level);")
-        if c.unit == "multiplier" and c.partial_products == "booth4":
+        if c.partial_products == "booth4":  # a sum's is always "and"
             out += _tip("`partial_products: and` forms each partial product with one AND "
                         "(Booth's selection is deeper);")
     if plan.adder is not None and any(s.index in slow for s in plan.adder_stages):

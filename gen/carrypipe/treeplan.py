@@ -172,7 +172,7 @@ class TreePlan(Plan):
     def label(self) -> str:
         c = self.config
         per = f"/{c.tree_levels_per_stage}"
-        pp = " booth4" if c.unit == "multiplier" and c.partial_products == "booth4" else ""
+        pp = " booth4" if c.partial_products == "booth4" else ""  # a sum's is always "and"
         return f"{c.tree}{per}{pp} + " + (self.adder.label() if self.adder else "none")
 
 
@@ -205,8 +205,7 @@ class NativePlan(Plan):
         return carrysave.build_native(self)
 
     def structure(self) -> str:
-        op = "+" if self.config.unit == "sum" else "*"
-        return (f"`{op}` left to synthesis, then {len(self.stages)} register rank(s) for the "
+        return (f"`{self.unit.operator}` left to synthesis, then {len(self.stages)} register rank(s) for the "
                 "tools to retime into")
 
     def layout(self) -> str:
@@ -259,11 +258,11 @@ def make_tree_plan(config: Config) -> Plan:
     width = kind.result_width(config)
     if config.tree == "native":
         stages = tuple(TreeStage(i, 0, width, "native", (), 0, 0, 0,
-                                 f"`{'+' if config.unit == 'sum' else '*'}` of the operands"
+                                 f"`{kind.operator}` of the operands"
                                  if i == 0 else "register rank to retime into")
                        for i in range(config.native_stages))
         return NativePlan(config=config, stages=stages)
-    tree = reduction.tree_of(config)
+    tree = kind.counter_tree(config)
     stages = []
     for s in range(1, tree.stages + 1):
         levels = tree.stage_levels(s)

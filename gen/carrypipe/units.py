@@ -17,6 +17,7 @@ import random
 from dataclasses import dataclass
 
 from . import cells, reduction
+from . import dots as dm
 from .miter import chained, signed_overflow
 from .netlist import Cmp, Const, Expr, Mux, Rep, bit, cat, part
 
@@ -599,10 +600,24 @@ class CarrySave(Kind):
 
     tree = True
     verb = "adds"
+    operator = "+"  # the Verilog operator of `tree: native`
 
     def adder_width(self, values) -> int:
         """The final adder's width for a config (or its values): what `slices` sums to."""
-        return reduction.tree_of(values).rows.adder_width
+        return self.counter_tree(values).rows.adder_width
+
+    def counter_tree(self, values) -> reduction.Tree:
+        """The counter tree of a config (or its values)."""
+        return reduction.tree_of(self, values)
+
+    def matrix(self, width: int, width_b: int, operands: int, signed: bool,
+               partial_products: str) -> dm.Matrix:
+        """The dot matrix the tree reduces (whose sum and constant are the result)."""
+        raise NotImplementedError
+
+    def tree_phrase(self, c) -> str:
+        """What the tree reduces, for the report ("8 operands of 32 bits")."""
+        raise NotImplementedError
 
     def result_width(self, c) -> int:
         raise NotImplementedError
@@ -675,6 +690,12 @@ class Sum(CarrySave):
         return {f"x{i}": rng.choice(picks) if rng.random() < 0.15 else rng.getrandbits(w)
                 for i in range(c.operands)}
 
+    def matrix(self, width, width_b, operands, signed, partial_products):
+        return dm.sum_matrix(operands, width, signed)
+
+    def tree_phrase(self, c):
+        return f"{c.operands} operands of {c.width} bits"
+
     def phrase(self, c):
         how = "signed " if c.signed else ""
         return (f"{how}sum of {c.operands} {c.width}-bit operands, sum = x0 + ... + "
@@ -687,6 +708,7 @@ class Multiplier(CarrySave):
     name = "multiplier"
     refused = ("carry_in", "carry_out", "operands")
     result = "product"
+    operator = "*"
     max_width = 256
 
     def operand_ports(self, c):
@@ -729,6 +751,15 @@ class Multiplier(CarrySave):
                 return rng.choice((0, (1 << w) - 1, 1 << (w - 1), 1))
             return rng.getrandbits(w)
         return {"a": pick(c.width), "b": pick(c.width_b)}
+
+    def matrix(self, width, width_b, operands, signed, partial_products):
+        make = dm.booth_matrix if partial_products == "booth4" else dm.and_matrix
+        return make(width, width_b, signed)
+
+    def tree_phrase(self, c):
+        booth = c.partial_products == "booth4"
+        mixed = " (Baugh-Wooley)" if c.signed and not booth else ""
+        return f"the {c.width} x {c.width_b} {'Booth radix-4' if booth else 'AND'} array{mixed}"
 
     def phrase(self, c):
         how = "signed " if c.signed else ""
