@@ -10,7 +10,7 @@ from pathlib import Path
 
 import pytest
 
-from carrypipe import cells, config, report
+from carrypipe import config, report
 from carrypipe.plan import make_plan
 from conftest import make
 
@@ -153,7 +153,8 @@ def test_a_prefix_cell_is_offered_only_where_it_shortens_the_path(width, offered
     if offered:
         fastest = tips(plan).split("a prefix cell (", 1)[1].split(",")[0]
         slow = plan.slowest[0]
-        assert cells.STYLES[fastest].delay(slow.width, True, True) < slow.delay
+        assert plan.unit.slice_delay(plan.config, fastest, slow.width, slow.index == 0,
+                                     slow.index == len(plan.stages) - 1) < slow.delay
 
 
 @pytest.mark.parametrize("plan", PLANS, ids=[p.label() + f" #{i}" for i, p in enumerate(PLANS)])

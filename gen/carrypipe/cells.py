@@ -31,10 +31,6 @@ class Style:
     def carry_network(self, width: int) -> prefix.Network:
         return prefix.network(self.network, width)
 
-    def delay(self, width: int, carry_in: bool, carry_out: bool) -> int:
-        """Unit-gate delay of one slice of this style (see `prefix.critical_path`)."""
-        return prefix.critical_path(self.carry_network(width), carry_in, carry_out)
-
 
 STYLES = {s.name: s for s in (
     Style("ripple", "gates", "serial"),

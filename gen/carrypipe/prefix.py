@@ -171,18 +171,29 @@ class Gates:
 UNIT_GATES = Gates()
 
 
-def critical_path(net: Network, carry_in: bool, carry_out: bool, gates: Gates = UNIT_GATES) -> int:
-    """Unit-gate delay from registered operands (and carry-in) to the last sum or carry bit.
+@dataclass(frozen=True)
+class Arrival:
+    """Unit-gate arrival times at the outputs of an adder: each sum bit and the carry out."""
 
-    p_i = a_i ^ b_i, g_i = a_i & b_i; a carry-in is folded into bit 0 (g_0 | p_0 & c); then
-    the network; then s_i = p_i ^ G_(i-1).  Evaluated node by node, not by formula.
+    sums: tuple[int, ...]
+    carry: int
+
+
+def arrivals(net: Network, carry_in: bool, entry: int = 0, gates: Gates = UNIT_GATES,
+             carry_one: bool = False) -> Arrival:
+    """Arrival of every sum bit and of the carry out, from operands that arrive at `entry`
+    (the gates a unit kind puts in front of the adder) and a carry-in at 0.
+
+    p_i = a_i ^ b_i, g_i = a_i & b_i; a carry-in is folded into bit 0 (g_0 | p_0 & c, or
+    g_0 | p_0 when it is the constant 1, `carry_one`); then the network; then
+    s_i = p_i ^ G_(i-1).  Evaluated node by node, not by formula.
     """
     n = net.width
-    t_p = [gates.xor] * n
-    t_g = [gates.and_or] * n
+    t_p = [entry + gates.xor] * n
+    t_g = [entry + gates.and_or] * n
     t_pp = list(t_p)  # arrival of the group propagate held at each bit
     if carry_in:
-        t_g[0] = max(t_g[0], t_p[0] + gates.and_or) + gates.and_or
+        t_g[0] = max(t_g[0], t_p[0] + (0 if carry_one else gates.and_or)) + gates.and_or
     for level in net.levels:
         new_g, new_p = list(t_g), list(t_pp)
         for i, j in level:
@@ -191,4 +202,10 @@ def critical_path(net: Network, carry_in: bool, carry_out: bool, gates: Gates = 
         t_g, t_pp = new_g, new_p
     sums = [t_p[0] + gates.xor if carry_in else t_p[0]]
     sums += [max(t_p[i], t_g[i - 1]) + gates.xor for i in range(1, n)]
-    return max(sums + ([t_g[n - 1]] if carry_out else []))
+    return Arrival(tuple(sums), t_g[n - 1])
+
+
+def critical_path(net: Network, carry_in: bool, carry_out: bool, gates: Gates = UNIT_GATES) -> int:
+    """Unit-gate delay from registered operands (and carry-in) to the last sum or carry bit."""
+    a = arrivals(net, carry_in, gates=gates)
+    return max(a.sums + ((a.carry,) if carry_out else ()))

@@ -53,7 +53,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from . import prefix, units
+from . import cells, prefix, units
 from .config import Config, prefix_positions
 
 # Register kind of each term kind (see `Plan.registers`).
@@ -386,7 +386,7 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
     for t in terms:
         if t.index in last:
             inner = [arrival[a] for a in t.args if terms[a].stage == t.stage]
-            arrival[t.index] = max(inner, default=0) + _op_delay(t, widths, has_cin, kind)
+            arrival[t.index] = max(inner, default=0) + _op_delay(t, widths, has_cin, kind, config.cell)
     stages = []
     formed = {t.stage for t in terms if t.index in last and t.op != "wire"}
     for s_ in range(1, final + 1):
@@ -426,16 +426,21 @@ def _flat(values):
             yield v
 
 
-def _op_delay(t: Term, widths, cin: bool, kind) -> int:
-    """Unit-gate delay of forming `t` from its arguments (a carry chain as a ripple adder)."""
-    if t.op.startswith(("chain", "cmp")):
-        with_carry = t.op.startswith(("chain1", "cmp1")) or (cin and t.pos == 0)
+def _op_delay(t: Term, widths, cin: bool, kind, cell: str) -> int:
+    """Unit-gate delay of forming `t` from its arguments (a block's carry chain as a ripple
+    adder; a comparator's slice as its cell's borrow network)."""
+    if t.op.startswith("cmp"):
+        net = cells.STYLES[cell].carry_network(widths[t.pos])
+        one = t.op.startswith("cmp1")  # a borrow-in of 1: a <= b
+        return prefix.arrivals(net, one, carry_one=one).carry
+    if t.op.startswith("chain"):
+        with_carry = t.op.startswith("chain1") or (cin and t.pos == 0)
         chain = prefix.network("serial", widths[t.pos])
         return prefix.critical_path(chain, with_carry, not t.op.endswith("sum"))
     if t.op == "sum" and len(t.args) == 1:  # a difference bit 0: the complement, free
         return 0
-    if t.op in ("prop", "gen") and kind.travellers:  # the operand passes an XOR first
-        return OP_DELAY[t.op] + _G.xor
+    if t.op in ("prop", "gen"):  # behind the gates the kind puts in front (the sub XOR)
+        return OP_DELAY[t.op] + kind.entry_delay
     return OP_DELAY[t.op]
 
 

@@ -16,7 +16,7 @@ from __future__ import annotations
 import random
 from dataclasses import dataclass
 
-from . import cells, reduction
+from . import cells, prefix, reduction
 from . import dots as dm
 from .miter import chained, signed_overflow
 from .netlist import Cmp, Const, Expr, Mux, Rep, bit, cat, part
@@ -169,6 +169,22 @@ class Kind:
         """What one slice registers: (register families, value) pairs (see `slices.py`)."""
         raise NotImplementedError
 
+    entry_delay = 0  # unit gates in front of the adder's generate/propagate
+
+    def slice_delay(self, c, cell: str, width: int, first: bool, top: bool) -> int:
+        """Unit-gate delay of one slice, register to register: its adder's network from
+        operands `entry_delay` late, to the latest output the slice registers."""
+        carry_in = not first or self.has_carry_in(c)
+        carry_out = not top or self.has_carry_out(c)
+        arr = prefix.arrivals(cells.STYLES[cell].carry_network(width), carry_in,
+                              self.entry_delay)
+        return max(self.slice_outputs(c, arr, width, first, top, carry_out))
+
+    def slice_outputs(self, c, arr: prefix.Arrival, width: int, first: bool, top: bool,
+                      carry_out: bool) -> list[int]:
+        """Arrival of every output a slice registers, from its adder's arrivals."""
+        return list(arr.sums) + ([arr.carry] if carry_out else [])
+
     # ---- words ----
     def phrase(self, c) -> str:
         raise NotImplementedError
@@ -219,6 +235,14 @@ class Arithmetic(Kind):
             loads.append((("overflow",), self.overflow(bit(x, w - 1), bit(y, w - 1),
                                                       t[lsb + w - 1])))
         return loads
+
+    def slice_outputs(self, c, arr, width, first, top, carry_out):
+        g = prefix.UNIT_GATES
+        flip = g.xor if top and self.transforms_carry_out else 0  # cout = chain ^ sub
+        out = list(arr.sums) + ([arr.carry + flip] if carry_out else [])
+        if top and c.signed:  # overflow: same sign & (s ^ x) on the top bits
+            out.append(arr.sums[-1] + g.xor + g.and_or)
+        return out
 
     def carry_in_port(self, c):
         return self.chain_port[0] if c.carry_in else None
@@ -365,6 +389,7 @@ class AddSub(Arithmetic):
         return bool(inputs["sub"])
 
     transforms_carry_out = True
+    entry_delay = prefix.UNIT_GATES.xor  # b ^ sub
 
     def has_carry_in(self, c):
         return True  # sub is the carry into the two's-complement negation
@@ -426,6 +451,13 @@ class Comparator(Kind):
     def has_carry_out(self, c):
         return True  # the top slice's borrow is lt
 
+    def slice_outputs(self, c, arr, width, first, top, carry_out):
+        g = prefix.UNIT_GATES
+        # eq: the bits' XNORs, an AND tree over them, and the slice below's eq
+        eq = g.xor + (width - 1).bit_length() * g.and_or + (0 if first else g.and_or)
+        lt = arr.carry
+        return [lt, eq] + ([max(lt, eq) + g.and_or] if top else [])  # gt = ~(lt | eq)
+
     def output_families(self, c):
         return {"lt": "lt", "eq": "eq", "gt": "gt"}
 
@@ -479,6 +511,7 @@ class Accumulator(Kind):
     refused = ("carry_in", "signed")
     operands = ("x",)
     travellers = ("clear",)
+    entry_delay = prefix.UNIT_GATES.and_or  # clear ? 0 : acc, one AND in front of the total
     result = "acc"
     chain = ("carry",)
 
@@ -533,6 +566,11 @@ class Accumulator(Kind):
         if "valid" in ctx.flags:  # an invalid input changes nothing
             value = Mux(ctx.flags["valid"], value, cat(*(ctx.state[f].all for f in families)))
         return [(families, value)]
+
+    def slice_outputs(self, c, arr, width, first, top, carry_out):
+        out = super().slice_outputs(c, arr, width, first, top, carry_out)
+        mux = 2 * prefix.UNIT_GATES.and_or if c.valid else 0  # valid ? new : held
+        return [t + mux for t in out]
 
     def directed(self, c):
         w = c.width
