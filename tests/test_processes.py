@@ -10,7 +10,6 @@ practice of POSIX shells).
 from __future__ import annotations
 
 import os
-import shutil
 import signal
 import subprocess
 import sys
@@ -18,6 +17,8 @@ import time
 from pathlib import Path
 
 import pytest
+
+from carrypipe.tools import which
 
 GEN = str(Path(__file__).resolve().parent.parent / "gen")
 
@@ -129,7 +130,7 @@ def test_a_signal_ends_the_simulator_and_all_it_started(tmp_path, slow_icarus, h
     assert orphans(proc.pid) == []
 
 
-@pytest.mark.skipif(not shutil.which("verilator"), reason="verilator is not installed")
+@pytest.mark.skipif(not which("verilator"), reason="verilator is not installed")
 def test_verilator_is_ended_while_it_compiles(tmp_path):
     # Verilator runs make, which runs the C++ compiler: 2 s in, it is still compiling (this
     # unit takes about 14 s to compile and run here).

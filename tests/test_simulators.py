@@ -2,7 +2,6 @@
 `carrypipe check --sim verilator` works.  Expected values come from Python integers
 (vectors.expected); a planted fault must make every simulator print FAIL."""
 
-import shutil
 import subprocess
 
 import pytest
@@ -13,6 +12,7 @@ from carrypipe.cli import main
 from carrypipe.config import from_mapping
 from carrypipe.plan import make_plan
 from carrypipe.vectors import suite
+from carrypipe.tools import which
 from mutants import drop_first_carry
 
 CONFIGS = {
@@ -26,8 +26,8 @@ CONFIGS = {
     "accumulator": dict(unit="accumulator", width=10, slice_width=5, valid=True),
 }
 
-icarus = pytest.mark.skipif(not shutil.which("iverilog"), reason="iverilog is not installed")
-verilator = pytest.mark.skipif(not shutil.which("verilator"), reason="verilator is not installed")
+icarus = pytest.mark.skipif(not which("iverilog"), reason="iverilog is not installed")
+verilator = pytest.mark.skipif(not which("verilator"), reason="verilator is not installed")
 
 
 def _emit(tmp_path, keys, fault=False):

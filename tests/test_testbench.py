@@ -5,17 +5,17 @@ entries read as 0, not X: every entry carries its own number, so they are caught
 
 from __future__ import annotations
 
-import shutil
 import subprocess
 
 import pytest
 
 from carrypipe import emit
+from carrypipe.tools import which
 from conftest import make
 
-icarus = pytest.mark.skipif(not (shutil.which("iverilog") and shutil.which("vvp")),
+icarus = pytest.mark.skipif(not (which("iverilog") and which("vvp")),
                             reason="Icarus Verilog is not installed")
-verilator = pytest.mark.skipif(not shutil.which("verilator"),
+verilator = pytest.mark.skipif(not which("verilator"),
                                reason="Verilator is not installed")
 COUNT = 60
 
