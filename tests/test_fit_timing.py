@@ -49,3 +49,22 @@ def test_utilisation_and_no_fit_from_the_log():
 def test_report_without_one_clock_is_an_error():
     with pytest.raises(timing.ReportError, match=r"^expected one clock in the nextpnr report"):
         timing.place_report('{"fmax": {}}', devices.ICE40)
+
+
+@pytest.mark.parametrize("report", ['{"fmax": {}, "critical_paths": [], "utilization": {}}',
+                                    '{"fmax": {"clk": ', ""])
+def test_a_report_without_a_clock_is_an_error_row(report, tmp_path, monkeypatch):
+    # nextpnr-himbaechel-gowin 0.11 wrote `"fmax": {}` for a `*` mapped to MULT9X9 (seen
+    # 2026-12-03): the candidate is an error row, and the search goes on, not a traceback.
+    from types import SimpleNamespace
+
+    from carrypipe import toolflow
+
+    def fake_run(argv, cwd, timeout):
+        (cwd / "report_1.json").write_text(report)
+        return SimpleNamespace(returncode=0, stdout="", stderr="")
+    monkeypatch.setattr(toolflow.tools, "run", fake_run)
+    m = toolflow._place("nextpnr", CAPTURED, devices.get("gowin-gw1n9"), 1, tmp_path, None,
+                        dict(luts=1, carry=0, flip_flops=1))
+    assert (m.status, m.seed, m.mhz) == ("error", 1, None)
+    assert m.message.startswith("nextpnr's report: ")

@@ -199,7 +199,10 @@ def _place(pnr, plan, device, seed, work, timeout, unit) -> Measurement:
             return Measurement(seed, "no-fit", message=full + size,
                                logic_used=use[0] if use else None, **unit)
         return Measurement(seed, "error", message="nextpnr failed: " + _tail(log), **unit)
-    rep = timing.place_report((work / f"report_{seed}.json").read_text(), device.family)
+    try:
+        rep = timing.place_report((work / f"report_{seed}.json").read_text(), device.family)
+    except (OSError, ValueError, timing.ReportError) as exc:  # ValueError: not JSON
+        return Measurement(seed, "error", message=f"nextpnr's report: {exc}", **unit)
     path = rep.path
     return Measurement(seed, "ok", mhz=round(rep.mhz, 2), logic_used=rep.logic_used,
                        start=path.start if path else "", end=path.end if path else "",
