@@ -183,6 +183,18 @@ def test_prove_depth_must_exceed_the_latency(write_config, tmp_path):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["unit.yaml"]
 
 
+@pytest.mark.parametrize("command", ["check", "prove"])
+@pytest.mark.parametrize("value", ["nan", "inf", "0", "-1", "1e3", "123456789012345678901"])
+def test_timeout_is_seconds_above_0_in_every_command(write_config, command, value):
+    # The same rule as fit's --timeout (nan and inf crashed prove, and check took them).
+    r = run(command, write_config(DEMO), "--timeout", value)
+    assert r.exit_code == 2
+    long = " (at most 20 digits before the point and 20 after it)" if len(value) > 20 else ""
+    assert r.output.splitlines() == [
+        f"carrypipe: error: --timeout: value '{value}' is not allowed; expected a number of "
+        f"seconds above 0, written in plain decimal digits{long}"]
+
+
 @pytest.mark.parametrize("command", ["build", "plan"])
 def test_a_reader_that_leaves_early_changes_nothing(tmp_path, command):
     # `carrypipe build ... | head -1`: the reader closes the pipe before the output ends.

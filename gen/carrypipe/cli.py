@@ -52,6 +52,34 @@ class EnvironmentFault(_OneLineError):
 _SHOW_HELP = getattr(click.exceptions, "NoArgsIsHelpError", ())
 MAX_DEPTH = 1000  # cycles `prove --depth` may unroll
 
+# Numbers on the command line are spelled as in a config: plain decimal digits (no `_`,
+# `0x`, exponent or sign), at most 20 of them before and after the point.
+MAX_SEEDS = 1000  # seeds 1..N of every candidate measured: more is a typo, not a soak
+PLAIN_INT = re.compile(r"(0|[1-9][0-9]{0,19})\Z")
+PLAIN_NUMBER = re.compile(r"(0|[1-9][0-9]{0,19})(\.[0-9]{1,20})?\Z")
+
+
+def _option_number(option: str, text: str, kind, low: float, allowed: str,
+                   high: float = math.inf):
+    """Parse a numeric option into `kind` (int or float) above `low` and at most `high`, or a
+    one-line UserError."""
+    pattern = PLAIN_INT if kind is int else PLAIN_NUMBER
+    value = kind(text) if isinstance(text, str) and pattern.match(text) else None
+    if value is None or not low < value <= high:
+        long = value is None and re.fullmatch(r"[0-9]+(\.[0-9]+)?", str(text))
+        limit = (" (at most 20 digits" + (")" if kind is int else " before the point and 20 "
+                                          "after it)")) if long else ""
+        raise UserError(f"{option}: value {text!r} is not allowed; expected {allowed}, "
+                        f"written in plain decimal digits{limit}")
+    return value
+
+
+def _seconds(ctx, param, value):
+    """A `--timeout` value: seconds above 0 in plain decimal digits (nan and inf refused)."""
+    if value is None:
+        return None
+    return _option_number("--timeout", value, float, 0, "a number of seconds above 0")
+
 
 @contextlib.contextmanager
 def _one_line_usage():
@@ -253,7 +281,7 @@ def build(config, out_dir, vectors, seed):
 @seed_opt
 @click.option("--sim", "simulator", type=click.Choice(sim.SIMULATORS),
               help="Simulator [default: icarus when iverilog and vvp are found, else amaranth].")
-@click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
+@click.option("--timeout", metavar="S", callback=_seconds,
               help="Give up on an external simulator (compile and run) after this many "
                    "seconds.")
 def check(config, vectors, seed, simulator, timeout):
@@ -303,7 +331,7 @@ def plan_cmd(config, slice_width, slices, chart_path):
               help=f"Cycles to unroll: an integer above the unit's latency, at most "
                    f"{MAX_DEPTH}; results are compared from cycle latency+1 up to this one "
                    "[default: latency + 1, which already covers every later cycle].")
-@click.option("--timeout", type=click.FloatRange(min=0, min_open=True),
+@click.option("--timeout", metavar="S", callback=_seconds,
               help="Give up on the proof (every Yosys run and solver call) after this many "
                    "seconds in all.")
 @click.option("--method", type=click.Choice(PROOF_METHODS),
@@ -360,25 +388,6 @@ def load_target(target: str):
 
 # ---- fit (timing closure with synthesis and place-and-route; see docs/fit.md) ----
 
-# Numbers on the command line are spelled as in a config: plain decimal digits (no `_`,
-# `0x`, exponent or sign), at most 20 of them before and after the point.
-MAX_SEEDS = 1000  # seeds 1..N of every candidate measured: more is a typo, not a soak
-PLAIN_INT = re.compile(r"(0|[1-9][0-9]{0,19})\Z")
-PLAIN_NUMBER = re.compile(r"(0|[1-9][0-9]{0,19})(\.[0-9]{1,20})?\Z")
-
-
-def _option_number(option: str, text: str, kind, low: float, allowed: str,
-                   high: float = math.inf):
-    """Parse a numeric option into `kind` (int or float) above `low` and at most `high`, or a
-    one-line UserError."""
-    pattern = PLAIN_INT if kind is int else PLAIN_NUMBER
-    value = kind(text) if isinstance(text, str) and pattern.match(text) else None
-    if value is None or not low < value <= high:
-        raise UserError(f"{option}: value {text!r} is not allowed; expected {allowed}, "
-                        "written in plain decimal digits")
-    return value
-
-
 def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str, ...]:
     """A comma-separated option value as a tuple without repeats, each item in `allowed`."""
     items = tuple(dict.fromkeys(x.strip() for x in text.split(",")))
@@ -410,7 +419,8 @@ def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str,
 @click.option("--no-cache", is_flag=True, help="Run the tools again even for cached results.")
 @click.option("--tools", "tool_kind", default="wheel", show_default=True, metavar="wheel|system",
               help="yowasp-* pip wheels, or yosys and nextpnr-* from PATH.")
-@click.option("--timeout", metavar="S", help="Give up on one tool run after S seconds.")
+@click.option("--timeout", metavar="S", callback=_seconds,
+              help="Give up on one tool run after S seconds.")
 @click.option("--cluster", metavar="tcp://HOST:PORT",
               help="Run candidates on this Dask distributed scheduler instead of locally.")
 @click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False),
@@ -448,8 +458,6 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
     if tool_kind not in TOOLS:
         raise UserError(f"--tools: value {tool_kind!r} is not allowed; expected wheel or "
                         "system")
-    limit = None if timeout is None else _option_number("--timeout", timeout, float, 0,
-                                                        "a number of seconds above 0")
     if cluster is not None and not executor.CLUSTER_ADDRESS.match(cluster):
         raise UserError(f"--cluster: value {cluster!r} is not allowed; expected "
                         "tcp://HOST:PORT of a Dask scheduler")
@@ -457,7 +465,7 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
     with _writing(dest):
         output.probe_folder(dest, option)  # before the long run, not after it
     settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
-                                limit, not no_cache, chosen_modes, chosen_trees)
+                                timeout, not no_cache, chosen_modes, chosen_trees)
     runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)
     try:
         outcome = fitting.run(base, settings, runner, echo=lambda t: click.echo(t, err=True))
