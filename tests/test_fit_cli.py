@@ -2,6 +2,7 @@
 
 import os
 import re
+from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -118,6 +119,22 @@ def test_a_folder_that_cannot_be_written_fails_before_the_search(unit, monkeypat
     assert res.exit_code == 3
     assert res.output == ("carrypipe: error: cannot write the folder /proc/cp-fit/o: No such "
                           "file or directory\n")
+
+
+def test_an_existing_read_only_folder_fails_before_the_search(unit, tmp_path, monkeypatch):
+    # A folder from an earlier run, now read-only (or immutable: `chattr +i`, which stops
+    # root too): it could not be replaced at the end, so fit stops before measuring.
+    out = tmp_path / "o"
+    out.mkdir()
+    (out / ".carrypipe").write_text("")
+    real = os.access
+    monkeypatch.setattr(os, "access", lambda p, mode, **kw: False if Path(p) == out and
+                        mode & os.W_OK else real(p, mode, **kw))
+    monkeypatch.setattr(tools, "which", lambda name: None)  # a search would say "missing"
+    res = run(unit, "--target-mhz", "100", "--device", "ice40-hx8k", "-o", str(out))
+    assert res.exit_code == 3
+    assert res.output == f"carrypipe: error: cannot write the folder {out}: Permission denied\n"
+    assert sorted(p.name for p in out.iterdir()) == [".carrypipe"]
 
 
 def test_missing_system_tool(unit, tmp_path, monkeypatch):

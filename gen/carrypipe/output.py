@@ -78,9 +78,12 @@ def check_folder(out: str | Path, option: str = "-o") -> Path:
 
 def probe_folder(out: str | Path, option: str = "-o") -> Path:
     """`check_folder`, then a trial write: the missing folders above `out` and a temporary
-    folder beside it are made and removed again, so that a folder that cannot be written
-    fails (OSError) before a long run rather than after it."""
+    folder beside it are made and removed again, and an existing `out` must be writable
+    (read-only or immutable: it could not be replaced), so that a folder that cannot be
+    written fails (OSError) before a long run rather than after it."""
     target = check_folder(out, option)
+    if target.is_dir() and not os.access(target, os.W_OK):  # it is moved aside at the end
+        raise PermissionError(errno.EACCES, os.strerror(errno.EACCES), str(target))
     created = _make_parents(target.parent)
     try:
         os.rmdir(_fresh(target.parent, target.name, folder=True))
