@@ -197,6 +197,22 @@ def test_prove_refuses_a_folder_that_is_not_a_build(tmp_path):
                                   "carrypipe manifest (<name>.json) in the folder, found 0")
 
 
+@pytest.mark.parametrize("text, why", [("{not json", "not readable JSON"),
+                                       ("[]", "JSON, but not a carrypipe manifest"),
+                                       ('{"generator": 5}', "JSON, but not a carrypipe manifest")])
+def test_prove_names_a_damaged_manifest(tmp_path, text, why):
+    # The manifest is there but damaged: say so rather than "found 0" alone (and a
+    # `generator` that is not an object was a traceback).
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text("name: u\nwidth: 4\n")
+    assert CliRunner().invoke(main, ["build", str(cfg), "-o", str(tmp_path / "b")]).exit_code == 0
+    (tmp_path / "b" / "u.json").write_text(text)
+    res = CliRunner().invoke(main, ["prove", str(tmp_path / "b")])
+    assert res.exit_code == 2
+    assert res.output.strip() == (f"carrypipe: error: {tmp_path / 'b'}: expected one carrypipe "
+                                  f"manifest (<name>.json) in the folder, found 0 (u.json: {why})")
+
+
 def test_cli_exit_codes(tmp_path):
     cfg = tmp_path / "u.yaml"
     cfg.write_text("name: u\nwidth: 8\nslice_width: 4\n")

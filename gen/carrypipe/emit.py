@@ -54,18 +54,23 @@ def read_build(folder: Path):
     from .config import ConfigError, from_mapping
     from .plan import make_plan
 
-    manifests = []
+    manifests, others = [], []
     for path in sorted(folder.glob("*.json")):
         try:
             doc = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError, UnicodeDecodeError):
+        except (OSError, ValueError, UnicodeDecodeError):  # ValueError: not JSON
+            others.append(f"{path.name}: not readable JSON")
             continue
-        if isinstance(doc, dict) and doc.get("generator", {}).get("name") == "carrypipe" \
+        if isinstance(doc, dict) and isinstance(doc.get("generator"), dict) \
+                and doc["generator"].get("name") == "carrypipe" \
                 and "config" in doc and "module" in doc:
             manifests.append((path, doc))
+        else:
+            others.append(f"{path.name}: JSON, but not a carrypipe manifest")
     if len(manifests) != 1:
+        seen = f" ({'; '.join(others)})" if others and not manifests else ""
         raise BuildFolderError(f"{folder}: expected one carrypipe manifest (<name>.json) in "
-                               f"the folder, found {len(manifests)}")
+                               f"the folder, found {len(manifests)}{seen}")
     path, doc = manifests[0]
     try:
         plan = make_plan(from_mapping(doc["config"], where=path.name))
