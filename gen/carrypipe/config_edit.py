@@ -24,8 +24,9 @@ EDITED = ("pipeline", "cell", *SPLIT_KEYS, *PREFIX_KEYS, *TREE_KEYS)  # the keys
 
 def rewrite(text: str, chosen: Config, where: str = "config") -> str:
     """`text` (the user's config) with the structure keys of `chosen`."""
+    bom = "\ufeff" if text.startswith("\ufeff") else ""  # a byte-order mark stays in front
     try:
-        edited = _edit(text, chosen)
+        edited = bom + _edit(text[len(bom):], chosen)
     except _NoLineEdit:
         pass
     else:
