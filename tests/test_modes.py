@@ -172,6 +172,52 @@ def test_blocks_latency_counts_only_the_levels_used(blocks, cout):
     simulate(p, count=40)
 
 
+def _complete_after(cell: str, n: int) -> list[int]:
+    """The prefix level after which each position's group reaches position 0, walking the
+    network's levels (position 0 is complete at the start)."""
+    from carrypipe import prefix
+
+    low, done = list(range(n)), [0] + [None] * (n - 1)
+    for k, level in enumerate(prefix.network(cell, n).levels, 1):
+        reads = dict(level)  # node (i, j): position i takes in the group of position j
+        low = [low[reads[i]] if i in reads else low[i] for i in range(n)]
+        done = [k if d is None and low[i] == 0 else d for i, d in enumerate(done)]
+    return done
+
+
+@pytest.mark.parametrize("cell", PREFIX_CELLS)
+def test_blocks_latency_waits_for_every_carry_in(cell):
+    # docs/modes.md: L = 1 + max(ceil(d_c / n) + 1, ceil(d_B / n) with carry_out), d_c the
+    # level after which every block's carry-in (position q - 1, q = 1 ... B - 1) is complete.
+    for blocks, n, cout in itertools.product(range(2, 24), (1, 2, 3), (True, False)):
+        done = _complete_after(cell, blocks)
+        d_c, d_b = max(done[:-1]), max(done)
+        p = make(pipeline="blocks", cell=cell, width=3 * blocks, block_width=3,
+                 levels_per_stage=n, carry_out=cout)
+        assert p.latency == 1 + max(math.ceil(d_c / n) + 1, math.ceil(d_b / n) if cout else 0)
+
+
+@pytest.mark.parametrize("cell", PREFIX_CELLS)
+def test_carry_increment_keeps_the_latency_or_saves_a_cycle(cell):
+    # docs/modes.md: the network is unchanged; the sums may leave a cycle sooner.
+    seen = set()
+    for width, local, n in itertools.product(range(4, 40, 3), (2, 3, 4, 8), (1, 2)):
+        if local >= width:
+            continue
+        keys = dict(pipeline="levels", cell=cell, width=width, local_width=local,
+                    levels_per_stage=n)
+        plain, inc = make(**keys), make(**keys, carry_increment=True)
+        assert inc.schedule.network.depth == plain.schedule.network.depth
+        seen.add(plain.latency - inc.latency)
+    assert seen == {0, 1}
+    if cell == "kogge-stone":
+        assert make(pipeline="levels", cell=cell, width=8, local_width=4).latency == 4
+        shorter = make(pipeline="levels", cell=cell, width=8, local_width=4,
+                       carry_increment=True, valid=True)
+        assert shorter.latency == 3
+        simulate(shorter, count=60)  # against Python integers, at the shorter latency
+
+
 def test_register_count_by_hand():
     """A 4-bit Kogge-Stone levels unit, counted by hand from the network (nodes (1,0), (2,1),
     (3,2), then (2,0), (3,1)); the second level rides in the sum stage, so there are two
@@ -271,6 +317,20 @@ def test_local_network_depth(cell, n, local):
     within = {(i // local, j // local) for level in p.schedule.network.levels[:-1]
               for i, j in level if i % local != local - 1}
     assert all(a == b for a, b in within)  # only block tops reach across blocks, but the fill-in
+
+
+@pytest.mark.parametrize("cell", PREFIX_CELLS)
+def test_local_depth_rule_of_the_docs(cell):
+    # docs/modes.md: d(k) + d(ceil(W / k)) + 1, without the fill-in when W = k + 1.
+    from carrypipe import prefix
+
+    def d(n):
+        return prefix.network(cell, n).depth if n > 1 else 0
+    for width, local in itertools.product(range(3, 41), range(2, 40)):
+        if local < width:
+            p = make(pipeline="levels", cell=cell, width=width, local_width=local)
+            fill = 0 if width == local + 1 else 1
+            assert p.schedule.network.depth == d(local) + d(-(-width // local)) + fill
 
 
 # carry_increment: the units against Python integers (the adder kinds, carry-in, signed
