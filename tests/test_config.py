@@ -89,13 +89,14 @@ def test_missing_required_key():
 
 @pytest.mark.parametrize("text, message", [
     ("", r"unit.yaml: expected a mapping of keys to values, got empty\Z"),
+    ("---\n", r"unit.yaml: expected a mapping of keys to values, got empty\Z"),
     ("- 1\n- 2\n", r"unit.yaml: expected a mapping of keys to values, got list\Z"),
     ("name: [unclosed\n", r"unit.yaml: not valid YAML at line 2, column 1: "),
     ("a: &x [1]\nb: *x\n", r"unit.yaml: not valid YAML at line 1, column 4: anchors are not allowed\Z"),
     ("name: u\nwidth: *x\n", r"unit.yaml: not valid YAML at line 2, column 8: aliases are not allowed\Z"),
     ("name: u\nwidth: 32\ncell: ripple\nwidth: 16\n", r"unit.yaml: not valid YAML at line 4, "
      r"column 1: key 'width' is given twice \(first at line 2\); expected each key once\Z"),
-], ids=["empty", "list", "broken", "anchor", "alias", "repeated-key"])
+], ids=["empty", "empty-document", "list", "broken", "anchor", "alias", "repeated-key"])
 def test_bad_files(write_config, text, message):
     with pytest.raises(ConfigError, match="^" + message):
         load(write_config(text))

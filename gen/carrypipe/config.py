@@ -279,7 +279,7 @@ def check_split(where: str, key: str, value, width: int,
 def from_mapping(data, where: str = "config") -> Config:
     """Validate a parsed config mapping and return the normalized `Config`."""
     if not isinstance(data, dict):
-        kind = "empty" if data is None else type(data).__name__
+        kind = "empty" if data is None or data == "" else type(data).__name__  # "": `---` alone
         raise ConfigError(f"{where}: expected a mapping of keys to values, got {kind}")
     for key in data:
         if not isinstance(key, str) or key not in KEYS:
