@@ -104,6 +104,9 @@ CASES = [
          pipeline="levels", cell="sklansky"),
     dict(unit="multiplier", width=7, tree="wallace", partial_products="booth4", signed=True,
          cell="kogge-stone", slice_width=7),
+    # a signed sum whose final adder inverts its carry-out (an inverter: no delay)
+    dict(unit="sum", operands=3, width=1, signed=True, cell="kogge-stone"),
+    dict(unit="sum", operands=3, width=6, signed=True, cell="brent-kung", slice_width=4),
 ]
 
 

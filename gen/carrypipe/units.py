@@ -206,6 +206,7 @@ class Arithmetic(Kind):
 
     chain_port = ("cin", "cout")
     transforms_carry_out = False  # the carry-out port is not the chain bit itself
+    carry_out_gate = 0  # unit gates from the chain bit to the carry-out (an inverter: none)
 
     def has_carry_in(self, c):
         return c.carry_in
@@ -238,8 +239,8 @@ class Arithmetic(Kind):
 
     def slice_outputs(self, c, arr, width, first, top, carry_out):
         g = prefix.UNIT_GATES
-        flip = g.xor if top and self.transforms_carry_out else 0  # cout = chain ^ sub
-        out = list(arr.sums) + ([arr.carry + flip] if carry_out else [])
+        gate = self.carry_out_gate if top else 0
+        out = list(arr.sums) + ([arr.carry + gate] if carry_out else [])
         if top and c.signed:  # overflow: same sign & (s ^ x) on the top bits
             out.append(arr.sums[-1] + g.xor + g.and_or)
         return out
@@ -389,6 +390,7 @@ class AddSub(Arithmetic):
         return bool(inputs["sub"])
 
     transforms_carry_out = True
+    carry_out_gate = prefix.UNIT_GATES.xor  # cout = chain ^ sub
     entry_delay = prefix.UNIT_GATES.xor  # b ^ sub
 
     def has_carry_in(self, c):
@@ -607,8 +609,6 @@ class _AccumulatorModel(Model):
         if c.carry_out:
             out["cout"] = self.cout
         return out
-
-
 
 
 class FinalAdder(Plain):
