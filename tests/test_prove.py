@@ -6,6 +6,7 @@ the unit should have shown is recomputed here from the printed input vectors.
 
 import re
 import stat
+from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -211,6 +212,31 @@ def test_prove_names_a_damaged_manifest(tmp_path, text, why):
     assert res.exit_code == 2
     assert res.output.strip() == (f"carrypipe: error: {tmp_path / 'b'}: expected one carrypipe "
                                   f"manifest (<name>.json) in the folder, found 0 (u.json: {why})")
+
+
+def test_prove_reads_no_fifo_in_a_build_folder(tmp_path):
+    # A FIFO named like a manifest or the unit would block a plain read for ever.
+    import os
+    import subprocess
+    import sys
+
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text("name: u\nwidth: 4\n")
+    assert CliRunner().invoke(main, ["build", str(cfg), "-o", str(tmp_path / "b")]).exit_code == 0
+    os.mkfifo(tmp_path / "b" / "x.json")
+    gen = str(Path(__file__).resolve().parent.parent / "gen")
+
+    def prove():
+        return subprocess.run([sys.executable, "-m", "carrypipe", "prove", str(tmp_path / "b")],
+                              capture_output=True, text=True, timeout=120,
+                              env={**os.environ, "PYTHONPATH": gen})
+    assert prove().returncode == 0  # the FIFO is not a manifest: the unit is proved
+    (tmp_path / "b" / "u.v").unlink()
+    os.mkfifo(tmp_path / "b" / "u.v")
+    res = prove()
+    assert res.returncode == 2
+    assert res.stderr == (f"carrypipe: error: {tmp_path / 'b' / 'u.v'}: cannot read the unit: "
+                          "it is a FIFO; expected a regular file\n")
 
 
 def test_cli_exit_codes(tmp_path):

@@ -42,6 +42,10 @@ def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
     return files
 
 
+MAX_MANIFEST_BYTES = 1 << 26  # a 4096-bit unit's manifest is a few MiB at most
+MAX_UNIT_BYTES = 1 << 30  # the unit's Verilog, read back by `prove DIR`
+
+
 class BuildFolderError(ValueError):
     """A folder is not a complete carrypipe build (the message is one line)."""
 
@@ -51,14 +55,17 @@ def read_build(folder: Path):
     text of the `.v` file as it is on disk.  The manifest must agree with its config."""
     import json
 
-    from .config import ConfigError, from_mapping
+    from .config import ConfigError, from_mapping, read_regular
     from .plan import make_plan
 
     manifests, others = [], []
     for path in sorted(folder.glob("*.json")):
-        try:
-            doc = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError, UnicodeDecodeError):  # ValueError: not JSON
+        try:  # a regular file only (a FIFO would block), of a manifest's size
+            raw = read_regular(path, MAX_MANIFEST_BYTES)
+            doc = json.loads(raw.decode("utf-8")) if len(raw) <= MAX_MANIFEST_BYTES else None
+        except (OSError, ValueError):  # ValueError: not UTF-8 or not JSON
+            doc = None
+        if doc is None:
             others.append(f"{path.name}: not readable JSON")
             continue
         if isinstance(doc, dict) and isinstance(doc.get("generator"), dict) \
@@ -83,8 +90,11 @@ def read_build(folder: Path):
                                "its config; rebuild the folder")
     unit = folder / f"{plan.config.name}.v"
     try:
-        text = unit.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
+        raw = read_regular(unit, MAX_UNIT_BYTES)
+        if len(raw) > MAX_UNIT_BYTES:
+            raise ValueError(f"larger than {MAX_UNIT_BYTES} bytes")
+        text = raw.decode("utf-8")
+    except (OSError, ValueError) as exc:
         raise BuildFolderError(f"{unit}: cannot read the unit: "
                                f"{getattr(exc, 'strerror', None) or exc}") from None
     return plan, text
