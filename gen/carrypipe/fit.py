@@ -62,15 +62,18 @@ def make_row(cfg: Config, origin: str, device: devices.Device, seeds: int = 1) -
     row = Row(plan, origin, predicted=model.predict(plan, device.name), seeds=seeds)
     need = plan.registers.total + harness.flip_flops(plan)
     if need > device.flip_flops:
-        mark_no_fit(row, device, need, f"{need} flip-flops (unit {plan.registers.total}, "
-                                       f"harness {harness.flip_flops(plan)}) > "
-                                       f"{device.flip_flops} on {device.name}")
+        # Logic cells: at least one per flip-flop (each holds one) on the families here.
+        mark_no_fit(row, device, need, need, f"{need} flip-flops (unit {plan.registers.total}, "
+                                             f"harness {harness.flip_flops(plan)}) > "
+                                             f"{device.flip_flops} on {device.name}")
     return row
 
 
-def mark_no_fit(row: Row, device: devices.Device, need: int, size: str) -> None:
+def mark_no_fit(row: Row, device: devices.Device, logic: int, flip_flops: int,
+                size: str) -> None:
+    """Mark a candidate that does not fit `device`, naming a device with room for it."""
     row.fits = False
-    larger = devices.room_for(device, need, need)
+    larger = devices.room_for(device, logic, flip_flops)
     row.size = size + (f"; try --device {larger.name}" if larger and larger is not device
                        else "; no larger device in the table")
 
@@ -143,7 +146,9 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
             row.measured.sort(key=lambda m: m.seed)
             full = [m for m in row.measured if m.status == "no-fit"]
             if full and row.fits:
-                mark_no_fit(row, dev, full[0].logic_used or 0, full[0].message)
+                mark_no_fit(row, dev, full[0].logic_used or 0,
+                            row.plan.registers.total + harness.flip_flops(row.plan),
+                            full[0].message)
         rows += candidates.uneven_rows(rows, target, new_row)
     chosen = candidates.select(rows, target)
     outcome = Outcome(settings, rows, versions, chosen, candidates.best(rows),
