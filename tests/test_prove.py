@@ -287,6 +287,13 @@ def test_a_unit_too_wide_for_the_prover_says_so(tmp_path):
 
 # ---- the compositional proof (compose.py) ----
 
+def test_compositional_proof_of_a_subtractor_names_its_specification():
+    plan = plan_of(unit="subtractor", width=12, slice_width=4, cell="sklansky")
+    result = prove.prove(plan, method="compositional")
+    assert result.proved, result.message
+    assert "each of 3 slice(s) proved against a - b - c with" in result.message
+
+
 @pytest.mark.parametrize("cell", CELLS)
 def test_compositional_agrees_with_the_direct_proof(cell):
     # The direct proof above is the reference: both must prove the same sound units.

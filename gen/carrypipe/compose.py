@@ -141,7 +141,7 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
             return [], f"the plan's slice {j} waits do not add up to the latency"
         nets = SliceNets(j, [], [], None, [], None)
         for i in range(s.lsb, s.msb + 1):
-            for port, into in (("a", nets.a), ("b", nets.b)):
+            for port, into in zip(plan.unit.operands, (nets.a, nets.b)):
                 bit, problem = wiring.after(port, i, e)
                 if problem:
                     return [], f"slice {j}: {problem}"
@@ -259,15 +259,17 @@ def first_failing_part(files: dict[str, str], count: int, timeout: Deadline) -> 
 def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outcome:
     """Parts 1 and 2 for the unit whose netlist is `net` (see the module docstring)."""
     count = len(plan.slices)
+    op = "+" if plan.unit.op == "add" else "-"
+    spec = f"a {op} b {op} c"  # c: the carry (borrow) into the slice
     method = (f"compositional: structure traced, each of {count} slice(s) proved against "
-              "a + b + c with every flip-flop cut (Yosys sat)")
+              f"{spec} with every flip-flop cut (Yosys sat)")
     wiring = Wiring(net, module)
     nets, problem = trace(plan, wiring)
     if problem:
         return Outcome(method, problem)
-    files = cut_design(wiring, nets, "+" if plan.unit.op == "add" else "-")
+    files = cut_design(wiring, nets, op)
     bad = first_failing_part(files, count, timeout)
     if bad is not None:
-        return Outcome(method, f"slice {bad}: its logic does not compute a + b + c on its "
-                               "own operand bits and carry-in (cell check, flip-flops cut)")
+        return Outcome(method, f"slice {bad}: its logic does not compute {spec} on its own "
+                               "operand bits and carry-in (cell check, flip-flops cut)")
     return Outcome(method, None)
