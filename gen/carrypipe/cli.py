@@ -20,8 +20,9 @@ from pathlib import Path
 import click
 
 from . import __version__, candidates, devices, emit, output, report, sim, tools, units
-from .config import (CELLS, MAX_CONFIG_BYTES, PIPELINES, TREES, ConfigError, check_split,
-                     load, read_regular, reads, split_span)
+from .config import (CELLS, PIPELINES, TREES, ConfigError, check_split, load, reads,
+                     split_span)
+from .config import read_text as read_config_text
 from .plan import make_plan
 from .prove import METHODS as PROOF_METHODS
 from .vectors import suite
@@ -432,8 +433,10 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
     from .toolflow import TOOLS
 
     base = load_plan(config).config
-    # The file as written: the chosen split goes back into it (config_edit), read once now.
-    source = read_regular(config, MAX_CONFIG_BYTES).decode("utf-8")
+    try:  # the file as written: the chosen split goes back into it (config_edit)
+        source = read_config_text(config)
+    except ConfigError as exc:  # changed or removed since it was read a moment ago
+        raise UserError(str(exc)) from None
     target_mhz = _option_number("--target-mhz", target, float, 0, "a number of MHz above 0")
     if device not in devices.DEVICES:
         raise UserError(f"--device: value {device!r} is not allowed; expected one of "

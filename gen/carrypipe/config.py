@@ -595,6 +595,11 @@ def read_regular(path: str | Path, limit: int) -> bytes:
 
 def load(path: str | Path) -> Config:
     """Read and validate a config file."""
+    return parse_text(read_text(path), Path(path).name or str(path))
+
+
+def read_text(path: str | Path) -> str:
+    """The text of a config file: a regular file of UTF-8 text, at most MAX_CONFIG_BYTES."""
     where = Path(path).name or str(path)  # a file it cannot open is named by its path
     try:
         raw = read_regular(path, MAX_CONFIG_BYTES)
@@ -609,4 +614,4 @@ def load(path: str | Path) -> Config:
         raise ConfigError(f"{where}: config is not UTF-8 text") from None
     if "\x00" in text:
         raise ConfigError(f"{where}: config contains NUL bytes; expected YAML text")
-    return parse_text(text, where)
+    return text
