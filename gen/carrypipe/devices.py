@@ -31,7 +31,6 @@ class Family:
     carry_bits: int  # adder bits per carry cell
     ff_prefix: str  # flip-flop cell types start with this
     logic_bel: str  # nextpnr resource holding the LUTs (the capacity that runs out)
-    ff_bel: str  # nextpnr resource holding the flip-flops
     pnr_extra: tuple[str, ...] = ()
     pin_file: str = ""  # "", "cst" (Gowin `IO_LOC`) or "pdc" (Lattice `ldc_set_location`)
     freq_mhz: int = 500  # the constraint nextpnr optimizes for: above any reachable figure
@@ -41,25 +40,25 @@ class Family:
 
 
 ICE40 = Family("ice40", "synth_ice40", "nextpnr-ice40", ("SB_LUT4",), "SB_CARRY", 1, "SB_DFF",
-               "ICESTORM_LC", "ICESTORM_LC")
+               "ICESTORM_LC")
 # No pins are needed out of context: no IO buffers, no global clock routing.  The static
 # placer: on ECP5-85F it lifted the best 256-bit prefix unit from 356 to 372 MHz (median of
 # seeds 1-3) and narrowed the seeds' spread at 64 bits (docs/modes.md, "Measured").
 ECP5 = Family("ecp5", "synth_ecp5", "nextpnr-ecp5", ("LUT4",), "CCU2C", 2, "TRELLIS_FF",
-              "TRELLIS_COMB", "TRELLIS_FF", ("--out-of-context", "--placer", "static"))
+              "TRELLIS_COMB", ("--out-of-context", "--placer", "static"))
 # MachXO2 places its three IOs by itself (no pin file needed).
 MACHXO2 = Family("machxo2", "synth_lattice -family xo2", "nextpnr-machxo2", ("LUT4",), "CCU2D",
-                 2, "TRELLIS_FF", "TRELLIS_COMB", "TRELLIS_FF")
+                 2, "TRELLIS_FF", "TRELLIS_COMB")
 # Gowin without wide-LUT muxes (MUX2_LUT5-8): with them nextpnr-himbaechel-gowin 0.11 timed a
 # one-stage 16-bit Kogge-Stone at 351 MHz over a one-LUT path (the fabric figure is 360 MHz);
 # with LUT4s only, 91 MHz over 9 logic steps (docs/fit.md).
 GOWIN = Family("gowin", "synth_gowin -nowidelut", "nextpnr-himbaechel-gowin",
-               ("LUT1", "LUT2", "LUT3", "LUT4"), "ALU", 1, "DFF", "LUT4", "DFF", pin_file="cst")
+               ("LUT1", "LUT2", "LUT3", "LUT4"), "ALU", 1, "DFF", "LUT4", pin_file="cst")
 # Nexus reaches about 1 GHz register -> LUT -> register in the harness (docs/fit.md): the
 # constraint sits higher.  router1: nextpnr-nexus's default router2 failed on every seed to
 # route the clock pad to its DCC once a design had more than about 100 flip-flops.
 NEXUS = Family("nexus", "synth_nexus", "nextpnr-nexus", ("LUT4",), "CCU2", 2, "FD1P3",
-               "OXIDE_COMB", "OXIDE_FF", ("--router", "router1"), pin_file="pdc",
+               "OXIDE_COMB", ("--router", "router1"), pin_file="pdc",
                freq_mhz=1500, untie_carry_in=True)
 FAMILIES = (ICE40, ECP5, MACHXO2, GOWIN, NEXUS)
 

@@ -29,11 +29,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-# Radix-4 recoding (MacSorley 1961): (b_(2k+1), b_(2k), b_(2k-1)) -> digit.
-BOOTH_DIGITS = {(0, 0, 0): 0, (0, 0, 1): 1, (0, 1, 0): 1, (0, 1, 1): 2,
-                (1, 0, 0): -2, (1, 0, 1): -1, (1, 1, 0): -1, (1, 1, 1): 0}
-
-
 @dataclass(frozen=True)
 class Leaf:
     """One dot of the matrix as a function of the inputs (see `value`).

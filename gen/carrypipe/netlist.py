@@ -219,10 +219,6 @@ def part(e: Expr, lo: int, n: int) -> Expr:
     return cat(*(bit(e, i) for i in range(lo, lo + n)))
 
 
-def bits_of(e: Expr) -> list[Expr]:
-    return [bit(e, i) for i in range(e.width)]
-
-
 # ---- statements and the netlist ----
 
 @dataclass
@@ -272,9 +268,6 @@ class Netlist:
 
     def port(self, name: str) -> Vec:
         return next(p.vec for p in self.ports if p.vec.name == name)
-
-    def has_port(self, name: str) -> bool:
-        return any(p.vec.name == name for p in self.ports)
 
     def resets(self, vec: Vec) -> bool:
         """Whether `rst` clears this register."""

@@ -29,7 +29,7 @@ value for given inputs, so the reduction is checked against Python's integers wi
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from functools import lru_cache
 
 from . import dots as dm
@@ -109,8 +109,6 @@ class Tree:
     stages: int  # register ranks: the tree's stages
     ranks: tuple[tuple[tuple[Dot, ...], ...], ...]  # per stage, its registers by column
     flip_carry: bool  # 2^(N-1) is left: the final adder's carry out is complemented
-    absorbed: tuple[tuple[int, int], ...] = field(default=())  # (column, level) of each
-    # constant one-bit absorbed into a dot after that level
 
     @property
     def width(self) -> int:
@@ -212,7 +210,6 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
     values: list[Value] = []
     counters: list[Counter] = []
     levels: list[Level] = []
-    absorbed: list[tuple[int, int]] = []
     cols: list[list[Dot]] = [[] for _ in range(n_cols)]
     arrival: dict[int, int] = {}  # value -> unit-gate arrival within its stage
     for leaf in matrix.leaves:
@@ -221,12 +218,11 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
         cols[leaf.column].append(Dot(len(values) - 1))
     pending = {k for k in range(n_cols) if matrix.constant >> k & 1}
 
-    def absorb(level: int) -> None:
+    def absorb() -> None:
         """Absorb every waiting one-bit of K whose column holds a dot (low to high)."""
         for k in sorted(pending):
             if cols[k]:
                 pending.discard(k)
-                absorbed.append((k, level))
                 d = cols[k][-1]
                 cols[k][-1] = d.flipped()
                 if k + 1 < n_cols:
@@ -235,7 +231,7 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
     def stage_of(level: int) -> int:
         return (level - (0 if first_level else 1)) // levels_per_stage + 1
 
-    absorb(0)
+    absorb()
     if first_level:
         levels.append(Level(0, 1, None, (), tuple(map(len, cols)),
                             max(arrival.values(), default=0)))
@@ -294,7 +290,7 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
             new[k] = outs + carries_in + avail
             carries_in = carries_out
         cols[:] = new
-        absorb(index)
+        absorb()
         slowest = max((arrival[d.value] for col in cols for d in col), default=0)
         levels.append(Level(index, stage, target, tuple(placed), tuple(map(len, cols)),
                             slowest))
@@ -305,7 +301,7 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
     if pending - {n_cols - 1}:
         raise AssertionError(f"constant bits {sorted(pending)} met no dot")  # see docstring
     return Tree(matrix, style, tuple(values), tuple(counters), tuple(levels),
-                levels[-1].stage, tuple(ranks), flip, tuple(absorbed))
+                levels[-1].stage, tuple(ranks), flip)
 
 
 def _counters(style: str, avail: int, total: int, target: int | None) -> list[str]:

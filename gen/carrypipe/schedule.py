@@ -141,10 +141,6 @@ class Schedule:
         return sum(1 for t in self.kept() if t.kind in ("grp_gen", "grp_c0")
                    and stage in (None, t.stage))
 
-    def bits(self, kinds) -> int:
-        """Register bits of the inner ranks (before the output rank) holding these term kinds."""
-        return sum((min(self.last[t.index], self.final) - t.stage) * t.width
-                   for t in self.kept() if t.kind in kinds and t.stage < self.final)
 
 
 def _span(level) -> int:

@@ -33,7 +33,6 @@ class PlaceReport:
     mhz: float
     path: Path | None
     logic_used: int
-    ff_used: int
 
 
 @dataclass(frozen=True)
@@ -64,8 +63,7 @@ def place_report(text: str, family: Family) -> PlaceReport:
             path = Path(steps[0]["from"]["cell"], steps[-1]["to"]["cell"], logic, routing, cells)
     use = data.get("utilization", {})
     return PlaceReport(mhz=float(fmax["achieved"]), path=path,
-                       logic_used=use.get(family.logic_bel, {}).get("used", 0),
-                       ff_used=use.get(family.ff_bel, {}).get("used", 0))
+                       logic_used=use.get(family.logic_bel, {}).get("used", 0))
 
 
 def cell_counts(text: str, family: Family) -> Cells:
