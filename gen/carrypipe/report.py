@@ -193,16 +193,12 @@ def _(plan: SlicedPlan, mark=None) -> list[str]:
 def _(plan: PrefixPlan, mark=None) -> list[str]:
     c, sch = plan.config, plan.schedule
     mark = mark or _marks(plan)
-    tree = sch.flavour == "compare"  # what is left of the network: count the kept nodes
-
-    def nodes(s):
-        return sch.kept_nodes(s.index + 1) if tree else s.nodes
-
+    tree = sch.flavour == "compare"  # what is left of the network: the stages' kept nodes
     what = {"bits": "bits", "chains": f"blocks of {plural(c.block_width, 'bit')}",
             "compare": "slices (compared in parallel)"}[sch.flavour]
     head = "Verdict tree    a balanced tree" if tree else f"Prefix network  {c.cell}"
     lines = [f"{head} over {len(sch.widths)} {what}: {sch.network.depth} level(s), "
-             f"{sch.kept_nodes() if tree else sch.network.nodes} nodes",
+             f"{sum(s.nodes for s in plan.stages) if tree else sch.network.nodes} nodes",
              f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or deskew "
              "triangles)"]
     if sch.flavour == "bits" and prefix.has_local_blocks(c.local_width, c.width):
@@ -219,7 +215,7 @@ def _(plan: PrefixPlan, mark=None) -> list[str]:
     lines += ["", "Stages (delay in the unit-gate model, register to register)",
               f"  {'stage':>5}  {'levels':>6}  {'nodes':>6}  {'delay':>5}  logic"]
     for s in plan.stages:
-        lines.append(f"  {s.index:>5}  {s.depth:>6}  {nodes(s):>6}  {s.delay:>5}  {s.logic}"
+        lines.append(f"  {s.index:>5}  {s.depth:>6}  {s.nodes:>6}  {s.delay:>5}  {s.logic}"
                      f"{mark(s)}")
     return lines
 

@@ -135,11 +135,6 @@ class Schedule:
                     out.add((x, rank))
         return out
 
-    def kept_nodes(self, stage: int | None = None) -> int:
-        """Prefix nodes left after pruning (each forms one kept group generate term), in
-        all or in one stage: a comparator's tree is what is left of its network."""
-        return sum(1 for t in self.kept() if t.kind in ("grp_gen", "grp_c0")
-                   and stage in (None, t.stage))
 
 
 
