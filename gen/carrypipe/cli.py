@@ -23,8 +23,9 @@ from . import __version__, candidates, devices, emit, output, report, sim, tools
 from .config import (CELLS, PIPELINES, TREES, ConfigError, check_split, load, reads,
                      split_span)
 from .config import read_text as read_config_text
-from .plan import make_plan
+from .plan import DIRECT_UP_TO, make_plan
 from .prove import METHODS as PROOF_METHODS
+from .treeplan import DIRECT_BITS, DIRECT_ROWS
 from .vectors import suite
 
 
@@ -340,8 +341,9 @@ def plan_cmd(config, slice_width, slices, chart_path):
               help="direct: unroll the whole unit; compositional (sliced adders and "
                    "subtractors: each slice against +, then the structure; sums and "
                    "multipliers: the tree's arithmetic, each stage, the final adder); auto: "
-                   "direct for adders up to 512 bits, for trees up to 6 rows and 12 result "
-                   "bits, else compositional where it applies.")
+                   f"direct for adders up to {DIRECT_UP_TO} bits, for trees up to "
+                   f"{DIRECT_ROWS} rows and {DIRECT_BITS} result bits, else compositional "
+                   "where it applies.")
 def prove(target, depth, timeout, method):
     """Prove a unit equals its specification delayed by the latency, from any state.
 

@@ -25,7 +25,7 @@ from dataclasses import dataclass
 from . import emit, tools
 from .solver import FAILED, PROVED, Rejected, is_ff, netlist, no_verdict, run_yosys, sat_limit
 from .miter import MITER, miter_verilog
-from .plan import Plan
+from .plan import DIRECT_UP_TO, Plan
 
 @dataclass(frozen=True)
 class Proof:
@@ -192,7 +192,7 @@ def _ref(output: str, lat: int) -> str:
 
 METHODS = ("auto", "direct", "compositional")
 COMPOSABLE = ("sliced adders and subtractors, and sums and multipliers whose final adder has "
-              "at most 512 bits, without reset_data")
+              f"at most {DIRECT_UP_TO} bits, without reset_data")
 
 
 def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
