@@ -1,8 +1,10 @@
-"""Prove that the emitted Verilog adds, with exactly the manifest's latency, from any state.
+"""Prove that the emitted Verilog computes its unit kind's specification, with exactly the
+manifest's latency, from any state.
 
 Method (see docs/verification.md for the soundness argument):
-  1. The miter (`miter.py`) compares the unit with the specification: `a + b + cin`
-     delayed by `latency` registers, `in_valid` delayed alike and cleared by `rst`.
+  1. The miter (`miter.py`) compares the unit with the specification (the kind's
+     reference: `a + b + cin` for the adder, `a * b` for the multiplier, ...) delayed by
+     `latency` registers, `in_valid` delayed alike and cleared by `rst`.
   2. The init values of every register are removed, so the solver may start the unit (and
      the reference) in any register state.  Yosys's SAT engine then shows that `ok` holds on
      cycle L+1 for every start state and every input sequence (`sat -seq L+1 -prove-skip L`).
@@ -11,7 +13,7 @@ Method (see docs/verification.md for the soundness argument):
      is one of the "any" start states.
   3. With `enable`, the SAT proof runs with `en` held high, and a structural check of the
      unit's netlist shows that every flip-flop is clocked by `clk` and enabled by `en`, that
-     only flip-flops outside the cone of `sum`/`cout` have the sync reset `rst`, and that
+     only flip-flops outside the cone of the results have the sync reset `rst`, and that
      every output is a flip-flop output: a run with `en` is then the always-enabled run with
      cycles repeated, so the proof carries over.
 """
