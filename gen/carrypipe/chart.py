@@ -531,7 +531,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     # Logic lanes: what computes in each cycle, the slowest highlighted.
     by_band: dict[int, list] = {}
     for s in plan.stages:
-        by_band.setdefault((plan.input_cycles + s.index) // lay.edge_band, []).append(s)
+        by_band.setdefault((plan.edge(s.index) - 1) // lay.edge_band, []).append(s)
     blocks = [(t, group) for t in range(lay.rows) for group in _groups(by_band.get(t, []))]
     labels = _block_labels(plan, lay, blocks, slow, measured)
     for t in range(lay.rows):
@@ -557,7 +557,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     if lay.edge_band == 1 and said.handoff:
         for s, nxt in zip(plan.stages, plan.stages[1:]):
             if nxt.lsb == s.msb + 1:
-                _handoff_arrow(out, plan, lay, grid_top, plan.input_cycles + s.index, s, nxt)
+                _handoff_arrow(out, plan, lay, grid_top, plan.edge(s.index) - 1, s, nxt)
 
     _register_cells(out, plan, lay, colours, grid_top)
     loaded: dict[int, int] = {}

@@ -85,11 +85,10 @@ def valid_title(plan) -> list[str]:
 def slice_title(plan, s) -> list[str]:
     """Stage i of a sliced unit: what the slice computes, what waits around it."""
     kind, n = plan.unit, plan.number(s.index)
-    cycle = plan.input_cycles + s.index
     chain = (" with " + " and ".join(f"{f}_stage_{n - 1}" for f in kind.chain)
              if s.index else "")
     which = f"the final adder's slice {s.index}" if plan.nest else f"slice {s.index}"
-    out = [f"Stage {n}, loaded on edge {cycle + 1}: {which} {kind.verb} bits "
+    out = [f"Stage {n}, loaded on edge {plan.edge(s.index)}: {which} {kind.verb} bits "
            f"{bits(s.lsb, s.msb)}{chain}."]
     if s.index < len(plan.stages) - 1:
         nxt = plan.stages[s.index + 1]
@@ -110,16 +109,16 @@ def slice_title(plan, s) -> list[str]:
 
 def stage_title(plan, stage) -> list[str]:
     """Stage i of a prefix-mode unit: which logic it holds."""
-    cycle = plan.input_cycles + stage.index
     what = "the final adder's " if plan.nest else ""
-    return [f"Stage {plan.number(stage.index)}, loaded on edge {cycle + 1}: {what}{stage.logic}."]
+    return [f"Stage {plan.number(stage.index)}, loaded on edge {plan.edge(stage.index)}: "
+            f"{what}{stage.logic}."]
 
 
 def tree_title(plan, stage) -> list[str]:
     """Stage i of a carry-save tree: its levels, counters and the heights it leaves."""
-    cycle = plan.input_cycles + stage.index
     heights = max(stage.heights, default=0)
-    return [f"Stage {stage.index}, loaded on edge {cycle + 1}: {plan.config.tree.capitalize()} "
+    return [f"Stage {stage.index}, loaded on edge {plan.edge(stage.index)}: "
+            f"{plan.config.tree.capitalize()} "
             f"tree, {stage.logic}.",
             f"Its register rank holds at most {heights} dot(s) per column: row<r>_stage_"
             f"{stage.index} holds each column's r-th dot, at the column's bit position."]

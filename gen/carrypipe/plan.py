@@ -212,6 +212,11 @@ class Plan:
     def latency(self) -> int:
         return len(self.stages) + self.input_cycles
 
+    def edge(self, stage: int) -> int:
+        """The rising edge that loads the registers of stage `stage` (edges counted from 1,
+        the first after the inputs are applied)."""
+        return self.input_cycles + stage + 1
+
     @cached_property
     def ports(self) -> tuple[Port, ...]:
         return tuple(self.unit.ports(self.config))
@@ -298,11 +303,11 @@ class SlicedPlan(Plan):
 
     @cached_property
     def words(self) -> tuple[Word, ...]:
-        kind, first, base = self.unit, self.input_cycles, self.base
+        kind, base = self.unit, self.base
         words = self.io_words()
         last = len(self.stages) - 1
         for s in self.stages:
-            edge, n = first + s.index + 1, self.number(s.index)
+            edge, n = self.edge(s.index), self.number(s.index)
             top = s.index == last
             if kind.result:
                 words.append(Word("stage", f"{kind.result}_stage", n, s.lsb, s.width, edge))

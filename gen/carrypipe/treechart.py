@@ -116,7 +116,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
         y = _dots(out, x0, y, cw, [math.ceil(h / band) for h in heights],
                   f"matrix: {len(tree.matrix.leaves)} dots")
 
-    stage_of_edge = {plan.input_cycles + s.index + 1: s for s in plan.stages}
+    stage_of_edge = {plan.edge(s.index): s for s in plan.stages}
     for edge in range(1, plan.latency + 1):
         words = [w for w in plan.words if w.edge == edge]
         top, at = y, len(out.parts)

@@ -106,19 +106,18 @@ class TreePlan(Plan):
         r-th dot), the finished low result bits waiting for the final adder, and the final
         adder's own words."""
         words = self.io_words()
-        first = self.input_cycles
         for stage, rank in enumerate(self.tree.ranks):
             for row, runs in enumerate(_row_runs(rank)):
                 for n, (lsb, width) in enumerate(runs):
                     words.append(Word("tree", f"row{row}_stage", stage, lsb, width,
-                                      first + stage + 1, position=lsb if n else None))
+                                      self.edge(stage), position=lsb if n else None))
         if self.adder is not None:
             low = [k for k in range(self.rows.low) if self.tree.final[k]]
             for s in self.adder.stages:
                 for n, (lsb, width) in enumerate(_runs(low)):
                     words.append(Word("deskew", f"{self.unit.result}_low",
                                       self.adder.number(s.index), lsb, width,
-                                      first + self.tree.stages + s.index + 1,
+                                      self.edge(self.tree.stages + s.index),
                                       position=lsb if n else None))
             words += self.adder.words
         return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.lsb, x.name)))
@@ -193,10 +192,9 @@ class NativePlan(Plan):
     @cached_property
     def words(self) -> tuple[Word, ...]:
         words = self.io_words()
-        first, name = self.input_cycles, f"{self.unit.result}_stage"
+        name = f"{self.unit.result}_stage"
         for s in self.stages:
-            words.append(Word("stage", name, s.index, 0, self.result_width,
-                              first + s.index + 1))
+            words.append(Word("stage", name, s.index, 0, self.result_width, self.edge(s.index)))
         return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.lsb, x.name)))
 
     def netlist(self):
