@@ -157,15 +157,24 @@ def _gated_by(enable: list, polarity: int, en, cells: dict, driver: dict) -> boo
     return False
 
 
-_ROW = re.compile(r"^\s+(init|\d+)\s+\\(\S+)\s+\S+\s+([0-9a-fx]+)\s+[01x]+\s*$", re.M)
+# A row of `sat -show`: step, signal, decimal, hex, binary; past 32 bits Yosys prints `--`
+# for the decimal and the hex, so the binary is the value.
+_ROW = re.compile(r"^\s+(init|\d+)\s+\\(\S+)\s+\S+\s+(\S+)\s+([01x]+)\s*$", re.M)
+
+
+def _hex(binary: str) -> str:
+    """Binary digits as hex, one digit per 4 bits (an `x` where any of the 4 is unknown)."""
+    bits = binary.zfill(-(-len(binary) // 4) * 4)
+    return "".join("x" if "x" in bits[i:i + 4] else f"{int(bits[i:i + 4], 2):x}"
+                   for i in range(0, len(bits), 4))
 
 
 def _counterexample(log: str, plan: Plan, compare: tuple[str, ...]) -> str:
     """The failing trace as one line per cycle of concrete inputs, then the mismatch."""
     steps: dict[int, dict[str, str]] = {}
-    for step, signal, hexval in _ROW.findall(log):
+    for step, signal, hexval, binary in _ROW.findall(log):
         if step != "init":
-            steps.setdefault(int(step), {})[signal] = hexval
+            steps.setdefault(int(step), {})[signal] = _hex(binary)
     if not steps:
         return "counterexample (the solver printed no trace)"
     lat = plan.latency
