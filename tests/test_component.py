@@ -34,6 +34,20 @@ def test_the_component_has_the_documented_signature():
 def test_a_bad_config_is_one_line():
     with pytest.raises(ConfigError, match=r"^component: key 'width': value 0 is not allowed"):
         component({"name": "u", "width": 0})
+    for not_a_mapping, kind in ((None, "empty"), ("unit.yaml", "str"), ([("width", 8)], "list")):
+        with pytest.raises(ConfigError, match=rf"^component: expected a mapping of keys to "
+                                              rf"values, got {kind}\Z"):
+            component(not_a_mapping)
+
+
+def test_the_clock_domain_from_the_config_keys():
+    # README: `carrypipe.hdl.clock_domain(config)` makes the domain the config expects.
+    from carrypipe.hdl import clock_domain
+
+    keys = {"name": "u", "width": 8, "valid": True, "reset": "async"}
+    domain = clock_domain(keys)
+    assert (domain.name, domain.async_reset, domain.rst is not None) == ("sync", True, True)
+    assert clock_domain({"name": "u", "width": 8}).rst is None  # no reset: reset-less
 
 
 def test_two_units_in_one_design():

@@ -95,8 +95,16 @@ class Unit(wiring.Component):
 
 
 def clock_domain(config):
-    """The `sync` domain a unit of `config` expects (for simulation and tests)."""
+    """The `sync` domain a unit of `config` (a `Config`, or the keys of a config file as
+    `component` takes them) expects."""
+    from collections.abc import Mapping
+
     from amaranth.hdl import ClockDomain
+
+    from .config import from_mapping
+
+    if isinstance(config, Mapping):
+        config = from_mapping(dict(config), where="clock_domain")
 
     return ClockDomain("sync", reset_less=config.reset == "none",
                        async_reset=config.reset == "async")
