@@ -332,7 +332,9 @@ def plan_cmd(config, slice_width, slices, chart_path):
 @click.option("--depth", metavar="N",
               help=f"Cycles to unroll: an integer above the unit's latency, at most "
                    f"{MAX_DEPTH}; results are compared from cycle latency+1 up to this one "
-                   "[default: latency + 1, which already covers every later cycle].")
+                   "[default: latency + 1, which already covers every later cycle; an "
+                   f"accumulator's, latency + {units.KINDS['accumulator'].settle + 1}: that "
+                   "many totals after a clear].")
 @click.option("--timeout", metavar="S", callback=_seconds,
               help="Give up on the proof (every Yosys run and solver call) after this many "
                    "seconds in all.")

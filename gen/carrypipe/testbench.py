@@ -51,7 +51,8 @@ def testbench(plan, count: int) -> str:
         f"//   iverilog -g2005 -o {name}_tb.vvp {name}.v {name}_tb.v && vvp {name}_tb.vvp",
         f"//   Or with Verilator 5: verilator --binary --timing --timescale 1ns/1ps --top-module {name}_tb"
         f" {name}.v {name}_tb.v && obj_dir/V{name}_tb",
-        "// The last line printed starts with PASS or FAIL.",
+        "// Its verdict is one line starting with PASS or FAIL (the simulator may add its own",
+        "// lines after it, for $fatal or $finish).",
         "`timescale 1ns / 1ps",
         f"module {name}_tb;",
         f"  parameter VECTORS = {count};",
