@@ -18,8 +18,8 @@ from .config import KEYS, MODE_KEYS, Config
 
 SPLIT_KEYS = ("slice_width", "slices")
 PREFIX_KEYS = tuple(k for k in MODE_KEYS if k not in SPLIT_KEYS)  # the prefix modes' keys
-TREE_KEYS = ("tree", "tree_levels_per_stage", "native_stages")  # a sum's or multiplier's
-EDITED = ("pipeline", "cell", *SPLIT_KEYS, *PREFIX_KEYS, *TREE_KEYS)  # the keys `fit` chooses
+FIT_TREE_KEYS = ("tree", "tree_levels_per_stage", "native_stages")  # a sum's or multiplier's
+EDITED = ("pipeline", "cell", *SPLIT_KEYS, *PREFIX_KEYS, *FIT_TREE_KEYS)  # the keys `fit` chooses
 
 
 def rewrite(text: str, chosen: Config, where: str = "config") -> str:
@@ -51,7 +51,7 @@ def wanted(text_keys: dict, chosen: Config) -> dict:
         elif needed:
             out[key] = value
 
-    for key in TREE_KEYS:  # a sum's or multiplier's tree
+    for key in FIT_TREE_KEYS:  # a sum's or multiplier's tree
         if key in norm:
             want(key, norm[key], norm[key] != KEYS[key][1])
         elif key in text_keys:

@@ -62,16 +62,20 @@ class Matrix:
 
 
 def booth_selects(b: int, n: int, signed: bool, k: int) -> tuple[int, int, int]:
-    """(one, two, neg) of radix-4 digit k of the n-bit b: one = b_2k ^ b_(2k-1), two =
-    b_(2k+1) & ~b_2k & ~b_(2k-1) | ~b_(2k+1) & b_2k & b_(2k-1), neg = b_(2k+1)."""
-    hi, mid, lo = (_bit(b, n, signed, j) for j in (2 * k + 1, 2 * k, 2 * k - 1))
-    return mid ^ lo, int((hi, mid, lo) in ((1, 0, 0), (0, 1, 1))), hi
+    """(one, two, neg) of radix-4 digit k of the n-bit b (see `_selects`)."""
+    return _selects(*(_bit(b, n, signed, j) for j in (2 * k + 1, 2 * k, 2 * k - 1)))
 
 
 def booth_digit(hi: int, mid: int, lo: int) -> int:
     """The digit the selects stand for: (one + 2 two), negated when neg (and one or two)."""
-    one, two, neg = mid ^ lo, int((hi, mid, lo) in ((1, 0, 0), (0, 1, 1))), hi
+    one, two, neg = _selects(hi, mid, lo)
     return -(one + 2 * two) if neg else one + 2 * two
+
+
+def _selects(hi: int, mid: int, lo: int) -> tuple[int, int, int]:
+    """(one, two, neg) from the bits b_(2k+1), b_2k, b_(2k-1): one = b_2k ^ b_(2k-1), two =
+    b_(2k+1) & ~b_2k & ~b_(2k-1) | ~b_(2k+1) & b_2k & b_(2k-1), neg = b_(2k+1)."""
+    return mid ^ lo, int((hi, mid, lo) in ((1, 0, 0), (0, 1, 1))), hi
 
 
 def _bit(value: int, width: int, signed: bool, j: int) -> int:
