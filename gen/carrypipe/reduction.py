@@ -97,6 +97,8 @@ class Level:
     counters: tuple[int, ...]
     heights: tuple[int, ...]  # dots per column after the level (and absorbed constants)
     delay: int  # unit-gate arrival of its slowest output, from the stage's registers
+    full: int = 0  # full adders among its counters
+    half: int = 0  # half adders
 
 
 @dataclass(frozen=True)
@@ -138,10 +140,10 @@ class Tree:
         return Rows(low, pairs[-1] + 1, top + 1, self.width, top + 1 < self.width)
 
     def fa(self) -> int:
-        return sum(1 for c in self.counters if c.kind == "fa")
+        return sum(lv.full for lv in self.levels)
 
     def ha(self) -> int:
-        return sum(1 for c in self.counters if c.kind == "ha")
+        return sum(lv.half for lv in self.levels)
 
     def stage_delay(self, stage: int) -> int:
         return max((lv.delay for lv in self.levels if lv.stage == stage), default=0)
@@ -292,8 +294,9 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
         cols[:] = new
         absorb()
         slowest = max((arrival[d.value] for col in cols for d in col), default=0)
+        full = sum(1 for ci in placed if counters[ci].kind == "fa")
         levels.append(Level(index, stage, target, tuple(placed), tuple(map(len, cols)),
-                            slowest))
+                            slowest, full, len(placed) - full))
     if not levels:  # nothing to reduce and no partial-product logic: cannot happen (>= 3
         raise ValueError("a carry-save tree needs at least one level")  # operands)
     register(levels[-1].stage)

@@ -92,8 +92,7 @@ def _(plan: TreePlan) -> dict:
             "counter_levels": plan.counter_levels, "full_adders": t.fa(), "half_adders": t.ha(),
             "heights": list(t.matrix.heights()),
             "levels": [{"level": lv.index, "stage": lv.stage - 1, "target": lv.target,
-                        "full_adders": sum(1 for i in lv.counters if t.counters[i].kind == "fa"),
-                        "half_adders": sum(1 for i in lv.counters if t.counters[i].kind == "ha"),
+                        "full_adders": lv.full, "half_adders": lv.half,
                         "height": max(lv.heights, default=0)} for lv in t.levels]}
     if plan.adder is None:  # a prefix mode still lists its (no) stages, like an adder's
         prefix_mode = MODE_TYPES[plan.config.pipeline] is PrefixPlan

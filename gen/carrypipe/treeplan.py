@@ -243,10 +243,8 @@ def _describe(tree: reduction.Tree, stage: int) -> str:
         if lv.index == 0:
             parts.append("partial products")
             continue
-        cs = [tree.counters[i] for i in lv.counters]
-        fa = sum(1 for c in cs if c.kind == "fa")
         parts.append(f"level {lv.index} (to height {max(lv.heights)}): "
-                     f"{counters_phrase(fa, len(cs) - fa)}")
+                     f"{counters_phrase(lv.full, lv.half)}")
     return "; ".join(parts)
 
 
@@ -264,13 +262,12 @@ def make_tree_plan(config: Config) -> Plan:
     stages = []
     for s in range(1, tree.stages + 1):
         levels = tree.stage_levels(s)
-        cs = [tree.counters[i] for lv in levels for i in lv.counters]
-        fa = sum(1 for c in cs if c.kind == "fa")
+        full, half = sum(lv.full for lv in levels), sum(lv.half for lv in levels)
         stages.append(TreeStage(s - 1, 0, width, config.tree,
                                 tuple(lv.index for lv in levels),
-                                sum(1 for lv in levels if lv.index), len(cs),
+                                sum(1 for lv in levels if lv.index), full + half,
                                 tree.stage_delay(s), _describe(tree, s), levels[-1].heights,
-                                fa, len(cs) - fa))
+                                full, half))
     rows = tree.rows
     adder = None
     if rows.adder_width:
