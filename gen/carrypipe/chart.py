@@ -33,8 +33,9 @@ from functools import singledispatch
 from html import escape
 
 from . import prefix, report, treechart
-from .svg import BLOCK, FAINT, FONT, IDLE_BLOCK, INK, SLOW, SLOW_BLOCK, Svg, num, stage_block
-from .header import bits, plural, stage_list
+from .svg import (BLOCK, FAINT, FONT, IDLE_BLOCK, INK, SLOW, SLOW_BLOCK, Svg, band,
+                  check_measured, num, slowest, stage_block, thousands)
+from .header import bits, plural
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
 
@@ -56,20 +57,8 @@ MIN_WIDTH = 820
 MIN_GRID = 320  # least width of the grid, in px
 
 
-def _band(count: int, limit: int) -> int:
-    """The smallest power of two that groups `count` items into at most `limit` bands."""
-    size = 1
-    while math.ceil(count / size) > limit:
-        size *= 2
-    return size
-
-
 def _span(lo: int, hi: int, sep: str = ":") -> str:
     return str(lo) if lo == hi else f"{hi}{sep}{lo}"
-
-
-def _thousands(n: int) -> str:
-    return f"{n:,}".replace(",", " ")
 
 
 def _text_width(text: str, size: float) -> float:
@@ -258,10 +247,10 @@ class _Layout:
         grid = [x for x in plan.words if x.width > 0 and _lane(plan, x) is None]
         self.top = max([self.w, *(x.lsb + x.width for x in grid)])
         self.out = self.top > self.w
-        self.bit_band = _band(self.w, MAX_COLUMNS)
+        self.bit_band = band(self.w, MAX_COLUMNS)
         self.columns = math.ceil(self.w / self.bit_band)
         self.edges = max([plan.latency, *(x.edge for x in plan.words)])
-        self.edge_band = _band(self.edges, MAX_ROWS)
+        self.edge_band = band(self.edges, MAX_ROWS)
         self.rows = math.ceil(self.edges / self.edge_band)
         # Columns of 12 to 64 px, wider for the few columns of a unit of a few bits, so
         # that its stage labels fit.
@@ -425,40 +414,6 @@ def _join_runs(cells: list[_Cell], lay: _Layout) -> list[_Cell]:
 
 # ---- the picture ----
 
-def _slowest(plan: Plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]:
-    """Indices of the slowest stage(s) to highlight and the sentence that names them all."""
-    if measured:
-        top = max(measured.values())
-        slow = {i for i, v in measured.items() if v == top}
-        figure, basis = f"{num(top)} ns", "measured"
-    else:
-        top = plan.slowest[0].delay
-        slow = {s.index for s in plan.slowest}
-        figure, basis = f"delay {top}", "unit-gate model"
-    if len(plan.stages) == 1:
-        return set(), f"One stage: {figure} ({basis})."
-    if len(slow) == len(plan.stages):
-        return set(), f"All {len(slow)} stages tie at {figure} ({basis}): no single slowest."
-    if len(slow) == 1:
-        return slow, f"Slowest: stage {next(iter(slow))} at {figure} ({basis}), highlighted."
-    return slow, (f"Slowest: {len(slow)} of {len(plan.stages)} stages tie at {figure} "
-                  f"({basis}), highlighted: stages {stage_list(slow)}.")
-
-
-def _check_measured(plan: Plan, measured) -> None:
-    if measured is None:
-        return
-    stages = {s.index for s in plan.stages}
-    for key, value in measured.items():
-        if key not in stages:
-            raise ValueError(f"measured figure for stage {key!r}: the plan has stages "
-                             f"0..{len(plan.stages) - 1}")
-        if (isinstance(value, bool) or not isinstance(value, (int, float))
-                or not math.isfinite(value) or value < 0):
-            raise ValueError(f"measured figure for stage {key}: {value!r} is not a "
-                             "non-negative number of ns")
-
-
 def svg(plan: Plan, measured: Mapping[int, float] | None = None,
         measured_source: str = "") -> str:
     """The stage chart of `plan` as SVG text.
@@ -470,11 +425,11 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     """
     if isinstance(plan, (TreePlan, NativePlan)):  # a carry-save unit: its dot diagram
         return treechart.svg(plan, measured, measured_source)
-    _check_measured(plan, measured)
+    check_measured(plan, measured)
     lay = _Layout(plan)
     said = words(plan)
     colours = _colours(plan)
-    slow, slow_text = _slowest(plan, measured)
+    slow, slow_text = slowest(plan, measured)
     c = plan.config
     out = Svg()
 
@@ -567,7 +522,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     for t, count in sorted(loaded.items()):
         first, last = lay.band_edges(t)
         out.text(lay.bits_x, grid_top + t * band_h + lay.lh + lay.rh / 2 + 3.5,
-                 _thousands(count), size=9.5, anchor="end", fill=FAINT, data_role="row-bits",
+                 thousands(count), size=9.5, anchor="end", fill=FAINT, data_role="row-bits",
                  data_edge=_span(first, last), data_count=count)
 
     # valid and the flags travelling beside the data; en beside the rows it holds.
@@ -863,7 +818,7 @@ def _legend(out: Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, s
         out.add("rect", x=float(MARGIN), y=float(y), width=14.0, height=12.0,
                 fill=colours[kind], class_="key", data_kind=kind)
         out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
-        out.text(MARGIN + 140, y + 10, _thousands(regs.get(kind, drawn.get(kind, 0))),
+        out.text(MARGIN + 140, y + 10, thousands(regs.get(kind, drawn.get(kind, 0))),
                  size=11, anchor="end", data_role="bits", data_kind=kind)
         meaning = said.meanings.get(kind, f"register of kind '{kind}'")
         for i, line in enumerate(_wrap(meaning, 11, room)):
@@ -873,7 +828,7 @@ def _legend(out: Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, s
         y += 20
     y += 4
     out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
-    out.text(MARGIN + 140, y + 10, _thousands(regs["total"]), size=11, anchor="end",
+    out.text(MARGIN + 140, y + 10, thousands(regs["total"]), size=11, anchor="end",
              weight="bold", data_role="total")
     out.text(MARGIN + 150, y + 10, f"register bits; latency {plural(plan.latency, 'cycle')}",
              size=11)

@@ -3,7 +3,11 @@ place, text escaped) and the inks both charts draw with."""
 
 from __future__ import annotations
 
+import math
+from collections.abc import Mapping
 from html import escape
+
+from .header import stage_list
 
 SLOW, INK, FAINT = "#d62728", "#222222", "#8c8c8c"
 BLOCK = ("#e3f1ec", "#2a8c6a", "#17553f")  # a stage's logic: fill, outline, text
@@ -26,6 +30,54 @@ def stage_block(group, hot: bool, idle: bool) -> tuple[tuple[str, str, str], dic
                 data_logic=logic or None,
                 data_levels=" ".join(map(str, levels)) if levels else None)
     return (SLOW_BLOCK if hot else IDLE_BLOCK if idle else BLOCK), data
+
+
+def band(count: int, limit: int) -> int:
+    """The smallest power of two that groups `count` items into at most `limit` bands."""
+    size = 1
+    while math.ceil(count / size) > limit:
+        size *= 2
+    return size
+
+
+def thousands(n: int) -> str:
+    return f"{n:,}".replace(",", " ")
+
+
+def slowest(plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]:
+    """Indices of the slowest stage(s) to highlight and the sentence that names them all
+    (both charts), by the `measured` figures when given (checked), else the plan's delays."""
+    check_measured(plan, measured)
+    if measured:
+        top = max(measured.values())
+        slow = {i for i, v in measured.items() if v == top}
+        figure, basis = f"{num(top)} ns", "measured"
+    else:
+        top = plan.slowest[0].delay
+        slow = {s.index for s in plan.slowest}
+        figure, basis = f"delay {top}", "unit-gate model"
+    if len(plan.stages) == 1:
+        return set(), f"One stage: {figure} ({basis})."
+    if len(slow) == len(plan.stages):
+        return set(), f"All {len(slow)} stages tie at {figure} ({basis}): no single slowest."
+    if len(slow) == 1:
+        return slow, f"Slowest: stage {next(iter(slow))} at {figure} ({basis}), highlighted."
+    return slow, (f"Slowest: {len(slow)} of {len(plan.stages)} stages tie at {figure} "
+                  f"({basis}), highlighted: stages {stage_list(slow)}.")
+
+
+def check_measured(plan, measured) -> None:
+    if measured is None:
+        return
+    stages = {s.index for s in plan.stages}
+    for key, value in measured.items():
+        if key not in stages:
+            raise ValueError(f"measured figure for stage {key!r}: the plan has stages "
+                             f"0..{len(plan.stages) - 1}")
+        if (isinstance(value, bool) or not isinstance(value, (int, float))
+                or not math.isfinite(value) or value < 0):
+            raise ValueError(f"measured figure for stage {key}: {value!r} is not a "
+                             "non-negative number of ns")
 
 
 def num(value: float) -> str:

@@ -22,7 +22,8 @@ from collections.abc import Mapping
 from html import escape
 
 from . import report
-from .svg import FAINT, FONT, INK, SLOW, Svg, num, stage_block
+from .svg import FAINT, FONT, INK, SLOW, Svg, num, slowest, stage_block, thousands
+from .svg import band as bands
 
 COLOURS = {"input": "#5b7db1", "tree": "#d0762c", "skew": "#e69a28", "stage": "#2a8c6a",
            "deskew": "#8a63c2", "control": "#c73a6f", "prefix": "#3a9fc0",
@@ -43,38 +44,12 @@ GRID_WIDTH, MARGIN, GUTTER = 900, 24, 150
 MIN_WIDTH = 820
 
 
-def _slowest(plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]:
-    if measured:
-        for key, value in measured.items():
-            if key not in {s.index for s in plan.stages}:
-                raise ValueError(f"measured figure for stage {key!r}: the plan has stages "
-                                 f"0..{len(plan.stages) - 1}")
-            if isinstance(value, bool) or not isinstance(value, (int, float)) \
-                    or not math.isfinite(value) or value < 0:
-                raise ValueError(f"measured figure for stage {key}: {value!r} is not a "
-                                 "non-negative number of ns")
-        top = max(measured.values())
-        slow = {i for i, v in measured.items() if v == top}
-        figure, basis = f"{num(top)} ns", "measured"
-    else:
-        slow = {s.index for s in plan.slowest}
-        figure, basis = f"delay {plan.slowest[0].delay}", "unit-gate model"
-    if len(plan.stages) == 1:
-        return set(), f"One stage: {figure} ({basis})."
-    if len(slow) == len(plan.stages):
-        return set(), f"All {len(slow)} stages tie at {figure} ({basis}): no single slowest."
-    names = ", ".join(str(i) for i in sorted(slow))
-    return slow, f"Slowest: stage{'s' if len(slow) > 1 else ''} {names} at {figure} ({basis})."
-
-
 def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str = "") -> str:
     """The stage chart of a `TreePlan` or `NativePlan` (see the module docstring)."""
-    slow, slow_text = _slowest(plan, measured)
+    slow, slow_text = slowest(plan, measured)
     c, regs = plan.config, plan.registers.as_dict()
     width = plan.result_width
-    band = 1
-    while math.ceil(width / band) > MAX_COLUMNS:
-        band *= 2
+    band = bands(width, MAX_COLUMNS)
     columns = math.ceil(width / band)
     cw = min(28.0, max(7.0, GRID_WIDTH / columns))
     x0 = MARGIN + GUTTER
@@ -150,7 +125,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
                          col_x, cw, top, y - top)
             out.parts[at:at] = block.parts
         loaded = sum(w.width for w in words)
-        out.text(bits_x, top + 12, f"{loaded:,}".replace(",", " "), size=9.5, anchor="end",
+        out.text(bits_x, top + 12, thousands(loaded), size=9.5, anchor="end",
                  fill=FAINT, data_role="row-bits", data_edge=edge, data_count=loaded)
         out.add("line", x1=float(x0), y1=y, x2=x0 + columns * cw, y2=y, stroke="#ececec",
                 stroke_width=0.6)
@@ -244,13 +219,13 @@ def _legend(out, regs, y, latency) -> float:
         out.add("rect", x=float(MARGIN), y=float(y), width=14.0, height=12.0,
                 fill=COLOURS.get(kind, "#7a7a7a"), class_="key", data_kind=kind)
         out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
-        out.text(MARGIN + 140, y + 10, f"{bits:,}".replace(",", " "), size=11, anchor="end",
+        out.text(MARGIN + 140, y + 10, thousands(bits), size=11, anchor="end",
                  data_role="bits", data_kind=kind)
         out.text(MARGIN + 150, y + 10, MEANINGS.get(kind, f"register of kind '{kind}'"),
                  size=11, fill="#444444")
         y += 20
     out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
-    out.text(MARGIN + 140, y + 10, f"{regs['total']:,}".replace(",", " "), size=11,
+    out.text(MARGIN + 140, y + 10, thousands(regs['total']), size=11,
              anchor="end", weight="bold", data_role="total")
     out.text(MARGIN + 150, y + 10, f"register bits; latency {latency} cycle(s)", size=11)
     return y + 40
