@@ -19,7 +19,7 @@ from . import header
 from .netlist import Arith, Const, Expr, Netlist, Ref, Rep, bit, cat
 from .pipeline import Frame
 from .reduction import Dot, Tree
-from .treeplan import _row_runs, _runs
+from .treeplan import _runs
 
 
 def _is_one(x: Expr | None) -> bool:
@@ -212,12 +212,13 @@ def _rank(plan, f: Frame, stage: int, expr: dict[int, Expr]) -> None:
     """The registers at the end of `stage`, row by row."""
     tree = plan.tree
     rank = tree.ranks[stage - 1]
-    for row, runs in enumerate(_row_runs(rank)):
-        for n, (lsb, width) in enumerate(runs):
-            name = f"row{row}_stage_{stage - 1}" + (f"_{lsb}" if n else "")
-            reg = f.reg(name)
+    for (at, row), words in plan.rank_words.items():
+        if at != stage - 1:
+            continue
+        for w in words:
+            reg = f.reg(w.name)
             bits = {}
-            for k in range(lsb, lsb + width):
+            for k in range(w.lsb, w.lsb + w.width):
                 d = rank[k][row]
                 bits[k] = _dot(expr, tree.values[d.value].source)
                 expr[d.value] = reg[k]
@@ -228,29 +229,23 @@ def _row(plan, f: Frame, row: int) -> Ref | None:
     """Row `row` of the last rank over the final adder's columns, as one vector."""
     r = plan.rows
     end = r.top if row == 0 else r.pairs
-    stage = plan.tree.stages - 1
-    for n, (lsb, width) in enumerate(_row_runs(plan.tree.final)[row]):
-        if lsb <= r.low < lsb + width:
-            vec = f.b.names[f"row{row}_stage_{stage}" + (f"_{lsb}" if n else "")]
-            return vec[r.low:end]
-    raise AssertionError(f"row {row} does not cover the final adder's columns")
+    return f.b.names[plan.row_register(plan.tree.stages - 1, row, r.low)][r.low:end]
 
 
 def _result(plan, f: Frame) -> Expr:
     """The result: the final adder's bits, its carry out, the finished low bits."""
     tree, r = plan.tree, plan.rows
     width = tree.width
-    last = tree.stages - 1
     b = f.b
     low_cols = [k for k in range(r.low) if tree.final[k]]
     if plan.adder is None:
-        bits = [_final_bit(f, tree, k, last) for k in range(width)]
+        bits = [_final_bit(plan, f, k) for k in range(width)]
         return cat(*bits)
     drives = plan.adder.build_into(f, {"row0": _row(plan, f, 0), "row1": _row(plan, f, 1)})
     parts: list[Expr] = []
     if low_cols:
         b.section(*header.low_title(plan, low_cols))
-        current = {k: _final_bit(f, tree, k, last) for k in low_cols}
+        current = {k: _final_bit(plan, f, k) for k in low_cols}
         for s in plan.adder.stages:
             n = plan.adder.number(s.index)
             for i, (lsb, count) in enumerate(_runs(low_cols)):
@@ -270,14 +265,11 @@ def _result(plan, f: Frame) -> Expr:
     return cat(*parts)
 
 
-def _final_bit(f: Frame, tree: Tree, k: int, last: int) -> Expr:
+def _final_bit(plan, f: Frame, k: int) -> Expr:
     """Column k of the last rank, which holds at most one dot there (or none: 0)."""
-    if not tree.final[k]:
+    if not plan.tree.final[k]:
         return Const(0, 1)
-    for n, (lsb, width) in enumerate(_row_runs(tree.final)[0]):
-        if lsb <= k < lsb + width:
-            return f.b.names[f"row0_stage_{last}" + (f"_{lsb}" if n else "")][k]
-    raise AssertionError(k)
+    return f.b.names[plan.row_register(plan.tree.stages - 1, 0, k)][k]
 
 
 def build_native(plan) -> Netlist:

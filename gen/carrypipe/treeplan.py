@@ -70,6 +70,22 @@ class TreePlan(Plan):
     mode = "tree"
     proof_methods = ("direct", "compositional")
 
+    @cached_property
+    def rank_words(self) -> dict[tuple[int, int], tuple[Word, ...]]:
+        """The tree's register words by (stage, row): row r of a stage's rank holds each
+        column's r-th dot, in runs of columns (`row<r>_stage_<i>`, then `..._<first column>`
+        for every further run)."""
+        return {(stage, row): tuple(Word("tree", f"row{row}_stage", stage, lsb, width,
+                                         self.edge(stage), position=lsb if n else None)
+                                    for n, (lsb, width) in enumerate(runs))
+                for stage, rank in enumerate(self.tree.ranks)
+                for row, runs in enumerate(_row_runs(rank))}
+
+    def row_register(self, stage: int, row: int, column: int) -> str:
+        """The name of the register holding the `row`-th dot of `column` after `stage`."""
+        return next(w.name for w in self.rank_words[stage, row]
+                    if w.lsb <= column < w.lsb + w.width)
+
     @property
     def result_width(self) -> int:
         return self.tree.width
@@ -106,11 +122,8 @@ class TreePlan(Plan):
         r-th dot), the finished low result bits waiting for the final adder, and the final
         adder's own words."""
         words = self.io_words()
-        for stage, rank in enumerate(self.tree.ranks):
-            for row, runs in enumerate(_row_runs(rank)):
-                for n, (lsb, width) in enumerate(runs):
-                    words.append(Word("tree", f"row{row}_stage", stage, lsb, width,
-                                      self.edge(stage), position=lsb if n else None))
+        for row_words in self.rank_words.values():
+            words += row_words
         if self.adder is not None:
             low = [k for k in range(self.rows.low) if self.tree.final[k]]
             for s in self.adder.stages:

@@ -185,21 +185,16 @@ class _Reference:
 
     def q_bit(self, v):
         """The unit's net of register value v: bit `column` of `row<r>_stage_<i>`."""
-        return _bit(self.wiring.mod, _reg_name(self.plan.tree, v), v.column)
+        return _bit(self.wiring.mod, _reg_name(self.plan, v), v.column)
 
 
 class _Trouble(Exception):
     """A structural problem found while tracing (the message says which)."""
 
 
-def _reg_name(tree: Tree, v) -> str:
-    """The Verilog register holding tree register value v (see `carrysave._rank`)."""
-    from .treeplan import _row_runs
-
-    for n, (lsb, width) in enumerate(_row_runs(tree.ranks[v.stage - 1])[v.row]):
-        if lsb <= v.column < lsb + width:
-            return f"row{v.row}_stage_{v.stage - 1}" + (f"_{lsb}" if n else "")
-    raise AssertionError(v)
+def _reg_name(plan, v) -> str:
+    """The Verilog register holding tree register value v (the plan's rank words)."""
+    return plan.row_register(v.stage - 1, v.row, v.column)
 
 
 def stage_files(plan, wiring: Wiring) -> tuple[dict[str, str], int]:
@@ -215,7 +210,7 @@ def stage_files(plan, wiring: Wiring) -> tuple[dict[str, str], int]:
                 v = tree.values[d.value]
                 q = ref.q_bit(v)
                 if q not in wiring.d_of:
-                    raise _Trouble(f"{_reg_name(tree, v)}[{v.column}] is not a plain flip-flop")
+                    raise _Trouble(f"{_reg_name(plan, v)}[{v.column}] is not a plain flip-flop")
                 want = ref.dot(v.source)
                 checks.append(f"({cut.ref(wiring.d_of[q])} == {want})")
         body += ref.lines
@@ -236,7 +231,7 @@ def adder_files(plan, wiring: Wiring) -> dict[str, str]:
     regs = [tree.values[d.value] for col in tree.final for d in col]
     q_of = {}
     for v in regs:
-        q_of[v.index] = _bit(mod, _reg_name(tree, v), v.column)
+        q_of[v.index] = _bit(mod, _reg_name(plan, v), v.column)
     rows_q = list(q_of.values())
     cells = {n: cell for n, cell in mod["cells"].items()
              if not (is_ff(cell) and any(b in rows_q for b in cell["connections"]["Q"]))}
