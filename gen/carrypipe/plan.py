@@ -331,7 +331,7 @@ class SlicedPlan(Plan):
         if not top:
             return kind.chain
         if kind.result is None:  # a comparator's verdicts
-            return ("lt", "eq", "gt")
+            return tuple(kind.output_families(c).values())
         return (kind.chain if c.carry_out else ()) + (("overflow",) if c.signed else ())
 
     def netlist(self):
@@ -417,7 +417,7 @@ class PrefixPlan(Plan):
             if c.signed:
                 regs.append(("overflow_stage", 1, c.width))
         else:
-            regs += [(f"{n}_stage", 1, c.width) for n in ("lt", "eq", "gt")]
+            regs += [(f"{n}_stage", 1, c.width) for n in kind.output_families(c).values()]
         return regs
 
     def netlist(self):
