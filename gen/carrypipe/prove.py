@@ -89,9 +89,11 @@ def structure(plan: Plan, net: dict) -> str | None:
             for bit in info["bits"]:
                 regs.setdefault(driver.get(bit), net_name)
     kind = None if c.reset == "none" else c.reset
-    allowed = set(_FF_TYPES[(en is not None, None)])
-    if kind:
-        allowed |= set(_FF_TYPES[(en is not None, kind)])
+    # Without `en` a flip-flop may still hold by itself (an accumulator slice on an invalid
+    # input): that is function, which the proof covers with every input free.
+    holds = (True,) if en is not None else (False, True)
+    allowed = {t for h in holds for r in (None, kind) if (h, r) in _FF_TYPES
+               for t in _FF_TYPES[h, r]}
     for cell_name, cell in ffs.items():
         name = regs.get(cell_name, cell_name)
         par, con = cell["parameters"], cell["connections"]
@@ -133,7 +135,7 @@ def structure(plan: Plan, net: dict) -> str | None:
         if name is None:
             continue
         cell = mod["cells"][name]
-        if name in ffs and cell["type"] not in _FF_TYPES[(en is not None, None)]:
+        if name in ffs and cell["type"] not in _FF_TYPES[True, None] + _FF_TYPES[False, None]:
             return f"a data output depends on flip-flop {regs.get(name, name)} with a reset"
         pins = ("D",) if name in ffs else [p for p, d in cell["port_directions"].items()
                                            if d == "input"]
@@ -248,7 +250,7 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
                          time.monotonic() - start)
         done, data = f"{found.method}; ", ()
     log = PROVED
-    for compare, hold_rst in _runs(c, data):
+    for compare, hold_rst in _runs(c, data, plan.unit.keeps_result):
         log = _bounded(plan, text, depth, compare, hold_rst, limit)
         if PROVED not in log:
             break
@@ -266,6 +268,9 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
         done += (f"; {c.reset} reset rst clears "
                  + ("every flip-flop" if c.reset_data else "only flip-flops outside the data "
                     "path") + " (structural check)")
+        if plan.unit.keeps_result and not c.reset_data and data:
+            done += ("; the total proved with rst held low (a reset of the valid bits leaves "
+                     "it undefined until the next clear)")
     seconds = time.monotonic() - start
     if PROVED in log:
         return Proof(True, done, depth, f"proved: {done}; {seconds:.1f} s", seconds)
@@ -275,11 +280,13 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     raise no_verdict(limit)
 
 
-def _runs(c, data: tuple[str, ...]) -> list[tuple[tuple[str, ...], bool]]:
+def _runs(c, data: tuple[str, ...], total: bool) -> list[tuple[tuple[str, ...], bool]]:
     """The bounded runs: (outputs compared, rst held low).  The valid chain is compared with
-    rst free; the data outputs too, unless `reset_data` clears them, when rst is held low
-    for them and the structural check shows that rst clears every register."""
-    if not c.reset_data:
+    rst free; the data outputs too, unless `reset_data` clears them (the structural check
+    shows that rst clears every register) or they are a running `total` that a reset of
+    the valid bits leaves undefined until the next clear (README): then rst is held low
+    for them."""
+    if not c.reset_data and not (total and c.reset != "none"):
         return [(data + (("out_valid",) if c.valid else ()), False)] if data or c.valid else []
     runs = [(data, True)] if data else []
     return runs + ([(("out_valid",), False)] if c.valid else [])
