@@ -430,7 +430,7 @@ def _op_delay(t: Term, widths, cin: bool, kind, cell: str) -> int:
         return prefix.critical_path(chain, with_carry, not t.op.endswith("sum"))
     if t.op == "sum" and len(t.args) == 1:  # a difference bit 0: the complement, free
         return 0
-    if t.op in ("prop", "gen"):  # behind the gates the kind puts in front (the sub XOR)
+    if t.op in ("prop", "gen", "gen_cin"):  # behind the kind's gates (the sub XOR on b)
         return OP_DELAY[t.op] + kind.entry_delay
     return OP_DELAY[t.op]
 
