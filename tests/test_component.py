@@ -48,6 +48,9 @@ def test_the_clock_domain_from_the_config_keys():
     domain = clock_domain(keys)
     assert (domain.name, domain.async_reset, domain.rst is not None) == ("sync", True, True)
     assert clock_domain({"name": "u", "width": 8}).rst is None  # no reset: reset-less
+    with pytest.raises(ConfigError, match=r"^clock_domain: expected a mapping of keys to values, "
+                                          r"got empty\Z"):
+        clock_domain(None)
 
 
 def test_two_units_in_one_design():

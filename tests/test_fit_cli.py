@@ -53,6 +53,9 @@ BAD = [
     (["--target-mhz", "200", "--device", "ecp5-85k", "--seeds", "two"],
      "--seeds: value 'two' is not allowed; expected an integer from 1 to 1000, written in "
      "plain decimal digits"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--seeds", "1.5"],
+     "--seeds: value '1.5' is not allowed; expected an integer from 1 to 1000, written in "
+     "plain decimal digits"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--seeds", "100000000000"],
      "--seeds: value '100000000000' is not allowed; expected an integer from 1 to 1000, "
      "written in plain decimal digits"),

@@ -217,6 +217,7 @@ def test_prove_refuses_a_folder_that_is_not_a_build(tmp_path):
 
 
 @pytest.mark.parametrize("text, why", [("{not json", "not readable JSON"),
+                                       ("[" * 5000 + "]" * 5000, "not readable JSON"),
                                        ("[]", "JSON, but not a carrypipe manifest"),
                                        ('{"generator": 5}', "JSON, but not a carrypipe manifest")])
 def test_prove_names_a_damaged_manifest(tmp_path, text, why):

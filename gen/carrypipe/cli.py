@@ -68,7 +68,8 @@ def _option_number(option: str, text: str, kind, low: float, allowed: str,
     pattern = PLAIN_INT if kind is int else PLAIN_NUMBER
     value = kind(text) if isinstance(text, str) and pattern.match(text) else None
     if value is None or not low < value <= high:
-        long = value is None and re.fullmatch(r"[0-9]+(\.[0-9]+)?", str(text))
+        parts = re.fullmatch(r"[1-9][0-9]*(?:\.([0-9]+))?", str(text)) if value is None else None
+        long = parts and (len(text.split(".")[0]) > 20 or len(parts.group(1) or "") > 20)
         limit = (" (at most 20 digits" + (")" if kind is int else " before the point and 20 "
                                           "after it)")) if long else ""
         raise UserError(f"{option}: value {text!r} is not allowed; expected {allowed}, "

@@ -63,7 +63,7 @@ def read_build(folder: Path):
         try:  # a regular file only (a FIFO would block), of a manifest's size
             raw = read_regular(path, MAX_MANIFEST_BYTES)
             doc = json.loads(raw.decode("utf-8")) if len(raw) <= MAX_MANIFEST_BYTES else None
-        except (OSError, ValueError):  # ValueError: not UTF-8 or not JSON
+        except (OSError, ValueError, RecursionError):  # ValueError: not UTF-8 or not JSON
             doc = None
         if doc is None:
             others.append(f"{path.name}: not readable JSON")

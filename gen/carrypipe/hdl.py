@@ -101,10 +101,11 @@ def clock_domain(config):
 
     from amaranth.hdl import ClockDomain
 
-    from .config import from_mapping
+    from .config import Config, from_mapping
 
-    if isinstance(config, Mapping):
-        config = from_mapping(dict(config), where="clock_domain")
+    if not isinstance(config, Config):  # the keys; anything else is a ConfigError
+        config = from_mapping(dict(config) if isinstance(config, Mapping) else config,
+                              where="clock_domain")
 
     return ClockDomain("sync", reset_less=config.reset == "none",
                        async_reset=config.reset == "async")
