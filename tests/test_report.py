@@ -154,7 +154,22 @@ def test_a_prefix_cell_is_offered_only_where_it_shortens_the_path(width, offered
         fastest = tips(plan).split("a prefix cell (", 1)[1].split(",")[0]
         slow = plan.slowest[0]
         assert plan.unit.slice_delay(plan.config, fastest, slow.width, slow.index == 0,
-                                     slow.index == len(plan.stages) - 1) < slow.delay
+                                     slow.index == len(plan.stages) - 1, slow.carry_in,
+                                     slow.carry_out) < slow.delay
+
+
+def test_a_final_adder_is_offered_its_own_fastest_cell():
+    # A sum's sliced final adder: its slices are numbered after the tree's stages, and the
+    # cells offered first are those whose own plan has the shortest slowest stages.
+    from carrypipe.cells import PREFIX_STYLES
+
+    keys = dict(unit="sum", operands=12, width=14, signed=True, slice_width=9, valid=True)
+    plan = make(**keys)
+    slow = {s.index for s in plan.slowest}
+    own = {cell: max(s.delay for s in make(**keys, cell=cell).stages if s.index in slow)
+           for cell in PREFIX_STYLES}
+    named = tips(plan).split("a prefix cell (", 1)[1].split(",")[0]
+    assert own[named] == min(own.values())
 
 
 @pytest.mark.parametrize("plan", PLANS, ids=[p.label() + f" #{i}" for i, p in enumerate(PLANS)])

@@ -488,7 +488,7 @@ def make_sliced_plan(config: Config, nest: Nest | None = None) -> SlicedPlan:
             wait_after=count - 1 - index if kind.result else 0,  # verdicts never wait
             depth=net.depth, nodes=net.nodes,
             delay=kind.slice_delay(config, config.cell, width, index == 0,
-                                   index == count - 1)))
+                                   index == count - 1, carry_in, carry_out)))
         lsb += width
     return SlicedPlan(config=config, stages=tuple(slices), nest=nest)
 

@@ -224,7 +224,8 @@ def _(plan: TreePlan, mark=None) -> list[str]:
     c, t, r = plan.config, plan.tree, plan.rows
     mark = _marks(plan)
     heights = t.matrix.heights()
-    lines = [f"Tree      {c.tree.capitalize()} over {plan.unit.tree_phrase(c)}: {len(t.matrix.leaves)} dots, "
+    lines = [f"Tree      {c.tree.capitalize()} over {plan.unit.tree_phrase(c)}: "
+             f"{len(t.matrix.leaves)} dots, "
              f"height {max(heights)}; {plural(plan.counter_levels, 'counter level')}, "
              f"{counters_phrase(t.fa(), t.ha())}",
              "",
@@ -318,8 +319,8 @@ def _faster_cells(plan: SlicedPlan) -> list[str]:
     slow, c, last = plan.slowest, plan.config, len(plan.stages) - 1
 
     def worst(name):
-        return max(plan.unit.slice_delay(c, name, s.width, s.index == 0, s.index == last)
-                   for s in slow)
+        return max(plan.unit.slice_delay(c, name, s.width, s.index == 0, s.index == last,
+                                         s.carry_in, s.carry_out) for s in slow)
 
     found = [n for n in cells.PREFIX_STYLES if n != plan.config.cell
              and worst(n) < slow[0].delay]

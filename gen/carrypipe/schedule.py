@@ -136,8 +136,6 @@ class Schedule:
         return out
 
 
-
-
 def _span(level) -> int:
     return max(i - j for i, j in level)
 
@@ -377,7 +375,8 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
     for t in terms:
         if t.index in last:
             inner = [arrival[a] for a in t.args if terms[a].stage == t.stage]
-            arrival[t.index] = max(inner, default=0) + _op_delay(t, widths, has_cin, kind, config.cell)
+            arrival[t.index] = (max(inner, default=0)
+                                + _op_delay(t, widths, has_cin, kind, config.cell))
     stages = []
     formed = {t.stage for t in terms if t.index in last and t.op != "wire"}
     for s_ in range(1, final + 1):

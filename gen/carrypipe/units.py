@@ -171,11 +171,10 @@ class Kind:
 
     entry_delay = 0  # unit gates in front of the adder's generate/propagate
 
-    def slice_delay(self, c, cell: str, width: int, first: bool, top: bool) -> int:
+    def slice_delay(self, c, cell: str, width: int, first: bool, top: bool, carry_in: bool,
+                    carry_out: bool) -> int:
         """Unit-gate delay of one slice, register to register: its adder's network from
         operands `entry_delay` late, to the latest output the slice registers."""
-        carry_in = not first or self.has_carry_in(c)
-        carry_out = not top or self.has_carry_out(c)
         arr = prefix.arrivals(cells.STYLES[cell].carry_network(width), carry_in,
                               self.entry_delay)
         return max(self.slice_outputs(c, arr, width, first, top, carry_out))
