@@ -13,11 +13,8 @@ def component(config: dict):
     """The unit of a config mapping (the keys of a config file) as an Amaranth
     `wiring.Component` in the `sync` domain; see `carrypipe.hdl`.  A bad config raises
     `carrypipe.config.ConfigError` with the usual one-line message."""
-    from collections.abc import Mapping
-
     from .config import from_mapping
     from .hdl import Unit
     from .plan import make_plan
 
-    mapping = dict(config) if isinstance(config, Mapping) else config  # else refused
-    return Unit(make_plan(from_mapping(mapping, where="component")))
+    return Unit(make_plan(from_mapping(config, where="component")))

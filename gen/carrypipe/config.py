@@ -10,6 +10,7 @@ import difflib
 import os
 import re
 import stat
+from collections.abc import Mapping
 from dataclasses import asdict, dataclass, fields, replace
 from pathlib import Path
 
@@ -277,7 +278,10 @@ def check_split(where: str, key: str, value, width: int,
 
 
 def from_mapping(data, where: str = "config") -> Config:
-    """Validate a parsed config mapping and return the normalized `Config`."""
+    """Validate a parsed config mapping (any `Mapping`, read as a dict) and return the
+    normalized `Config`."""
+    if isinstance(data, Mapping):
+        data = dict(data)
     if not isinstance(data, dict):
         kind = "empty" if data is None or data == "" else type(data).__name__  # "": `---` alone
         raise ConfigError(f"{where}: expected a mapping of keys to values, got {kind}")

@@ -97,15 +97,12 @@ class Unit(wiring.Component):
 def clock_domain(config):
     """The `sync` domain a unit of `config` (a `Config`, or the keys of a config file as
     `component` takes them) expects."""
-    from collections.abc import Mapping
-
     from amaranth.hdl import ClockDomain
 
     from .config import Config, from_mapping
 
     if not isinstance(config, Config):  # the keys; anything else is a ConfigError
-        config = from_mapping(dict(config) if isinstance(config, Mapping) else config,
-                              where="clock_domain")
+        config = from_mapping(config, where="clock_domain")
 
     return ClockDomain("sync", reset_less=config.reset == "none",
                        async_reset=config.reset == "async")
