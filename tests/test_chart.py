@@ -16,7 +16,7 @@ import pytest
 from PIL import Image
 
 import gallery
-from carrypipe import chart
+from carrypipe import chart, positions
 from carrypipe.plan import SlicedPlan, Word
 from conftest import make
 
@@ -344,7 +344,7 @@ def test_prefix_stage_bands_say_which_levels_they_hold(name):
     blocks = {e.get("data-stage"): e for e in root.iter(f"{SVG}rect")
               if e.get("class") == "slice"}
     labels = {e.get("data-stage"): e.text for e in texts(root, "stage-label")}
-    tree = plan.schedule.flavour == "compare"
+    tree = plan.schedule.positions is positions.SLICES
     for s in plan.stages:
         block, label = blocks[str(s.index)], labels[str(s.index)]
         assert block.get("data-logic") == s.logic and s.logic in label
@@ -364,10 +364,10 @@ def test_prefix_legends_speak_of_their_own_mode(name):
     assert "slice:" not in words and "handed to the next slice" not in words
     assert "waiting for their slice" not in words and "upper slices" not in words
     assert "stage: its logic in one cycle, across all bits" in words
-    flavour = plan.schedule.flavour
-    if flavour == "compare":
+    pos = plan.schedule.positions
+    if pos is positions.SLICES:
         assert "slice verdicts" in words and "a tree over their verdicts" in words
-    elif flavour == "chains":
+    elif pos is positions.BLOCKS:
         chain = plan.unit.chain[0]
         assert f"block {'carries' if chain == 'carry' else chain + 's'}:" in words
         assert f"{chain}-in 0 and 1" in words
@@ -438,7 +438,7 @@ def test_ticks_fall_at_slice_or_block_boundaries(name):
     assert ticks == sorted(ticks) and ticks[0] == 0 and ticks[-1] == plan.width - 1
     if plan.mode == "slices":
         starts = {s.lsb for s in plan.stages}
-    elif plan.schedule.flavour == "bits":
+    elif plan.schedule.positions is positions.BITS:
         local = plan.config.local_width
         starts = set(range(0, plan.width, local))
     else:

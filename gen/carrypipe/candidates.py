@@ -185,7 +185,7 @@ def circuit(plan: Plan) -> str:
     else:
         kept = sch.kept()
         order = {t.index: n for n, t in enumerate(kept)}
-        shape = {"mode": sch.mode, "flavour": sch.flavour, "widths": sch.widths,
+        shape = {"mode": sch.mode, "positions": sch.positions.name, "widths": sch.widths,
                  "final": sch.final,
                  "terms": [[t.kind, t.pos, t.lsb, t.width, t.op, [order[a] for a in t.args],
                             t.stage, sch.last[t.index]] for t in kept],

@@ -32,7 +32,7 @@ from fractions import Fraction
 from functools import singledispatch
 from html import escape
 
-from . import prefix, report, treechart
+from . import positions, prefix, report, treechart
 from .svg import (BLOCK, FAINT, FONT, IDLE_BLOCK, INK, SLOW, SLOW_BLOCK, Svg, band,
                   check_measured, num, slowest, stage_block, thousands)
 from .header import bits, plural
@@ -156,35 +156,55 @@ def _(plan: SlicedPlan) -> Words:
                  meanings, f"{c.cell} cells in {plural(len(plan.stages), 'slice')}")
 
 
+@singledispatch
+def _position_words(pos, plan: PrefixPlan) -> tuple[str, str, str]:
+    """What the prefix ranks hold, what the result ranks hold, and the structure, by what a
+    position is (one of the `positions` types)."""
+    raise TypeError(f"no chart words for {type(pos).__name__}")
+
+
+@_position_words.register
+def _(pos: positions.Bits, plan: PrefixPlan) -> tuple[str, str, str]:
+    kind, c = plan.unit, plan.config
+    chain, result = kind.chain[0], kind.result
+    terms = (f"prefix terms: {chain} generate/propagate of bits and groups, each kept "
+             "until its last use")
+    finished = f"finished {result} bits, waiting for the output register"
+    if c.carry_increment:
+        finished += (f"; in local blocks, {result} bits for the block's carry-in 0, "
+                     "waiting for that carry")
+    local = (f" (in local blocks of {c.local_width} bits first)"
+             if prefix.has_local_blocks(c.local_width, plan.width) else "")
+    return terms, finished, f"a {c.cell} prefix network over {plan.width} bits{local}"
+
+
+@_position_words.register
+def _(pos: positions.Blocks, plan: PrefixPlan) -> tuple[str, str, str]:
+    kind, c = plan.unit, plan.config
+    chain, result = kind.chain[0], kind.result
+    terms = (f"block {CHAINS.get(chain, chain + 's')}: each block's {chain} out for "
+             f"{chain}-in 0 and 1, then of the groups of blocks")
+    finished = (f"block {result}s for {chain}-in 0 and 1, then the selected {result} "
+                "bits, waiting for the output register")
+    return terms, finished, (f"{plural(len(plan.schedule.widths), 'block')} of "
+                             f"{plural(c.block_width, 'bit')}, a {c.cell} network over the "
+                             "blocks")
+
+
+@_position_words.register
+def _(pos: positions.Slices, plan: PrefixPlan) -> tuple[str, str, str]:
+    terms = ("slice verdicts: a < b and a <= b of each slice, then of the groups of "
+             "slices the tree has joined")
+    return terms, "verdicts on their way to the output register", (
+        f"{plural(len(plan.schedule.widths), 'slice')} ({plan.config.cell} cells) compared "
+        "in parallel, a tree over their verdicts")
+
+
 @words.register
 def _(plan: PrefixPlan) -> Words:
-    kind, c, sch = plan.unit, plan.config, plan.schedule
-    chain, result, w = kind.chain[0], kind.result, plan.width
+    kind, result, w = plan.unit, plan.unit.result, plan.width
     outputs = ([f"{result} [{w - 1}:0]"] if result else []) + _top_outputs(plan)
-    count = len(sch.widths)
-    if sch.flavour == "compare":
-        terms = ("slice verdicts: a < b and a <= b of each slice, then of the groups of "
-                 "slices the tree has joined")
-        finished = "verdicts on their way to the output register"
-        structure = (f"{plural(count, 'slice')} ({c.cell} cells) compared in parallel, a tree "
-                     "over their verdicts")
-    elif sch.flavour == "chains":
-        terms = (f"block {CHAINS.get(chain, chain + 's')}: each block's {chain} out for "
-                 f"{chain}-in 0 and 1, then of the groups of blocks")
-        finished = (f"block {result}s for {chain}-in 0 and 1, then the selected {result} "
-                    "bits, waiting for the output register")
-        structure = (f"{plural(count, 'block')} of {plural(c.block_width, 'bit')}, a {c.cell} "
-                     "network over the blocks")
-    else:
-        terms = (f"prefix terms: {chain} generate/propagate of bits and groups, each kept "
-                 "until its last use")
-        finished = f"finished {result} bits, waiting for the output register"
-        if c.carry_increment:
-            finished += (f"; in local blocks, {result} bits for the block's carry-in 0, "
-                         "waiting for that carry")
-        local = (f" (in local blocks of {c.local_width} bits first)"
-                 if prefix.has_local_blocks(c.local_width, w) else "")
-        structure = f"a {c.cell} prefix network over {w} bits{local}"
+    terms, finished, structure = _position_words(plan.schedule.positions, plan)
     common = _common(plan)
     meanings = {"input": common["input"], "prefix": terms,
                 "wire": "wire copies: far operands of the longest-span levels, each in a "
@@ -217,10 +237,8 @@ def _boundaries(plan) -> list[int]:
 
 @_boundaries.register
 def _(plan: PrefixPlan) -> list[int]:
-    sch, w, local = plan.schedule, plan.width, plan.config.local_width
-    if sch.flavour != "bits":  # blocks, or a comparator's slices
-        return [b for b in sch.lsbs if 0 < b < w]
-    return list(range(local, w, local)) if prefix.has_local_blocks(local, w) else []
+    sch = plan.schedule
+    return sch.positions.boundaries(plan.config, sch.lsbs)
 
 
 def _lane(plan: Plan, w) -> str | None:
@@ -266,7 +284,7 @@ class _Layout:
         # bit, in `levels`, they would only flicker).
         self.runs = isinstance(plan, PrefixPlan)
         self.shaded = self.edge_band > 1 or (self.runs and (
-            self.bit_band > 1 or plan.schedule.flavour != "bits"))
+            self.bit_band > 1 or plan.schedule.positions.shaded))
         self.x0 = MARGIN + GUTTER
         self.data_x0 = self.x0 + (self.cw + OUT_GAP if self.out else 0)
         self.grid_w = self.columns * self.cw

@@ -16,7 +16,7 @@ always block whatever the registers' initial values.
 
 from __future__ import annotations
 
-from . import cells, header
+from . import header
 from .netlist import Const, Expr, Mux, Netlist, Ref, bit, cat, part
 from .pipeline import Frame
 
@@ -71,23 +71,15 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
         return a_in.vec[base + lsb:base + lsb + width], _slice(y_in, lsb, width)
 
     def chain(q: int, plus_one: bool) -> Ref:
-        """Block q's chain for carry-in 0 (block 0: the unit's carry-in) or 1, as a wire of
-        its result bits and (when read) its chain bit on top."""
+        """Position q's chain for carry-in 0 (block 0: the unit's carry-in) or 1, as a wire
+        of its result bits and (when read) its chain bit on top (see `positions`)."""
         if (q, plus_one) not in chains:
             x, y = operands(q)
             carry = Const(1, 1) if plus_one else (c0 if q == 0 else None)
-            if sch.flavour == "compare":
-                if c.signed and q == len(sch.widths) - 1:  # sign bits inverted: signed order
-                    x, y = (_flip_top(v) for v in (x, y))
-                got = cells.core(cells.Slot(b, f"blk{q}_c{int(plus_one)}", 0), c.cell, x, y,
-                                 Const(int(plus_one), 1), "sub", True, False)
-                chains[q, plus_one] = got
-            else:
-                want = any(t.op == f"chain{int(plus_one)}_carry" and t.pos == q
-                           and t.index in sch.last for t in terms)
-                slot = cells.Slot(b, f"blk{q}_c{int(plus_one)}", base + sch.lsbs[q])
-                total = cells.core(slot, "native", x, y, carry, kind.op, want)
-                chains[q, plus_one] = slot.wire("total", total).all
+            want = any(t.op == f"chain{int(plus_one)}_carry" and t.pos == q
+                       and t.index in sch.last for t in terms)
+            chains[q, plus_one] = sch.positions.chain(b, c, kind, q, base + sch.lsbs[q], x, y,
+                                                      carry, plus_one, want)
         return chains[q, plus_one]
 
     def form(t) -> Expr:
@@ -209,12 +201,6 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
 
 def _slice(e: Expr, lsb: int, width: int) -> Expr:
     return part(e, lsb, width)
-
-
-def _flip_top(v: Expr) -> Expr:
-    """An operand with its top bit inverted (signed order as unsigned order)."""
-    w = v.width
-    return ~v if w == 1 else cat(part(v, 0, w - 1), ~bit(v, w - 1))
 
 
 def _load(b, reg, inside, value_of, base: int) -> None:

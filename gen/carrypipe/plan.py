@@ -396,7 +396,7 @@ class PrefixPlan(Plan):
                     kind_runs[-1][1] += t.width
                 else:
                     kind_runs.append([t.lsb, t.width, t.pos, (t.index, rank) in kept])
-            shift = self.base if sch.flavour == "bits" else 0  # a position is a bit there
+            shift = sch.positions.position_offset(self.base)
             for tk, found in runs.items():
                 words += [Word(TERM_KIND.get(tk, "wire"), tk, self.number(rank), self.base + lsb,
                                width, first + rank, position=pos + shift, keep=keep)

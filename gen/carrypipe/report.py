@@ -11,7 +11,7 @@ from dataclasses import replace
 import textwrap
 from functools import singledispatch
 
-from . import __version__, cells, prefix
+from . import __version__, cells, positions, prefix
 from .header import bits, plural, reset_phrase, stage_list, timing_phrase
 from .plan import MODE_TYPES, Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan, counters_phrase
@@ -188,26 +188,55 @@ def _(plan: SlicedPlan, mark=None) -> list[str]:
     return lines
 
 
-@table.register
-def _(plan: PrefixPlan, mark=None) -> list[str]:
+@singledispatch
+def _network(pos, plan: PrefixPlan) -> tuple[str, list[str]]:
+    """The report's network line and the notes below it, by what a position is (one of the
+    `positions` types)."""
+    raise TypeError(f"no network lines for {type(pos).__name__}")
+
+
+def _network_line(head: str, what: str, plan: PrefixPlan, nodes: int) -> str:
+    sch = plan.schedule
+    return f"{head} over {len(sch.widths)} {what}: {sch.network.depth} level(s), {nodes} nodes"
+
+
+@_network.register
+def _(pos: positions.Bits, plan: PrefixPlan) -> tuple[str, list[str]]:
     c, sch = plan.config, plan.schedule
-    mark = mark or _marks(plan)
-    tree = sch.flavour == "compare"  # what is left of the network: the stages' kept nodes
-    what = {"bits": "bits", "chains": f"blocks of {plural(c.block_width, 'bit')}",
-            "compare": "slices (compared in parallel)"}[sch.flavour]
-    head = "Verdict tree    a balanced tree" if tree else f"Prefix network  {c.cell}"
-    lines = [f"{head} over {len(sch.widths)} {what}: {sch.network.depth} level(s), "
-             f"{sum(s.nodes for s in plan.stages) if tree else sch.network.nodes} nodes",
-             f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or deskew "
-             "triangles)"]
-    if sch.flavour == "bits" and prefix.has_local_blocks(c.local_width, c.width):
-        lines.append(f"          within local blocks of {c.local_width} bits, then across them")
+    notes = []
+    if prefix.has_local_blocks(c.local_width, c.width):
+        notes.append(f"          within local blocks of {c.local_width} bits, then across them")
         if c.carry_increment:
-            lines.append("          carry increment: a block's bits wait for its carry with "
+            notes.append("          carry increment: a block's bits wait for its carry with "
                          "their sums for carry-in 0")
     if sch.merged:
-        lines.append("          the last tree level is merged into the verdict stage" if tree
-                     else "          the last prefix level is merged into the sum stage")
+        notes.append("          the last prefix level is merged into the sum stage")
+    return _network_line(f"Prefix network  {c.cell}", "bits", plan, sch.network.nodes), notes
+
+
+@_network.register
+def _(pos: positions.Blocks, plan: PrefixPlan) -> tuple[str, list[str]]:
+    c = plan.config
+    return _network_line(f"Prefix network  {c.cell}", f"blocks of {plural(c.block_width, 'bit')}",
+                         plan, plan.schedule.network.nodes), []
+
+
+@_network.register
+def _(pos: positions.Slices, plan: PrefixPlan) -> tuple[str, list[str]]:
+    # What is left of the network is the stages' kept nodes.
+    line = _network_line("Verdict tree    a balanced tree", "slices (compared in parallel)",
+                         plan, sum(s.nodes for s in plan.stages))
+    merged = ["          the last tree level is merged into the verdict stage"]
+    return line, merged if plan.schedule.merged else []
+
+
+@table.register
+def _(plan: PrefixPlan, mark=None) -> list[str]:
+    sch = plan.schedule
+    mark = mark or _marks(plan)
+    head, notes = _network(sch.positions, plan)
+    lines = [head, f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or "
+             "deskew triangles)", *notes]
     if sch.wired:
         lines.append("          wire registers in front of prefix level(s) "
                      + ", ".join(str(k + 1) for k in sch.wired))
@@ -338,23 +367,21 @@ def _(plan: PrefixPlan) -> list[str]:
     if deep:
         out += _tip(f"fewer `levels_per_stage` (now {c.levels_per_stage}) splits the prefix "
                     f"levels of {stages_phrase(deep)} over more stages;")
-    first = slow[0].index == 0
-    if sch.flavour == "compare":
-        if first and max(sch.widths) > 1:
-            out += _tip("narrower slices (`slice_width` or `slices`) shorten the comparisons "
-                        "of stage 0;")
-        return out + _input_tip(plan)
-    if sch.flavour == "chains" and c.block_width > 1 and first:
-        out += _tip(f"a smaller `block_width` (now {c.block_width}) shortens the carry chains "
-                    "of stage 0;")
-    if c.cell in ("kogge-stone", "sklansky"):
-        out += _tip("a sparser prefix `cell` (han-carlson, brent-kung) has less wiring and "
-                    "fan-out;")
-    if c.wire_registers < sch.network.depth:
-        which = "one more long-span level" if c.wire_registers else "the longest-span level"
-        out += _tip(f"`wire_registers: {c.wire_registers + 1}` puts a logic-free register "
-                    f"rank in front of {which}: one cycle more, shorter routed nets;")
-    if sch.flavour == "bits" and 2 <= c.local_width < c.width and not c.carry_increment:
+    return out + _position_tips(sch.positions, plan, slow[0].index == 0) + _input_tip(plan)
+
+
+@singledispatch
+def _position_tips(pos, plan: PrefixPlan, first: bool) -> list[str]:
+    """The tips a prefix-mode unit has by what a position is (one of the `positions`
+    types); `first`: stage 0 is among the slowest."""
+    raise TypeError(f"no tips for {type(pos).__name__}")
+
+
+@_position_tips.register
+def _(pos: positions.Bits, plan: PrefixPlan, first: bool) -> list[str]:
+    c = plan.config
+    out = _network_tips(plan)
+    if 2 <= c.local_width < c.width and not c.carry_increment:
         out += _tip("`carry_increment: true` lets each bit of a local block wait for the "
                     "block's carry with two bits instead of three (its sum for carry-in 0 "
                     "and a propagate): fewer flip-flops, measured faster at 256 bits on ECP5, "
@@ -366,7 +393,38 @@ def _(plan: PrefixPlan) -> list[str]:
                     f"with `wire_registers: {moved.config.wire_registers}` (latency "
                     f"{moved.latency}{same}) moves the logic-free rank from the inputs into "
                     "the network, where it measured faster on ECP5 (docs/modes.md).")
-    return out + _input_tip(plan)
+    return out
+
+
+@_position_tips.register
+def _(pos: positions.Blocks, plan: PrefixPlan, first: bool) -> list[str]:
+    c = plan.config
+    out = []
+    if c.block_width > 1 and first:
+        out += _tip(f"a smaller `block_width` (now {c.block_width}) shortens the carry chains "
+                    "of stage 0;")
+    return out + _network_tips(plan)
+
+
+@_position_tips.register
+def _(pos: positions.Slices, plan: PrefixPlan, first: bool) -> list[str]:
+    if first and max(plan.schedule.widths) > 1:
+        return _tip("narrower slices (`slice_width` or `slices`) shorten the comparisons of "
+                    "stage 0;")
+    return []
+
+
+def _network_tips(plan: PrefixPlan) -> list[str]:
+    """Tips on the network of an arithmetic unit: a sparser cell, one more wire rank."""
+    c, out = plan.config, []
+    if c.cell in ("kogge-stone", "sklansky"):
+        out += _tip("a sparser prefix `cell` (han-carlson, brent-kung) has less wiring and "
+                    "fan-out;")
+    if c.wire_registers < plan.schedule.network.depth:
+        which = "one more long-span level" if c.wire_registers else "the longest-span level"
+        out += _tip(f"`wire_registers: {c.wire_registers + 1}` puts a logic-free register "
+                    f"rank in front of {which}: one cycle more, shorter routed nets;")
+    return out
 
 
 @tips.register

@@ -54,14 +54,14 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from . import cells, prefix, units
-from .config import Config, prefix_positions
+from .config import Config
+from .positions import Positions, positions_of
 
 # Register kind of each term kind (see `Plan.registers`).
 PREFIX_KINDS = ("gen", "prop", "grp_gen", "grp_prop", "blk_c0", "blk_c1", "grp_c0", "grp_c1")
 RESULT_KINDS = ("sum", "csum", "blk_s0", "blk_s1", "blk_v0", "blk_v1", "ovf", "cout", "lt", "eq",
                 "gt")
 OPERAND_KINDS = ("sub",)  # operand flags that travel with the terms to the output stage
-TREE_STYLE = "sklansky"  # a comparator's tree: Sklansky pruned to the top is a balanced tree
 
 # Unit-gate delay of each operation, from the model of `prefix.Gates` (a 2:1 select is an
 # AND-OR; gen_cin is g_0 | p_0 & cin after p_0; sum_cin is p_0 ^ cin after p_0).
@@ -102,7 +102,7 @@ class StageInfo:
 @dataclass(frozen=True)
 class Schedule:
     mode: str
-    flavour: str  # bits, chains or compare (see `_positions`)
+    positions: Positions  # what a position is: a bit, a block or a comparator's slice
     network: prefix.Network
     widths: tuple[int, ...]  # bits per position
     lsbs: tuple[int, ...]
@@ -140,7 +140,7 @@ def _span(level) -> int:
     return max(i - j for i, j in level)
 
 
-def _assign_stages(flavour: str, net: prefix.Network, per_stage: int, wires: int):
+def _assign_stages(pos: Positions, net: prefix.Network, per_stage: int, wires: int):
     """Stage of every prefix level, the stage before each wired level, and the final stage."""
     depth = net.depth
     by_span = sorted(range(depth), key=lambda k: (-_span(net.levels[k]), -k))
@@ -148,9 +148,9 @@ def _assign_stages(flavour: str, net: prefix.Network, per_stage: int, wires: int
     # Every sum bit reads one node of the last level: s_i = p_i ^ (G_h | P_h & G_l) has four
     # inputs, so with one bit per position that level always rides in the sum stage; a
     # comparator's verdicts (lt, eq, gt) read the last node's four inputs the same way.
-    merged = flavour in ("bits", "compare") and depth > 0
+    merged = pos.merges_last_level and depth > 0
     # Stage 1 always has logic: the bit generate/propagate, or the chains (compares).
-    stage, used = 1, (0 if flavour == "bits" else per_stage)
+    stage, used = 1, (per_stage if pos.whole_first_stage else 0)
     level_stage, wire_stage = {}, {}
     for k in range(depth - merged):
         if k in wired:
@@ -163,7 +163,7 @@ def _assign_stages(flavour: str, net: prefix.Network, per_stage: int, wires: int
     if depth == 0:
         final = 1
     elif depth - merged == 0:  # the only level rides in the last stage: with g/p, or after
-        final = 1 if flavour == "bits" else 2  # a stage of compares
+        final = 2 if pos.whole_first_stage else 1  # after a stage of chains or compares
     else:
         final = stage + 1
     if merged and depth - 1 in wired:  # a wire rank between the last prefix stage and the sum
@@ -174,19 +174,31 @@ def _assign_stages(flavour: str, net: prefix.Network, per_stage: int, wires: int
     return level_stage, wire_stage, final, merged, tuple(sorted(wired))
 
 
-def _positions(config: Config, kind) -> tuple[str, tuple[int, ...]]:
-    """The schedule's flavour and the bits per position.
+class _Terms:
+    """The growing list of a schedule's terms, and the stage rule for results."""
 
-    bits: `levels` arithmetic, one bit per position (generate/propagate);
-    chains: `blocks` arithmetic, each block's two carry chains;
-    compare: a comparator's `levels` mode, each slice compared in parallel."""
-    w = config.width
-    if kind.result is None:
-        return "compare", tuple(config.slices)
-    if config.pipeline == "levels":
-        return "bits", (1,) * w
-    k = config.block_width
-    return "chains", tuple(min(k, w - k * q) for q in range(prefix_positions(w, "blocks", k)))
+    def __init__(self, widths: tuple[int, ...], final: int, logic_free: set[int]):
+        self.widths = widths
+        self.lsbs = tuple(sum(widths[:q]) for q in range(len(widths)))
+        self.final, self.logic_free = final, logic_free
+        self.terms: list[Term] = []
+
+    def term(self, kind_: str, pos: int, op: str, args, stage: int, width: int = 1,
+             lsb: int | None = None, level: int | None = None) -> int:
+        """Append a term (by default at the bit above its position) and return its index."""
+        at = self.lsbs[pos] + self.widths[pos] if lsb is None else lsb
+        self.terms.append(Term(len(self.terms), kind_, pos, at, width, op, tuple(args), stage,
+                               level))
+        return len(self.terms) - 1
+
+    def after(self, *args: int) -> int:
+        """The stage after its arguments are final (or the final stage), not a wire stage."""
+        terms = self.terms
+        stage = min(self.final, max(terms[x].stage + (terms[x].stage < self.final)
+                                    for x in args))
+        while stage in self.logic_free:
+            stage += 1
+        return stage
 
 
 def make_schedule(config: Config, kind: units.Kind | None = None,
@@ -200,88 +212,33 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
     that would read it is formed without it."""
     kind = kind or units.KINDS[config.unit]
     y_end = operand_widths[1] if operand_widths else config.width
-    flavour, widths = _positions(config, kind)
+    pos = positions_of(config, kind)
+    widths = pos.widths(config)
     count = len(widths)
-    lsbs = tuple(sum(widths[:q]) for q in range(count))
-    net = (prefix.network(TREE_STYLE, count) if flavour == "compare" else
-           prefix.local_network(config.cell, count,
-                                config.local_width if flavour == "bits" else 0))
-    wires = config.wire_registers if flavour != "compare" else 0
+    net = pos.network(config, count)
     level_stage, wire_stage, final, merged, wired = _assign_stages(
-        flavour, net, config.levels_per_stage, wires)
-
-    terms: list[Term] = []
-
-    def term(kind_, pos, op, args, stage, width=1, lsb=None, level=None):
-        at = lsbs[pos] + widths[pos] if lsb is None else lsb
-        terms.append(Term(len(terms), kind_, pos, at, width, op, tuple(args), stage, level))
-        return len(terms) - 1
+        pos, net, config.levels_per_stage, pos.wires(config))
+    b = _Terms(widths, final, set(wire_stage.values()))
+    term, terms = b.term, b.terms
 
     has_cin = kind.has_carry_in(config)
     flags = {f: term(f, 0, "flag", (), 1, lsb=0) for f in kind.travellers}
-    sums: list = [None] * count
-    if flavour == "bits":
-        prop = [term("prop", i, "prop" if i < y_end else "pass", (), 1, lsb=i)
-                for i in range(config.width)]
-        g = [term("gen", i, "gen_cin" if has_cin and i == 0 else "gen", (), 1)
-             if i < y_end else None for i in range(config.width)]
-        p = list(prop)
-        if has_cin:
-            sums[0] = term("sum", 0, "sum_cin", (prop[0],), 1, lsb=0)
-        elif kind.op == "sub":  # a difference bit is the complement of the borrow propagate
-            sums[0] = term("sum", 0, "sum", (prop[0],), 1, lsb=0)
-        else:
-            sums[0] = prop[0]
-        g_kind, p_kind, p_op = "grp_gen", "grp_prop", "dot_p"
-    else:
-        chain = "cmp" if flavour == "compare" else "chain"
-        results = flavour == "chains"
-        s0 = [term("blk_s0", q, "chain0_sum", (), 1, widths[q], lsbs[q]) if results else None
-              for q in range(count)]
-        g = [term("blk_c0", q, f"{chain}0_carry", (), 1) if lsbs[q] < y_end else None
-             for q in range(count)]
-        low_has_c1 = flavour == "compare"  # a comparator's lowest slice has no carry-in
-        s1 = [None] + [term("blk_s1", q, "chain1_sum", (), 1, widths[q], lsbs[q])
-                       if results else None for q in range(1, count)]
-        p = [term("blk_c1", 0, f"{chain}1_carry", (), 1) if low_has_c1 else None] + [
-            term("blk_c1", q, f"{chain}1_carry", (), 1) for q in range(1, count)]
-        sums[0] = s0[0]
-        g_kind, p_kind, p_op = "grp_c0", "grp_c1", "dot_g"
-    logic_free = set(wire_stage.values())
-
-    def after(*args) -> int:
-        """The stage after its arguments are final (or the final stage), not a wire stage."""
-        stage = min(final, max(terms[x].stage + (terms[x].stage < final) for x in args))
-        while stage in logic_free:
-            stage += 1
-        return stage
-
-    def finish(q):
-        """Form position q's result in the stage after its carry-in g[q-1] is final."""
-        if flavour == "compare":
-            return
-        if g[q - 1] is None:  # no carry can reach it: its result is its own
-            sums[q] = s0[q] if flavour == "chains" else prop[q]
-            return
-        stage = after(g[q - 1])
-        if flavour == "bits":
-            sums[q] = term("sum", q, "sum", (prop[q], g[q - 1]), stage, lsb=q)
-        else:
-            sums[q] = term("sum", q, "select", (s0[q], s1[q], g[q - 1]), stage,
-                           widths[q], lsbs[q])
+    leaves = pos.leaves(b, kind, config, y_end)
+    g, p, sums = leaves.g, leaves.p, leaves.sums
+    g_kind, p_kind = pos.group_kinds
 
     # carry_increment: once the network within the local blocks is done, bit i of block q
     # (not the block's lowest bit) holds the sum it has for block carry-in 0, s0 = p ^ G, and
     # the propagate P of its group in the block; the fill-in node (i, block q's carry) then
     # becomes the sum itself, s = s0 ^ P & C (G and P are never both 1, so ^ is |).
-    local = config.local_width if flavour == "bits" and config.carry_increment else 0
+    local = pos.increment_width(config)
     last_local = prefix.network(config.cell, local).depth - 1 if 0 < local < count else None
     waiting: dict[int, tuple[int, int]] = {}  # bit i -> (bit i + 1's s0, the P of bit i)
     done = [True] + [False] * (count - 1)  # position q's carry-in is final
     low = list(range(count))  # lowest position covered by the group held at each position
     for q in range(1, count):
         if low[q - 1] == 0:
-            finish(q)
+            pos.finish(b, leaves, q, g[q - 1])
             done[q] = True
     for k, level in enumerate(net.levels):
         stage = level_stage[k]
@@ -304,7 +261,7 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
                     pj = far(pj, i)
             if k == net.depth - 1 and i in waiting and gj is not None:
                 s0, pi = waiting[i]  # the fill-in: the block carry flips s0
-                sums[i + 1] = term("sum", i + 1, "sum_flip", (s0, pi, gj), after(s0, pi, gj),
+                sums[i + 1] = term("sum", i + 1, "sum_flip", (s0, pi, gj), b.after(s0, pi, gj),
                                    lsb=i + 1)
                 done[i + 1] = True
                 low[i] = before[j]
@@ -318,10 +275,10 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
             # A block group reaching block 0 needs no carry-in-1 term (cin is folded in).
             if pj is None:
                 new_p[i] = None
-            elif p_op == "dot_p" or g[i] is None:
+            elif pos.p_op == "dot_p" or g[i] is None:
                 new_p[i] = term(p_kind, i, "dot_p", (p[i], pj), stage, level=k)
             else:
-                new_p[i] = term(p_kind, i, p_op, (g[i], p[i], pj), stage, level=k)
+                new_p[i] = term(p_kind, i, pos.p_op, (g[i], p[i], pj), stage, level=k)
             low[i] = before[j]
         g, p = new_g, new_p
         if k == last_local:  # the in-block groups are complete: s0 and P wait instead
@@ -333,11 +290,12 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
                     # generates nothing (a carry-save final adder's short operand) waits
                     # as usual
                 x = g[i]  # formed in this stage: s0 with it, one 4-input function
-                at = terms[x].stage if terms[x].level == k else after(prop[i + 1], x)
-                waiting[i] = (term("csum", i + 1, "xor", (prop[i + 1], x), at, lsb=i + 1), p[i])
+                at = terms[x].stage if terms[x].level == k else b.after(leaves.own[i + 1], x)
+                waiting[i] = (term("csum", i + 1, "xor", (leaves.own[i + 1], x), at,
+                                   lsb=i + 1), p[i])
         for q in range(1, count):
             if not done[q] and low[q - 1] == 0:
-                finish(q)
+                pos.finish(b, leaves, q, g[q - 1])
                 done[q] = True
 
     outputs: dict[str, object] = {}
@@ -352,8 +310,7 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
                 cout = term("cout", count - 1, "not", (cout,), terms[cout].stage)
             outputs["chain"] = cout
         if config.signed:
-            outputs["overflow"] = _overflow(term, terms, flavour, g, widths, lsbs, final,
-                                            after, has_cin)
+            outputs["overflow"] = pos.overflow(b, g, has_cin)
     else:
         top_lt, top_le = g[-1], p[-1]
         outputs["lt"] = term("lt", count - 1, "lt", (top_lt,), final)
@@ -386,26 +343,10 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
         nodes = sum(1 for t in terms if t.stage == s_ and t.index in last
                     and t.kind in ("grp_gen", "grp_c0"))  # the nodes left after pruning
         stages.append(StageInfo(s_, levels, nodes, delay,
-                                _describe(flavour, s_, final, levels,
+                                _describe(pos, s_, final, levels,
                                           s_ in wire_stage.values(), s_ in formed)))
-    return Schedule(config.pipeline, flavour, net, widths, lsbs, final, merged, wired,
+    return Schedule(config.pipeline, pos, net, widths, b.lsbs, final, merged, wired,
                     tuple(terms), last, outputs, tuple(stages))
-
-
-def _overflow(term, terms, flavour, g, widths, lsbs, final, after, has_cin) -> int:
-    """The signed-overflow term: the carry into the top bit XOR the carry out of it (for a
-    borrow chain, the borrows: common practice), formed once both are final.  In `blocks`
-    mode the top block's two chains give an overflow bit each, selected like its sum."""
-    top = len(widths) - 1
-    if flavour == "bits":
-        if top == 0:  # one bit: the carry into it is the carry-in itself
-            return term("ovf", 0, "ovf_cin" if has_cin else "ovf_gen", (g[0],), 1)
-        return term("ovf", top, "xor", (g[top], g[top - 1]), after(g[top], g[top - 1]))
-    v0 = term("blk_v0", top, "chain0_ovf", (), 1, 1, lsbs[top])
-    if top == 0:
-        return v0
-    v1 = term("blk_v1", top, "chain1_ovf", (), 1, 1, lsbs[top])
-    return term("ovf", top, "select", (v0, v1, g[top - 1]), after(g[top - 1]))
 
 
 def _flat(values):
@@ -434,19 +375,18 @@ def _op_delay(t: Term, widths, cin: bool, kind, cell: str) -> int:
     return OP_DELAY[t.op]
 
 
-def _describe(flavour: str, s: int, final: int, levels, wire: bool, logic: bool) -> str:
+def _describe(pos: Positions, s: int, final: int, levels, wire: bool, logic: bool) -> str:
     """What stage `s` evaluates; `logic` says whether it forms any term at all (the last
     stage has nothing to form when every result was finished before it)."""
     parts = []
     if wire:
         parts.append("wire registers (no logic)")
     if s == 1:
-        parts.append({"bits": "generate/propagate", "chains": "block carry chains",
-                      "compare": "slice comparisons"}[flavour])
+        parts.append(pos.first_logic)
     if levels:  # a comparator's network is the tree that combines the slices' verdicts
         first, end = levels[0] + 1, levels[-1] + 1
-        what = "tree level" if flavour == "compare" else "prefix level"
+        what = pos.level_word
         parts.append(f"{what} {first}" if first == end else f"{what}s {first}-{end}")
     if s == final and logic:
-        parts.append({"bits": "sum", "chains": "block select", "compare": "verdicts"}[flavour])
+        parts.append(pos.final_logic)
     return ", ".join(parts) or "output register (no logic)"
