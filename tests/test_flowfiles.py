@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from carrypipe import emit
+from carrypipe import emit, flowfiles
 from carrypipe.tools import which
 from conftest import make
 
@@ -48,6 +48,15 @@ def test_the_include_file_holds_the_plans_figures(built):
         if p.name not in ("clk", "rst", "en"):
             assert defines[f"GATE_ADD_{p.name.upper()}_WIDTH"] == str(p.width)
     assert text.splitlines()[1:3] == ["`ifndef GATE_ADD_VH", "`define GATE_ADD_VH"]
+
+
+@pytest.mark.parametrize("enable", [True, False])
+def test_the_latency_comment_names_en_only_when_the_unit_has_it(enable):
+    """The latency counts rising edges; only a unit with `enable` counts those with en high."""
+    text = flowfiles.include(make(**{**KEYS, "enable": enable}))
+    line = next(x for x in text.splitlines() if "GATE_ADD_LATENCY" in x)
+    assert line.endswith("rising edges with en high from inputs to results" if enable
+                         else "// rising edges from inputs to results")
 
 
 def test_the_template_drops_into_a_design(built, tmp_path):

@@ -21,7 +21,8 @@ def include(plan) -> str:
     """`<name>.vh`: an include guard and defines for the latency, widths and register bits."""
     c = plan.config
     guard = macro(plan, "VH")
-    defines = [("LATENCY", plan.latency, "enabled rising edges from inputs to results"),
+    edges = "rising edges with en high" if c.enable else "rising edges"
+    defines = [("LATENCY", plan.latency, f"{edges} from inputs to results"),
                ("WIDTH", c.width, "operand width")]
     defines += [(f"{p.name.upper()}_WIDTH", p.width, f"{p.direction} {p.name}")
                 for p in plan.ports if p.name not in ("clk", "rst", "en")]
