@@ -84,15 +84,34 @@ def _copies(tree) -> int:
 
 @pytest.mark.parametrize("keys, copies", [
     ({"unit": "sum", "operands": 5, "width": 9, "signed": True}, 2),
-    ({"unit": "multiplier", "width": 18, "partial_products": "booth4"}, 2),
+    ({"unit": "multiplier", "width": 18, "partial_products": "booth4"}, 0),
     ({"unit": "multiplier", "width": 12, "width_b": 10, "signed": True,
-      "partial_products": "booth4", "pipeline": "blocks", "cell": "kogge-stone"}, 1),
+      "partial_products": "booth4", "pipeline": "blocks", "cell": "kogge-stone"}, 0),
     ({"unit": "multiplier", "width": 8, "signed": True}, 0),
-], ids=["signed-sum", "booth", "booth-signed-blocks", "baugh-wooley"])
+    ({"unit": "multiplier", "width": 7, "width_b": 2, "signed": True,
+      "partial_products": "booth4"}, 1),
+], ids=["signed-sum", "booth", "booth-signed-blocks", "baugh-wooley", "booth-one-row"])
 def test_merging_equal_flip_flops_removes_exactly_the_copies(keys, copies, tmp_path):
+    # The copies are where one value must stand in two columns: the sign bit of a signed
+    # sum's operands, and of a Booth product's only row (the constant's one-bits run past the
+    # one dot a column holds); a multiplier with more rows absorbs each one-bit into a dot
+    # of its own.
     # README: absorbing the constant may leave one value in two registers of a rank; Yosys's
     # opt (opt_merge) keeps one of each such pair and nothing else.
     p = make(**keys)
     assert _copies(p.tree) == copies
     merged = flip_flop_bits(emit.unit_verilog(p), tmp_path, "proc; opt; techmap; opt")
     assert merged == p.registers.total - copies
+
+
+@pytest.mark.parametrize("keys", [
+    {"unit": "multiplier", "width": w, "width_b": wb, "signed": s, "partial_products": pp,
+     "tree": tree, "tree_levels_per_stage": lps}
+    for w, wb in ((3, 5), (8, 8), (12, 9), (16, 16), (24, 18))
+    for s in (False, True) for pp in ("and", "booth4") for tree in ("dadda", "wallace")
+    for lps in (1, 2)])
+def test_a_multiplier_holds_no_value_twice_in_a_rank(keys):
+    """Each one-bit of the constant is absorbed into a dot whose value is nowhere else
+    (`reduction._lone`), so no rank of a multiplier with more than one partial-product row
+    holds a value twice: synthesis has no equal flip-flops to merge."""
+    assert _copies(make(**keys).tree) == 0

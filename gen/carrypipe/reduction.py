@@ -225,8 +225,9 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
         for k in sorted(pending):
             if cols[k]:
                 pending.discard(k)
-                d = cols[k][-1]
-                cols[k][-1] = d.flipped()
+                at = _lone(cols, k)
+                d = cols[k][at]
+                cols[k][at] = d.flipped()
                 if k + 1 < n_cols:
                     cols[k + 1].append(d)
 
@@ -305,6 +306,19 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
         raise AssertionError(f"constant bits {sorted(pending)} met no dot")  # see docstring
     return Tree(matrix, style, tuple(values), tuple(counters), tuple(levels),
                 levels[-1].stage, tuple(ranks), flip)
+
+
+def _lone(cols: list[list[Dot]], k: int) -> int:
+    """Which dot of column k absorbs a one-bit of K: the last one whose value is in no other
+    place (else the last).  An absorbed dot stays in column k complemented and moves on to
+    column k + 1: absorbing a value already there (one that came up from column k - 1)
+    would put one value in two registers of the next rank."""
+    count: dict[int, int] = {}
+    for col in cols:
+        for d in col:
+            count[d.value] = count.get(d.value, 0) + 1
+    return next((i for i in reversed(range(len(cols[k]))) if count[cols[k][i].value] == 1),
+                len(cols[k]) - 1)
 
 
 def _counters(style: str, avail: int, total: int, target: int | None) -> list[str]:
