@@ -357,6 +357,28 @@ class SlicedPlan(Plan):
         shape = f"{split[0]}x{len(split)}" if len(set(split)) == 1 else "+".join(map(str, split))
         return f"{self.config.cell} {shape}"
 
+    @classmethod
+    def make(cls, config: Config, nest: Nest | None = None) -> SlicedPlan:
+        """The plan of a `slices` config: its slices, with their waits and unit-gate delays."""
+        count = len(config.slices)
+        style = cells.STYLES[config.cell]
+        kind = nest.kind if nest else units.KINDS[config.unit]
+        slices, lsb = [], nest.base if nest else 0
+        for index, width in enumerate(config.slices):
+            carry_in = index > 0 or kind.has_carry_in(config)
+            carry_out = index < count - 1 or kind.has_carry_out(config)
+            net = style.carry_network(width)
+            slices.append(Slice(
+                index=index, lsb=lsb, width=width, cell=config.cell,
+                carry_in=carry_in, carry_out=carry_out,
+                wait_before=index,
+                wait_after=count - 1 - index if kind.result else 0,  # verdicts never wait
+                depth=net.depth, nodes=net.nodes,
+                delay=kind.slice_delay(config, config.cell, width, index == 0,
+                                       index == count - 1, carry_in, carry_out)))
+            lsb += width
+        return cls(config=config, stages=tuple(slices), nest=nest)
+
 
 # Register kind of every schedule term kind.
 TERM_KIND = {**{k: "prefix" for k in schedule.PREFIX_KINDS},
@@ -459,42 +481,21 @@ class PrefixPlan(Plan):
         return make_plan(c.replaced(register_inputs=False,
                                     wire_registers=c.wire_registers + 1))
 
-
-def make_prefix_plan(config: Config, nest: Nest | None = None) -> PrefixPlan:
-    """The plan of a `levels` or `blocks` config, from its pruned schedule."""
-    kind = nest.kind if nest else units.KINDS[config.unit]
-    sch = schedule.make_schedule(config, kind, nest.widths if nest else None)
-    base = nest.base if nest else 0
-    stages = tuple(Stage(index=st.index - 1, lsb=base, width=config.width, cell=config.cell,
-                         levels=tuple(k + 1 for k in st.levels), depth=len(st.levels),
-                         nodes=st.nodes, delay=st.delay, logic=st.logic)
-                   for st in sch.stages)
-    return PrefixPlan(config=config, stages=stages, nest=nest, schedule=sch)
-
-
-def make_sliced_plan(config: Config, nest: Nest | None = None) -> SlicedPlan:
-    count = len(config.slices)
-    style = cells.STYLES[config.cell]
-    kind = nest.kind if nest else units.KINDS[config.unit]
-    slices, lsb = [], nest.base if nest else 0
-    for index, width in enumerate(config.slices):
-        carry_in = index > 0 or kind.has_carry_in(config)
-        carry_out = index < count - 1 or kind.has_carry_out(config)
-        net = style.carry_network(width)
-        slices.append(Slice(
-            index=index, lsb=lsb, width=width, cell=config.cell,
-            carry_in=carry_in, carry_out=carry_out,
-            wait_before=index,
-            wait_after=count - 1 - index if kind.result else 0,  # verdicts never wait
-            depth=net.depth, nodes=net.nodes,
-            delay=kind.slice_delay(config, config.cell, width, index == 0,
-                                   index == count - 1, carry_in, carry_out)))
-        lsb += width
-    return SlicedPlan(config=config, stages=tuple(slices), nest=nest)
+    @classmethod
+    def make(cls, config: Config, nest: Nest | None = None) -> PrefixPlan:
+        """The plan of a `levels` or `blocks` config, from its pruned schedule."""
+        kind = nest.kind if nest else units.KINDS[config.unit]
+        sch = schedule.make_schedule(config, kind, nest.widths if nest else None)
+        base = nest.base if nest else 0
+        stages = tuple(Stage(index=st.index - 1, lsb=base, width=config.width, cell=config.cell,
+                             levels=tuple(k + 1 for k in st.levels), depth=len(st.levels),
+                             nodes=st.nodes, delay=st.delay, logic=st.logic)
+                       for st in sch.stages)
+        return cls(config=config, stages=stages, nest=nest, schedule=sch)
 
 
-MODES = {"slices": make_sliced_plan, "levels": make_prefix_plan, "blocks": make_prefix_plan}
-MODE_TYPES = {"slices": SlicedPlan, "levels": PrefixPlan, "blocks": PrefixPlan}
+# The plan type of each pipeline mode; `MODES[mode].make(config, nest)` derives the plan.
+MODES = {"slices": SlicedPlan, "levels": PrefixPlan, "blocks": PrefixPlan}
 
 
 def make_plan(config: Config) -> Plan:
@@ -504,4 +505,4 @@ def make_plan(config: Config) -> Plan:
         from .treeplan import make_tree_plan
 
         return make_tree_plan(config)
-    return MODES[config.pipeline](config)
+    return MODES[config.pipeline].make(config)

@@ -13,7 +13,7 @@ from functools import singledispatch
 
 from . import __version__, cells, positions, prefix
 from .header import bits, plural, reset_phrase, stage_list, timing_phrase
-from .plan import MODE_TYPES, Plan, PrefixPlan, SlicedPlan
+from .plan import MODES, Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan, counters_phrase
 
 DELAY_MODEL = ("unit-gate model (Tyagi 1993; Zimmermann 1997): 2-input AND/OR = 1, XOR = 2, "
@@ -95,7 +95,7 @@ def _(plan: TreePlan) -> dict:
                         "full_adders": lv.full, "half_adders": lv.half,
                         "height": max(lv.heights, default=0)} for lv in t.levels]}
     if plan.adder is None:  # a prefix mode still lists its (no) stages, like an adder's
-        prefix_mode = MODE_TYPES[plan.config.pipeline] is PrefixPlan
+        prefix_mode = MODES[plan.config.pipeline] is PrefixPlan
         return {"tree": tree, "final_adder": None, **({"stages": []} if prefix_mode else {})}
     adder = {"lsb": r.low, "msb": r.top - 1, "width": r.adder_width,
              "pipeline": plan.config.pipeline, "cell": plan.config.cell,

@@ -24,7 +24,7 @@ from functools import cached_property
 from . import reduction, units
 from .config import Config
 from .header import plural
-from .plan import DIRECT_UP_TO, MODE_TYPES, MODES, Nest, Plan, Word
+from .plan import DIRECT_UP_TO, MODES, Nest, Plan, Word
 
 # `prove --method auto` proves a tree directly up to this many partial-product rows and
 # result bits (docs/verification.md), compositionally above.
@@ -112,7 +112,7 @@ class TreePlan(Plan):
     def register_kinds(self) -> tuple[str, ...]:
         """The tree's kind and every kind of the final adder's mode, present or not (a
         unit without a final adder lists them at 0 too)."""
-        inner = MODE_TYPES[self.config.pipeline].register_kinds
+        inner = MODES[self.config.pipeline].register_kinds
         return ("input", "tree", *[k for k in inner if k not in ("input", "control")],
                 "control")
 
@@ -290,6 +290,6 @@ def make_tree_plan(config: Config) -> Plan:
         nest = Nest(units.FinalAdder(kind.result, tree.flip_carry), rows.low, tree.stages,
                     tree.stages + (1 if config.register_inputs else 0),
                     (rows.adder_width, rows.pairs - rows.low))
-        adder = MODES[config.pipeline](inner, nest)
+        adder = MODES[config.pipeline].make(inner, nest)
         stages += [replace(s, index=tree.stages + s.index) for s in adder.stages]
     return TreePlan(config=config, stages=tuple(stages), tree=tree, adder=adder)
