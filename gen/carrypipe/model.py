@@ -35,7 +35,7 @@ from dataclasses import dataclass
 from functools import cache
 from importlib import resources
 
-from . import cells, devices, harness
+from . import cells, devices, harness, schedule
 from .plan import Plan, PrefixPlan, SlicedPlan
 
 DATA = "delay_models.json"
@@ -146,9 +146,8 @@ def _prefix_figures(plan, depth: dict) -> tuple[StageFigures, ...]:
             luts, chain = slice_depth(depth, kind, "native", width) or (1, width)
             out.append(StageFigures(chain, luts, pair=True, operands=first))
             continue
-        # A node (i, j) joins position i with position j: it reaches across their bits.
-        span = max((sch.lsbs[i] - sch.lsbs[j] for k in st.levels
-                    for i, j in sch.network.levels[k]), default=0)
+        span = max((schedule.reach(sch.network.levels[k], sch.lsbs) for k in st.levels),
+                   default=0)
         readers: dict[int, int] = {}
         for t in ops:
             for x in t.args:

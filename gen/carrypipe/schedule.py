@@ -136,14 +136,16 @@ class Schedule:
         return out
 
 
-def _span(level) -> int:
-    return max(i - j for i, j in level)
+def reach(level, lsbs) -> int:
+    """How far a prefix level's nodes reach, in bits: node (i, j) joins position i with
+    position j (lsbs: the first bit of each position)."""
+    return max(lsbs[i] - lsbs[j] for i, j in level)
 
 
-def _assign_stages(pos: Positions, net: prefix.Network, per_stage: int, wires: int):
+def _assign_stages(pos: Positions, net: prefix.Network, lsbs, per_stage: int, wires: int):
     """Stage of every prefix level, the stage before each wired level, and the final stage."""
     depth = net.depth
-    by_span = sorted(range(depth), key=lambda k: (-_span(net.levels[k]), -k))
+    by_span = sorted(range(depth), key=lambda k: (-reach(net.levels[k], lsbs), -k))
     wired = frozenset(by_span[:wires])
     # Every sum bit reads one node of the last level: s_i = p_i ^ (G_h | P_h & G_l) has four
     # inputs, so with one bit per position that level always rides in the sum stage; a
@@ -177,9 +179,9 @@ def _assign_stages(pos: Positions, net: prefix.Network, per_stage: int, wires: i
 class _Terms:
     """The growing list of a schedule's terms, and the stage rule for results."""
 
-    def __init__(self, widths: tuple[int, ...], final: int, logic_free: set[int]):
-        self.widths = widths
-        self.lsbs = tuple(sum(widths[:q]) for q in range(len(widths)))
+    def __init__(self, widths: tuple[int, ...], lsbs: tuple[int, ...], final: int,
+                 logic_free: set[int]):
+        self.widths, self.lsbs = widths, lsbs
         self.final, self.logic_free = final, logic_free
         self.terms: list[Term] = []
 
@@ -216,9 +218,10 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
     widths = pos.widths(config)
     count = len(widths)
     net = pos.network(config, count)
+    lsbs = tuple(sum(widths[:q]) for q in range(count))
     level_stage, wire_stage, final, merged, wired = _assign_stages(
-        pos, net, config.levels_per_stage, pos.wires(config))
-    b = _Terms(widths, final, set(wire_stage.values()))
+        pos, net, lsbs, config.levels_per_stage, pos.wires(config))
+    b = _Terms(widths, lsbs, final, set(wire_stage.values()))
     term, terms = b.term, b.terms
 
     has_cin = kind.has_carry_in(config)
@@ -345,7 +348,7 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
         stages.append(StageInfo(s_, levels, nodes, delay,
                                 _describe(pos, s_, final, levels,
                                           s_ in wire_stage.values(), s_ in formed)))
-    return Schedule(config.pipeline, pos, net, widths, b.lsbs, final, merged, wired,
+    return Schedule(config.pipeline, pos, net, widths, lsbs, final, merged, wired,
                     tuple(terms), last, outputs, tuple(stages))
 
 
