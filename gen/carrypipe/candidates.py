@@ -273,12 +273,12 @@ class Row:
 
     def seeds_to_run(self) -> tuple[int, ...]:
         """Seeds still to measure: 1..seeds at first; then, while every seed so far failed
-        with a tool error (not a timeout, not a full device), the next one, up to
+        with a tool error or crash (not a timeout, not a full device), the next one, up to
         RETRY_SEEDS more."""
         tried = {m.seed for m in self.measured}
         if not tried:
             return tuple(range(1, self.seeds + 1))
-        if self.ok or any(m.status != "error" for m in self.measured):
+        if self.ok or any(m.status not in ("error", "broken") for m in self.measured):
             return ()
         nxt = max(tried) + 1
         return (nxt,) if nxt <= self.seeds + RETRY_SEEDS else ()

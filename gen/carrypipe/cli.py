@@ -100,7 +100,8 @@ def _one_line_usage():
 class _Unread:
     """sys.stdout that, once its reader has gone (`carrypipe ... | head`), sends the rest
     to the null device: the command still finishes (a build or fit still writes its folder)
-    and exits with its own status, not click's 1 for a broken pipe."""
+    and exits with its own status, not click's 1 for a broken pipe.  Any other failure to
+    write it (a full disk, an I/O error) is the environment's: one line, exit status 3."""
 
     def __init__(self, stream):
         self._stream = stream
@@ -112,12 +113,21 @@ class _Unread:
         try:
             return call(*args)
         except BrokenPipeError:
-            null = os.open(os.devnull, os.O_WRONLY)
-            os.dup2(null, self._stream.fileno())
-            os.close(null)
+            self._drop()
             return call(*args)
+        except OSError as exc:
+            self._drop()  # what is still buffered goes nowhere, not into a second error
+            raise EnvironmentFault(f"cannot write the standard output: "
+                                   f"{exc.strerror or exc}") from None
+
+    def _drop(self):
+        null = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(null, self._stream.fileno())
+        os.close(null)
 
     def write(self, text):
+        if text == "":  # click's probe of the stream's type: nothing to write, nothing to fail
+            return 0
         return self._quiet(self._stream.write, text)
 
     def flush(self):

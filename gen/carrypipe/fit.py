@@ -153,6 +153,8 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     chosen = candidates.select(rows, target)
     outcome = Outcome(settings, rows, versions, chosen, candidates.best(rows),
                       measurements=measurements, cached=cached)
+    if not plot.available():
+        outcome.notes.append(plot.MISSING)
     if model.entry_for(dev.name) is None:
         outcome.notes.append(f"no delay model for {dev.name} with nextpnr's "
                              f"{model.placer(dev)} placer: candidates are measured "
@@ -180,7 +182,7 @@ def environment_failure(outcome: Outcome) -> str | None:
     tool timed out or failed), what to say; else None.  Nothing was then learnt about the
     design, so `fit` exits with the environment's status, not with "none meets"."""
     measured = [m for row in outcome.rows for m in row.measured]
-    if not measured or any(m.status not in ("timeout", "error") for m in measured):
+    if not measured or any(m.status not in ("timeout", "error", "broken") for m in measured):
         return None
     return (f"no candidate could be measured on {outcome.settings.device.name}: "
             f"{measured[0].message}")
@@ -368,6 +370,7 @@ def files(outcome: Outcome, source: str | None = None) -> dict[str, str | bytes]
     out["fit.json"] = json.dumps(doc, indent=2, sort_keys=True) + "\n"
     title = (f"{rows[0].config.name if rows else ''}: {s.device.name}, target "
              f"{target:g} MHz")
-    pics = plot.figures(outcome.rows, target, outcome.chosen, title)
-    out["fit.png"], out["fit.svg"] = pics["png"], pics["svg"]
+    if plot.available():
+        pics = plot.figures(outcome.rows, target, outcome.chosen, title)
+        out["fit.png"], out["fit.svg"] = pics["png"], pics["svg"]
     return out

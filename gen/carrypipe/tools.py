@@ -7,7 +7,7 @@ its own venv without the venv being activated; then PATH.
 Running: every tool runs in a process group of its own (inside carrypipe's session), so
 that everything it starts (Verilator's make and compilers, say) can be ended with it.  The
 whole group is ended (SIGTERM, then SIGKILL after `GRACE` seconds) when the time limit
-passes, when carrypipe is interrupted (Ctrl-C, SIGTERM: `signals`) and in worker processes
+passes, when carrypipe is interrupted (Ctrl-C, SIGTERM, SIGHUP: `signals`) and in worker processes
 (`worker_init`); on Linux each tool and each worker process also gets PR_SET_PDEATHSIG, so
 the tool itself (not what it started) and the workers die with carrypipe even when
 carrypipe is killed outright.
@@ -107,6 +107,24 @@ class Deadline:
         return ToolTimeout(f"{what} did not finish within {self.seconds:g} s ({self.option})")
 
 
+def exit_status(out: subprocess.CompletedProcess) -> str:
+    """How a tool ended, in words: its exit status, or the signal that killed it."""
+    code = out.returncode
+    if code < 0:
+        try:
+            return f"killed by {signal.Signals(-code).name}"
+        except ValueError:
+            return f"killed by signal {-code}"
+    return f"exit status {code}"
+
+
+def tail(out: subprocess.CompletedProcess, lines: int = 2) -> str:
+    """The last non-empty lines of a tool's output, joined into one (at most 300 characters),
+    or "no output"."""
+    found = [ln.strip() for ln in (out.stdout + out.stderr).splitlines() if ln.strip()]
+    return " | ".join(found[-lines:])[:300] or "no output"
+
+
 def deadline(limit: float | Deadline | None) -> Deadline:
     """A number of seconds (or None) as a fresh `Deadline`; a `Deadline` as it is."""
     return limit if isinstance(limit, Deadline) else Deadline(limit)
@@ -146,12 +164,17 @@ def run(cmd: list[str], cwd: str | Path | None = None,
     """Run `cmd` in `cwd` in a process group of its own and return its exit status and text
     output.  `ToolTimeout` when `timeout` (seconds or a shared `Deadline`) passes,
     `ToolBroken` when it cannot be started; the group is ended in every case.  A non-zero
-    exit status is returned, not raised: what it means is the caller's to say."""
+    exit status is returned, not raised: what it means is the caller's to say.  `cwd` is a
+    work folder the caller removes: the tool's own temporary files go there too (TMPDIR), so
+    that a tool ended on a timeout or signal leaves none behind (the WebAssembly wheels make
+    one on every run)."""
     tool = name or Path(cmd[0]).name
+    env = None if cwd is None else {**os.environ, "TMPDIR": str(Path(cwd).resolve())}
     limit = deadline(timeout)
     left = limit.left(tool)
     try:
-        proc = subprocess.Popen(cmd, cwd=cwd, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
+        proc = subprocess.Popen(cmd, cwd=cwd, env=env, stdin=subprocess.DEVNULL,
+                                stdout=subprocess.PIPE,
                                 stderr=subprocess.PIPE, text=True, errors="replace",
                                 preexec_fn=_child_setup)
     except OSError as exc:
@@ -220,7 +243,8 @@ def end_all() -> None:
 
 @contextlib.contextmanager
 def signals():
-    """For the command line: SIGTERM raises `Stopped` and SIGINT `KeyboardInterrupt`, once
+    """For the command line: SIGTERM and SIGHUP (a closed terminal or ssh session) raise
+    `Stopped` and SIGINT `KeyboardInterrupt`, once
     (a second signal during the clean-up is ignored), so that `finally` blocks end the tool
     groups, worker processes and temporary folders.  Only in the main thread."""
     if threading.current_thread() is not threading.main_thread():
@@ -236,7 +260,8 @@ def signals():
             raise KeyboardInterrupt
         raise Stopped(signum)
 
-    saved = {sig: signal.signal(sig, handler) for sig in (signal.SIGINT, signal.SIGTERM)}
+    saved = {sig: signal.signal(sig, handler)
+             for sig in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP)}
     try:
         yield
     finally:
@@ -250,13 +275,15 @@ _busy = False  # a worker is inside `in_worker`
 
 
 def worker_init(parent: int) -> None:
-    """Initializer of worker processes started by process `parent`.  Ctrl-C reaches the
-    whole terminal process group; the parent decides what to do, so workers let it pass (a
-    Python handler, not SIG_IGN, so the tools they start get the default again).  SIGTERM,
+    """Initializer of worker processes started by process `parent`.  Ctrl-C (and SIGHUP
+    when the terminal closes) reaches the whole terminal process group; the parent decides
+    what to do, so workers let it pass (a Python handler, not SIG_IGN, so the tools they
+    start get the default again).  SIGTERM,
     sent by the parent or (Linux) by the kernel when the parent dies, even of SIGKILL,
     unwinds a running job (its tool groups ended, its temporary folders removed) and ends
     the worker."""
-    signal.signal(signal.SIGINT, lambda signum, frame: None)
+    for sig in (signal.SIGINT, signal.SIGHUP):
+        signal.signal(sig, lambda signum, frame: None)
     signal.signal(signal.SIGTERM, _worker_stop)
     if _PRCTL is not None:
         _PRCTL(_PR_SET_PDEATHSIG, int(signal.SIGTERM))
