@@ -90,12 +90,14 @@ def _copies(tree) -> int:
     ({"unit": "multiplier", "width": 8, "signed": True}, 0),
     ({"unit": "multiplier", "width": 7, "width_b": 2, "signed": True,
       "partial_products": "booth4"}, 1),
-], ids=["signed-sum", "booth", "booth-signed-blocks", "baugh-wooley", "booth-one-row"])
+    ({"unit": "multiplier", "width": 2, "signed": True}, 1),
+    ({"unit": "multiplier", "width": 6, "width_b": 1, "signed": True}, 1),
+], ids=["signed-sum", "booth", "booth-signed-blocks", "baugh-wooley", "booth-one-row",
+        "baugh-wooley-2x2", "baugh-wooley-6x1"])
 def test_merging_equal_flip_flops_removes_exactly_the_copies(keys, copies, tmp_path):
-    # The copies are where one value must stand in two columns: the sign bit of a signed
-    # sum's operands, and of a Booth product's only row (the constant's one-bits run past the
-    # one dot a column holds); a multiplier with more rows absorbs each one-bit into a dot
-    # of its own.
+    # The copies are where one value must stand in two columns, the constant's one-bits
+    # running past the one dot a column holds: the sign bits of a signed sum's operands; a
+    # signed Booth product's only row; a signed AND array with a 1-bit operand, or 2 x 2.
     # README: absorbing the constant may leave one value in two registers of a rank; Yosys's
     # opt (opt_merge) keeps one of each such pair and nothing else.
     p = make(**keys)
@@ -112,6 +114,6 @@ def test_merging_equal_flip_flops_removes_exactly_the_copies(keys, copies, tmp_p
     for lps in (1, 2)])
 def test_a_multiplier_holds_no_value_twice_in_a_rank(keys):
     """Each one-bit of the constant is absorbed into a dot whose value is nowhere else
-    (`reduction._lone`), so no rank of a multiplier with more than one partial-product row
+    (`reduction._lone`), so no rank of these multipliers (both operands 3 bits or more)
     holds a value twice: synthesis has no equal flip-flops to merge."""
     assert _copies(make(**keys).tree) == 0

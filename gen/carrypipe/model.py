@@ -119,7 +119,7 @@ def _slice_figures(s, kind: str, depth: dict) -> StageFigures:
     span = fanout = 1
     if not behavioural:
         net = s.network()
-        span = max((i - j for level in net.levels for i, j in level), default=0)
+        span = max((schedule.reach(level, range(s.width)) for level in net.levels), default=0)
         fanout = max(net.max_fanout, 1)
     found = slice_depth(depth, kind, s.cell, s.width)
     if found is not None:

@@ -39,11 +39,11 @@ class Leaves:
 
 
 class Positions(ABC):
-    """A position type.  The schedule builder `b` it is handed offers `term(kind, pos, op,
-    args, stage, width, lsb)` and `after(*terms)` (the first stage after they are final)."""
+    """A position type.  The schedule builder `b` it is handed offers `widths` and `lsbs`
+    (bits per position and the first bit of each), `term(kind, pos, op, args, stage, width,
+    lsb)` and `after(*terms)` (the first stage after they are final)."""
 
     name: str  # the schedule's shape key (fit compares candidates by it)
-    noun: str  # a position, in the report and the chart
     first_logic: str  # what stage 1 forms
     level_word = "prefix level"
     final_logic: str  # what the last stage forms
@@ -58,9 +58,11 @@ class Positions(ABC):
         """The bits of each position, from bit 0."""
 
     def network(self, config, count: int) -> prefix.Network:
+        """The prefix network over the `count` positions: the config's cell."""
         return prefix.local_network(config.cell, count, 0)
 
     def wires(self, config) -> int:
+        """How many prefix levels get a logic-free register rank in front (`wire_registers`)."""
         return config.wire_registers
 
     def increment_width(self, config) -> int:
@@ -85,8 +87,27 @@ class Positions(ABC):
         no carry can reach it)."""
 
 
-class Bits(Positions):
-    name, noun = "bits", "bit"
+class Results(Positions):
+    """Positions that form result bits (an adder's, not a comparator's verdicts)."""
+
+    @abstractmethod
+    def overflow(self, b, g, has_cin: bool) -> int:
+        """The signed-overflow term, from the group generates `g` once the network is done."""
+
+
+class Chains(Positions):
+    """Positions that stage 1 forms with carry chains (a block's, or a slice's borrow)."""
+
+    @abstractmethod
+    def chain(self, nb, config, kind, q: int, lsb: int, x, y, carry, plus_one: bool,
+              want: bool) -> Expr:
+        """Position q's chain in netlist builder `nb`: operands `x`, `y` (its bits from `lsb`),
+        carry-in `carry` (or 1 with `plus_one`); its result bits and, when `want`, its chain
+        bit on top."""
+
+
+class Bits(Results):
+    name = "bits"
     first_logic, final_logic = "generate/propagate", "sum"
     whole_first_stage = False  # g/p and the first levels share stage 1
     merges_last_level = True  # s_i = p_i ^ (G_h | P_h & G_l): four inputs, one LUT4
@@ -141,8 +162,8 @@ class Bits(Positions):
         return b.term("ovf", top, "xor", (g[top], g[top - 1]), b.after(g[top], g[top - 1]))
 
 
-class Blocks(Positions):
-    name, noun = "chains", "block"
+class Blocks(Results, Chains):
+    name = "chains"
     first_logic, final_logic = "block carry chains", "block select"
 
     def widths(self, config):
@@ -178,17 +199,16 @@ class Blocks(Positions):
         v1 = b.term("blk_v1", top, "chain1_ovf", (), 1, 1, b.lsbs[top])
         return b.term("ovf", top, "select", (v0, v1, g[top - 1]), b.after(g[top - 1]))
 
-    def chain(self, b, config, kind, q: int, lsb: int, x, y, carry, plus_one: bool,
-              want: bool) -> Expr:
-        """Block q's chain for carry-in `carry` (at bit `lsb`): its sum bits and, when
-        `want`, its chain bit on top, as one wire (on the fabric's carry chain)."""
-        slot = cells.Slot(b, f"blk{q}_c{int(plus_one)}", lsb)
+    def chain(self, nb, config, kind, q, lsb, x, y, carry, plus_one, want):
+        """One wire of the block's sum bits and chain bit: behavioural, so that synthesis
+        puts it on the fabric's carry chain."""
+        slot = cells.Slot(nb, f"blk{q}_c{int(plus_one)}", lsb)
         total = cells.core(slot, "native", x, y, carry, kind.op, want)
         return slot.wire("total", total).all
 
 
-class Slices(Positions):
-    name, noun = "compare", "slice"
+class Slices(Chains):
+    name = "compare"
     first_logic, final_logic = "slice comparisons", "verdicts"
     level_word = "tree level"
     merges_last_level = True  # lt, eq, gt read the last node's four inputs
@@ -212,14 +232,13 @@ class Slices(Positions):
     def finish(self, b, leaves, q, carry):
         """A comparator's slices have no results of their own: only the verdicts."""
 
-    def chain(self, b, config, kind, q: int, lsb: int, x, y, carry, plus_one: bool,
-              want: bool) -> Expr:
-        """Slice q's borrow by the config's cell: a < b, or a <= b with borrow-in 1 (its
-        wires are named from bit 0 of the slice); the top slice of a signed comparator
+    def chain(self, nb, config, kind, q, lsb, x, y, carry, plus_one, want):
+        """The slice's borrow alone, by the config's cell: a < b, or a <= b with borrow-in 1
+        (its wires named from bit 0 of the slice); the top slice of a signed comparator
         compares with its sign bits inverted (signed order as unsigned order)."""
         if config.signed and q == len(config.slices) - 1:
             x, y = (_flip_top(v) for v in (x, y))
-        slot = cells.Slot(b, f"blk{q}_c{int(plus_one)}", 0)
+        slot = cells.Slot(nb, f"blk{q}_c{int(plus_one)}", 0)
         return cells.core(slot, config.cell, x, y, Const(int(plus_one), 1), "sub", True, False)
 
 
@@ -232,8 +251,10 @@ def _flip_top(v: Expr) -> Expr:
 BITS, BLOCKS, SLICES = Bits(), Blocks(), Slices()
 
 
+BY_MODE = {"levels": BITS, "blocks": BLOCKS}  # an arithmetic unit's positions, by mode
+
+
 def positions_of(config, kind) -> Positions:
-    """The position type of a prefix-mode config of unit kind `kind`."""
-    if kind.result is None:
-        return SLICES
-    return BITS if config.pipeline == "levels" else BLOCKS
+    """The position type of a prefix-mode config of unit kind `kind` (a comparator's are
+    its slices)."""
+    return SLICES if kind.result is None else BY_MODE[config.pipeline]
