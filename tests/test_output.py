@@ -193,6 +193,12 @@ def test_the_default_folder_and_an_empty_one_are_named_as_such(tmp_path, monkeyp
     assert res.exit_code == 2
     assert res.output == ("carrypipe: error: -o (default): value 'out/u' is not allowed; "
                           "expected a folder (it is a file)\n")
+    for verb in (["build", str(cfg)], ["fit", str(cfg), "--target-mhz", "100", "--device",
+                                       "ice40-hx8k"]):  # -o a file: the same one line
+        res = CliRunner().invoke(main, [*verb, "-o", str(tmp_path / "out" / "u")])
+        assert res.exit_code == 2
+        assert res.output == (f"carrypipe: error: -o: value '{tmp_path / 'out' / 'u'}' is not "
+                              "allowed; expected a folder (it is a file)\n")
 
 
 def test_an_unwritable_parent_is_the_environment(tmp_path, monkeypatch):

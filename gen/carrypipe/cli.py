@@ -269,7 +269,7 @@ def main():
 
 @main.command()
 @config_arg
-@click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False),
+@click.option("-o", "--out", "out_dir", type=str,
               help="Output folder [default: out/<name>].")
 @vectors_opt
 @seed_opt
@@ -439,7 +439,7 @@ def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str,
               help="Give up on one tool run after S seconds.")
 @click.option("--cluster", metavar="tcp://HOST:PORT",
               help="Run candidates on this Dask distributed scheduler instead of locally.")
-@click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False),
+@click.option("-o", "--out", "out_dir", type=str,
               help="Output folder [default: out/<name>].")
 def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool_kind, timeout,
         cluster, out_dir):
