@@ -92,6 +92,19 @@ def test_plan_chart_is_written_with_its_folder(write_config, tmp_path):
     assert [p.name for p in dest.parent.iterdir()] == ["acc.svg"]  # no temporary left over
 
 
+def test_a_chart_goes_through_a_link_and_keeps_the_mode_it_replaces(write_config, tmp_path):
+    real = tmp_path / "docs" / "acc.svg"
+    real.parent.mkdir()
+    real.write_text("old")
+    real.chmod(0o640)
+    link = tmp_path / "acc.svg"
+    link.symlink_to(real)
+    r = run("plan", write_config(UNIT), "--chart", link)
+    assert r.exit_code == 0, r.output
+    assert link.is_symlink() and real.read_text().startswith("<svg")  # as a shell's > would
+    assert real.stat().st_mode & 0o777 == 0o640
+
+
 def test_plan_chart_follows_the_what_if(write_config, tmp_path):
     dest = tmp_path / "w.svg"
     r = run("plan", write_config(UNIT), "--slices", "4,10,10", "--chart", dest)

@@ -129,8 +129,11 @@ def replace_folder(files: dict[str, str | bytes], out: str | Path, option: str =
 
 def write_file(path: str | Path, data: str | bytes, option: str) -> Path:
     """Write one file atomically: a temporary file beside it, then a rename over it.  Its
-    folder is made when missing (and removed again when the write fails)."""
+    folder is made when missing (and removed again when the write fails).  A symbolic link
+    is written through, as a shell's `>` would, and a file replaced keeps its mode."""
     target = Path(os.path.abspath(path))
+    if target.is_symlink():
+        target = Path(os.path.realpath(target))
     _check_ancestors(target, option, path)
     if target.is_dir():
         raise _refuse(option, path, "expected a file name (it is a folder)")
@@ -140,6 +143,8 @@ def write_file(path: str | Path, data: str | bytes, option: str) -> Path:
         sweep(target.parent)
         tmp = _fresh(target.parent, target.name, folder=False)
         _write(tmp, data, exclusive=False)
+        if target.is_file():
+            os.chmod(tmp, stat.S_IMODE(target.stat().st_mode))
         os.replace(tmp, target)
     except BaseException:
         if tmp is not None and os.path.lexists(tmp):
