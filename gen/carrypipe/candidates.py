@@ -21,11 +21,13 @@ from __future__ import annotations
 
 import json
 import statistics
+from functools import singledispatch
 from dataclasses import dataclass, field
 
 from . import config, harness, units
 from .config import Config
-from .plan import Plan
+from .plan import Plan, PrefixPlan, SlicedPlan
+from .treeplan import NativePlan, TreePlan
 
 MAX_STAGES = 32  # even splits go from 1 slice up to this many (and down to 2-bit slices)
 MARGIN = 0.10  # a prediction this far below the target may still meet it (no model: 10 %)
@@ -175,24 +177,38 @@ def circuit(plan: Plan) -> str:
     style, the split and the mode keys themselves do not enter: `levels_per_stage: 2` and
     `3` give one key when every stage holds the same levels.
     """
-    if plan.mode in ("tree", "native"):  # no two configs of a carry-save unit coincide
-        return json.dumps(plan.config.normalized(), sort_keys=True)
-    options = {k: v for k, v in plan.config.normalized().items() if k not in STRUCTURE_KEYS}
-    sch = getattr(plan, "schedule", None)
-    if sch is None:
-        shape = [[s.width, list(map(list, s.network().levels))
-                  if s.cell in config.PREFIX_CELLS else s.cell] for s in plan.stages]
-    else:
-        kept = sch.kept()
-        order = {t.index: n for n, t in enumerate(kept)}
-        shape = {"mode": sch.mode, "positions": sch.positions.name, "widths": sch.widths,
-                 "final": sch.final,
-                 "terms": [[t.kind, t.pos, t.lsb, t.width, t.op, [order[a] for a in t.args],
-                            t.stage, sch.last[t.index]] for t in kept],
-                 "outputs": {name: [order[i] for i in t] if isinstance(t, tuple) else
-                             None if t is None else order[t]
-                             for name, t in sorted(sch.outputs.items())}}
-    return json.dumps([options, shape], sort_keys=True)
+    return json.dumps(_circuit(plan), sort_keys=True)
+
+
+@singledispatch
+def _circuit(plan: Plan):
+    """A carry-save unit's (`TreePlan`, `NativePlan`): no two of their configs coincide."""
+    return plan.config.normalized()
+
+
+def _options(plan: Plan) -> dict:
+    return {k: v for k, v in plan.config.normalized().items() if k not in STRUCTURE_KEYS}
+
+
+@_circuit.register
+def _(plan: SlicedPlan):
+    return [_options(plan), [[s.width, list(map(list, s.network().levels))
+                              if s.cell in config.PREFIX_CELLS else s.cell]
+                             for s in plan.stages]]
+
+
+@_circuit.register
+def _(plan: PrefixPlan):
+    sch = plan.schedule
+    kept = sch.kept()
+    order = {t.index: n for n, t in enumerate(kept)}
+    return [_options(plan), {
+        "mode": sch.mode, "positions": sch.positions.name, "widths": sch.widths,
+        "final": sch.final,
+        "terms": [[t.kind, t.pos, t.lsb, t.width, t.op, [order[a] for a in t.args], t.stage,
+                   sch.last[t.index]] for t in kept],
+        "outputs": {name: [order[i] for i in t] if isinstance(t, tuple) else
+                    None if t is None else order[t] for name, t in sorted(sch.outputs.items())}}]
 
 
 def narrowed(cfg: Config, stage: int, bits: int) -> Config | None:
@@ -341,20 +357,32 @@ def corrected(row: Row, factors: dict[tuple, float]) -> float | None:
 def kind(row: Row) -> tuple:
     """Candidates compared by their slowest stage: same cell style, mode and mode options
     other than how many levels or bits a stage takes."""
-    c = row.config
-    out = (c.cell, c.pipeline, c.local_width if c.pipeline == "levels" else 0,
-           c.pipeline == "levels" and c.carry_increment,
-           0 if c.pipeline == "slices" else c.wire_registers)
-    if row.plan.mode == "native":
-        return ("native",)
-    if row.plan.mode == "tree":  # and the same tree, levels per stage and partial products
-        return out + (c.tree, c.tree_levels_per_stage, c.partial_products)
-    return out
+    return _kind(row.plan)
+
+
+@singledispatch
+def _kind(plan: Plan) -> tuple:
+    """An adder's kind (and a counter tree's final adder's): cell, mode, mode options."""
+    c = plan.config
+    return (c.cell, c.pipeline, c.local_width if c.pipeline == "levels" else 0,
+            c.pipeline == "levels" and c.carry_increment,
+            0 if c.pipeline == "slices" else c.wire_registers)
+
+
+@_kind.register
+def _(plan: TreePlan) -> tuple:  # and the same tree, levels per stage and partial products
+    c = plan.config
+    return _kind.dispatch(Plan)(plan) + (c.tree, c.tree_levels_per_stage, c.partial_products)
+
+
+@_kind.register
+def _(plan: NativePlan) -> tuple:
+    return ("native",)
 
 
 def _part(plan: Plan, stage: int) -> str:
     """Which part of a unit a stage belongs to: a counter tree's stages, or the adder's."""
-    return "tree" if plan.mode == "tree" and stage < plan.tree.stages else "adder"
+    return "tree" if isinstance(plan, TreePlan) and stage < plan.tree.stages else "adder"
 
 
 def _deepest(plan: Plan, part: str) -> int:
@@ -479,8 +507,8 @@ def uneven_rows(rows: list[Row], target: float, make_row) -> list[Row]:
     known = {circuit(r.plan) for r in rows}
     new = []
     for r in rows:
-        if r.origin != "even" or r.plan.mode != "slices" or r.mhz is None or r.mhz >= target \
-                or r.mhz < target * (1 - JUST_MISSED) or r.spawned:
+        if (r.origin != "even" or not isinstance(r.plan, SlicedPlan) or r.mhz is None
+                or not target * (1 - JUST_MISSED) <= r.mhz < target or r.spawned):
             continue
         r.spawned = True
         stage = r.slowest_stage
