@@ -33,7 +33,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
-from . import cells, prefix, schedule, units
+from . import cells, schedule, units
 from .config import Config
 from .units import Port
 
@@ -464,12 +464,7 @@ class PrefixPlan(Plan):
     def label(self) -> str:
         c = self.config
         wired = f" wired {c.wire_registers}" if c.wire_registers else ""
-        if c.pipeline == "levels":
-            local = (f" local {c.local_width}" if prefix.has_local_blocks(c.local_width, c.width)
-                     else "")
-            local += " increment" if c.carry_increment else ""
-            return f"{c.cell} levels/{c.levels_per_stage}{local}{wired}"
-        return f"{c.cell} blocks of {c.block_width}{wired}"
+        return f"{c.cell} {self.schedule.positions.label(c)}{wired}"
 
     def moved_input_rank(self) -> "PrefixPlan | None":
         """The same levels unit with its input register spent on one more wire rank instead

@@ -77,6 +77,10 @@ class Positions(ABC):
         """Bits where a position starts (ticks and guide lines of the chart)."""
         return [b for b in lsbs if 0 < b < config.width]
 
+    def label(self, config) -> str:
+        """The split in a few words, for fit's tables (after the cell, before wire ranks)."""
+        return f"levels/{config.levels_per_stage}"
+
     @abstractmethod
     def leaves(self, b, kind, config, y_end: int) -> Leaves:
         """Stage 1's terms; operand bits from `y_end` up have no second operand."""
@@ -131,6 +135,12 @@ class Bits(Results):
         local, w = config.local_width, config.width
         return list(range(local, w, local)) if prefix.has_local_blocks(local, w) else []
 
+    def label(self, config):
+        local = (f" local {config.local_width}"
+                 if prefix.has_local_blocks(config.local_width, config.width) else "")
+        increment = " increment" if config.carry_increment else ""
+        return f"levels/{config.levels_per_stage}{local}{increment}"
+
     def leaves(self, b, kind, config, y_end):
         has_cin = kind.has_carry_in(config)
         prop = [b.term("prop", i, "prop" if i < y_end else "pass", (), 1, lsb=i)
@@ -165,6 +175,9 @@ class Bits(Results):
 class Blocks(Results, Chains):
     name = "chains"
     first_logic, final_logic = "block carry chains", "block select"
+
+    def label(self, config):
+        return f"blocks of {config.block_width}"
 
     def widths(self, config):
         w, k = config.width, config.block_width
