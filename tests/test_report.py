@@ -222,3 +222,21 @@ def test_prefix_tips_name_the_slowest_stages_they_would_shorten():
     assert blocks.slowest[0].index == 0
     assert "a smaller `block_width` (now 16) shortens the carry chains of stage 0" in \
         " ".join(tips(blocks).split())
+
+
+@pytest.mark.parametrize("keys", [
+    dict(unit="multiplier", width=16, pipeline="levels", cell="kogge-stone"),
+    dict(unit="sum", operands=5, width=12, pipeline="levels", cell="sklansky"),
+    # The final adder (499 bits) is wider than a multiplier may be: re-planning its config
+    # as a unit of its own was refused, a traceback from `plan`.
+    dict(unit="multiplier", width=256, signed=True, tree="wallace", pipeline="levels",
+         cell="kogge-stone"),
+], ids=["multiplier", "sum", "multiplier-256"])
+def test_a_final_adder_is_not_offered_the_input_rank_swap(keys):
+    """The swap of `register_inputs` for a wire rank is about a unit's own operands: a tree's
+    final adder reads the tree's last rank (and the unit here has no input register)."""
+    plan = make(**keys)
+    assert plan.adder is not None and not plan.config.register_inputs
+    said = " ".join(tips(plan).split())
+    assert "`register_inputs: false`" not in said
+    assert "`register_inputs: true` takes the input routing" in said

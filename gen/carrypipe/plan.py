@@ -468,9 +468,10 @@ class PrefixPlan(Plan):
 
     def moved_input_rank(self) -> "PrefixPlan | None":
         """The same levels unit with its input register spent on one more wire rank instead
-        (the trade measured faster on ECP5; docs/modes.md), or None when it does not apply."""
+        (the trade measured faster on ECP5; docs/modes.md), or None when it does not apply
+        (a tree's final adder reads the tree's last rank, not the unit's inputs)."""
         c = self.config
-        if c.pipeline != "levels" or not c.register_inputs \
+        if self.nest is not None or c.pipeline != "levels" or not c.register_inputs \
                 or c.wire_registers >= self.schedule.network.depth:
             return None
         return make_plan(c.replaced(register_inputs=False,
