@@ -360,19 +360,22 @@ def kind(row: Row) -> tuple:
     return _kind(row.plan)
 
 
-@singledispatch
-def _kind(plan: Plan) -> tuple:
+def _adder_kind(c: Config) -> tuple:
     """An adder's kind (and a counter tree's final adder's): cell, mode, mode options."""
-    c = plan.config
     return (c.cell, c.pipeline, c.local_width if c.pipeline == "levels" else 0,
             c.pipeline == "levels" and c.carry_increment,
             0 if c.pipeline == "slices" else c.wire_registers)
 
 
+@singledispatch
+def _kind(plan: Plan) -> tuple:
+    return _adder_kind(plan.config)
+
+
 @_kind.register
 def _(plan: TreePlan) -> tuple:  # and the same tree, levels per stage and partial products
     c = plan.config
-    return _kind.dispatch(Plan)(plan) + (c.tree, c.tree_levels_per_stage, c.partial_products)
+    return _adder_kind(c) + (c.tree, c.tree_levels_per_stage, c.partial_products)
 
 
 @_kind.register

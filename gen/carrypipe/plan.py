@@ -33,7 +33,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
-from . import cells, schedule, units
+from . import cells, positions, schedule, units
 from .config import Config
 from .units import Port
 
@@ -469,10 +469,11 @@ class PrefixPlan(Plan):
     def moved_input_rank(self) -> "PrefixPlan | None":
         """The same levels unit with its input register spent on one more wire rank instead
         (the trade measured faster on ECP5; docs/modes.md), or None when it does not apply
-        (a tree's final adder reads the tree's last rank, not the unit's inputs)."""
+        (a tree's final adder reads the tree's last rank, not the unit's inputs; a comparator's
+        slices and the blocks mode take no such swap)."""
         c = self.config
-        if self.nest is not None or c.pipeline != "levels" or not c.register_inputs \
-                or c.wire_registers >= self.schedule.network.depth:
+        if self.nest is not None or not isinstance(self.schedule.positions, positions.Bits) \
+                or not c.register_inputs or c.wire_registers >= self.schedule.network.depth:
             return None
         return make_plan(c.replaced(register_inputs=False,
                                     wire_registers=c.wire_registers + 1))
