@@ -11,7 +11,7 @@ import subprocess
 
 import pytest
 
-from carrypipe import emit
+from carrypipe import emit, header
 from carrypipe.config import CELLS, from_mapping
 from carrypipe.netlist import Builder, NetlistError
 from carrypipe.plan import make_plan
@@ -108,8 +108,8 @@ def test_unit_reads_like_hand_written_rtl(keys):
     assert not re.search(r"begin\s*end", text)  # no empty blocks
     assert "always @*" not in text
     start = text.index("module u (")
-    header = text[start:text.index(");", start)]
-    names = re.findall(r"^\s+(?:input|output)\s+wire\s+(?:\[\d+:\d+\]\s+)?(\w+)", header, re.M)
+    ports = text[start:text.index(");", start)]
+    names = re.findall(r"^\s+(?:input|output)\s+wire\s+(?:\[\d+:\d+\]\s+)?(\w+)", ports, re.M)
     assert names == [p.name for p in plan.ports]  # the documented order
     for stage in range(len(plan.stages)):
         assert f"// Stage {stage}, loaded on edge " in text  # a comment per stage
@@ -117,6 +117,26 @@ def test_unit_reads_like_hand_written_rtl(keys):
     declared = set(re.findall(r"^\s+(?:\(\* keep \*\) )?reg\s+(?:\[\d+:\d+\]\s+)?(\w+);",
                               text, re.M))
     assert declared == words  # every register is a word of the plan, by its name
+    comments = [line for line in text.splitlines() if line.lstrip().startswith("//")]
+    assert max(map(len, comments)) <= header.COLUMNS  # wrapped, as a colleague would
+
+
+needs_icarus = pytest.mark.skipif(not which("iverilog"), reason="iverilog is not on PATH")
+
+
+@needs_icarus
+def test_a_unit_of_many_slices_compiles_in_icarus(tmp_path):
+    """Icarus Verilog 11 reads one `//` comment as one token of at most 16 KiB ("input buffer
+    overflow"): the slice list of a 1,600-slice unit, one line before comments wrapped,
+    was 19 KB."""
+    plan = make_plan(from_mapping({"name": "u", "width": 1600, "slice_width": 1,
+                                   "cell": "ripple"}))
+    text = emit.unit_verilog(plan)
+    assert "Slices (LSB first): [0:0] [1:1]" in text.replace("//   ", "")
+    (tmp_path / "u.v").write_text(text)
+    out = subprocess.run(["iverilog", "-g2005", "-o", "u.vvp", "u.v"], cwd=tmp_path,
+                         capture_output=True, text=True, timeout=300)
+    assert out.returncode == 0, out.stdout + out.stderr
 
 
 LEVELS_49 = dict(width=49, pipeline="levels", cell="kogge-stone", carry_in=True, valid=True,

@@ -9,7 +9,7 @@ from __future__ import annotations
 import json
 
 from . import __version__
-from .header import timing_phrase
+from .header import comment, timing_phrase
 from .testbench import vector_file
 
 
@@ -42,11 +42,11 @@ def instance(plan) -> str:
     """`<name>_inst.v`: an instantiation template with named connections, one port a line."""
     c = plan.config
     width = max(len(p.name) for p in plan.ports)
-    lines = [f"// Instantiation template for {c.name} (carrypipe {__version__}): copy, rename",
-             "// the instance and connect the signals of your design.",
-             f"// Timing: {timing_phrase(plan)}.",
-             f"// Ports in order: {', '.join(p.name for p in plan.ports)}.",
-             f"{c.name} u_{c.name} ("]
+    lines = comment([f"Instantiation template for {c.name} (carrypipe {__version__}): copy, "
+                     "rename the instance and connect the signals of your design.",
+                     f"Timing: {timing_phrase(plan)}.",
+                     f"Ports in order: {', '.join(p.name for p in plan.ports)}."])
+    lines.append(f"{c.name} u_{c.name} (")
     for k, p in enumerate(plan.ports):
         comma = "," if k < len(plan.ports) - 1 else " "
         bits = f"{p.width} bit{'s' if p.width > 1 else ''}"

@@ -7,8 +7,24 @@ from the plan.
 from __future__ import annotations
 
 import json
+import textwrap
 
 from . import __version__
+
+COLUMNS = 100
+"""Comment lines wrap at this column: easy to read, and no comment grows past the input
+buffer of a simulator's scanner (Icarus takes one `//` comment as one token of at most
+16 KiB; a 1,500-slice unit's slice list is longer)."""
+
+
+def comment(lines, indent: str = "") -> list[str]:
+    """`lines` as `//` comments, each wrapped at COLUMNS with a hanging indent."""
+    out = []
+    for line in lines:
+        out += textwrap.wrap(line, COLUMNS, initial_indent=f"{indent}// ",
+                             subsequent_indent=f"{indent}//   ", break_long_words=False,
+                             break_on_hyphens=False) or [f"{indent}//"]
+    return out
 
 
 def timing_phrase(plan) -> str:

@@ -10,6 +10,7 @@ same netlist gives the same bytes.
 
 from __future__ import annotations
 
+from . import header
 from .netlist import Arith, Cat, Cmp, Const, Expr, Load, Mux, Netlist, Op, Ref, Rep, Vec
 
 INDENT = "  "
@@ -143,7 +144,7 @@ def _always(net: Netlist, loads: list[Load], resets: bool, keep: bool) -> list[s
 
 def write(net: Netlist) -> str:
     """The Verilog text of `net`: header comment, module, sections, `endmodule`."""
-    out = [f"// {line}".rstrip() for line in net.header]
+    out = header.comment(net.header)
     out.append(f"module {net.name} (")
     decl = [(("input " if p.vec.role == "input" else "output") + " wire", rng(p.vec), p.vec.name,
              p.meaning) for p in net.ports]
@@ -157,7 +158,7 @@ def write(net: Netlist) -> str:
     out.append(");")
     for s in net.sections:
         out.append("")
-        out += [f"{INDENT}// {line}".rstrip() for line in s.title]
+        out += header.comment(s.title, INDENT)
         out += _declarations("reg", s.regs)
         whole = {id(a.targets[0].vec): a for a in s.assigns
                  if len(a.targets) == 1 and a.targets[0].vec.role == "wire"
