@@ -16,6 +16,12 @@ CASES = [
     ("w4096_slice64", "width: 4096\ncell: native\nslice_width: 64\n"),
     ("w4096_ks_slice64", "width: 4096\ncell: kogge-stone\nslice_width: 64\n"),
     ("w1024_bit_per_stage", "width: 1024\ncell: ripple\nslice_width: 1\n"),
+    ("w2048_bit_per_stage", "width: 2048\ncell: ripple\nslice_width: 1\n"),
+    ("w4096_bk_levels", "width: 4096\ncell: brent-kung\npipeline: levels\n"),
+    ("w4096_ks_levels_local16", "width: 4096\ncell: kogge-stone\npipeline: levels\n"
+     "local_width: 16\nwire_registers: 2\n"),
+    ("w4096_bk_blocks4", "width: 4096\ncell: brent-kung\npipeline: blocks\n"
+     "block_width: 4\n"),
 ]
 
 
@@ -28,7 +34,7 @@ CHILD = ("import atexit, resource, sys\n"
 
 
 def main() -> None:
-    print(f"{'case':<22} {'seconds':>8} {'peak MiB':>9} {'Verilog MB':>11}")
+    print(f"{'case':<24} {'seconds':>8} {'peak MiB':>9} {'Verilog MB':>11}")
     for name, body in CASES:
         with tempfile.TemporaryDirectory() as tmp:
             cfg = Path(tmp) / f"{name}.yaml"
@@ -40,7 +46,7 @@ def main() -> None:
             peak = int(out.stderr.rsplit("PEAK_KIB ", 1)[-1].split()[0])
             size = (Path(tmp) / "out" / f"{name}.v").stat().st_size / 1e6 if out.returncode == 0 else 0
             note = "" if out.returncode == 0 else f"  FAILED: {out.stderr.strip()[-200:]}"
-            print(f"{name:<22} {seconds:8.1f} {peak / 1024:9.0f} {size:11.1f}{note}",
+            print(f"{name:<24} {seconds:8.1f} {peak / 1024:9.0f} {size:11.1f}{note}",
                   flush=True)
 
 

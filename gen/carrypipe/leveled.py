@@ -49,6 +49,7 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
     y_in = kind.y_operand(b_in, flags) if kind.result else b_in
 
     regs: dict[tuple[str, int], list] = {}  # (term kind, rank) -> [(word, register)]
+    owner: dict[tuple[str, int, int], int] = {}  # (term kind, rank, bit) -> index in regs
     value: dict[int, Expr] = {}  # term -> its value in the stage that forms it
     chains: dict[tuple[int, int], Ref] = {}  # (block, carry-in) -> its chain's wire
     readers = {x for t in terms if t.index in sch.last for x in t.args
@@ -57,10 +58,8 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
     def held(x: int, rank: int) -> Expr:
         t = terms[x]
         at = base + t.lsb
-        for word, r in regs[(t.kind, rank)]:
-            if word.lsb <= at < word.lsb + word.width:
-                return r[at:at + t.width]
-        raise AssertionError(f"no register for {t.kind} at bit {t.lsb}, rank {rank}")
+        word, r = regs[(t.kind, rank)][owner[(t.kind, rank, at)]]
+        return r[at:at + t.width]
 
     def at(x: int, stage: int) -> Expr:
         """Term x as the logic of `stage` sees it: its own value, or its last register."""
@@ -139,7 +138,10 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
         if stage < sch.final:
             for word in plan.words:
                 if word.stage == plan.number(stage) and word.kind not in ("input", "control"):
-                    regs.setdefault((word.family, stage), []).append((word, f.reg(word.name)))
+                    found = regs.setdefault((word.family, stage), [])
+                    owner.update(((word.family, stage, i), len(found))
+                                 for i in range(word.lsb, word.lsb + word.width))
+                    found.append((word, f.reg(word.name)))
         else:
             outs = {w.family: f.reg(w.name) for w in plan.words
                     if w.kind == "stage" and w.edge == first + stage}
@@ -173,13 +175,14 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
             flush(key)
 
         if stage < sch.final:
+            inside: dict[tuple[str, int], list] = {}  # (kind, index in regs) -> its terms
+            for t in sch.crossing(stage):
+                inside.setdefault((t.kind, owner[(t.kind, stage, base + t.lsb)]), []).append(t)
             for (family, rank), found in regs.items():
                 if rank != stage:
                     continue
-                for word, r in found:
-                    inside = [t for t in sch.crossing(stage) if t.kind == family
-                              and word.lsb <= base + t.lsb < word.lsb + word.width]
-                    _load(b, r, inside, lambda t: at(t.index, stage), base)
+                for n, (word, r) in enumerate(found):
+                    _load(b, r, inside.get((family, n), []), lambda t: at(t.index, stage), base)
         else:
             out = sch.outputs
             if "result" in out:

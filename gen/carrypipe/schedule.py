@@ -52,6 +52,7 @@ are exact counts from this pruned schedule.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 from . import cells, prefix, units
 from .config import Config
@@ -115,11 +116,25 @@ class Schedule:
     stages: tuple[StageInfo, ...]  # lt, eq, gt: the term each output register loads
 
     def kept(self) -> list[Term]:
-        return [t for t in self.terms if t.index in self.last]
+        return list(self._kept)
+
+    @cached_property
+    def _kept(self) -> tuple[Term, ...]:
+        return tuple(t for t in self.terms if t.index in self.last)
 
     def crossing(self, rank: int) -> list[Term]:
         """The terms held in register rank `rank` (loaded at the end of stage `rank`)."""
-        return [t for t in self.kept() if t.stage <= rank < self.last[t.index]]
+        return list(self._ranks.get(rank, ()))
+
+    @cached_property
+    def _ranks(self) -> dict[int, list[Term]]:
+        """Rank -> the terms it holds, in term order: found once (a wide sparse network has
+        tens of thousands of register words, each asking for its rank's terms)."""
+        out: dict[int, list[Term]] = {}
+        for t in self._kept:
+            for rank in range(t.stage, self.last[t.index]):
+                out.setdefault(rank, []).append(t)
+        return out
 
     def kept_ranks(self) -> set[tuple[int, int]]:
         """(term, rank) pairs whose registers are intended copies of an equal register: a
