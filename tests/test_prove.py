@@ -149,6 +149,31 @@ def test_a_reset_on_a_data_register_is_caught():
                               "with a reset")
 
 
+class _CountedCells(dict):
+    """A netlist's cells that count how often the structural check looks one up."""
+
+    def __init__(self, cells):
+        super().__init__(cells)
+        self.looked = {}
+
+    def __getitem__(self, name):
+        self.looked[name] = self.looked.get(name, 0) + 1
+        return super().__getitem__(name)
+
+
+def test_the_fan_in_walk_reads_each_cell_once():
+    # A 64-bit native sum is one wide `$add` cell; the walk back from the 66 output bits
+    # read it (and pushed all its input bits) once per output bit, which took minutes for
+    # a 16 x 4096 sum and ran past `--timeout`.
+    plan = plan_of(unit="sum", operands=3, width=64, tree="native")
+    net = solver.netlist("u", emit.unit_verilog(plan), 120)
+    mod = net["modules"]["u"]
+    mod["cells"] = _CountedCells(mod["cells"])
+    assert prove.structure(plan, net) is None
+    assert any(c["type"] == "$add" for c in mod["cells"].values())
+    assert mod["cells"].looked and max(mod["cells"].looked.values()) == 1
+
+
 @pytest.mark.parametrize("reset", ["sync", "async"])
 def test_reset_data_must_clear_every_register(reset):
     plan = plan_of(width=8, slice_width=4, cell="native", valid=True, reset=reset,

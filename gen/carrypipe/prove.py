@@ -121,9 +121,11 @@ def structure(plan: Plan, net: dict) -> str | None:
                 return f"output {out} is not driven by a flip-flop"
     if c.reset_data:
         return None
-    # Every flip-flop in the fan-in of a data output must be without reset.
+    # Every flip-flop in the fan-in of a data output must be without reset.  Each cell is
+    # walked through once, not once per output bit: a wide cell (a 4096-bit `$add` of a
+    # multi-operand sum) has thousands of output bits and as many inputs.
     todo = [b for out in outputs if out != "out_valid" for b in port.get(out, [])]
-    seen = set()
+    seen, walked = set(), set()
     while todo:
         bit = todo.pop()
         if bit in seen or bit in ("0", "1", "x"):
@@ -132,8 +134,9 @@ def structure(plan: Plan, net: dict) -> str | None:
         if bit == rst:
             return "a data output depends on rst"
         name = driver.get(bit)
-        if name is None:
+        if name is None or name in walked:
             continue
+        walked.add(name)
         cell = mod["cells"][name]
         if name in ffs and cell["type"] not in _FF_TYPES[True, None] + _FF_TYPES[False, None]:
             return f"a data output depends on flip-flop {regs.get(name, name)} with a reset"
