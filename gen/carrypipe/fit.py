@@ -44,6 +44,11 @@ class Settings:
     trees: tuple[str, ...] = config.TREES  # a sum's or multiplier's trees to try
 
 
+SEED_SPREAD = 0.05
+"""How far nextpnr's placements of one design differ from seed to seed, about (measured:
+±5-6 % over seeds 1-9 for the 64- and 256-bit units in docs/modes.md)."""
+
+
 @dataclass
 class Outcome:
     settings: Settings
@@ -167,6 +172,13 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                              "the next run")
     if base.register_inputs and any(r.config.pipeline == "levels" and r.ok for r in rows):
         outcome.notes.append(INPUT_RANK_NOTE)
+    if chosen and chosen.mhz < target * (1 + SEED_SPREAD):
+        seeds = ", ".join(f"{m.mhz:g}" for m in chosen.ok)
+        outcome.notes.append(
+            f"{chosen.label} is {100 * (chosen.mhz / target - 1):.1f} % above the target by "
+            f"its median (seeds: {seeds} MHz); nextpnr's placements of one design differ by "
+            f"about {100 * SEED_SPREAD:g} %, so other seeds, or your design around the unit, "
+            f"may miss {target:g} MHz: confirm with more seeds (--seeds 9) or aim higher")
     for row in rows:
         for m in row.ok:
             if m.inside is False:
