@@ -59,6 +59,17 @@ def test_the_latency_comment_names_en_only_when_the_unit_has_it(enable):
                          else "// rising edges from inputs to results")
 
 
+@pytest.mark.parametrize("slices, edge", [([20], "n"), ([6, 6, 8], "n+2")])
+def test_the_timing_line_counts_edges_from_n(slices, edge):
+    """Latency L: inputs set up before edge n are seen right after edge n + L - 1 (the
+    unit's own registers, the first of them loaded on edge n); L = 1 is edge n itself."""
+    plan = make(**{k: v for k, v in KEYS.items() if k != "slice_width"}, slices=slices)
+    assert plan.latency == len(slices)
+    text = flowfiles.instance(plan)
+    assert f"give their results right after edge {edge};" in text.replace("\n//   ", " ")
+    assert "n+0" not in text
+
+
 def test_the_template_drops_into_a_design(built, tmp_path):
     """A top level written the way a user would: wires sized by the include file's defines,
     the template pasted as it is, a check that sum arrives `LATENCY` edges later."""

@@ -240,3 +240,15 @@ def test_a_final_adder_is_not_offered_the_input_rank_swap(keys):
     said = " ".join(tips(plan).split())
     assert "`register_inputs: false`" not in said
     assert "`register_inputs: true` takes the input routing" in said
+
+
+@pytest.mark.parametrize("keys, said", [
+    (dict(unit="multiplier", width=8), "; bit 0 is finished by the tree"),
+    (dict(unit="multiplier", width=4, width_b=3, tree="wallace", signed=True),
+     "; bits 1:0 are finished by the tree"),
+    (dict(unit="sum", operands=3, width=8), ", its carry out is the top bit"),
+])
+def test_the_final_adder_line_counts_the_finished_bits(keys, said):
+    """The low columns the tree leaves with one dot are finished; one bit is singular."""
+    line = next(x for x in report.table(make(**keys)) if x.startswith("Final adder"))
+    assert line.endswith(said)

@@ -30,8 +30,9 @@ def comment(lines, indent: str = "") -> list[str]:
 def timing_phrase(plan) -> str:
     lat = plan.latency
     gate = " while en is high" if plan.config.enable else ""
+    edge = f"n+{lat - 1}" if lat > 1 else "n"
     return (f"latency {lat}: inputs applied before rising edge n give their results right "
-            f"after edge n+{lat - 1}; a new input set is taken on every rising edge{gate}")
+            f"after edge {edge}; a new input set is taken on every rising edge{gate}")
 
 
 def register_phrase(plan) -> str:

@@ -267,7 +267,8 @@ def _(plan: TreePlan, mark=None) -> list[str]:
                      f"{s.half:>5}  {s.delay:>5}  {s.logic}{mark(s)}")
     if plan.adder is None:
         return lines + ["", "Final adder  none: the tree leaves at most one dot per column"]
-    low = f"; bits {bits(0, r.low - 1)} are finished by the tree" if r.low else ""
+    low = (f"; {'bit' if r.low == 1 else 'bits'} {bits(0, r.low - 1)} "
+           f"{'is' if r.low == 1 else 'are'} finished by the tree" if r.low else "")
     lines += ["", f"Final adder  columns [{r.top - 1}:{r.low}] ({r.adder_width} bits)"
               + (", its carry out is the top bit" if r.carry_out else "") + low]
     view = plan.numbered_adder

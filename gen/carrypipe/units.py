@@ -89,8 +89,7 @@ class Kind:
         ports = [Port("clk", "input", 1, "clock: every register loads on its rising edge")]
         if c.reset != "none":
             what = "every register" if c.reset_data else "the valid bits"
-            how = "asynchronous (assert any time, release in step with clk)" \
-                if c.reset == "async" else "synchronous"
+            how = "asynchronous" if c.reset == "async" else "synchronous"
             ports.append(Port("rst", "input", 1, f"{how} reset, active high: clears {what}"))
         if c.enable:
             ports.append(Port("en", "input", 1, "clock enable: while low every register holds"))
