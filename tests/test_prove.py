@@ -359,6 +359,18 @@ def test_compositional_proof_of_a_subtractor_names_its_specification():
     assert "each of 3 slice(s) proved against a - b - c with" in result.message
 
 
+@pytest.mark.parametrize("keys, compared", [
+    (dict(width=8, valid=True), "sum, cout, out_valid compared"),
+    (dict(width=8, valid=True, reset="sync", reset_data=True), "sum, cout, out_valid compared"),
+    (dict(width=8, carry_out=False), "sum compared"),
+])
+def test_the_verdict_names_every_output_it_compared(keys, compared):
+    # The valid chain is compared in the bounded check too (one run, or a run of its own
+    # when rst is held low for the data); the verdict used to name only the data outputs.
+    result = prove.prove(plan_of(**keys))
+    assert result.proved and f"(Yosys sat), {compared} on cycle" in result.message
+
+
 @pytest.mark.parametrize("cell", CELLS)
 def test_compositional_agrees_with_the_direct_proof(cell):
     # The direct proof above is the reference: both must prove the same sound units.

@@ -252,8 +252,8 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
             return Proof(False, found.method, 0, f"not proved: {found.problem}",
                          time.monotonic() - start)
         done, data = f"{found.method}; ", ()
-    log = PROVED
-    for compare, hold_rst in _runs(c, data, plan.unit.keeps_result):
+    log, runs = PROVED, _runs(c, data, plan.unit.keeps_result)
+    for compare, hold_rst in runs:
         log = _bounded(plan, text, depth, compare, hold_rst, limit)
         if PROVED not in log:
             break
@@ -262,8 +262,8 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     start_state = ("after a clear from an arbitrary register state" if plan.unit.settle
                    else "from an arbitrary register state")
     done += (f"bounded check of {depth} cycles {start_state} (Yosys sat), "
-             f"{', '.join(data) if data else 'out_valid'} compared on {ranged}"
-             if data or c.valid else "")
+             f"{', '.join(o for outs, _ in runs for o in outs)} compared on {ranged}"
+             if runs else "")
     done = done.removesuffix("; ")
     if c.enable:
         done += "; en held high, every flip-flop enabled by en (structural check)"
