@@ -154,6 +154,15 @@ def test_yaml_1_1_booleans_are_refused_as_written(text):
     assert str(info.value) == f"u.yaml: key 'valid': value {text!r} is not allowed; expected true or false"
 
 
+@pytest.mark.parametrize("text, shown", [("[true, 7]", "[true, 7]"), ("{a: null}", "{'a': null}"),
+                                         ("[[1, false]]", "[[1, false]]")])
+def test_a_list_or_mapping_is_shown_as_yaml_writes_it(text, shown):
+    # Python's spelling ([True, 7], {'a': None}) is not what the user wrote.
+    with pytest.raises(ConfigError) as info:
+        parse_text(f"name: u\nwidth: 8\nslices: {text}\n", "u.yaml")
+    assert str(info.value).startswith(f"u.yaml: key 'slices': value {shown} is not allowed; ")
+
+
 def test_the_accepted_spellings():
     cfg = parse_text("name: on\nwidth: 64\nslices: [60, 4]\nvalid: true\ncarry_out: false\n",
                      "u.yaml")

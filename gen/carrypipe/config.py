@@ -220,11 +220,20 @@ class LongInteger(str):
 
 def _shown(value) -> str:
     """A value for a one-line message, spelled as YAML reads it, cut to 60 characters."""
-    if isinstance(value, bool) or value is None:  # as YAML spells them, not Python
-        shown = {True: "true", False: "false", None: "null"}[value]
-    else:
-        shown = repr(value)
+    shown = _spelled(value)
     return shown if len(shown) <= 60 else shown[:57] + "..."
+
+
+def _spelled(value) -> str:
+    """true, false and null as YAML spells them, also inside lists and mappings ([true, 7]);
+    anything else as Python's repr (text quoted)."""
+    if isinstance(value, bool) or value is None:
+        return {True: "true", False: "false", None: "null"}[value]
+    if isinstance(value, list):
+        return "[" + ", ".join(map(_spelled, value)) + "]"
+    if isinstance(value, dict):
+        return "{" + ", ".join(f"{_spelled(k)}: {_spelled(v)}" for k, v in value.items()) + "}"
+    return repr(value)
 
 
 def _is_text(value) -> bool:
