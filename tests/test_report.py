@@ -252,3 +252,14 @@ def test_the_final_adder_line_counts_the_finished_bits(keys, said):
     """The low columns the tree leaves with one dot are finished; one bit is singular."""
     line = next(x for x in report.table(make(**keys)) if x.startswith("Final adder"))
     assert line.endswith(said)
+
+
+def test_a_final_adders_block_chains_get_the_block_width_tip():
+    # The final adder's stages are numbered as the unit's (its first follows the tree's), so
+    # "stage 0 is among the slowest" never held for it and the tip was left out.
+    plan = make(unit="multiplier", width=11, width_b=7, signed=True, partial_products="booth4",
+                pipeline="blocks", cell="brent-kung", block_width=4)
+    first = plan.adder_stages[0].index
+    assert plan.slowest[0].index == first > 0
+    said = " ".join(tips(plan).split())
+    assert f"a smaller `block_width` (now 4) shortens the carry chains of stage {first};" in said

@@ -368,7 +368,9 @@ def _(plan: PrefixPlan) -> list[str]:
     if deep:
         out += _tip(f"fewer `levels_per_stage` (now {c.levels_per_stage}) splits the prefix "
                     f"levels of {stages_phrase(deep)} over more stages;")
-    return out + _position_tips(sch.positions, plan, slow[0].index == 0) + _input_tip(plan)
+    # A tree's final adder is numbered as the unit's: its first stage follows the tree's.
+    first = slow[0].index == plan.stages[0].index
+    return out + _position_tips(sch.positions, plan, first) + _input_tip(plan)
 
 
 @singledispatch
@@ -403,13 +405,13 @@ def _(pos: positions.Blocks, plan: PrefixPlan, first: bool) -> list[str]:
     out = []
     if c.block_width > 1 and first:
         out += _tip(f"a smaller `block_width` (now {c.block_width}) shortens the carry chains "
-                    "of stage 0;")
+                    f"of stage {plan.stages[0].index};")
     return out + _network_tips(plan)
 
 
 @_position_tips.register
 def _(pos: positions.Slices, plan: PrefixPlan, first: bool) -> list[str]:
-    if first and max(plan.schedule.widths) > 1:
+    if first and max(plan.schedule.widths) > 1:  # a comparator: never a final adder
         return _tip("narrower slices (`slice_width` or `slices`) shorten the comparisons of "
                     "stage 0;")
     return []
