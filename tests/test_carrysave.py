@@ -252,7 +252,8 @@ def report_manifest(p) -> str:
      r"key 'slices': value \[4, 4\] is not allowed; expected slice widths that sum to the "
      r"final adder's width \(14\), not 8"),
     ({"unit": "multiplier", "width": 1, "slice_width": 1},
-     r"there is no final adder to split"),
+     r"key 'slice_width': value 1 is not allowed; the tree leaves at most one bit in every "
+     r"column: there is no final adder to split \(leave the key out\)\Z"),
     # A final-adder key in the wrong pipeline mode names the mode (the tree is not why).
     ({"unit": "multiplier", "width": 8, "levels_per_stage": 2},
      r"key 'levels_per_stage' is given with pipeline 'slices'; expected it only with pipeline "

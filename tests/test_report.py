@@ -263,3 +263,10 @@ def test_a_final_adders_block_chains_get_the_block_width_tip():
     assert plan.slowest[0].index == first > 0
     said = " ".join(tips(plan).split())
     assert f"a smaller `block_width` (now 4) shortens the carry chains of stage {first};" in said
+
+
+def test_a_tree_without_counters_says_so():
+    # Two rows need no counter: the summary said "0 half adders" and left the full adders out.
+    line = next(x for x in report.table(make(unit="multiplier", width=2, width_b=7))
+                if x.startswith("Tree "))
+    assert line.endswith("height 2; 0 counter levels, no counters")

@@ -338,8 +338,9 @@ def from_mapping(data, where: str = "config") -> Config:
     if span == 0:
         if reads("slice_width", unit, mode, tree) and ("slices" in data or "slice_width" in data):
             key = "slices" if "slices" in data else "slice_width"
-            raise ConfigError(f"{where}: key '{key}' is given, but the tree leaves at most one "
-                              "bit in every column: there is no final adder to split")
+            raise ConfigError(f"{where}: key '{key}': value {_shown(data[key])} is not "
+                              "allowed; the tree leaves at most one bit in every column: "
+                              "there is no final adder to split (leave the key out)")
         split: tuple[int, ...] = ()
     elif "slices" in data:
         split = check_split(where, "slices", data["slices"], span, what)

@@ -244,7 +244,9 @@ def _row_runs(rank) -> list[list[tuple[int, int]]]:
 
 
 def counters_phrase(full: int, half: int) -> str:
-    """`12 full and 3 half adders`, `4 half adders`, `1 full adder`."""
+    """`12 full and 3 half adders`, `4 half adders`, `1 full adder`, `no counters`."""
+    if not full and not half:
+        return "no counters"
     if full and half:
         return f"{full} full and {plural(half, 'half adder')}"
     return plural(full, "full adder") if full else plural(half, "half adder")
