@@ -176,6 +176,42 @@ def test_the_trees_add_up():
         assert treeproof.arithmetic(make(**keys).tree) is None, keys
 
 
+def _last_rank_total(tree: reduction.Tree, inputs: dict, m: int, n: int, signed: bool) -> int:
+    """What the last rank adds up to for these inputs, modulo 2^N: its dots by weight, and
+    2^(N-1) when the tree left that constant for the final adder's carry."""
+    out = tree.evaluate(inputs, m, n, signed)
+    total = sum(((out[d.value] ^ int(d.invert)) << k)
+                for k, col in enumerate(tree.final) for d in col)
+    return (total + (tree.flip_carry << (tree.width - 1))) % (1 << tree.width)
+
+
+@pytest.mark.parametrize("signed", [False, True])
+@pytest.mark.parametrize("pp", ["and", "booth4"])
+@pytest.mark.parametrize("tree", ["dadda", "wallace"])
+def test_the_tree_computes_the_product_for_every_input(signed, pp, tree):
+    # Every value of the reduction evaluated in Python, without HDL, for every pair of 4-bit
+    # and 3-bit operands: the last rank adds up to a * b (Python's integers; modulo 2^7,
+    # which for signed operands is the two's-complement product).
+    m, n = 4, 3
+    t = make(unit="multiplier", width=m, width_b=n, signed=signed, partial_products=pp,
+             tree=tree).tree
+    for a, b in itertools.product(range(1 << m), range(1 << n)):
+        sa = a - (1 << m) * (a >> (m - 1)) if signed else a
+        sb = b - (1 << n) * (b >> (n - 1)) if signed else b
+        assert _last_rank_total(t, {"a": a, "b": b}, m, n, signed) == \
+            (sa * sb) % (1 << (m + n)), (a, b)
+
+
+def test_a_sums_tree_computes_the_sum():
+    # Five signed 6-bit operands at random (Python's integers, modulo 2^9).
+    t = make(unit="sum", operands=5, width=6, signed=True).tree
+    rnd = random.Random(3)
+    for _ in range(300):
+        xs = [rnd.randrange(64) for _ in range(5)]
+        want = sum(x - 64 * (x >> 5) for x in xs) % (1 << t.width)
+        assert _last_rank_total(t, {f"x{i}": x for i, x in enumerate(xs)}, 6, 0, True) == want
+
+
 def test_the_arithmetic_check_has_teeth():
     t = make(unit="multiplier", width=6).tree
     c = t.counters[3]
