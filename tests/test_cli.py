@@ -114,19 +114,26 @@ def test_bad_config_exit_2_and_nothing_written(write_config, tmp_path, command, 
 
 
 @pytest.mark.parametrize("args, message", [
-    (["check", "CFG", "--vectors", "-5"], "Invalid value for '--vectors': -5 is not in the range"),
+    (["check", "CFG", "--vectors", "-5"], "--vectors: value '-5' is not allowed; expected an "
+     "integer from 1 to 10000000, written in plain decimal digits"),
+    (["check", "CFG", "--vectors", "abc"], "--vectors: value 'abc' is not allowed; expected an "
+     "integer from 1 to 10000000, written in plain decimal digits"),
+    (["build", "CFG", "--seed", "x"], "--seed: value 'x' is not allowed; expected an integer "
+     "of 0 or more, written in plain decimal digits"),
+    (["build", "FOLDER"], "cannot read config: it is a folder; expected a regular file"),
     (["check", "CFG", "--sim", "modelsim"], "Invalid value for '--sim': 'modelsim' is not one of"),
     (["build"], "Missing argument 'CONFIG'. (see '"),
     (["plan", "CFG", "--bogus"], "No such option '--bogus'"),
     (["nosuch"], "No such command 'nosuch'. (see '"),
-], ids=["range", "choice", "argument", "option", "command"])
-def test_command_line_mistakes_are_one_line(write_config, args, message):
+], ids=["range", "number", "seed", "folder", "choice", "argument", "option", "command"])
+def test_command_line_mistakes_are_one_line(write_config, tmp_path, args, message):
     cfg = write_config(DEMO)
-    r = run(*[cfg if a == "CFG" else a for a in args])
+    r = run(*[{"CFG": cfg, "FOLDER": tmp_path}.get(a, a) for a in args])
     assert r.exit_code == 2
     lines = r.output.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("carrypipe: error: ") and message in lines[0]
-    assert lines[0].endswith(" --help')")
+    if "Invalid value" in message or "No such" in message or "Missing" in message:
+        assert lines[0].endswith(" --help')")  # click's own checks point to the help
 
 
 def test_missing_config_file(tmp_path):

@@ -252,13 +252,26 @@ def load_plan(config_path: str, slice_width=None, slices=None):
     return make_plan(cfg)
 
 
-config_arg = click.argument("config", type=click.Path(dir_okay=False))
-vectors_opt = click.option("--vectors", default=emit.DEFAULT_VECTORS, show_default=True,
-                           type=click.IntRange(1, 10_000_000),
+MAX_VECTORS = 10_000_000
+
+
+def _vectors(ctx, param, value):
+    return _option_number("--vectors", value, int, 0, f"an integer from 1 to {MAX_VECTORS}",
+                          MAX_VECTORS)
+
+
+def _seed(ctx, param, value):
+    return _option_number("--seed", value, int, -1, "an integer of 0 or more")
+
+
+# The config is read (and a folder, FIFO or device refused) by `config.read_text`.
+config_arg = click.argument("config", type=str)
+vectors_opt = click.option("--vectors", default=str(emit.DEFAULT_VECTORS), show_default=True,
+                           metavar="N", callback=_vectors,
                            help="Vectors in all: the directed corner cases (all of them, even when "
                                 "more than N), then seeded random ones up to N.")
-seed_opt = click.option("--seed", default=emit.DEFAULT_SEED, show_default=True,
-                        type=click.IntRange(0), help="Seed of the random vectors.")
+seed_opt = click.option("--seed", default=str(emit.DEFAULT_SEED), show_default=True,
+                        metavar="S", callback=_seed, help="Seed of the random vectors.")
 
 
 @click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
