@@ -270,3 +270,9 @@ def test_a_tree_without_counters_says_so():
     line = next(x for x in report.table(make(unit="multiplier", width=2, width_b=7))
                 if x.startswith("Tree "))
     assert line.endswith("height 2; 0 counter levels, no counters")
+
+
+def test_report_lines_wrap_at_92_columns():
+    # The Timing and Delay model lines ran to 160 and 104 columns.
+    for plan in PLANS:
+        assert max(map(len, report.report(plan).splitlines())) <= 92, plan.config.name

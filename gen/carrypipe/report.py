@@ -136,7 +136,7 @@ def report(plan: Plan) -> str:
         f"Cell      {c.cell}",
         f"Latency   {plan.latency} cycle(s)" + (" (includes the input register)"
                                                  if c.register_inputs else ""),
-        f"Timing    {timing_phrase(plan)}",
+        *textwrap.wrap(f"Timing    {timing_phrase(plan)}", 92, subsequent_indent=" " * 10),
         f"Reset     {reset_phrase(plan)}",
         "",
         *table(plan),
@@ -146,7 +146,7 @@ def report(plan: Plan) -> str:
           if n or kind == "total"),
         "",
         *textwrap.wrap(slowest_sentence(plan), 92),
-        f"Delay model: {DELAY_MODEL}.",
+        *textwrap.wrap(f"Delay model: {DELAY_MODEL}.", 92),
         "",
     ]
     found = tips(plan)
