@@ -173,10 +173,10 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     if base.register_inputs and any(r.config.pipeline == "levels" and r.ok for r in rows):
         outcome.notes.append(INPUT_RANK_NOTE)
     if chosen and chosen.mhz < target * (1 + SEED_SPREAD):
-        seeds = ", ".join(f"{m.mhz:g}" for m in chosen.ok)
+        figures = ", ".join(f"{m.mhz:g}" for m in chosen.ok)
         outcome.notes.append(
             f"{chosen.label} is {100 * (chosen.mhz / target - 1):.1f} % above the target by "
-            f"its median (seeds: {seeds} MHz); nextpnr's placements of one design differ by "
+            f"its median (seeds: {figures} MHz); nextpnr's placements of one design differ by "
             f"about {100 * SEED_SPREAD:g} %, so other seeds, or your design around the unit, "
             f"may miss {target:g} MHz: confirm with more seeds (--seeds 9) or aim higher")
     for row in rows:

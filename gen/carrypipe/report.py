@@ -16,6 +16,7 @@ from .header import bits, plural, reset_phrase, stage_list, timing_phrase
 from .plan import MODES, Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan, counters_phrase
 
+COLUMNS = 92  # the report's lines wrap here
 DELAY_MODEL = ("unit-gate model (Tyagi 1993; Zimmermann 1997): 2-input AND/OR = 1, XOR = 2, "
                "inverters free")
 
@@ -136,7 +137,7 @@ def report(plan: Plan) -> str:
         f"Cell      {c.cell}",
         f"Latency   {plan.latency} cycle(s)" + (" (includes the input register)"
                                                  if c.register_inputs else ""),
-        *textwrap.wrap(f"Timing    {timing_phrase(plan)}", 92, subsequent_indent=" " * 10),
+        *_wrapped(f"Timing    {timing_phrase(plan)}", rest=" " * 10),
         f"Reset     {reset_phrase(plan)}",
         "",
         *table(plan),
@@ -145,8 +146,8 @@ def report(plan: Plan) -> str:
         *(f"  {kind:<8} {n:>8}" for kind, n in plan.registers.as_dict().items()
           if n or kind == "total"),
         "",
-        *textwrap.wrap(slowest_sentence(plan), 92),
-        *textwrap.wrap(f"Delay model: {DELAY_MODEL}.", 92),
+        *_wrapped(slowest_sentence(plan)),
+        *_wrapped(f"Delay model: {DELAY_MODEL}."),
         "",
     ]
     found = tips(plan)
@@ -281,10 +282,15 @@ def _(plan: NativePlan, mark=None) -> list[str]:
              "Stages (no delay model: synthesis chooses the logic)",
              f"  {'stage':>5}  logic"]
     return lines + [f"  {s.index:>5}  {s.logic}" for s in plan.stages]
-def _tip(text: str) -> list[str]:
-    """One tip as report lines: a dash, then lines of at most 92 characters."""
-    return textwrap.wrap(text, 92, initial_indent="  - ", subsequent_indent="    ",
+def _wrapped(text: str, first: str = "", rest: str = "") -> list[str]:
+    """`text` as report lines of at most COLUMNS characters after the indents given."""
+    return textwrap.wrap(text, COLUMNS, initial_indent=first, subsequent_indent=rest,
                          break_on_hyphens=False, break_long_words=False)
+
+
+def _tip(text: str) -> list[str]:
+    """One tip as report lines: a dash, then wrapped lines."""
+    return _wrapped(text, "  - ", "    ")
 
 
 def _input_tip(plan: Plan) -> list[str]:
