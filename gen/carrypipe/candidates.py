@@ -36,6 +36,9 @@ JUST_MISSED = 0.10  # a measured miss this close to the target gets uneven varia
 # A candidate whose every seed failed in the tools (nextpnr-machxo2 fails to route the global
 # clock for some placements, about a third of seed-1 runs) gets up to this many more seeds.
 RETRY_SEEDS = 2
+SEED_SPREAD = 0.05
+"""How far nextpnr's placements of one design differ from seed to seed, about (measured:
+±5-6 % over seeds 1-9 for the 64- and 256-bit units in docs/modes.md)."""
 
 
 def balanced(width: int, stages: int) -> tuple[int, ...]:
@@ -288,16 +291,16 @@ class Row:
         return self.plan.slowest[0].index if stage is None else stage
 
     def seeds_to_run(self) -> tuple[int, ...]:
-        """Seeds still to measure: 1..seeds at first; then, while every seed so far failed
-        with a tool error or crash (not a timeout, not a full device), the next one, up to
-        RETRY_SEEDS more."""
+        """Seeds still to measure: those of 1..seeds not measured yet (`seeds` grows when a
+        choice is confirmed); while every seed so far failed with a tool error or crash (not
+        a timeout, not a full device), the next one instead, up to RETRY_SEEDS more."""
         tried = {m.seed for m in self.measured}
-        if not tried:
-            return tuple(range(1, self.seeds + 1))
-        if self.ok or any(m.status not in ("error", "broken") for m in self.measured):
-            return ()
-        nxt = max(tried) + 1
-        return (nxt,) if nxt <= self.seeds + RETRY_SEEDS else ()
+        if tried and not self.ok:
+            if any(m.status not in ("error", "broken") for m in self.measured):
+                return ()
+            nxt = max(tried) + 1
+            return (nxt,) if nxt <= self.seeds + RETRY_SEEDS else ()
+        return tuple(s for s in range(1, self.seeds + 1) if s not in tried)
 
     @property
     def done(self) -> bool:
@@ -444,22 +447,32 @@ def last_resort(rows: list[Row], target: float, factors: dict[tuple, float],
             and r.predicted * best >= target * (1 - LAST_RESORT * margin)]
 
 
-def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN) -> list[Row]:
+def inside_spread(row: Row, target: float) -> bool:
+    """Does a measured row meet `target` by less than the seeds' spread (`SEED_SPREAD`)?"""
+    return meets(row, target) and row.mhz < target * (1 + SEED_SPREAD)
+
+
+def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN,
+               confirm: int = 0) -> list[Row]:
     """The candidates to place and route next; empty when the answer is confirmed.
 
     Confirmed: a measured candidate meets the target and every candidate the rule would
     prefer is measured or taken to miss (predicted to miss by more than `margin`, or
     bounded by a measured miss of its kind); when none meets, the `last_resort` candidates
-    are measured too.  Candidates with a prediction go in the order of the rule; of the
-    ones without, each kind sends its middle candidate (by the rule's order), which halves
-    what is left of that kind whether it meets or misses.  With no promising
+    are measured too.  A chosen candidate `inside_spread` of the target is measured on
+    seeds 1..`confirm` before it is accepted (its median over them decides; when it then
+    misses, the search goes on).  Candidates with a prediction go in the order of the rule;
+    of the ones without, each kind sends its middle candidate (by the rule's order), which
+    halves what is left of that kind whether it meets or misses.  With no promising
     candidate left and nothing measured, the best `size` predictions are measured so the
     table can show how far off the target is.
     """
     factors = scale(rows)
     chosen = select(rows, target)
+    if chosen is not None and inside_spread(chosen, target) and chosen.seeds < confirm:
+        chosen.seeds = confirm
     open_rows = [r for r in rows if not r.done]
-    todo = [r for r in open_rows if promising(r, target, factors, rows, margin)
+    todo = [r for r in open_rows if r is chosen or promising(r, target, factors, rows, margin)
             and (chosen is None or rank(r) < rank(chosen))]
     if not todo and chosen is None:
         todo = last_resort(rows, target, factors, margin)
@@ -469,10 +482,11 @@ def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN
         todo = sorted(open_rows, key=lambda r: -(r.predicted or 0))[:max(size, 1)]
     blind: dict[tuple, list[Row]] = {}
     for r in sorted(todo, key=rank):
-        if r.predicted is None and not r.forced:
+        if r.predicted is None and not r.forced and r is not chosen:
             blind.setdefault(kind(r), []).append(r)
     probes = {id(group[(len(group) - 1) // 2]) for group in blind.values()}
-    todo = [r for r in todo if r.predicted is not None or r.forced or id(r) in probes]
+    todo = [r for r in todo if r.predicted is not None or r.forced or r is chosen
+            or id(r) in probes]
     return sorted(todo, key=rank)[:max(size, 1)]
 
 

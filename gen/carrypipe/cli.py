@@ -445,6 +445,10 @@ def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str,
               help="Candidates placed and routed at once (local worker processes).")
 @click.option("--seeds", default="1", show_default=True, metavar="N",
               help="Place-and-route seeds per candidate (1..N); the median Fmax is reported.")
+@click.option("--confirm-seeds", "confirm", metavar="N",
+              help="A choice less than 5 % above the target is measured on seeds 1..N before "
+              "it is accepted; if its median then misses, the search goes on [default: three "
+              "times --seeds; 0 or at most --seeds: no more seeds].")
 @click.option("--no-cache", is_flag=True, help="Run the tools again even for cached results.")
 @click.option("--tools", "tool_kind", default="wheel", show_default=True, metavar="wheel|system",
               help="yowasp-* pip wheels, or yosys and nextpnr-* from PATH.")
@@ -454,8 +458,8 @@ def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str,
               help="Run candidates on this Dask distributed scheduler instead of locally.")
 @click.option("-o", "--out", "out_dir", type=str,
               help="Output folder [default: out/<name>].")
-def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool_kind, timeout,
-        cluster, out_dir):
+def fit(config, target, device, cells, modes, trees, jobs, seeds, confirm, no_cache, tool_kind,
+        timeout, cluster, out_dir):
     """Measure candidate splits with Yosys and nextpnr; keep the least latency meeting MHZ."""
     from . import executor, fit as fitting
     from .toolflow import TOOLS
@@ -486,6 +490,8 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
     n_jobs = _option_number("--jobs", jobs, int, 0, "an integer of 1 or more")
     n_seeds = _option_number("--seeds", seeds, int, 0, f"an integer from 1 to {MAX_SEEDS}",
                              MAX_SEEDS)
+    n_confirm = 3 * n_seeds if confirm is None else _option_number(
+        "--confirm-seeds", confirm, int, -1, f"an integer from 0 to {MAX_SEEDS}", MAX_SEEDS)
     if tool_kind not in TOOLS:
         raise UserError(f"--tools: value {tool_kind!r} is not allowed; expected wheel or "
                         "system")
@@ -496,7 +502,8 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, no_cache, tool
     with _writing(dest):
         output.probe_folder(dest, option)  # before the long run, not after it
     settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
-                                timeout, not no_cache, chosen_modes, chosen_trees)
+                                timeout, not no_cache, chosen_modes, chosen_trees,
+                                min(n_confirm, MAX_SEEDS))
     runner = executor.Cluster(cluster) if cluster else executor.Local(n_jobs)
     try:
         outcome = fitting.run(base, settings, runner, echo=lambda t: click.echo(t, err=True))

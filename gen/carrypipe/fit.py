@@ -42,11 +42,9 @@ class Settings:
     use_cache: bool = True
     modes: tuple[str, ...] = config.PIPELINES
     trees: tuple[str, ...] = config.TREES  # a sum's or multiplier's trees to try
-
-
-SEED_SPREAD = 0.05
-"""How far nextpnr's placements of one design differ from seed to seed, about (measured:
-±5-6 % over seeds 1-9 for the 64- and 256-bit units in docs/modes.md)."""
+    # A choice less than SEED_SPREAD above the target is measured on seeds 1..confirm_seeds
+    # before it is accepted (no more seeds when this is not above `seeds`).
+    confirm_seeds: int = 0
 
 
 @dataclass
@@ -115,7 +113,8 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     progress, warned = Progress(echo), False
     measurements = cached = 0
     margin = model.margin(dev.name)
-    while batch := candidates.next_batch(rows, target, executor.jobs, margin):
+    while batch := candidates.next_batch(rows, target, executor.jobs, margin,
+                                         settings.confirm_seeds):
         jobs, keys = {}, {}
         factors = candidates.scale(rows)
         for row in batch:
@@ -146,7 +145,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                 row.measured.append(m)
                 store.put(keys[id(row), m.seed], m)
             progress.step(row.label, sum(m.seconds for m in results),
-                          left + _queued(rows, target, margin))
+                          left + _queued(rows, target, margin, settings.confirm_seeds))
         for row in batch:
             row.measured.sort(key=lambda m: m.seed)
             full = [m for m in row.measured if m.status == "no-fit"]
@@ -172,13 +171,14 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                              "the next run")
     if base.register_inputs and any(r.config.pipeline == "levels" and r.ok for r in rows):
         outcome.notes.append(INPUT_RANK_NOTE)
-    if chosen and chosen.mhz < target * (1 + SEED_SPREAD):
+    if chosen and candidates.inside_spread(chosen, target):
         figures = ", ".join(f"{m.mhz:g}" for m in chosen.ok)
         outcome.notes.append(
             f"{chosen.label} is {100 * (chosen.mhz / target - 1):.1f} % above the target by "
             f"its median (seeds: {figures} MHz); nextpnr's placements of one design differ by "
-            f"about {100 * SEED_SPREAD:g} %, so other seeds, or your design around the unit, "
-            f"may miss {target:g} MHz: confirm with more seeds (--seeds 9) or aim higher")
+            f"about {100 * candidates.SEED_SPREAD:g} %, so other seeds, or your design around "
+            f"the unit, may miss {target:g} MHz: aim higher, or confirm on more seeds "
+            f"(--confirm-seeds {3 * len(chosen.measured)})")
     for row in rows:
         for m in row.ok:
             if m.inside is False:
@@ -200,14 +200,18 @@ def environment_failure(outcome: Outcome) -> str | None:
             f"{measured[0].message}")
 
 
-def _queued(rows: list[Row], target: float, margin: float) -> int:
-    """Candidates that may still be run: the promising ones and, while none meets the
-    target, the last resort's (so "up to N more" is not an undercount)."""
+def _queued(rows: list[Row], target: float, margin: float, confirm: int) -> int:
+    """Candidates that may still be run: the promising ones, the choice when it is still to
+    be confirmed on more seeds and, while none meets the target, the last resort's (so "up
+    to N more" is not an undercount)."""
     factors = candidates.scale(rows)
     todo = {id(r) for r in rows if not r.done
             and candidates.promising(r, target, factors, rows, margin)}
-    if candidates.select(rows, target) is None:
+    chosen = candidates.select(rows, target)
+    if chosen is None:
         todo |= {id(r) for r in candidates.last_resort(rows, target, factors, margin)}
+    elif candidates.inside_spread(chosen, target) and chosen.seeds < confirm:
+        todo.add(id(chosen))
     return len(todo)
 
 
@@ -373,7 +377,7 @@ def files(outcome: Outcome, source: str | None = None) -> dict[str, str | bytes]
     doc = {
         "generator": {"name": "carrypipe", "version": __version__},
         "target_mhz": target, "device": s.device.name, "part": s.device.part,
-        "seeds": s.seeds, "tools": outcome.tool_versions,
+        "seeds": s.seeds, "confirm_seeds": s.confirm_seeds, "tools": outcome.tool_versions,
         "chosen": outcome.chosen.label if outcome.chosen else None,
         "candidates": [{**rec, "config": r.config.normalized(), "same_circuit": r.same,
                         "measurements": [{k: v for k, v in m.as_dict().items() if k != "seconds"}
