@@ -10,7 +10,7 @@ from pathlib import Path
 
 import pytest
 
-from carrypipe import config, positions, report
+from carrypipe import chart, config, positions, report
 from carrypipe.plan import make_plan
 from conftest import make
 
@@ -277,3 +277,18 @@ def test_report_lines_wrap_at_their_column():
     for plan in PLANS:
         assert max(map(len, report.report(plan).splitlines())) <= report.COLUMNS == 92, \
             plan.config.name
+
+
+@pytest.mark.parametrize("unit", ["sum", "multiplier"])
+def test_a_native_units_stages_claim_no_unit_gate_delay(unit):
+    """`tree: native` leaves the logic to synthesis: the report, the manifest and the chart
+    give its stages no unit-gate delay (they used to say 0 units)."""
+    plan = make(unit=unit, width=16, tree="native", native_stages=2,
+                **({"operands": 5} if unit == "sum" else {}))
+    said = report.report(plan)
+    assert "units" not in said and "Delay model" not in said and "logic model" not in said
+    entries = report.manifest(plan, [])["slices"]
+    assert [(e["delay"], e["depth"], e["nodes"]) for e in entries] == [(None, None, None)] * 2
+    picture = chart.svg(plan)
+    assert "data-delay" not in picture and "delay 0" not in picture
+    assert "No stage delays: synthesis chooses the logic." in picture

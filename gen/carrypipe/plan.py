@@ -172,6 +172,7 @@ class Plan:
 
     mode = ""  # set by each mode
     register_kinds = ()  # kinds the register table always lists
+    timed = True  # the stages' `delay` (unit-gate model) describes their logic
     proof_methods = ("direct",)
 
     @property

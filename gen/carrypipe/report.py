@@ -60,7 +60,8 @@ def manifest(plan: Plan, files: list[str]) -> dict:
                   for p in plan.ports],
         "slices": [{"lsb": s.lsb, "msb": s.msb, "width": s.width, "cell": s.cell,
                     "wait_before": s.wait_before, "wait_after": s.wait_after,
-                    "depth": s.depth, "nodes": s.nodes, "delay": s.delay}
+                    **{key: getattr(s, key) if plan.timed else None
+                       for key in ("depth", "nodes", "delay")}}
                    for s in plan.stages],
         **stage_entries(plan),
         "registers": plan.registers.as_dict(),
@@ -146,14 +147,15 @@ def report(plan: Plan) -> str:
         *(f"  {kind:<8} {n:>8}" for kind, n in plan.registers.as_dict().items()
           if n or kind == "total"),
         "",
-        *_wrapped(slowest_sentence(plan)),
-        *_wrapped(f"Delay model: {DELAY_MODEL}."),
-        "",
+        *((*_wrapped(slowest_sentence(plan)), *_wrapped(f"Delay model: {DELAY_MODEL}."), "")
+          if plan.timed else ()),
     ]
     found = tips(plan)
     if found:
         lines += ["If timing fails", *found]
-    lines += ["These figures come from a logic model, not from a placed design.", ""]
+    if plan.timed:
+        lines.append("These figures come from a logic model, not from a placed design.")
+    lines.append("")
     return "\n".join(lines)
 
 

@@ -16,17 +16,19 @@ IDLE_BLOCK = ("#ffffff", "#9aa9a3", "#5d6b66")  # a stage without logic (a wire 
 FONT = "DejaVu Sans, Lato, Helvetica, Arial, sans-serif"
 
 
-def stage_block(group, hot: bool, idle: bool) -> tuple[tuple[str, str, str], dict]:
+def stage_block(group, hot: bool, idle: bool, timed: bool = True
+                ) -> tuple[tuple[str, str, str], dict]:
     """The colours (fill, outline, text) and the data attributes of the block drawn for
     one stage or a run of stages (`group`) in either chart, the same for every unit kind:
-    `hot` the slowest, `idle` a rank without logic."""
+    `hot` the slowest, `idle` a rank without logic, `timed` false when the plan has no
+    unit-gate delays (no `data-delay` then)."""
     first, last = group[0], group[-1]
     levels = sorted({k for s in group for k in getattr(s, "levels", ())})
     logic = "; ".join(s.logic for s in group if getattr(s, "logic", ""))
     data = dict(class_="slice",
                 data_stage=str(first.index) if len(group) == 1 else f"{first.index}–{last.index}",
                 data_bits=f"{max(s.msb for s in group)}:{min(s.lsb for s in group)}",
-                data_slowest="1" if hot else "0", data_delay=max(s.delay for s in group),
+                data_slowest="1" if hot else "0", data_delay=max(s.delay for s in group) if timed else None,
                 data_logic=logic or None,
                 data_levels=" ".join(map(str, levels)) if levels else None)
     return (SLOW_BLOCK if hot else IDLE_BLOCK if idle else BLOCK), data
@@ -48,6 +50,8 @@ def slowest(plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]:
     """Indices of the slowest stage(s) to highlight and the sentence that names them all
     (both charts), by the `measured` figures when given (checked), else the plan's delays."""
     check_measured(plan, measured)
+    if not measured and not plan.timed:
+        return set(), "No stage delays: synthesis chooses the logic."
     if measured:
         top = max(measured.values())
         slow = {i for i, v in measured.items() if v == top}

@@ -97,10 +97,10 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
         top, at = y, len(out.parts)
         s = stage_of_edge.get(edge)
         if s is not None:
-            figure = (f"{num(measured[s.index])} ns" if measured and s.index in measured
-                      else f"delay {s.delay}")
+            figure = (f" · {num(measured[s.index])} ns" if measured and s.index in measured
+                      else f" · delay {s.delay}" if plan.timed else "")
             hot = s.index in slow
-            out.text(MARGIN, y + 12, f"stage {s.index} · {figure}", size=10,
+            out.text(MARGIN, y + 12, f"stage {s.index}{figure}", size=10,
                      fill=SLOW if hot else INK, weight="bold" if hot else None,
                      data_role="stage-label", data_stage=s.index)
         out.text(MARGIN, y + 25, f"edge {edge}", size=10, fill=FAINT)
@@ -122,7 +122,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
         if s is not None:  # behind the row's registers: drawn first
             block = Svg()
             _stage_block(block, s, s.index in slow, tree is not None and s.delay == 0,
-                         col_x, cw, top, y - top)
+                         plan.timed, col_x, cw, top, y - top)
             out.parts[at:at] = block.parts
         loaded = sum(w.width for w in words)
         out.text(bits_x, top + 12, thousands(loaded), size=9.5, anchor="end",
@@ -139,8 +139,10 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     y += 16
     basis = (f"Stage figures measured{f' ({measured_source})' if measured_source else ''}: "
              "worst register-to-register delay inside each stage, in ns." if measured else
-             f"Stage delays: {report.DELAY_MODEL}; a full adder is one XOR pair.")
-    out.text(MARGIN, y, basis, size=10, fill=FAINT)
+             f"Stage delays: {report.DELAY_MODEL}; a full adder is one XOR pair."
+             if plan.timed else "")
+    if basis:
+        out.text(MARGIN, y, basis, size=10, fill=FAINT)
     height = math.ceil(y + MARGIN)
     head = (f'<svg xmlns="http://www.w3.org/2000/svg" width="{page_w}" height="{height}" '
             f'viewBox="0 0 {page_w} {height}" font-family="{FONT}" '
@@ -152,10 +154,10 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     return "\n".join([head, title, background, *out.parts, "</svg>"]) + "\n"
 
 
-def _stage_block(out, s, hot: bool, idle: bool, col_x, cw, y, h) -> None:
+def _stage_block(out, s, hot: bool, idle: bool, timed: bool, col_x, cw, y, h) -> None:
     """Stage `s` as a block over its bits and its register row (the same element and data
     attributes as a slice block of the other chart); `idle`: a rank without logic."""
-    (fill, stroke, _), data = stage_block([s], hot, idle)
+    (fill, stroke, _), data = stage_block([s], hot, idle, timed)
     idle = idle and not hot
     left, right = col_x(s.msb), col_x(s.lsb) + cw
     out.add("rect", x=left + 0.5, y=y + 1.0, width=max(1.0, right - left - 1.0),

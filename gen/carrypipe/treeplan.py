@@ -195,6 +195,7 @@ class NativePlan(Plan):
     the tools to retime into."""
 
     mode = "native"
+    timed = False  # synthesis chooses the logic: the stages have no unit-gate delay
     # Every kind a sliced tree lists (a native unit reads no `pipeline`), most of them 0.
     register_kinds = ("input", "tree", "stage", "skew", "deskew", "control")
 
