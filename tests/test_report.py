@@ -287,8 +287,10 @@ def test_a_native_units_stages_claim_no_unit_gate_delay(unit):
                 **({"operands": 5} if unit == "sum" else {}))
     said = report.report(plan)
     assert "units" not in said and "Delay model" not in said and "logic model" not in said
-    entries = report.manifest(plan, [])["slices"]
-    assert [(e["delay"], e["depth"], e["nodes"]) for e in entries] == [(None, None, None)] * 2
+    manifest = report.manifest(plan, [])
+    assert [(e["delay"], e["depth"], e["nodes"]) for e in manifest["slices"]] == [
+        (None, None, None)] * 2
+    assert manifest["pipeline"] is None  # it reads no `pipeline` key
     picture = chart.svg(plan)
     assert "data-delay" not in picture and "delay 0" not in picture
     assert "No stage delays: synthesis chooses the logic." in picture

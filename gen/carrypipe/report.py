@@ -53,7 +53,7 @@ def manifest(plan: Plan, files: list[str]) -> dict:
         "unit": c.unit,
         "generator": {"name": "carrypipe", "version": __version__},
         "latency": plan.latency,
-        "pipeline": c.pipeline,
+        "pipeline": c.pipeline,  # (null with `tree: native`: `stage_entries`)
         "reset": {"kind": c.reset, "clears": ("every register" if c.reset_data else
                                                "valid bits" if c.reset != "none" else "nothing")},
         "ports": [{"name": p.name, "direction": p.direction, "width": p.width}
@@ -84,7 +84,8 @@ def _(plan: PrefixPlan) -> dict:
 
 @stage_entries.register
 def _(plan: NativePlan) -> dict:
-    return {"tree": None, "final_adder": None}  # synthesis builds the operation
+    # Synthesis builds the operation: no tree, no final adder, no pipeline mode read.
+    return {"tree": None, "final_adder": None, "pipeline": None}
 
 
 @stage_entries.register
