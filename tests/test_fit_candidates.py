@@ -3,7 +3,7 @@
 
 import pytest
 
-from carrypipe import candidates, config, emit
+from carrypipe import candidates, config, emit, units
 from carrypipe.candidates import Row
 from carrypipe.plan import make_plan
 from carrypipe.toolflow import Measurement
@@ -303,3 +303,14 @@ def test_a_seed_that_fails_in_the_tools_is_followed_by_the_next(statuses, seeds,
                   for i, s in enumerate(statuses)]
     assert r.seeds_to_run() == expect
     assert r.done == (expect == ())
+
+
+@pytest.mark.parametrize("unit", sorted(units.KINDS))
+@pytest.mark.parametrize("width", [64])
+def test_every_unit_kind_gets_candidates_at_64_bits(unit, width):
+    # A 64-bit comparator's fit used to stop with a traceback: the local-network variants
+    # gave it `local_width`, which it refuses.
+    keys = {"sum": {"operands": 3}}.get(unit, {})
+    cfg = config.from_mapping({"name": "w", "width": width, "unit": unit, **keys})
+    found = candidates.generate(cfg, None, units.KINDS[unit].modes)
+    assert found and all(make_plan(c).latency >= 1 for c in found)

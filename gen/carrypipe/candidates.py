@@ -101,7 +101,9 @@ def levels_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Confi
     styles = prefix_styles(base, cells)
     out = [variant(base, pipeline="levels", cell=cell, levels_per_stage=n)
            for cell in styles for n in LEVELS_PER_STAGE]
-    if span(base) >= LOCAL_FROM:  # local networks kept wiring short at 64 and 256 bits
+    local = all(config.reads(key, base.unit, "levels", base.tree)
+                for key in ("local_width", "wire_registers", "carry_increment"))
+    if local and span(base) >= LOCAL_FROM:  # local networks kept wiring short at 64, 256 bits
         out += [variant(base, pipeline="levels", cell=cell, local_width=k,
                         wire_registers=wires, carry_increment=increment)
                 for cell in styles for k in LOCAL_WIDTHS for wires in (0, 1, 2)
