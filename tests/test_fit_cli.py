@@ -46,6 +46,9 @@ BAD = [
     (["--target-mhz", "200", "--device", "ecp5-85k", "--cells", "native", "--modes", "levels"],
      "--modes: value 'levels' is not allowed with --cells native; expected a prefix style in "
      "--cells for the levels and blocks modes, or the slices mode"),
+    (["--target-mhz", "200", "--device", "ecp5-85k", "--modes", "blocks"],
+     "--modes: value 'blocks' is not allowed with 8 bits to add; expected levels or slices "
+     "too (blocks of 8, 16, 32 bits need at least 9 bits to add: two blocks)"),
     (["--target-mhz", "200", "--device", "ecp5-85k", "--cells", "native,carry-save"],
      "--cells: value 'carry-save' is not allowed; expected a comma-separated list of ripple, "
      "native, kogge-stone, brent-kung, sklansky, han-carlson, ladner-fischer"),

@@ -20,8 +20,8 @@ from pathlib import Path
 import click
 
 from . import __version__, candidates, devices, emit, output, report, sim, tools, units
-from .config import (CELLS, PIPELINES, TREES, ConfigError, check_split, load, reads,
-                     split_span)
+from .config import (CELLS, PIPELINES, PREFIX_CELLS, TREES, ConfigError, check_split, load,
+                     reads, split_span)
 from .config import read_text as read_config_text
 from .plan import DIRECT_UP_TO, make_plan
 from .prove import METHODS as PROOF_METHODS
@@ -484,9 +484,15 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, confirm, no_ca
         raise UserError(f"--trees: value {trees!r} is not allowed with unit {base.unit!r}; "
                         "expected it only with unit 'sum' or 'multiplier'")
     if not candidates.generate(base, styles, chosen_modes, chosen_trees):
+        if styles is not None and not set(styles) & set(PREFIX_CELLS):
+            raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with "
+                            f"--cells {','.join(styles)}; expected a prefix style in --cells "
+                            "for the levels and blocks modes, or the slices mode")
+        widths = candidates.BLOCK_WIDTHS
         raise UserError(f"--modes: value {','.join(chosen_modes)!r} is not allowed with "
-                        f"--cells {','.join(styles or ())}; expected a prefix style in --cells "
-                        "for the levels and blocks modes, or the slices mode")
+                        f"{candidates.span(base)} bits to add; expected levels or slices too "
+                        f"(blocks of {', '.join(map(str, widths))} bits need at least "
+                        f"{widths[0] + 1} bits to add: two blocks)")
     n_jobs = _option_number("--jobs", jobs, int, 0, "an integer of 1 or more")
     n_seeds = _option_number("--seeds", seeds, int, 0, f"an integer from 1 to {MAX_SEEDS}",
                              MAX_SEEDS)
