@@ -265,6 +265,21 @@ def test_a_registered_input_config_hears_of_the_wire_rank(counted, inputs, modes
     assert (fit.INPUT_RANK_NOTE in out.notes) == heard
 
 
+@pytest.mark.parametrize("keys", [dict(unit="comparator", width=16, cell="kogge-stone"),
+                                  dict(unit="sum", operands=3, width=16, cell="kogge-stone")])
+def test_no_wire_rank_note_where_the_swap_does_not_apply(monkeypatch, tmp_path, keys):
+    # A comparator's levels and a final adder's levels take no input-rank swap
+    # (`moved_input_rank`); the note used to follow the config's `pipeline` key alone.
+    monkeypatch.setattr(toolflow, "measure", lambda job: [
+        Measurement(s, "ok", mhz=300.0, luts=1, inside=True) for s in job.seeds])
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path))
+    base = config.from_mapping({"name": "u", "register_inputs": True, **keys})
+    out = fit.run(base, fit.Settings(100, devices.get("ecp5-85k"), ("kogge-stone",),
+                                     modes=("levels",), trees=("dadda",)), executor.Local(1))
+    assert any(r.ok and r.config.pipeline == "levels" for r in out.rows)
+    assert fit.INPUT_RANK_NOTE not in out.notes
+
+
 def test_table_shows_the_prediction_that_decided(counted):
     out = fit.run(BASE, settings(250), executor.Local(1))
     factors = candidates.scale(out.rows)

@@ -169,7 +169,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
         outcome.notes.append(f"the cache folder {store.path} could not be written "
                              f"({store.unwritable}): these measurements are not kept for "
                              "the next run")
-    if base.register_inputs and any(r.config.pipeline == "levels" and r.ok for r in rows):
+    if base.register_inputs and any(r.ok and r.plan.moved_input_rank() for r in rows):
         outcome.notes.append(INPUT_RANK_NOTE)
     if chosen and candidates.inside_spread(chosen, target):
         figures = ", ".join(f"{m.mhz:g}" for m in chosen.ok)

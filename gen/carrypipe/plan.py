@@ -239,6 +239,11 @@ class Plan:
         top = max(s.delay for s in self.stages)
         return tuple(s for s in self.stages if s.delay == top)
 
+    def moved_input_rank(self) -> "Plan | None":
+        """The same unit with its input register spent on a wire rank instead: only some
+        levels units take the swap (`PrefixPlan`)."""
+        return None
+
     def data_inputs(self) -> list[Port]:
         """Input ports that carry data (not clk, rst, en)."""
         return [p for p in self.ports if p.direction == "input"
@@ -471,7 +476,7 @@ class PrefixPlan(Plan):
         """The same levels unit with its input register spent on one more wire rank instead
         (the trade measured faster on ECP5; docs/modes.md), or None when it does not apply
         (a tree's final adder reads the tree's last rank, not the unit's inputs; a comparator's
-        slices and the blocks mode take no such swap)."""
+        slices and the blocks mode take no such swap; other plans: `Plan`)."""
         c = self.config
         if self.nest is not None or not isinstance(self.schedule.positions, positions.Bits) \
                 or not c.register_inputs or c.wire_registers >= self.schedule.network.depth:
