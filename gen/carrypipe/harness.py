@@ -48,8 +48,8 @@ def stage_of(cell: str, plan: Plan) -> int | None:
     by the tool's cell suffix (`_TRELLIS_FF_Q`, `_DFF_Q_3`, `[5]`); a word loaded at edge e
     ends a path of stage e - 1 (counted after the input register).  The output registers
     are named after the unit's outputs (`unit.sum`, `unit.cout`, or the harness wire
-    `res_...` they drive): the last stage.  Input registers (loaded from the harness) and
-    harness registers name no stage.
+    `res_...` they drive): the last stage.  Input registers (loaded from the harness), the
+    valid bit beside them and harness registers name no stage.
     """
     name = cell[len(INSTANCE) + 1:] if cell.startswith(INSTANCE + ".") else None
     if name is not None:
@@ -62,7 +62,7 @@ def stage_of(cell: str, plan: Plan) -> int | None:
             # (`<word>_SB_LUT4_I1_LC`): its flip-flop loads from that LUT, a stage later.
             if re.match(r"_SB_LUT4_I\d", name[len(word.name):]):
                 stage = min(stage + 1, len(plan.stages) - 1)
-            return stage
+            return stage if stage >= 0 else None  # the input rank's valid bit: no stage
     outputs = "|".join(re.escape(p.name) for p in plan.ports if p.direction == "output")
     if cell.startswith("res_") or re.match(rf"{INSTANCE}\.({outputs})(?:_[A-Z]|\[|\$|$)",
                                            cell):
