@@ -39,6 +39,7 @@ RETRY_SEEDS = 2
 SEED_SPREAD = 0.05
 """How far nextpnr's placements of one design differ from seed to seed, about (measured:
 ±5-6 % over seeds 1-9 for the 64- and 256-bit units in docs/modes.md)."""
+CONFIRM_FACTOR = 3  # a choice inside SEED_SPREAD is confirmed on this many times the seeds
 
 
 def balanced(width: int, stages: int) -> tuple[int, ...]:

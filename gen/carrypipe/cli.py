@@ -446,9 +446,10 @@ def _option_list(option: str, text: str, allowed: tuple[str, ...]) -> tuple[str,
 @click.option("--seeds", default="1", show_default=True, metavar="N",
               help="Place-and-route seeds per candidate (1..N); the median Fmax is reported.")
 @click.option("--confirm-seeds", "confirm", metavar="N",
-              help="A choice less than 5 % above the target is measured on seeds 1..N before "
-              "it is accepted; if its median then misses, the search goes on [default: three "
-              "times --seeds; 0 or at most --seeds: no more seeds].")
+              help=f"A choice less than {100 * candidates.SEED_SPREAD:g} % above the target is "
+              "measured on seeds 1..N before it is accepted; if its median then misses, the "
+              f"search goes on [default: {candidates.CONFIRM_FACTOR} times --seeds; 0 or at "
+              "most --seeds: no more seeds].")
 @click.option("--no-cache", is_flag=True, help="Run the tools again even for cached results.")
 @click.option("--tools", "tool_kind", default="wheel", show_default=True, metavar="wheel|system",
               help="yowasp-* pip wheels, or yosys and nextpnr-* from PATH.")
@@ -496,7 +497,7 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, confirm, no_ca
     n_jobs = _option_number("--jobs", jobs, int, 0, "an integer of 1 or more")
     n_seeds = _option_number("--seeds", seeds, int, 0, f"an integer from 1 to {MAX_SEEDS}",
                              MAX_SEEDS)
-    n_confirm = 3 * n_seeds if confirm is None else _option_number(
+    n_confirm = candidates.CONFIRM_FACTOR * n_seeds if confirm is None else _option_number(
         "--confirm-seeds", confirm, int, -1, f"an integer from 0 to {MAX_SEEDS}", MAX_SEEDS)
     if tool_kind not in TOOLS:
         raise UserError(f"--tools: value {tool_kind!r} is not allowed; expected wheel or "

@@ -481,7 +481,7 @@ def _check_increment(where: str, values: dict, what: str = "width") -> None:
     if inc and width < 3:
         raise ConfigError(f"{where}: key 'carry_increment': value true is not allowed with "
                           f"{what} {width}; expected false (no two local blocks of two bits)")
-    if inc and not 2 <= local < width:
+    if inc and not prefix.has_local_blocks(local, width):
         raise ConfigError(f"{where}: key 'carry_increment': value true is not allowed with "
                           f"local_width {local}; expected local_width from 2 to {width - 1} "
                           f"({what} - 1) beside it, or carry_increment: false")

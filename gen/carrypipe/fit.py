@@ -63,7 +63,7 @@ def make_row(cfg: Config, origin: str, device: devices.Device, seeds: int = 1) -
     """A candidate's plan figures, prediction and whether its flip-flops fit the device."""
     plan = make_plan(cfg)
     row = Row(plan, origin, predicted=model.predict(plan, device.name), seeds=seeds)
-    need = plan.registers.total + harness.flip_flops(plan)
+    need = harness.design_flip_flops(plan)
     if need > device.flip_flops:
         # Logic cells: at least one per flip-flop (each holds one) on the families here.
         mark_no_fit(row, device, need, need, f"{need} flip-flops (unit {plan.registers.total}, "
@@ -151,7 +151,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
             full = [m for m in row.measured if m.status == "no-fit"]
             if full and row.fits:
                 mark_no_fit(row, dev, full[0].logic_used or 0,
-                            row.plan.registers.total + harness.flip_flops(row.plan),
+                            harness.design_flip_flops(row.plan),
                             full[0].message)
         rows += candidates.uneven_rows(rows, target, new_row)
     chosen = candidates.select(rows, target)
@@ -178,7 +178,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
             f"its median (seeds: {figures} MHz); nextpnr's placements of one design differ by "
             f"about {100 * candidates.SEED_SPREAD:g} %, so other seeds, or your design around "
             f"the unit, may miss {target:g} MHz: aim higher, or confirm on more seeds "
-            f"(--confirm-seeds {3 * len(chosen.measured)})")
+            f"(--confirm-seeds {candidates.CONFIRM_FACTOR * len(chosen.measured)})")
     for row in rows:
         for m in row.ok:
             if m.inside is False:

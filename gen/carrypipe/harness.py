@@ -81,6 +81,11 @@ def flip_flops(plan: Plan) -> int:
     return sum(widths(plan))
 
 
+def design_flip_flops(plan: Plan) -> int:
+    """The flip-flops of the measured design: the unit's and the harness's."""
+    return plan.registers.total + flip_flops(plan)
+
+
 def luts(plan: Plan) -> int:
     """The harness's own LUTs: one XOR per shift-in bit (none when only one bit is shifted
     in: it loads the pin), one per captured bit."""

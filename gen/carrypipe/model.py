@@ -93,7 +93,7 @@ def figures(plan: Plan, depth: dict | None = None) -> Figures:
         stages = tuple(_slice_figures(s, kind, depth) for s in plan.stages)
     else:
         stages = _prefix_figures(plan, depth)
-    flops = plan.registers.total + harness.flip_flops(plan)
+    flops = harness.design_flip_flops(plan)
     return Figures(stages, math.log2(max(flops, 1)), kind)
 
 

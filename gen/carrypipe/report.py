@@ -393,7 +393,7 @@ def _position_tips(pos, plan: PrefixPlan, first: bool) -> list[str]:
 def _(pos: positions.Bits, plan: PrefixPlan, first: bool) -> list[str]:
     c = plan.config
     out = _network_tips(plan)
-    if 2 <= c.local_width < c.width and not c.carry_increment:
+    if prefix.has_local_blocks(c.local_width, c.width) and not c.carry_increment:
         out += _tip("`carry_increment: true` lets each bit of a local block wait for the "
                     "block's carry with two bits instead of three (its sum for carry-in 0 "
                     "and a propagate): fewer flip-flops, measured faster at 256 bits on ECP5, "
