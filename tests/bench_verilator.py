@@ -22,7 +22,7 @@ def main(count: int) -> None:
     t1 = time.monotonic()
     text = hex_lines(plan, vecs)
     t2 = time.monotonic()
-    result = sim.run_verilator(plan, vecs)
+    result = sim.run(plan, vecs, "verilator")
     t3 = time.monotonic()
     print(f"vectors: {count}, 256-bit adder, 8 slices of 32 bits, latency {plan.latency}")
     print(f"  generate vectors   {t1 - t0:6.1f} s")

@@ -123,4 +123,4 @@ def test_a_missing_simulator_is_explained(tmp_path, monkeypatch, simulator, mess
 def test_hanging_simulator_times_out(tmp_path):
     plan = make_plan(from_mapping({"name": "u", "width": 4}))
     with pytest.raises(tools.ToolTimeout, match=r"^verilator did not finish within 0.01 s"):
-        sim.run_verilator(plan, suite(plan, 10, 1), timeout=0.01)
+        sim.run(plan, suite(plan, 10, 1), "verilator", timeout=0.01)

@@ -336,7 +336,7 @@ class _Layout:
 
 
 def _colours(plan: Plan) -> dict[str, str]:
-    kinds = ({w.kind for w in plan.words} | set(plan.registers.as_dict())) - {"total"}
+    kinds = set(plan.registers.as_dict()) - {"total"}  # every word's kind is counted there
     extra = sorted(kinds - set(KINDS))
     return {**COLOURS, **{k: EXTRA_COLOURS[i % len(EXTRA_COLOURS)] for i, k in enumerate(extra)}}
 
@@ -519,7 +519,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
         out.add("line", x1=float(lay.x0), y1=rows_y + lay.rh, x2=lay.grid_right,
                 y2=rows_y + lay.rh, stroke="#ececec", stroke_width=0.6)
     for (t, group), label in zip(blocks, labels):
-        _stage_block(out, plan, lay, group, grid_top + t * band_h, slow, label)
+        _stage_block(out, lay, group, grid_top + t * band_h, slow, label)
     if plan.input_cycles and lay.edge_band == 1 and lay.lh >= 12:
         x, w = lay.x_of(0, plan.width - 1)
         out.text(x + w / 2, grid_top + lay.lh / 2 + 4, "no logic: the input register loads "
@@ -711,7 +711,7 @@ class _Label:
     anchor: str
 
 
-def _label_texts(plan: Plan, group: list, slow: set[int], measured) -> list[str]:
+def _label_texts(plan: Plan, group: list, measured) -> list[str]:
     """A stage block's label, from the fullest to the shortest form; every form keeps what
     the stage holds (its bits, or its logic)."""
     first, last = group[0], group[-1]
@@ -748,7 +748,7 @@ def _block_labels(plan: Plan, lay: _Layout, blocks, slow: set[int], measured) ->
     for _, group in blocks:
         lo, hi = min(s.lsb for s in group), max(s.msb for s in group)
         boxes.append((group, *lay.x_of(lo, hi)))
-    forms = [_label_texts(plan, group, slow, measured) for group, _, _ in boxes]
+    forms = [_label_texts(plan, group, measured) for group, _, _ in boxes]
     for size in (11.0, 9.5):
         for level in range(3):
             placed = [_place(f[level], size, x, w, lay) for f, (_, x, w) in zip(forms, boxes)]
@@ -761,7 +761,7 @@ def _block_labels(plan: Plan, lay: _Layout, blocks, slow: set[int], measured) ->
     few = sum(any(s.index in slow for s in group) for group, _, _ in boxes) <= 3
     for label, (group, x, w) in zip(placed, boxes):
         if label is None:  # nothing fits: the shortest form over the block
-            label = _Label(_label_texts(plan, group, slow, measured)[-1], 9.0, x + w / 2,
+            label = _Label(_label_texts(plan, group, measured)[-1], 9.0, x + w / 2,
                            "middle")
         if few and any(s.index in slow for s in group):  # in words too, where there is room
             longer = _place(f"{label.text} · slowest", label.size, x, w, lay)
@@ -771,7 +771,7 @@ def _block_labels(plan: Plan, lay: _Layout, blocks, slow: set[int], measured) ->
     return labels
 
 
-def _stage_block(out: Svg, plan: Plan, lay: _Layout, group: list, ly: float, slow: set[int],
+def _stage_block(out: Svg, lay: _Layout, group: list, ly: float, slow: set[int],
                  label: _Label) -> None:
     lo = min(s.lsb for s in group)
     hi = max(s.msb for s in group)
@@ -824,19 +824,15 @@ def _legend(out: Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, s
             measured, source) -> float:
     regs = plan.registers.as_dict()
     out.text(MARGIN, y, "Register bits by kind", size=13, weight="bold")
-    drawn: dict[str, int] = {}
-    for w in plan.words:
-        drawn[w.kind] = drawn.get(w.kind, 0) + max(0, w.width)
     order = [*said.meanings, *regs]  # the mode's own order, then any other kind
     kinds = [k for k in dict.fromkeys(order) if k != "total" and regs.get(k, 0) > 0]
-    kinds += sorted((k for k in drawn if k not in regs and drawn[k] > 0), key=_kind_order)
     y += 8
     room = lay.width - 2 * MARGIN - 150
     for kind in kinds:
         out.add("rect", x=float(MARGIN), y=float(y), width=14.0, height=12.0,
                 fill=colours[kind], class_="key", data_kind=kind)
         out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
-        out.text(MARGIN + 140, y + 10, thousands(regs.get(kind, drawn.get(kind, 0))),
+        out.text(MARGIN + 140, y + 10, thousands(regs[kind]),
                  size=11, anchor="end", data_role="bits", data_kind=kind)
         meaning = said.meanings.get(kind, f"register of kind '{kind}'")
         for i, line in enumerate(_wrap(meaning, 11, room)):

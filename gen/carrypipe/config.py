@@ -18,7 +18,7 @@ import yaml
 
 from . import cells, prefix, units
 
-MAX_WIDTH = 4096
+MAX_WIDTH = max(k.max_width for k in units.KINDS.values())  # the widest of any kind
 UNITS = tuple(units.KINDS)
 PREFIX_CELLS = cells.PREFIX_STYLES
 CELLS = tuple(cells.STYLES)
@@ -353,7 +353,7 @@ def from_mapping(data, where: str = "config") -> Config:
     if "block_width" not in data and span:  # the default, down to a narrower width
         values["block_width"] = min(values["block_width"], span)
     if span:
-        check_mode(where, {**values, "width": span}, split, what, given=data)
+        check_mode(where, {**values, "width": span}, what, given=data)
     own = {f.name: f.default for f in fields(Config)}
     kept = {k: (v if reads(k, unit, mode, tree) else own[k]) for k, v in values.items()
             if k in own and k not in ("width", "slices")}
@@ -436,8 +436,7 @@ def prefix_positions(width: int, pipeline: str, block_width: int) -> int:
     return width if pipeline == "levels" else -(-width // block_width)
 
 
-def check_mode(where: str, values: dict, split: tuple[int, ...], what: str = "width",
-               given=()) -> None:
+def check_mode(where: str, values: dict, what: str = "width", given=()) -> None:
     """Validate the keys of the prefix modes, alone and in combination (`values["width"]`
     is the width they refer to: the unit's, or `what` names it; `given` holds the keys the
     config wrote, so a refused default says it is one)."""

@@ -192,10 +192,6 @@ def _step(words: tuple[str, ...], name: str, paths: dict[str, str], work: Path,
     return tools.run(cmd, work, limit)
 
 
-def run_verilator(plan: Plan, vecs: list[Vector], timeout: float | None = None) -> Result:
-    return run_external(plan, vecs, "verilator", timeout)
-
-
 _VERDICT = re.compile(r"^(PASS|FAIL)\b.*$", re.M)
 
 

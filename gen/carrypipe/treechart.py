@@ -106,13 +106,13 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
         out.text(MARGIN, y + 25, f"edge {edge}", size=10, fill=FAINT)
         tree_words = [w for w in words if w.kind == "tree"]
         if tree_words:
-            y = _rank(out, x0, y, cw, columns, band, tree_words, col_x)
+            y = _rank(out, y, cw, band, tree_words, col_x)
         others = [w for w in words if w.kind not in ("tree", "control")]
         families = sorted({w.family for w in others}, key=lambda f: (f.startswith(("row",)), f))
         row_h = 10.0
         for slot, fam in enumerate(families):
             for w in (w for w in others if w.family == fam):
-                _bar(out, w, y + 2 + slot * row_h, row_h - 2, col_x, cw, band)
+                _bar(out, w, y + 2 + slot * row_h, row_h - 2, col_x, cw)
         y += max(30.0, len(families) * row_h + 6) if not tree_words else 6
         for w in (w for w in words if w.kind == "control"):
             out.add("rect", x=side_x, y=top + 4, width=cw, height=8.0, fill=COLOURS["control"],
@@ -180,7 +180,7 @@ def _dots(out, x0, y, cw, heights: list[int], label: str) -> float:
     return y + 8 + max(heights, default=0) * (size + 1)
 
 
-def _rank(out, x0, y, cw, columns, band, words, col_x) -> float:
+def _rank(out, y, cw, band, words, col_x) -> float:
     """One tree rank: a dot per register bit (or per band of columns), row r at depth r."""
     size = min(cw * 0.8, 9.0)
     rows = 0
@@ -201,7 +201,7 @@ def _rank(out, x0, y, cw, columns, band, words, col_x) -> float:
     return y + 8 + rows * (size + 1)
 
 
-def _bar(out, w, y, h, col_x, cw, band) -> None:
+def _bar(out, w, y, h, col_x, cw) -> None:
     """A register word of the final adder (or the input register) over its bits."""
     lo, hi = w.lsb, w.lsb + w.width - 1
     left = col_x(hi)

@@ -67,7 +67,7 @@ class Kind:
     composable = False  # `prove --method compositional` covers its sliced units
     settle = 0  # cycles a bounded proof needs beyond latency + 1 (a state to build up)
     tree = False  # a carry-save kind: a counter tree, then a final adder (`TreePlan`)
-    max_width = 4096
+    max_width = 4096  # `width` and `width_b` at most (config.MAX_WIDTH is the widest kind)
     inverts_carry_out = False  # the carry-out port is the chain bit complemented
 
     # ---- ports ----
