@@ -534,9 +534,9 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
 
     _register_cells(out, plan, lay, colours, grid_top)
     loaded: dict[int, int] = {}
-    for w in plan.words:
-        t = (w.edge - 1) // lay.edge_band
-        loaded[t] = loaded.get(t, 0) + max(0, w.width)
+    for edge, count in plan.bits_loaded.items():
+        t = (edge - 1) // lay.edge_band
+        loaded[t] = loaded.get(t, 0) + count
     for t, count in sorted(loaded.items()):
         first, last = lay.band_edges(t)
         out.text(lay.bits_x, grid_top + t * band_h + lay.lh + lay.rh / 2 + 3.5,

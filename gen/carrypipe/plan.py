@@ -10,8 +10,9 @@ show is read from here.
 The pipeline mode is a type, chosen once by the config key `pipeline`: `SlicedPlan` cuts the
 carry chain into slices with skew and deskew triangles; `PrefixPlan` (`levels`, `blocks`)
 pipelines a parallel-prefix network, every stage spanning all bits.  Each owns its builder,
-its report table, its label in `fit` and the proof methods that apply to it.  What the unit
-computes is the unit kind's (`units.py`), read through `plan.unit`.
+its label in `fit` and the proof methods that apply to it; the report's stage table and tips
+are chosen by its type (`report.py`).  What the unit computes is the unit kind's
+(`units.py`), read through `plan.unit`.
 
 Timing.  Inputs applied before rising edge n give their results right after edge n+L-1,
 with L = (stages) + [register_inputs].  Stage i computes in cycle i (counted after the input
@@ -229,6 +230,14 @@ class Plan:
     def registers(self) -> Registers:
         return count_registers(self.words, self.register_kinds)
 
+    @cached_property
+    def bits_loaded(self) -> dict[int, int]:
+        """Register bits loaded at each rising edge (1..latency; the charts' row counts)."""
+        loaded: dict[int, int] = {}
+        for w in self.words:
+            loaded[w.edge] = loaded.get(w.edge, 0) + w.width
+        return loaded
+
     @property
     def words(self) -> tuple[Word, ...]:
         raise NotImplementedError
@@ -306,6 +315,13 @@ class SlicedPlan(Plan):
     mode = "slices"
     register_kinds = ("input", "stage", "skew", "deskew", "control")
     proof_methods = ("direct", "compositional")
+
+    def delay_with(self, cell: str, s: Slice) -> int:
+        """The unit-gate delay slice `s` would have with `cell` instead (for the report's
+        tips; a final adder's slices are numbered after the tree's, so the first and last
+        are found by position, not by index)."""
+        return self.unit.slice_delay(self.config, cell, s.width, s is self.stages[0],
+                                     s is self.stages[-1], s.carry_in, s.carry_out)
 
     @cached_property
     def words(self) -> tuple[Word, ...]:

@@ -355,11 +355,10 @@ def _(plan: SlicedPlan) -> list[str]:
 def _faster_cells(plan: SlicedPlan) -> list[str]:
     """Prefix cells with a shorter unit-gate path than the config's in every slowest stage,
     fastest first."""
-    slow, c, last = plan.slowest, plan.config, len(plan.stages) - 1
+    slow = plan.slowest
 
     def worst(name):
-        return max(plan.unit.slice_delay(c, name, s.width, s.index == 0, s.index == last,
-                                         s.carry_in, s.carry_out) for s in slow)
+        return max(plan.delay_with(name, s) for s in slow)
 
     found = [n for n in cells.PREFIX_STYLES if n != plan.config.cell
              and worst(n) < slow[0].delay]

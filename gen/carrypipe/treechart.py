@@ -124,7 +124,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
             _stage_block(block, s, s.index in slow, tree is not None and s.delay == 0,
                          plan.timed, col_x, cw, top, y - top)
             out.parts[at:at] = block.parts
-        loaded = sum(w.width for w in words)
+        loaded = plan.bits_loaded.get(edge, 0)
         out.text(bits_x, top + 12, thousands(loaded), size=9.5, anchor="end",
                  fill=FAINT, data_role="row-bits", data_edge=edge, data_count=loaded)
         out.add("line", x1=float(x0), y1=y, x2=x0 + columns * cw, y2=y, stroke="#ececec",
