@@ -3,6 +3,7 @@ plan's counts by kind, each tree rank's dots are the plan's dots, wide units are
 the slowest stage is marked, and a real renderer (cairosvg) draws it."""
 
 import io
+import re
 import xml.etree.ElementTree as ET
 
 import cairosvg
@@ -125,3 +126,14 @@ def test_a_tree_stage_block_says_which_counter_levels_it_holds():
         assert b["data-levels"] == " ".join(map(str, s.levels)) and b["data-logic"] == s.logic
     for b, s in zip(found[len(plan.tree_stages):], plan.adder_stages):  # prefix levels
         assert b["data-levels"] == " ".join(map(str, s.levels))
+
+
+@pytest.mark.parametrize("reset", ["none", "sync"])
+def test_the_valid_bits_meaning_says_what_rst_does_as_in_the_adders_chart(reset):
+    # Both charts and the Verilog header describe the valid bits in the same words; the
+    # tree chart left out that rst clears them.
+    tree = chart.svg(make(unit="sum", operands=3, width=8, valid=True, reset=reset))
+    adder = chart.svg(make(width=8, valid=True, reset=reset))
+    words = "valid bit, delayed like the data" + ("; rst clears it" if reset != "none" else "")
+    for picture in (tree, adder):
+        assert re.search(f">{re.escape(words)}<", picture)

@@ -33,15 +33,15 @@ from functools import singledispatch
 from html import escape
 
 from . import positions, prefix, report, treechart
-from .svg import (BLOCK, FAINT, FONT, IDLE_BLOCK, INK, SLOW, SLOW_BLOCK, Svg, band,
-                  check_measured, num, slowest, stage_block, thousands)
-from .header import bits, plural
+from .svg import (BLOCK, FAINT, FONT, IDLE_BLOCK, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS,
+                  SLOW, SLOW_BLOCK, Svg, band, check_measured, num, slowest, stage_block,
+                  thousands)
+from .header import bits, plural, reset_clause
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
 
 KINDS = ("input", "skew", "stage", "deskew", "control", "prefix", "result", "wire")
-COLOURS = {"input": "#5b7db1", "skew": "#e69a28", "stage": "#2a8c6a", "deskew": "#8a63c2",
-           "control": "#c73a6f", "prefix": "#3a9fc0", "result": "#9bb83a", "wire": "#b07c4f"}
+COLOURS = {k: REGISTER_COLOURS[k] for k in KINDS}
 EXTRA_COLOURS = ("#7a7a7a", "#a39a2c", "#2b9fb3", "#9c5b3b")  # kinds the chart does not know
 PAPER = "#ffffff"
 CALM = "#3f5a86"  # notes that inform (banding), not warn
@@ -51,9 +51,8 @@ CHAR = 0.55  # average glyph width of the font, in ems, for fitting labels
 MAX_COLUMNS = 72  # bit columns drawn one bit each; wider units are grouped into bands
 MAX_ROWS = 48  # time bands drawn one edge each; deeper pipelines are grouped into bands
 GRID_WIDTH, GRID_HEIGHT = 920, 720  # about the space the grid may take, in px
-GUTTER, MARGIN, LANE_GAP, OUT_GAP = 96, 24, 14, 6
+GUTTER, LANE_GAP, OUT_GAP = 96, 14, 6
 LANE_WIDTH = 34  # least width of a side lane, so its name fits above it
-MIN_WIDTH = 820
 MIN_GRID = 320  # least width of the grid, in px
 
 
@@ -98,7 +97,7 @@ CHAINS = {"carry": "carries"}  # plurals that are not the noun + s
 
 
 def _input_names(plan: Plan) -> str:
-    return ", ".join(p.name for p in plan.data_inputs() if p.name != "in_valid")
+    return ", ".join(p.name for p in plan.operand_inputs())
 
 
 def _top_outputs(plan: Plan) -> list[str]:
@@ -109,9 +108,8 @@ def _top_outputs(plan: Plan) -> list[str]:
 
 
 def _common(plan: Plan) -> dict:
-    clear = "; rst clears it" if plan.config.reset != "none" else ""
     return {"input": f"input register: {_input_names(plan)} as they arrive",
-            "control": f"valid bit, delayed like the data{clear}"}
+            "control": f"valid bit, delayed like the data{reset_clause(plan)}"}
 
 
 @singledispatch

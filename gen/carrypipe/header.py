@@ -89,14 +89,18 @@ def lines(plan) -> list[str]:
 
 
 def input_title(plan) -> list[str]:
-    names = ", ".join(p.name for p in plan.data_inputs() if p.name != "in_valid")
+    names = ", ".join(p.name for p in plan.operand_inputs())
     return [f"Input register, loaded on edge 1: {names} as they arrive."]
 
 
+def reset_clause(plan) -> str:
+    """What a valid bit's description adds when the unit has a reset (it clears them)."""
+    return "; rst clears it" if plan.config.reset != "none" else ""
+
+
 def valid_title(plan) -> list[str]:
-    clear = "; rst clears it" if plan.config.reset != "none" else ""
     return [f"Valid chain: in_valid delayed by the latency, {plan.latency} "
-            f"register(s){clear}."]
+            f"register(s){reset_clause(plan)}."]
 
 
 def slice_title(plan, s) -> list[str]:

@@ -22,11 +22,10 @@ class Frame:
         self.src: dict[str, Expr] = {p.name: self.ports[p.name].all for p in plan.data_inputs()}
         if c.register_inputs:
             b.section(*header.input_title(plan))
-            for p in plan.data_inputs():
-                if p.name != "in_valid":
-                    r = self.reg(f"{p.name}_in")
-                    b.load(r, self.src[p.name])
-                    self.src[p.name] = r.all
+            for p in plan.operand_inputs():
+                r = self.reg(f"{p.name}_in")
+                b.load(r, self.src[p.name])
+                self.src[p.name] = r.all
         self.valid: list[Expr] = []  # in_valid after k cycles
         if c.valid:
             b.section(*header.valid_title(plan))

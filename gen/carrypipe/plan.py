@@ -258,6 +258,10 @@ class Plan:
         return [p for p in self.ports if p.direction == "input"
                 and p.name not in ("clk", "rst", "en")]
 
+    def operand_inputs(self) -> list[Port]:
+        """The data inputs but in_valid: what the input register holds and a vector sets."""
+        return [p for p in self.data_inputs() if p.name != "in_valid"]
+
     def io_words(self) -> list[Word]:
         """The input-register and valid-chain words, the same in every pipeline mode (a
         nested plan has none: the enclosing plan owns them)."""
@@ -267,7 +271,7 @@ class Plan:
             return words
         if c.register_inputs:
             words += [Word("input", f"{p.name}_in", None, 0, p.width, 1)
-                      for p in self.data_inputs() if p.name != "in_valid"]
+                      for p in self.operand_inputs()]
         if c.valid:
             words += [Word("control", "valid", k, 0, 1, k) for k in range(1, self.latency + 1)]
         return words

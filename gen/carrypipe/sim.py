@@ -16,7 +16,7 @@ from pathlib import Path
 
 from . import tools
 from .plan import Plan
-from .vectors import Vector, expected, input_ports, output_ports
+from .vectors import Vector, expected, output_ports
 
 SIMULATORS = ("amaranth", "icarus", "verilator")
 
@@ -47,7 +47,7 @@ def run(plan: Plan, vecs: list[Vector], simulator: str, timeout: float | None = 
 
 def _mismatch(plan, k: int, cycle: int, v: Vector, want: dict, got: dict) -> str:
     """The testbench's FAIL line for vector k, in the same words."""
-    shown_in = " ".join(f"{p.name}={v.inputs[p.name]:x}" for p in input_ports(plan))
+    shown_in = " ".join(f"{p.name}={v.inputs[p.name]:x}" for p in plan.operand_inputs())
     names = [p.name for p in output_ports(plan)] + (["valid"] if plan.config.valid else [])
 
     def show(d):
@@ -64,7 +64,7 @@ def run_amaranth(plan, vecs: list[Vector], unit=None) -> Result:
 
     top = unit if unit is not None else Unit(plan)
     c, lat = plan.config, plan.latency
-    ins, outs = input_ports(plan), output_ports(plan)
+    ins, outs = plan.operand_inputs(), output_ports(plan)
     wants = expected(plan, vecs)
     outcome = {}
 

@@ -10,6 +10,10 @@ from html import escape
 from .header import stage_list
 
 SLOW, INK, FAINT = "#d62728", "#222222", "#8c8c8c"
+REGISTER_COLOURS = {"input": "#5b7db1", "tree": "#d0762c", "skew": "#e69a28",
+                    "stage": "#2a8c6a", "deskew": "#8a63c2", "control": "#c73a6f",
+                    "prefix": "#3a9fc0", "result": "#9bb83a", "wire": "#b07c4f"}
+MARGIN, MIN_WIDTH = 24, 820  # page margin and least page width, in px
 BLOCK = ("#e3f1ec", "#2a8c6a", "#17553f")  # a stage's logic: fill, outline, text
 SLOW_BLOCK = ("#fde4e1", SLOW, SLOW)
 IDLE_BLOCK = ("#ffffff", "#9aa9a3", "#5d6b66")  # a stage without logic (a wire rank)
@@ -28,7 +32,8 @@ def stage_block(group, hot: bool, idle: bool, timed: bool = True
     data = dict(class_="slice",
                 data_stage=str(first.index) if len(group) == 1 else f"{first.index}–{last.index}",
                 data_bits=f"{max(s.msb for s in group)}:{min(s.lsb for s in group)}",
-                data_slowest="1" if hot else "0", data_delay=max(s.delay for s in group) if timed else None,
+                data_slowest="1" if hot else "0",
+                data_delay=max(s.delay for s in group) if timed else None,
                 data_logic=logic or None,
                 data_levels=" ".join(map(str, levels)) if levels else None)
     return (SLOW_BLOCK if hot else IDLE_BLOCK if idle else BLOCK), data

@@ -12,7 +12,7 @@ CARRYPIPE_TB_NO_FATAL for a simulator that lacks `$fatal`).
 
 from __future__ import annotations
 
-from .vectors import TAG_BITS, field_widths, input_ports, output_ports
+from .vectors import TAG_BITS, field_widths, output_ports
 
 
 def vector_file(plan) -> str:
@@ -31,7 +31,7 @@ def testbench(plan, count: int) -> str:
         hi, lo = offs[fld]
         return f"{word}[{hi}:{lo}]" if hi != lo else f"{word}[{hi}]"
 
-    ins, outs = input_ports(plan), output_ports(plan)
+    ins, outs = plan.operand_inputs(), output_ports(plan)
     has = {p.name for p in plan.ports}
 
     def decl(kind, p, init=""):

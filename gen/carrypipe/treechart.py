@@ -22,12 +22,12 @@ from collections.abc import Mapping
 from html import escape
 
 from . import report
-from .svg import FAINT, FONT, INK, SLOW, Svg, num, slowest, stage_block, thousands
+from .header import reset_clause
+from .svg import (FAINT, FONT, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS, SLOW, Svg, num, slowest,
+                  stage_block, thousands)
 from .svg import band as bands
 
-COLOURS = {"input": "#5b7db1", "tree": "#d0762c", "skew": "#e69a28", "stage": "#2a8c6a",
-           "deskew": "#8a63c2", "control": "#c73a6f", "prefix": "#3a9fc0",
-           "result": "#9bb83a", "wire": "#b07c4f"}
+COLOURS = REGISTER_COLOURS
 MEANINGS = {
     "input": "input register: the operands as they arrive",
     "tree": "tree ranks: the dots left after each stage's counters, by column",
@@ -40,14 +40,13 @@ MEANINGS = {
     "wire": "final adder: wire-pipelining copies of long-span terms",
 }
 MAX_COLUMNS = 96
-GRID_WIDTH, MARGIN, GUTTER = 900, 24, 150
-MIN_WIDTH = 820
+GRID_WIDTH, GUTTER = 900, 150
 
 
 def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str = "") -> str:
     """The stage chart of a `TreePlan` or `NativePlan` (see the module docstring)."""
     slow, slow_text = slowest(plan, measured)
-    c, regs = plan.config, plan.registers.as_dict()
+    c = plan.config
     width = plan.result_width
     band = bands(width, MAX_COLUMNS)
     columns = math.ceil(width / band)
@@ -133,7 +132,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     y += 16
     out.text(MARGIN, y, f"outputs ready after edge {plan.latency}", size=10, fill=FAINT)
     y += 26
-    y = _legend(out, regs, y, plan.latency)
+    y = _legend(out, plan, y)
     out.text(MARGIN, y, slow_text, size=12, weight="bold", fill=SLOW if slow else INK,
              data_role="slowest")
     y += 16
@@ -212,7 +211,8 @@ def _bar(out, w, y, h, col_x, cw) -> None:
             data_edge=w.edge, data_count=w.width)
 
 
-def _legend(out, regs, y, latency) -> float:
+def _legend(out, plan, y) -> float:
+    regs = plan.registers.as_dict()
     out.text(MARGIN, y, "Register bits by kind", size=13, weight="bold")
     y += 8
     for kind, bits in regs.items():
@@ -223,11 +223,12 @@ def _legend(out, regs, y, latency) -> float:
         out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
         out.text(MARGIN + 140, y + 10, thousands(bits), size=11, anchor="end",
                  data_role="bits", data_kind=kind)
-        out.text(MARGIN + 150, y + 10, MEANINGS.get(kind, f"register of kind '{kind}'"),
+        meaning = MEANINGS.get(kind, f"register of kind '{kind}'")
+        out.text(MARGIN + 150, y + 10, meaning + (reset_clause(plan) if kind == "control" else ""),
                  size=11, fill="#444444")
         y += 20
     out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
     out.text(MARGIN + 140, y + 10, thousands(regs['total']), size=11,
              anchor="end", weight="bold", data_role="total")
-    out.text(MARGIN + 150, y + 10, f"register bits; latency {latency} cycle(s)", size=11)
+    out.text(MARGIN + 150, y + 10, f"register bits; latency {plan.latency} cycle(s)", size=11)
     return y + 40

@@ -23,11 +23,6 @@ class Vector:
     gap: bool = False
 
 
-def input_ports(plan) -> list:
-    """The inputs a vector sets: every data input but in_valid."""
-    return [p for p in plan.data_inputs() if p.name != "in_valid"]
-
-
 def output_ports(plan) -> list:
     """The outputs a vector expects: every output but out_valid (that is `valid`)."""
     return [p for p in plan.ports if p.direction == "output" and p.name != "out_valid"]
@@ -73,7 +68,7 @@ def suite(plan, count: int, seed: int) -> list[Vector]:
 def field_widths(plan) -> list[tuple[str, int]]:
     """The fields of one packed vector word, least significant first: inputs, valid, gap,
     expected outputs, and the vector's own number plus one (the tag)."""
-    return ([(p.name, p.width) for p in input_ports(plan)] + [("valid", 1), ("gap", 1)]
+    return ([(p.name, p.width) for p in plan.operand_inputs()] + [("valid", 1), ("gap", 1)]
             + [(p.name, p.width) for p in output_ports(plan)] + [("tag", TAG_BITS)])
 
 
