@@ -22,6 +22,13 @@ def unit_verilog(plan: Plan) -> str:
     return verilog.write(plan.netlist())
 
 
+def simulation_files(plan: Plan, vecs) -> dict[str, str]:
+    """What a simulator needs, by file name: the unit, its testbench and the vectors."""
+    return {f"{plan.config.name}.v": unit_verilog(plan),
+            f"{plan.config.name}_tb.v": testbench(plan, len(vecs)),
+            vector_file(plan): hex_lines(plan, vecs)}
+
+
 def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
            measured: dict[int, float] | None = None,
            measured_source: str = "") -> dict[str, str]:
@@ -30,9 +37,7 @@ def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
     name = plan.config.name
     vecs = suite(plan, vectors, seed)
     files = {
-        f"{name}.v": unit_verilog(plan),
-        f"{name}_tb.v": testbench(plan, len(vecs)),
-        vector_file(plan): hex_lines(plan, vecs),
+        **simulation_files(plan, vecs),
         f"{name}.txt": report.report(plan),
         f"{name}_chart.svg": chart.svg(plan, measured, measured_source),
         **flowfiles.files(plan),
@@ -83,7 +88,7 @@ def read_build(folder: Path):
         plan = make_plan(from_mapping(doc["config"], where=path.name))
     except ConfigError as exc:
         raise BuildFolderError(f"{path}: the manifest's config is not valid: {exc}") from None
-    ports = [{"name": p.name, "direction": p.direction, "width": p.width} for p in plan.ports]
+    ports = report.port_entries(plan)
     if doc.get("latency") != plan.latency or doc.get("ports") != ports \
             or doc["module"] != plan.config.name:
         raise BuildFolderError(f"{path}: the manifest's module, latency or ports do not match "

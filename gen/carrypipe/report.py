@@ -56,8 +56,7 @@ def manifest(plan: Plan, files: list[str]) -> dict:
         "pipeline": c.pipeline,  # (null with `tree: native`: `stage_entries`)
         "reset": {"kind": c.reset, "clears": ("every register" if c.reset_data else
                                                "valid bits" if c.reset != "none" else "nothing")},
-        "ports": [{"name": p.name, "direction": p.direction, "width": p.width}
-                  for p in plan.ports],
+        "ports": port_entries(plan),
         "slices": [{"lsb": s.lsb, "msb": s.msb, "width": s.width, "cell": s.cell,
                     "wait_before": s.wait_before, "wait_after": s.wait_after,
                     **{key: getattr(s, key) if plan.timed else None
@@ -69,6 +68,11 @@ def manifest(plan: Plan, files: list[str]) -> dict:
         "config": c.normalized(),
         "files": sorted(files),
     }
+
+
+def port_entries(plan: Plan) -> list[dict]:
+    """The manifest's `ports`: name, direction and width, in the documented order."""
+    return [{"name": p.name, "direction": p.direction, "width": p.width} for p in plan.ports]
 
 
 @singledispatch

@@ -158,8 +158,6 @@ def run_external(plan: Plan, vecs: list[Vector], simulator: str,
     and the run together; a simulator that is missing, fails, hangs or gives no verdict is a
     `tools.ToolError`, not a failed check."""
     from . import emit
-    from .testbench import testbench, vector_file
-    from .vectors import hex_lines
 
     tool = EXTERNAL[simulator]
     limit = tools.Deadline(timeout)
@@ -168,10 +166,7 @@ def run_external(plan: Plan, vecs: list[Vector], simulator: str,
     name = plan.config.name
     with tempfile.TemporaryDirectory(prefix="carrypipe-") as tmp:
         work = Path(tmp)
-        files = {f"{name}.v": emit.unit_verilog(plan),
-                 f"{name}_tb.v": testbench(plan, len(vecs)),
-                 vector_file(plan): hex_lines(plan, vecs)}
-        for fname, text in files.items():
+        for fname, text in emit.simulation_files(plan, vecs).items():
             (work / fname).write_text(text)
         out = _step(tool.compile, name, paths, work, limit)
         if out.returncode != 0:
