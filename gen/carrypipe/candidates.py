@@ -116,7 +116,7 @@ def levels_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Confi
 def blocks_candidates(base: Config, cells: tuple[str, ...] | None) -> list[Config]:
     """blocks x prefix style x block width (block widths that leave at least two blocks)."""
     return [variant(base, pipeline="blocks", cell=cell, block_width=k)
-            for k in BLOCK_WIDTHS if -(-span(base) // k) >= 2
+            for k in BLOCK_WIDTHS if config.block_count(span(base), k) >= 2
             for cell in prefix_styles(base, cells)]
 
 

@@ -325,13 +325,9 @@ def from_mapping(data, where: str = "config") -> Config:
                 "signed"):
         if not isinstance(values[key], bool):
             raise _fail(where, key, values[key], "true or false")
-    span, what = width, "width"  # the bits the split and the prefix keys refer to
     if kind.tree:
         _check_tree(where, kind, values, data)
-        if tree == "native":
-            span = 0
-        else:
-            span, what = kind.adder_width(values), "the final adder's width"
+    span, what = _span(kind, tree, width, values)  # what the split and prefix keys refer to
     if "slice_width" in data and "slices" in data:
         raise ConfigError(f"{where}: keys 'slice_width' and 'slices' are both given; "
                           "expected at most one of them")
@@ -363,12 +359,15 @@ def from_mapping(data, where: str = "config") -> Config:
 def split_span(c: Config) -> tuple[int, str]:
     """The bits a config's split refers to, and their name in messages: the unit's width,
     or a carry-save unit's final adder (0: `tree: native`, or no final adder)."""
-    kind = units.KINDS[c.unit]
+    return _span(units.KINDS[c.unit], c.tree, c.width, c)
+
+
+def _span(kind: units.Kind, tree: str, width: int, source) -> tuple[int, str]:
+    """`split_span` of a config or of its checked values (`source`, which the kind's
+    `adder_width` reads)."""
     if not kind.tree:
-        return c.width, "width"
-    if c.tree == "native":
-        return 0, "the final adder's width"
-    return kind.adder_width(c), "the final adder's width"
+        return width, "width"
+    return (0 if tree == "native" else kind.adder_width(source)), "the final adder's width"
 
 
 def _check_tree(where: str, kind, values: dict, data: dict) -> None:
@@ -431,9 +430,14 @@ def _check_reset(where: str, values: dict) -> None:
                           "'none'; expected reset 'sync' or 'async' beside it")
 
 
+def block_count(width: int, block_width: int) -> int:
+    """How many blocks of `block_width` bits `width` bits make (the top one may be narrower)."""
+    return -(-width // block_width)
+
+
 def prefix_positions(width: int, pipeline: str, block_width: int) -> int:
     """How many positions the prefix network of a prefix pipeline mode spans: bits or blocks."""
-    return width if pipeline == "levels" else -(-width // block_width)
+    return width if pipeline == "levels" else block_count(width, block_width)
 
 
 def check_mode(where: str, values: dict, what: str = "width", given=()) -> None:

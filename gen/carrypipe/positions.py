@@ -19,7 +19,7 @@ from abc import ABC, abstractmethod
 from dataclasses import dataclass
 
 from . import cells, prefix
-from .config import prefix_positions
+from .config import block_count
 from .netlist import Const, Expr, bit, cat, part
 
 TREE_STYLE = "sklansky"  # a comparator's tree: Sklansky pruned to the top is a balanced tree
@@ -181,7 +181,7 @@ class Blocks(Results, Chains):
 
     def widths(self, config):
         w, k = config.width, config.block_width
-        return tuple(min(k, w - k * q) for q in range(prefix_positions(w, "blocks", k)))
+        return tuple(min(k, w - k * q) for q in range(block_count(w, k)))
 
     def leaves(self, b, kind, config, y_end):
         count = len(b.widths)
