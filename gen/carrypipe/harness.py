@@ -15,7 +15,8 @@ import re
 from .plan import Plan
 
 INSTANCE = "unit"  # the unit's instance name; its cells carry this prefix after flattening
-PREFIX = "harness_"  # every harness name starts with this; unit cells never do
+PREFIX = "harness_"  # every harness register and port starts with this; unit cells never do
+# (the wires from the unit's outputs are `res_<port>`)
 SHIFT_IN = PREFIX + "in"
 CAPTURE = PREFIX + "out"
 SERIAL_IN = PREFIX + "si"

@@ -46,7 +46,8 @@ def run(plan: Plan, vecs: list[Vector], simulator: str, timeout: float | None = 
 
 
 def _mismatch(plan, k: int, cycle: int, v: Vector, want: dict, got: dict) -> str:
-    """The testbench's FAIL line for vector k, in the same words."""
+    """The testbench's FAIL line for vector k, in the same words (the testbench's `%h` pads
+    each value to its port's width; these are unpadded)."""
     shown_in = " ".join(f"{p.name}={v.inputs[p.name]:x}" for p in plan.operand_inputs())
     names = [p.name for p in output_ports(plan)] + (["valid"] if plan.config.valid else [])
 
