@@ -367,10 +367,9 @@ def kind(row: Row) -> tuple:
 
 
 def _adder_kind(c: Config) -> tuple:
-    """An adder's kind (and a counter tree's final adder's): cell, mode, mode options."""
-    return (c.cell, c.pipeline, c.local_width if c.pipeline == "levels" else 0,
-            c.pipeline == "levels" and c.carry_increment,
-            0 if c.pipeline == "slices" else c.wire_registers)
+    """An adder's kind (and a counter tree's final adder's): cell, mode, mode options (a
+    config holds the default of every key its mode does not read: `config.from_mapping`)."""
+    return (c.cell, c.pipeline, c.local_width, c.carry_increment, c.wire_registers)
 
 
 @singledispatch
