@@ -108,6 +108,9 @@ def test_a_choice_inside_the_seed_spread_is_confirmed_on_more_seeds(monkeypatch,
     if chosen.mhz < 1.05 * target:
         assert len(chosen.measured) == 9
     assert json.loads(fit.files(out)["fit.json"])["confirm_seeds"] == 9
+    assert fit.record(again, out)["note"].startswith(
+        "measured on seeds 1-9 to confirm it (its first median was within 5 % of the target); "
+        "critical path ")
 
 
 def test_second_run_comes_from_the_cache(counted, tmp_path):

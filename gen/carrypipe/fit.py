@@ -248,6 +248,9 @@ def record(row: Row, outcome: Outcome) -> dict:
     else:
         note = candidates.why_not_run(row, rows, target, factors, outcome.chosen,
                                       model.margin(outcome.settings.device.name))
+    if row.seeds > outcome.settings.seeds:
+        note = (f"measured on seeds 1-{row.seeds} to confirm it (its first median was within "
+                f"{100 * candidates.SEED_SPREAD:g} % of the target); " + note)
     if row.hopeful:
         note = "run as the last resort; " + note
     if row.same:
