@@ -113,6 +113,30 @@ def test_a_choice_inside_the_seed_spread_is_confirmed_on_more_seeds(monkeypatch,
         "critical path ")
 
 
+class Inline(executor.Local):
+    """Two workers as `fit` sees them, run one after the other in this process."""
+
+    def __init__(self):
+        super().__init__(2)
+
+    def submit_all(self, fn, items):
+        for item in items:
+            yield item, fn(item)
+
+
+def test_a_lone_row_spreads_its_seeds_over_the_workers(monkeypatch, tmp_path):
+    calls = []
+    monkeypatch.setattr(toolflow, "measure", lambda job: calls.append(job) or lucky_law(job))
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path))
+    lucky = fit.run(BASE, settings(250, seeds=3), executor.Local(1)).chosen
+    calls.clear()
+    fit.run(BASE, settings(0.99 * lucky.mhz, seeds=3, confirm_seeds=9), Inline())
+    assert [j.seeds for j in calls if j.config == lucky.config.normalized()] == [
+        (4, 5, 6), (7, 8, 9)]  # the confirmation, on both workers
+    assert fit.split_seeds((1, 2, 3), 2) == [(1, 2), (3,)]
+    assert fit.split_seeds((4,), 2) == [(4,)]
+
+
 def test_second_run_comes_from_the_cache(counted, tmp_path):
     first = fit.run(BASE, settings(250, seeds=3), executor.Local(1))
     ran = len(counted)

@@ -115,7 +115,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     margin = model.margin(dev.name)
     while batch := candidates.next_batch(rows, target, executor.jobs, margin,
                                          settings.confirm_seeds):
-        jobs, keys = {}, {}
+        todo, keys = [], {}
         factors = candidates.scale(rows)
         for row in batch:
             if row.basis is None:
@@ -131,14 +131,18 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
             measurements += len(seeds)
             missing = tuple(s for s in seeds if all(m.seed != s for m in row.measured))
             if missing:
-                jobs[id(row)] = (row, toolflow.Job(row.config.normalized(), dev.name,
-                                                   missing, settings.tools, settings.timeout))
+                todo.append((row, missing))
+        # Fewer rows than workers (a choice being confirmed): a row's seeds go out in parts.
+        parts = max(1, executor.jobs // max(1, len(todo)))
+        jobs = [(row, toolflow.Job(row.config.normalized(), dev.name, part, settings.tools,
+                                   settings.timeout))
+                for row, missing in todo for part in split_seeds(missing, parts)]
         if jobs and settings.tools == "wheel" and not warned:
             echo(WARMUP_NOTE)
             warned = True
         left = len(jobs)
-        by_job = {id(job): row for row, job in jobs.values()}
-        for job, results in executor.submit_all(toolflow.measure, [j for _, j in jobs.values()]):
+        by_job = {id(job): row for row, job in jobs}
+        for job, results in executor.submit_all(toolflow.measure, [j for _, j in jobs]):
             row = by_job[id(job)]
             left -= 1
             for m in results:
@@ -187,6 +191,18 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                                      "a harness register); the unit is at "
                                      "least this fast")
     return outcome
+
+
+def split_seeds(seeds: tuple[int, ...], parts: int) -> list[tuple[int, ...]]:
+    """`seeds` in at most `parts` runs of consecutive seeds, as even as can be."""
+    parts = min(parts, len(seeds))
+    size, extra = divmod(len(seeds), parts)
+    out, start = [], 0
+    for i in range(parts):
+        end = start + size + (i < extra)
+        out.append(seeds[start:end])
+        start = end
+    return out
 
 
 def environment_failure(outcome: Outcome) -> str | None:
