@@ -230,7 +230,8 @@ def test_real_fit_ecp5_seeds_and_jobs(write_config, tmp_path, monkeypatch):
     res = run(str(cfg), "--target-mhz", "330", "--device", "ecp5-85k", "--seeds", "3",
               "--jobs", "2", "--cells", "native,brent-kung", "-o", str(tmp_path / "o"))
     assert res.exit_code in (0, 1), res.output
-    assert "median of 3 seeds" in res.output
+    # Three seeds each; nine for a choice less than 5 % above the target (--confirm-seeds).
+    assert re.search(r"median of [39] seeds", res.output), res.output
 
 
 @pytest.mark.parametrize("options, seeds", [

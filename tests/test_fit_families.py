@@ -164,5 +164,6 @@ def test_fit_on_a_new_family_meets_its_target_independently(write_config, tmp_pa
                                     device, "--seeds", "2", "-o", str(out)])
     assert res.exit_code == 0, res.output
     assert "no delay model" not in res.output  # every family is calibrated
-    # The chosen unit, placed and routed by hand with a seed fit did not use.
-    assert independent_fmax(out, "ctr16", devices.get(device), seed=5) >= target
+    # The chosen unit, placed and routed by hand with a seed fit did not use (fit runs seeds
+    # 1-2, and 1-6 when it confirms a close choice).
+    assert independent_fmax(out, "ctr16", devices.get(device), seed=7) >= target
