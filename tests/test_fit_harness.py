@@ -88,6 +88,17 @@ def test_stage_of_a_path_end_in_every_mode():
         # the flip-flop in the cell is loaded by that LUT, at the end of stage 1.
         assert harness.stage_of("unit.grp_prop_1_2_SB_LUT4_I1_LC", levels) == 1
         assert harness.stage_of("unit.grp_prop_1_2_SB_DFF_Q_1", levels) == 0
+    # With `enable` and an async reset (iCE40 SB_DFFER), Yosys named the unit's registers
+    # after the capture net they lead to (they were taken for the harness's): the output
+    # register is the last stage, each flip-flop further back a stage earlier.
+    out = "harness_out_SB_DFF_Q_1_D_SB_LUT4_O_I3_SB_DFFER_Q_DFFLC"
+    assert harness.inside_unit(out, sliced) and harness.stage_of(out, sliced) == 15
+    back = ("harness_out_SB_DFF_Q_8_D_SB_LUT4_O_I3_SB_DFFER_Q_D_SB_DFFER_Q_D_SB_LUT4_O_I3_"
+            "SB_DFFER_Q_DFFLC")
+    assert harness.inside_unit(back, sliced) and harness.stage_of(back, sliced) == 13
+    plain = "harness_out_SB_DFF_Q_1_DFFLC"  # a capture register itself
+    assert not harness.inside_unit(plain, sliced) and harness.stage_of(plain, sliced) is None
+    assert not harness.inside_unit("harness_in_SB_DFF_Q_3_DFFLC", sliced)
     # The valid bit loaded with the input register is of no stage (it gave stage -1).
     valid = make(width=8, slice_width=4, register_inputs=True, valid=True)
     assert harness.stage_of("unit.valid_1_TRELLIS_FF_Q", valid) is None

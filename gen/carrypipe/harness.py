@@ -34,12 +34,24 @@ def inside_unit(end_cell: str, plan: Plan) -> bool:
     shift-in register may take the name of the unit input port it drives
     (`unit.a_<CELL TYPE>...`; the unit's own input register is `a_in`).  Every other
     register is the unit's: `unit.<register>` or, for the last stage, the harness wire it
-    drives (`res_...`).  The path's length does not decide: every stage of a `levels` unit
+    drives (`res_...`), or a register named after the capture net it leads to
+    (`_capture_hops`).  The path's length does not decide: every stage of a `levels` unit
     is a single LUT, as the harness's own paths are.
     """
     ports = "|".join(re.escape(p.name) for p in plan.ports if p.direction == "input")
     shift_in = re.match(rf"{INSTANCE}\.({ports})(\[|_[A-Z]|$)", end_cell)
-    return not (end_cell.startswith(PREFIX) or shift_in)
+    return _capture_hops(end_cell) > 0 or not (end_cell.startswith(PREFIX) or shift_in)
+
+
+def _capture_hops(cell: str) -> int:
+    """How many registers back from the harness's capture registers a unit register is that
+    Yosys named after the capture net it leads to, else 0.  Seen on iCE40 with `enable` and
+    an async reset: `harness_out_SB_DFF_Q_1_D_SB_LUT4_O_I3_SB_DFFER_Q_DFFLC` is the flip-flop
+    (SB_DFFER) whose Q drives input I3 of the LUT whose O drives D of capture flip-flop 1:
+    the unit's output register, 1 back; every further flip-flop type named is one more."""
+    if not cell.startswith(CAPTURE):
+        return 0
+    return max(0, len(re.findall(r"(?<![A-Za-z0-9])(?:SB_)?DFF[A-Z]*_Q", cell)) - 1)
 
 
 def stage_of(cell: str, plan: Plan) -> int | None:
@@ -48,8 +60,9 @@ def stage_of(cell: str, plan: Plan) -> int | None:
     A register keeps the name of its plan word (`sum_stage_2`, `grp_gen_1_4`, ...) followed
     by the tool's cell suffix (`_TRELLIS_FF_Q`, `_DFF_Q_3`, `[5]`); a word loaded at edge e
     ends a path of stage e - 1 (counted after the input register).  The output registers
-    are named after the unit's outputs (`unit.sum`, `unit.cout`, or the harness wire
-    `res_...` they drive): the last stage.  Input registers (loaded from the harness), the
+    are named after the unit's outputs (`unit.sum`, `unit.cout`, the harness wire `res_...`
+    they drive, or the capture net behind it: `_capture_hops`): the last stage, and those
+    named after the capture net further back, the stages before.  Input registers (loaded from the harness), the
     valid bit beside them and harness registers name no stage.
     """
     name = cell[len(INSTANCE) + 1:] if cell.startswith(INSTANCE + ".") else None
@@ -64,6 +77,9 @@ def stage_of(cell: str, plan: Plan) -> int | None:
             if re.match(r"_SB_LUT4_I\d", name[len(word.name):]):
                 stage = min(stage + 1, len(plan.stages) - 1)
             return stage if stage >= 0 else None  # the input rank's valid bit: no stage
+    hops = _capture_hops(cell)
+    if hops:
+        return len(plan.slices) - hops if hops <= len(plan.slices) else None
     outputs = "|".join(re.escape(p.name) for p in plan.ports if p.direction == "output")
     if cell.startswith("res_") or re.match(rf"{INSTANCE}\.({outputs})(?:_[A-Z]|\[|\$|$)",
                                            cell):

@@ -24,7 +24,7 @@ from .plan import make_plan
 from .tools import ToolBroken, ToolTimeout
 
 TOOLS = ("wheel", "system")
-FLOW_VERSION = 8  # bump when the harness, scripts, arguments, path reading or the
+FLOW_VERSION = 9  # bump when the harness, scripts, arguments, path reading or the
 # emitted Verilog change a result
 FREQ_MHZ = 500  # the clock constraint nextpnr optimizes for, above any reachable figure
 PINS = "pins"  # the harness's pin file, `pins.cst` or `pins.pdc` (devices.pin_constraints)
