@@ -314,3 +314,16 @@ def test_every_unit_kind_gets_candidates_at_64_bits(unit, width):
     cfg = config.from_mapping({"name": "w", "width": width, "unit": unit, **keys})
     found = candidates.generate(cfg, None, units.KINDS[unit].modes)
     assert found and all(make_plan(c).latency >= 1 for c in found)
+
+
+@pytest.mark.parametrize("keys", [dict(unit="sum", operands=4), dict(unit="multiplier")],
+                         ids=lambda k: k["unit"])
+def test_a_trees_circuit_key_reads_its_final_adder(keys):
+    # Kogge-Stone and Han-Carlson over two blocks are one network, so a sum's or
+    # multiplier's `blocks of 8` candidates with either are one circuit (they were measured
+    # twice); the key still never merges two different circuits.
+    by_text, by_key = partitions(keys)
+    for group in by_key:
+        assert any(set(group) <= set(same) for same in by_text), group
+    pair = {"dadda/1 + han-carlson blocks of 8", "dadda/1 + kogge-stone blocks of 8"}
+    assert any(pair <= set(group) for group in by_key)

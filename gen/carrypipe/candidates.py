@@ -188,12 +188,19 @@ def circuit(plan: Plan) -> str:
 
 @singledispatch
 def _circuit(plan: Plan):
-    """A carry-save unit's (`TreePlan`, `NativePlan`): no two of their configs coincide."""
+    """A native carry-save unit's (`NativePlan`): no two of its configs coincide."""
     return plan.config.normalized()
 
 
 def _options(plan: Plan) -> dict:
     return {k: v for k, v in plan.config.normalized().items() if k not in STRUCTURE_KEYS}
+
+
+@_circuit.register
+def _(plan: TreePlan):
+    """The tree as configured, then its final adder's circuit (two prefix styles whose
+    networks coincide over the final adder's blocks give one key)."""
+    return [_options(plan), None if plan.adder is None else _circuit(plan.adder)]
 
 
 @_circuit.register
