@@ -195,6 +195,20 @@ def test_measured_figures_choose_the_slowest_stage():
     assert slowest_blocks(root) == ["1"]
     assert sentence(root) == "Slowest: stage 1 at 2.75 ns (measured), highlighted."
     assert "measured (bench board)" in text
+    assert ("Stage figures measured (bench board): worst register-to-register delay inside "
+            "each stage, in ns.") in text
+
+
+@pytest.mark.parametrize("keys", [dict(width=24, slices=[12, 6, 6]),
+                                  dict(unit="sum", operands=3, width=8, slice_width=4)],
+                         ids=["adder", "sum"])
+def test_one_measured_stage_says_the_others_show_the_model(keys):
+    # fit measures the critical path's stage only: the footnote said every stage was.
+    plan = make(**keys)
+    text = chart.svg(plan, measured={1: 2.75}, measured_source="nextpnr")
+    assert ("Measured (nextpnr): the worst register-to-register delay, in ns, of stage 1; "
+            "the other stages show their unit-gate delay.") in text
+    assert "inside each stage" not in text
 
 
 @pytest.mark.parametrize("measured, message", [

@@ -34,8 +34,8 @@ from html import escape
 
 from . import positions, prefix, report, treechart
 from .svg import (BLOCK, FAINT, FONT, IDLE_BLOCK, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS,
-                  SLOW, SLOW_BLOCK, Svg, band, check_measured, num, slowest, stage_block,
-                  thousands)
+                  SLOW, SLOW_BLOCK, Svg, band, check_measured, measured_basis, num, slowest,
+                  stage_block, thousands)
 from .header import bits, plural, reset_clause
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
@@ -852,8 +852,7 @@ def _legend(out: Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, s
                  data_role="slowest")
         y += 16
     if measured:
-        basis = f"Stage figures measured{f' ({source})' if source else ''}: worst register-" \
-                "to-register delay inside each stage, in ns."
+        basis = measured_basis(plan, measured, source)
     else:
         basis = f"Stage delays: {report.DELAY_MODEL}; logic only, not a placed design."
     out.text(MARGIN, y, basis, size=10, fill=FAINT)

@@ -159,7 +159,8 @@ def report(plan: Plan) -> str:
     if found:
         lines += ["If timing fails", *found]
     if plan.timed:
-        lines.append("These figures come from a logic model, not from a placed design.")
+        lines.append("The stage delays above come from the unit-gate model, not from a placed "
+                     "design.")
     lines.append("")
     return "\n".join(lines)
 

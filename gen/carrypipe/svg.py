@@ -75,6 +75,19 @@ def slowest(plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]:
                   f"({basis}), highlighted: stages {stage_list(slow)}.")
 
 
+def measured_basis(plan, measured: Mapping[int, float], source: str) -> str:
+    """A chart's footnote when stages carry measured figures (both charts): which stages
+    have one, and what the others show."""
+    where = f" ({source})" if source else ""
+    if len(measured) == len(plan.stages):
+        return (f"Stage figures measured{where}: worst register-to-register delay inside "
+                "each stage, in ns.")
+    rest = "their unit-gate delay" if plan.timed else "no figure"
+    return (f"Measured{where}: the worst register-to-register delay, in ns, of "
+            f"{'stage' if len(measured) == 1 else 'stages'} {stage_list(sorted(measured))}; "
+            f"the other stages show {rest}.")
+
+
 def check_measured(plan, measured) -> None:
     if measured is None:
         return

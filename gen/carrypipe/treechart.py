@@ -23,8 +23,8 @@ from html import escape
 
 from . import report
 from .header import reset_clause
-from .svg import (FAINT, FONT, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS, SLOW, Svg, num, slowest,
-                  stage_block, thousands)
+from .svg import (FAINT, FONT, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS, SLOW, Svg,
+                  measured_basis, num, slowest, stage_block, thousands)
 from .svg import band as bands
 
 COLOURS = REGISTER_COLOURS
@@ -136,8 +136,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     out.text(MARGIN, y, slow_text, size=12, weight="bold", fill=SLOW if slow else INK,
              data_role="slowest")
     y += 16
-    basis = (f"Stage figures measured{f' ({measured_source})' if measured_source else ''}: "
-             "worst register-to-register delay inside each stage, in ns." if measured else
+    basis = (measured_basis(plan, measured, measured_source) if measured else
              f"Stage delays: {report.DELAY_MODEL}; a full adder is one XOR pair."
              if plan.timed else "")
     if basis:
