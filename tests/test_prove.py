@@ -212,7 +212,7 @@ def test_prove_reads_the_build_folder_as_it_is_on_disk(tmp_path):
     (lambda t: t.replace("module u (", "module u2 (", 1),
      "not proved: Yosys cannot read the unit u: Module `u' not found!"),
     (lambda t: t.replace("in_valid", "in_vld"), "not proved: the unit has no port in_valid "
-                                                "(input, 1 bits)"),
+                                                "(input, 1 bit)"),
     (lambda t: "garbage\n", "not proved: Yosys cannot read the unit u: u.v:1: syntax error"),
     (lambda t: t.replace("output wire [7:0] sum", "output wire [6:0] sum", 1),
      "not proved: port sum is output, 7 bits; expected output, 8 bits"),

@@ -294,3 +294,16 @@ def test_a_native_units_stages_claim_no_unit_gate_delay(unit):
     picture = chart.svg(plan)
     assert "data-delay" not in picture and "delay 0" not in picture
     assert "No stage delays: synthesis chooses the logic." in picture
+
+
+def test_the_tips_end_with_a_full_stop_and_a_narrow_top_block_is_named():
+    # The last tip of a unit with registered inputs ended with ";"; a 19-bit unit in blocks
+    # of 5 was "4 blocks of 5 bits" (the top one has 4).
+    plan = make(width=19, pipeline="blocks", cell="sklansky", block_width=5,
+                register_inputs=True)
+    said = report.report(plan)
+    tips = said.split("If timing fails\n")[1].split("\nThe stage delays")[0]
+    assert tips.endswith(".") and not tips.endswith(";.")
+    assert "over 4 blocks of 5 bits (the top one 4):" in said
+    assert "over 4 blocks of 4 bits:" in report.report(make(width=16, pipeline="blocks",
+                                                             cell="sklansky", block_width=4))

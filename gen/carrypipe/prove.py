@@ -25,6 +25,7 @@ import time
 from dataclasses import dataclass
 
 from . import emit, tools
+from .header import plural
 from .solver import FAILED, PROVED, Rejected, is_ff, netlist, no_verdict, run_yosys, sat_limit
 from .miter import MITER, miter_verilog
 from .plan import DIRECT_UP_TO, Plan
@@ -53,10 +54,10 @@ def ports_differ(plan: Plan, net: dict) -> str | None:
     want = {p.name: (p.direction, p.width) for p in plan.ports}
     for name, (direction, width) in want.items():
         if name not in have:
-            return f"the unit has no port {name} ({direction}, {width} bits)"
+            return f"the unit has no port {name} ({direction}, {plural(width, 'bit')})"
         if have[name] != (direction, width):
-            return (f"port {name} is {have[name][0]}, {have[name][1]} bits; expected "
-                    f"{direction}, {width} bits")
+            return (f"port {name} is {have[name][0]}, {plural(have[name][1], 'bit')}; "
+                    f"expected {direction}, {plural(width, 'bit')}")
     extra = sorted(set(have) - set(want))
     return f"the unit has a port {extra[0]} that its manifest does not list" if extra else None
 

@@ -157,6 +157,8 @@ def report(plan: Plan) -> str:
     ]
     found = tips(plan)
     if found:
+        if found[-1].endswith(";"):  # the tips are one list: the last one ends it
+            found[-1] = found[-1][:-1] + "."
         lines += ["If timing fails", *found]
     if plan.timed:
         lines.append("The stage delays above come from the unit-gate model, not from a placed "
@@ -225,9 +227,11 @@ def _(pos: positions.Bits, plan: PrefixPlan) -> tuple[str, list[str]]:
 
 @_network.register
 def _(pos: positions.Blocks, plan: PrefixPlan) -> tuple[str, list[str]]:
-    c = plan.config
-    return _network_line(f"Prefix network  {c.cell}", f"blocks of {plural(c.block_width, 'bit')}",
-                         plan, plan.schedule.network.nodes), []
+    c, widths = plan.config, plan.schedule.widths
+    top = f" (the top one {widths[-1]})" if widths[-1] != c.block_width else ""
+    return _network_line(f"Prefix network  {c.cell}",
+                         f"blocks of {plural(c.block_width, 'bit')}{top}", plan,
+                         plan.schedule.network.nodes), []
 
 
 @_network.register
