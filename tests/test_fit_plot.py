@@ -58,3 +58,11 @@ def test_marker_shape_by_mode_and_colour_by_cell():
         assert style in seen[(r.latency, r.mhz)]
     assert len(set(plot.MODE_MARKERS.values())) == len(config.PIPELINES)
     assert len(set(plot.CELL_COLOURS.values())) == len(config.CELLS)
+
+
+def test_latency_ticks_are_whole_cycles_even_for_one_latency():
+    # Every point at latency 4 gave ticks at 3.2, 3.4, ... (fractional cycles).
+    rows = [r for r in crowded() if r.latency == 4]
+    fig = plot.draw(rows, 300, None, "t")
+    ticks = [t for t in fig.axes[0].get_xticks() if 3.2 <= t <= 4.8]
+    assert ticks == [4.0]

@@ -61,7 +61,7 @@ def draw(rows: list[Row], target: float, chosen: Row | None, title: str):
     span = max(ys) - min(ys) or max(ys) or 1.0
     ax.set_ylim(min(ys) - 0.12 * span, max(ys) + 0.18 * span)
     ax.set_xlim(min(xs) - 0.8, max(xs) + 0.8)
-    ax.xaxis.set_major_locator(MaxNLocator(integer=True))
+    ax.xaxis.set_major_locator(MaxNLocator(integer=True, min_n_ticks=1))  # whole cycles only
     ax.set_xlabel("latency (cycles)")
     ax.set_ylabel("achieved Fmax (MHz), median of seeds")
     ax.set_title(title, fontsize=10)
