@@ -9,6 +9,7 @@ import stat
 from pathlib import Path
 
 import pytest
+import yaml
 from click.testing import CliRunner
 
 from carrypipe import emit, prove, solver, tools
@@ -483,3 +484,20 @@ def test_the_reference_sum_chained_in_chunks(monkeypatch):
                       method="direct")
     assert bad.message.startswith("FAILED: counterexample")
     _check_counterexample(plan, bad.message)
+
+
+@pytest.mark.parametrize("keys, why", [
+    (dict(width=8, pipeline="levels", cell="kogge-stone"), "pipeline: levels"),
+    (dict(width=8, slice_width=4, reset="sync", reset_data=True), "reset_data: true"),
+    (dict(width=8, unit="accumulator"), "unit 'accumulator'"),
+    (dict(width=8, unit="multiplier", tree="native"), "tree: native"),
+    (dict(width=600, unit="sum", operands=3), "a final adder of 601 bits"),
+], ids=["levels", "reset_data", "accumulator", "native", "wide final adder"])
+def test_a_refused_compositional_proof_says_why(write_config, keys, why):
+    # The refusal was the same sentence whatever kept the proof from the unit.
+    cfg = write_config(yaml.safe_dump({"name": "u", **keys}))
+    res = CliRunner().invoke(main, ["prove", str(cfg), "--method", "compositional"])
+    assert res.exit_code == 2
+    assert res.output.startswith(f"carrypipe: error: --method: value compositional is not "
+                                 f"allowed with {why}; it covers sliced adders")
+    assert res.output.count("\n") == 1

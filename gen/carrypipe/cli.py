@@ -382,8 +382,8 @@ def prove(target, depth, timeout, method):
     if depth is not None:
         depth = _depth(depth, plan.latency)
     if method == "compositional" and not plan.can_compose:
-        raise UserError("--method: value compositional is not allowed for this unit; it "
-                        f"covers {proof.COMPOSABLE} (use direct)")
+        raise UserError("--method: value compositional is not allowed with "
+                        f"{plan.compose_obstacle}; it covers {proof.COMPOSABLE} (use direct)")
     result = proof.prove(plan, depth=depth, timeout=timeout, method=method, verilog=verilog)
     click.echo(f"{what}: {result.message}")
     sys.exit(0 if result.proved else 1)

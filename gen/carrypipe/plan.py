@@ -283,8 +283,16 @@ class Plan:
     @property
     def can_compose(self) -> bool:
         """Whether the compositional proof applies (see `compose.py`)."""
-        return ("compositional" in self.proof_methods and self.unit.composable
-                and not self.config.reset_data)
+        return self.compose_obstacle is None
+
+    @property
+    def compose_obstacle(self) -> str | None:
+        """What keeps the compositional proof from this unit, in a few words, or None."""
+        if "compositional" not in self.proof_methods:
+            return f"pipeline: {self.config.pipeline}"
+        if not self.unit.composable:
+            return f"unit {self.unit.name!r}"
+        return "reset_data: true" if self.config.reset_data else None
 
     @property
     def composes_by_default(self) -> bool:

@@ -141,8 +141,12 @@ class TreePlan(Plan):
         return carrysave.build(self)
 
     @property
-    def can_compose(self) -> bool:
-        return not self.config.reset_data and self.adder_width <= DIRECT_UP_TO
+    def compose_obstacle(self) -> str | None:
+        if self.config.reset_data:
+            return "reset_data: true"
+        if self.adder_width > DIRECT_UP_TO:
+            return f"a final adder of {self.adder_width} bits"
+        return None
 
     @property
     def adder_width(self) -> int:
@@ -225,6 +229,10 @@ class NativePlan(Plan):
 
     def label(self) -> str:
         return f"native x{self.config.native_stages}"
+
+    @property
+    def compose_obstacle(self) -> str:
+        return "tree: native"
 
 
 def _runs(columns: list[int]) -> list[tuple[int, int]]:
