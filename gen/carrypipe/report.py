@@ -474,5 +474,6 @@ def _(plan: TreePlan) -> list[str]:
 def _(plan: NativePlan) -> list[str]:
     return (_tip("more `native_stages` give the tools more ranks to retime into (where they "
                  "retime);")
-            + _tip("`tree: dadda` or `wallace` builds the counter tree in the fabric with a "
-                   "register rank per level;") + _input_tip(plan))
+            + _tip("`tree: dadda` or `wallace` builds the counter tree in the fabric, with "
+                   "register ranks between its counter levels (`tree_levels_per_stage`);")
+            + _input_tip(plan))
