@@ -1,6 +1,8 @@
 """Writing fit's choice into the user's own config file: only the chosen keys change."""
 
 import difflib
+import re
+from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -107,3 +109,10 @@ def test_a_flow_mapping_is_written_whole():
     written = config_edit.rewrite(user, chosen)
     assert written.startswith("# Written whole by carrypipe fit")
     assert config.parse_text(written, "t").normalized() == chosen.normalized()
+
+
+def test_the_docs_list_every_key_fit_may_edit():
+    # docs/fit.md, *Output folder*: the list left out a sum's or multiplier's tree keys.
+    text = (Path(__file__).parent.parent / "docs" / "fit.md").read_text()
+    listed = text.split("only the keys `fit` chose added, changed or dropped (")[1].split(");")[0]
+    assert set(re.findall(r"`(\w+)`", listed)) == set(config_edit.EDITED)
