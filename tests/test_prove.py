@@ -465,7 +465,7 @@ def test_compositional_is_for_slices_only(tmp_path):
     res = CliRunner().invoke(main, ["prove", str(cfg), "--method", "compositional"])
     assert res.exit_code == 2
     assert res.output.strip() == ("carrypipe: error: --method: value compositional is not "
-                                  "allowed for this unit; it covers sliced adders and "
+                                  "allowed with pipeline: levels; it covers sliced adders and "
                                   "subtractors, and sums and multipliers whose final adder "
                                   "has at most 512 bits, without reset_data (use direct)")
 
