@@ -58,7 +58,7 @@ def test_two_units_in_one_design():
     add = component({"name": "sum_stage", "width": width, "slice_width": 4})
     cmp = component({"name": "threshold", "unit": "comparator", "width": width,
                      "pipeline": "levels", "slice_width": 4})
-    lat_add, lat_cmp = add.plan.latency, cmp.plan.latency
+    lat_add, lat_cmp = add.latency, cmp.latency
     assert (lat_add, lat_cmp) == (3, 3)  # three slices; three slices in a tree of depth 2
     m = Module()
     m.domains.sync = ClockDomain("sync", reset_less=True)
@@ -92,3 +92,29 @@ def test_two_units_in_one_design():
         total = (a + b) % (1 << width)  # Python integers
         want = (int(total < c), int(total == c), int(total > c))
         assert seen[k + lat_add + lat_cmp - 1] == want, (k, a, b, c)
+
+
+def test_the_readmes_caution_about_async_reset_in_amaranths_simulator_holds():
+    """README, *In an Amaranth design*: the pinned Amaranth's Python simulator updates a
+    reset-less register of an `async_reset` domain on the rising edge of `rst` too (found by
+    a user's trial).  When an Amaranth upgrade fixes this, this test fails: drop the
+    caution."""
+    m = Module()
+    m.domains.sync = cd = ClockDomain("sync", async_reset=True)
+    data, r1, r2 = Signal(8), Signal(8, reset_less=True), Signal(8, reset_less=True)
+    m.d.sync += [r1.eq(data), r2.eq(r1)]
+    seen = []
+    sim = Simulator(m)
+    sim.add_clock(10e-9)
+
+    async def bench(ctx):
+        for i in range(1, 7):
+            ctx.set(data, i)
+            ctx.set(cd.rst, i == 4)  # rises between edges 3 and 4
+            await ctx.tick()
+            seen.append(ctx.get(r2))
+
+    sim.add_testbench(bench)
+    sim.run()
+    # Clock edges only would give r2 = 0, 1, 2, 3, 4, 5; the rising rst loaded it early.
+    assert seen == [0, 1, 2, 4, 4, 5]

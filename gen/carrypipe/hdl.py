@@ -86,6 +86,7 @@ class Unit(wiring.Component):
 
     def __init__(self, plan):
         self.plan = plan
+        self.latency = plan.latency  # cycles from inputs to results, as the manifest's
         super().__init__({p.name: (In if p.direction == "input" else Out)(p.width)
                           for p in plan.ports if p.name not in ("clk", "rst")})
 
