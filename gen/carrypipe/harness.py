@@ -44,11 +44,11 @@ def inside_unit(end_cell: str, plan: Plan) -> bool:
 
 
 def _capture_hops(cell: str) -> int:
-    """How many registers back from the harness's capture registers a unit register is that
-    Yosys named after the capture net it leads to, else 0.  Seen on iCE40 with `enable` and
-    an async reset: `harness_out_SB_DFF_Q_1_D_SB_LUT4_O_I3_SB_DFFER_Q_DFFLC` is the flip-flop
-    (SB_DFFER) whose Q drives input I3 of the LUT whose O drives D of capture flip-flop 1:
-    the unit's output register, 1 back; every further flip-flop type named is one more."""
+    """For a unit register that Yosys named after the capture net it leads to, how many
+    registers back from the capture registers it is; else 0.  Seen on iCE40 with `enable`
+    and an async reset: `harness_out_SB_DFF_Q_1_D_SB_LUT4_O_I3_SB_DFFER_Q_DFFLC` is the
+    flip-flop (SB_DFFER) whose Q drives input I3 of the LUT whose O drives D of capture
+    flip-flop 1: the unit's output register, 1 back; each further flip-flop named, 1 more."""
     if not cell.startswith(CAPTURE):
         return 0
     return max(0, len(re.findall(r"(?<![A-Za-z0-9])(?:SB_)?DFF[A-Z]*_Q", cell)) - 1)
@@ -61,9 +61,9 @@ def stage_of(cell: str, plan: Plan) -> int | None:
     by the tool's cell suffix (`_TRELLIS_FF_Q`, `_DFF_Q_3`, `[5]`); a word loaded at edge e
     ends a path of stage e - 1 (counted after the input register).  The output registers
     are named after the unit's outputs (`unit.sum`, `unit.cout`, the harness wire `res_...`
-    they drive, or the capture net behind it: `_capture_hops`): the last stage, and those
-    named after the capture net further back, the stages before.  Input registers (loaded from the harness), the
-    valid bit beside them and harness registers name no stage.
+    they drive, or the capture net behind it: `_capture_hops`): the last stage; registers
+    named after the capture net further back, the stages before.  Input registers (loaded
+    from the harness), the valid bit beside them and harness registers name no stage.
     """
     name = cell[len(INSTANCE) + 1:] if cell.startswith(INSTANCE + ".") else None
     if name is not None:
