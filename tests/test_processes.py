@@ -206,5 +206,8 @@ def test_fit_workers_end_when_carrypipe_is_killed_outright(tmp_path):
     proc.wait()  # not its pipes: a worker left behind would hold them open
     proc.stdout.close()
     proc.stderr.close()
-    # The workers end their tools (SIGTERM, then SIGKILL after the 2 s grace) and exit.
-    assert orphans(proc.pid, within=10) == []
+    # The workers end their tools (SIGTERM, then SIGKILL after the 2 s grace) and exit.  A
+    # worker still starting when the kill came (a fresh install compiles its bytecode; seen
+    # once in a fresh-clone CI run on a loaded machine, with the resource tracker waiting on
+    # it) ends when it reaches its initializer and finds its parent gone: allow for that.
+    assert orphans(proc.pid, within=30) == []
