@@ -461,6 +461,12 @@ def inside_spread(row: Row, target: float) -> bool:
     return meets(row, target) and row.mhz < target * (1 + SEED_SPREAD)
 
 
+def to_confirm(chosen: Row | None, target: float, confirm: int) -> bool:
+    """Is the chosen row inside the seeds' spread and measured on fewer than `confirm`
+    seeds (so `next_batch` measures it on seeds 1..`confirm` first)?"""
+    return chosen is not None and inside_spread(chosen, target) and chosen.seeds < confirm
+
+
 def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN,
                confirm: int = 0) -> list[Row]:
     """The candidates to place and route next; empty when the answer is confirmed.
@@ -478,7 +484,7 @@ def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN
     """
     factors = scale(rows)
     chosen = select(rows, target)
-    if chosen is not None and inside_spread(chosen, target) and chosen.seeds < confirm:
+    if to_confirm(chosen, target, confirm):
         chosen.seeds = confirm
     open_rows = [r for r in rows if not r.done]
     todo = [r for r in open_rows if r is chosen or promising(r, target, factors, rows, margin)

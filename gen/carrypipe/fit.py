@@ -226,7 +226,7 @@ def _queued(rows: list[Row], target: float, margin: float, confirm: int) -> int:
     chosen = candidates.select(rows, target)
     if chosen is None:
         todo |= {id(r) for r in candidates.last_resort(rows, target, factors, margin)}
-    elif candidates.inside_spread(chosen, target) and chosen.seeds < confirm:
+    elif candidates.to_confirm(chosen, target, confirm):
         todo.add(id(chosen))
     return len(todo)
 

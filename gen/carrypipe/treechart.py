@@ -27,7 +27,6 @@ from .svg import (FAINT, FONT, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS, SLOW, S
                   measured_basis, num, slowest, stage_block, thousands)
 from .svg import band as bands
 
-COLOURS = REGISTER_COLOURS
 MEANINGS = {
     "input": "input register: the operands as they arrive",
     "tree": "tree ranks: the dots left after each stage's counters, by column",
@@ -114,7 +113,8 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
                 _bar(out, w, y + 2 + slot * row_h, row_h - 2, col_x, cw)
         y += max(30.0, len(families) * row_h + 6) if not tree_words else 6
         for w in (w for w in words if w.kind == "control"):
-            out.add("rect", x=side_x, y=top + 4, width=cw, height=8.0, fill=COLOURS["control"],
+            out.add("rect", x=side_x, y=top + 4, width=cw, height=8.0,
+                    fill=REGISTER_COLOURS["control"],
                     class_="reg", data_kind="control", data_name=w.family,
                     data_families=w.family, data_bits="0:0", data_edge=w.edge,
                     data_count=w.width)
@@ -173,7 +173,8 @@ def _dots(out, x0, y, cw, heights: list[int], label: str) -> float:
         x = x0 + (len(heights) - 1 - j) * cw + (cw - size) / 2
         for r in range(tall):
             out.add("circle", cx=x + size / 2, cy=y + 4 + r * (size + 1) + size / 2,
-                    r=size / 2 - 0.5, fill="none", stroke=COLOURS["tree"], stroke_width=0.8,
+                    r=size / 2 - 0.5, fill="none", stroke=REGISTER_COLOURS["tree"],
+                    stroke_width=0.8,
                     class_="dot", data_column=j)
     return y + 8 + max(heights, default=0) * (size + 1)
 
@@ -193,7 +194,7 @@ def _rank(out, y, cw, band, words, col_x) -> float:
         w = found[0][1]
         x = col_x(j * band) + (cw - size) / 2
         out.add("rect", x=x, y=y + 4 + row * (size + 1), width=size, height=size,
-                rx=size / 2, fill=COLOURS["tree"], class_="reg", data_kind="tree",
+                rx=size / 2, fill=REGISTER_COLOURS["tree"], class_="reg", data_kind="tree",
                 data_name=w.family, data_families=w.family, data_bits=f"{hi}:{lo}",
                 data_edge=w.edge, data_count=len(found))
     return y + 8 + rows * (size + 1)
@@ -205,7 +206,7 @@ def _bar(out, w, y, h, col_x, cw) -> None:
     left = col_x(hi)
     right = col_x(lo) + cw
     out.add("rect", x=left + 0.5, y=y, width=max(0.6, right - left - 1.0), height=h,
-            fill=COLOURS.get(w.kind, "#7a7a7a"), class_="reg", data_kind=w.kind,
+            fill=REGISTER_COLOURS.get(w.kind, "#7a7a7a"), class_="reg", data_kind=w.kind,
             data_name=w.family, data_families=w.family, data_bits=f"{hi}:{lo}",
             data_edge=w.edge, data_count=w.width)
 
@@ -218,7 +219,7 @@ def _legend(out, plan, y) -> float:
         if kind == "total" or not bits:  # only the kinds the unit has
             continue
         out.add("rect", x=float(MARGIN), y=float(y), width=14.0, height=12.0,
-                fill=COLOURS.get(kind, "#7a7a7a"), class_="key", data_kind=kind)
+                fill=REGISTER_COLOURS.get(kind, "#7a7a7a"), class_="key", data_kind=kind)
         out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
         out.text(MARGIN + 140, y + 10, thousands(bits), size=11, anchor="end",
                  data_role="bits", data_kind=kind)
