@@ -10,7 +10,8 @@ seeds), LUTs, carry cells, flip-flops, the ratio to the fabric limit (register -
     python tests/bench_modes.py --width 256 --seeds 3 --only han-carlson/0,kogge-stone/2
 
 A design is `<cell>/<wire_registers>[/<local_width>[/increment]]` (levels mode, one prefix
-level per stage, registered inputs unless `--no-input-register`, "plain" in the table;
+level per stage unless `--levels-per-stage`, registered inputs unless
+`--no-input-register`, "plain" in the table;
 `increment` adds `carry_increment: true`); with `--blocks <k>` the designs are blocks mode,
 block width k.
 `--pnr-args="--tmg-ripup"` (with `=`) adds nextpnr options to every run of the table (fabric limit and
@@ -33,7 +34,7 @@ DESIGNS = ("kogge-stone/0", "kogge-stone/1", "kogge-stone/2", "han-carlson/0",
 
 
 def unit_config(width: int, design: str, blocks: int | None,
-                inputs: bool = True) -> config.Config:
+                inputs: bool = True, levels: int = 1) -> config.Config:
     cell, wires, *local = design.split("/")
     if local[1:] == ["increment"]:
         local = local[:1]
@@ -43,7 +44,8 @@ def unit_config(width: int, design: str, blocks: int | None,
     else:
         raise SystemExit(f"unknown design {design!r}: <cell>/<wires>[/<local>[/increment]]")
     keys = {"name": "gen", "width": width, "pipeline": "blocks" if blocks else "levels",
-            "cell": cell, "wire_registers": int(wires), "register_inputs": inputs}
+            "cell": cell, "wire_registers": int(wires), "register_inputs": inputs,
+            "levels_per_stage": levels}
     if blocks:
         keys["block_width"] = blocks
     if local:
@@ -74,6 +76,8 @@ def main(argv=None) -> int:
     ap.add_argument("--no-peer", action="store_true", help="leave out the registered a + b")
     ap.add_argument("--no-input-register", action="store_true",
                     help="units without `register_inputs` (stage 1 reads the harness registers)")
+    ap.add_argument("--levels-per-stage", type=int, default=1,
+                    help="prefix levels between register ranks (default 1)")
     ap.add_argument("--pnr-args", default="", help="extra nextpnr options for every run")
     ap.add_argument("--jobs", type=int, default=1, help="place-and-route runs at a time")
     args = ap.parse_args(argv)
@@ -100,11 +104,13 @@ def main(argv=None) -> int:
                                       "peer" + tag, args.jobs))
     paths = {}
     for design in (args.only.split(",") if args.only else DESIGNS):
-        cfg = unit_config(args.width, design, args.blocks, not args.no_input_register)
+        cfg = unit_config(args.width, design, args.blocks, not args.no_input_register,
+                          args.levels_per_stage)
         plan = make_plan(cfg)
         text = emit.unit_verilog(plan)
         mode = f"blocks{args.blocks}" if args.blocks else "levels"
-        name = f"{mode} {design}" + (" plain" if args.no_input_register else "")
+        name = (f"{mode} {design}" + (" plain" if args.no_input_register else "")
+                + (f" lps{args.levels_per_stage}" if args.levels_per_stage > 1 else ""))
         row = bench_fit.measure(store, versions, device, name, cfg, text, seeds,
                                 "generated" + tag, args.jobs)
         rows.append(row)
