@@ -42,7 +42,7 @@ def test_plan_prints_slices_latency_and_register_bits(write_config, width, k):
     s = width // k
     r = run("plan", write_config(f"name: acc\nwidth: {width}\nslice_width: {k}\n"))
     assert r.exit_code == 0, r.output
-    assert f"Latency   {s} cycle(s)" in r.output
+    assert f"Latency   {s} cycles" in r.output
     rows = stage_rows(r.output)
     assert [row.split()[1] for row in rows] == [f"[{k * i + k - 1}:{k * i}]" for i in range(s)]
     bits = register_lines(r.output)

@@ -357,7 +357,7 @@ def test_compositional_proof_of_a_subtractor_names_its_specification():
     plan = plan_of(unit="subtractor", width=12, slice_width=4, cell="sklansky")
     result = prove.prove(plan, method="compositional")
     assert result.proved, result.message
-    assert "each of 3 slice(s) proved against a - b - c with" in result.message
+    assert "each of 3 slices proved against a - b - c with" in result.message
 
 
 @pytest.mark.parametrize("keys, compared", [
@@ -379,7 +379,7 @@ def test_compositional_agrees_with_the_direct_proof(cell):
     result = prove.prove(plan, method="compositional")
     assert result.proved, result.message
     assert result.message.startswith("proved: compositional: structure traced, each of 4 "
-                                     "slice(s) proved against a + b + c")
+                                     "slices proved against a + b + c")
     assert "bounded check of 5 cycles from an arbitrary register state (Yosys sat), " \
         "out_valid compared on cycle 5" in result.message
     assert "every flip-flop enabled by en" in result.message
@@ -412,7 +412,7 @@ def _skew_from_b(text: str) -> str:
 
 @pytest.mark.parametrize("fault, found", [
     (_skew_from_b, "not proved: slice 1: a[4] does not reach its slice through exactly 1 "
-                   "plain flip-flop(s)"),
+                   "plain flip-flop"),
     (early_operand, "not proved: slice 1: its logic does not compute a + b + c on its own "
                     "operand bits and carry-in (cell check, flip-flops cut)"),
     (drop_first_carry, "not proved: slice 1: its logic does not compute a + b + c on its own "
@@ -456,7 +456,7 @@ def test_auto_proves_wide_sliced_units_compositionally(tmp_path):
     res = CliRunner().invoke(main, ["prove", str(cfg)])
     assert res.exit_code == 0, res.output
     assert res.output.startswith("w1024 (the Verilog generated from w.yaml): proved: "
-                                 "compositional: structure traced, each of 16 slice(s)")
+                                 "compositional: structure traced, each of 16 slices")
 
 
 def test_compositional_is_for_slices_only(tmp_path):

@@ -199,7 +199,7 @@ def test_a_comparators_tree_counts_the_nodes_it_keeps():
         text = report.report(plan)
         levels = (n - 1).bit_length()
         assert f"Verdict tree    a balanced tree over {n} slices (compared in parallel): " \
-            f"{levels} level(s), {n - 1} nodes" in text
+            f"{levels} level{'s' * (levels > 1)}, {n - 1} node{'s' * (n > 2)}" in text
         rows = [r.split() for r in text.splitlines() if re.match(r"\s+\d+\s+\d+\s+\d+\s+\d+", r)]
         assert sum(int(r[2]) for r in rows) == n - 1
         assert "tree level 1" in text and "prefix level" not in text

@@ -40,6 +40,7 @@ import json
 import re
 from dataclasses import dataclass
 
+from .header import plural
 from .miter import chained
 from .plan import Plan
 from .solver import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
@@ -103,8 +104,8 @@ class Wiring:
         if len(found) == 1:
             return found[0], None
         if not found:
-            return None, (f"{port}[{index}] does not reach its slice through exactly {cycles} "
-                          "plain flip-flop(s)")
+            return None, (f"{port}[{index}] does not reach its slice through exactly "
+                          f"{plural(cycles, 'plain flip-flop')}")
         return None, f"{port}[{index}] reaches its slice along {len(found)} different nets"
 
     def register(self, name: str) -> int | None:
@@ -148,8 +149,9 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
                 into.append(bit)
             bit, n = wiring.back(wiring.port[plan.unit.result][i])
             if n != lat - e:
-                return [], (f"slice {j}: sum[{i}] leaves it through {n} plain flip-flop(s), "
-                            f"not the {lat - e} the latency requires")
+                return [], (f"slice {j}: sum[{i}] leaves it through "
+                            f"{plural(n, 'plain flip-flop')}, not the {lat - e} the latency "
+                            "requires")
             nets.s.append(bit)
         if j == 0:
             nets.c = "0"
@@ -167,7 +169,7 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
         if j == len(plan.slices) - 1 and cfg.carry_out:
             nets.k, n = wiring.back(wiring.port[plan.unit.carry_out_port(cfg)][0])
             if n != lat - e:
-                return [], (f"cout leaves slice {j} through {n} plain flip-flop(s), not "
+                return [], (f"cout leaves slice {j} through {plural(n, 'plain flip-flop')}, not "
                             f"the {lat - e} the latency requires")
         found.append(nets)
     return found, None
@@ -261,8 +263,8 @@ def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outco
     count = len(plan.slices)
     op = "+" if plan.unit.op == "add" else "-"
     spec = f"a {op} b {op} c"  # c: the carry (borrow) into the slice
-    method = (f"compositional: structure traced, each of {count} slice(s) proved against "
-              f"{spec} with every flip-flop cut (Yosys sat)")
+    method = (f"compositional: structure traced, each of {plural(count, 'slice')} proved "
+              f"against {spec} with every flip-flop cut (Yosys sat)")
     wiring = Wiring(net, module)
     nets, problem = trace(plan, wiring)
     if problem:

@@ -19,6 +19,7 @@ from . import __version__, cache, candidates, config, config_edit, devices, emit
 from . import plot, toolflow
 from .candidates import Row
 from .config import Config
+from .header import plural
 from .plan import make_plan
 
 WARMUP_NOTE = ("note: the first call of each WebAssembly tool (yowasp-*) on a machine can take "
@@ -351,7 +352,7 @@ def measured_section(outcome: Outcome) -> str:
         "Measured by carrypipe fit (open-tool estimate, not sign-off)",
         f"  Device    {s.device.name} ({s.device.part}), target {s.target_mhz:g} MHz",
         f"  Tools     {', '.join(outcome.tool_versions.values())}",
-        f"  Fmax      {row.mhz:g} MHz, median of {len(row.ok)} seed(s) ({per_seed})",
+        f"  Fmax      {row.mhz:g} MHz, median of {plural(len(row.ok), 'seed')} ({per_seed})",
         f"  Critical path at seed {path.seed}: {path.start} -> {path.end}{where}",
         ""])
 

@@ -99,8 +99,8 @@ def reset_clause(plan) -> str:
 
 
 def valid_title(plan) -> list[str]:
-    return [f"Valid chain: in_valid delayed by the latency, {plan.latency} "
-            f"register(s){reset_clause(plan)}."]
+    return [f"Valid chain: in_valid delayed by the latency, "
+            f"{plural(plan.latency, 'register')}{reset_clause(plan)}."]
 
 
 def slice_title(plan, s) -> list[str]:
@@ -141,7 +141,7 @@ def tree_title(plan, stage) -> list[str]:
     return [f"Stage {stage.index}, loaded on edge {plan.edge(stage.index)}: "
             f"{plan.config.tree.capitalize()} "
             f"tree, {stage.logic}.",
-            f"Its register rank holds at most {heights} dot(s) per column: row<r>_stage_"
+            f"Its register rank holds at most {plural(heights, 'dot')} per column: row<r>_stage_"
             f"{stage.index} holds each column's r-th dot, at the column's bit position."]
 
 

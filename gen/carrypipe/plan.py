@@ -36,6 +36,7 @@ from functools import cached_property
 
 from . import cells, positions, schedule, units
 from .config import Config
+from .header import plural
 from .units import Port
 
 DIRECT_UP_TO = 512  # widest adder `prove --method auto` proves directly (docs/verification.md)
@@ -381,7 +382,7 @@ class SlicedPlan(Plan):
         return slices.stages(self, frame, sources)
 
     def structure(self) -> str:
-        return f"{len(self.stages)} slice(s)"
+        return plural(len(self.stages), "slice")
 
     def layout(self) -> str:
         return "Slices (LSB first): " + " ".join(f"[{s.msb}:{s.lsb}]" for s in self.stages)
@@ -489,8 +490,8 @@ class PrefixPlan(Plan):
         return leveled.stages(self, frame, sources)
 
     def structure(self) -> str:
-        return (f"pipeline {self.config.pipeline}, {len(self.stages)} stage(s), every stage "
-                "all bits")
+        return (f"pipeline {self.config.pipeline}, {plural(len(self.stages), 'stage')}, "
+                "every stage all bits")
 
     def layout(self) -> str:
         return "Stages: " + "; ".join(f"{s.index}: {s.logic}" for s in self.stages)

@@ -141,8 +141,8 @@ def report(plan: Plan) -> str:
         "",
         f"Unit      {unit_phrase(plan)}",
         f"Cell      {c.cell}",
-        f"Latency   {plan.latency} cycle(s)" + (" (includes the input register)"
-                                                 if c.register_inputs else ""),
+        f"Latency   {plural(plan.latency, 'cycle')}" + (" (includes the input register)"
+                                                        if c.register_inputs else ""),
         *_wrapped(f"Timing    {timing_phrase(plan)}", rest=" " * 10),
         f"Reset     {reset_phrase(plan)}",
         "",
@@ -208,7 +208,8 @@ def _network(pos, plan: PrefixPlan) -> tuple[str, list[str]]:
 
 def _network_line(head: str, what: str, plan: PrefixPlan, nodes: int) -> str:
     sch = plan.schedule
-    return f"{head} over {len(sch.widths)} {what}: {sch.network.depth} level(s), {nodes} nodes"
+    return (f"{head} over {len(sch.widths)} {what}: {plural(sch.network.depth, 'level')}, "
+            f"{plural(nodes, 'node')}")
 
 
 @_network.register
@@ -251,7 +252,8 @@ def _(plan: PrefixPlan, mark=None) -> list[str]:
     lines = [head, f"Stages    {len(plan.stages)}, every one spanning all bits (no skew or "
              "deskew triangles)", *notes]
     if sch.wired:
-        lines.append("          wire registers in front of prefix level(s) "
+        lines.append("          wire registers in front of prefix "
+                     + ("level " if len(sch.wired) == 1 else "levels ")
                      + ", ".join(str(k + 1) for k in sch.wired))
     lines += ["", "Stages (delay in the unit-gate model, register to register)",
               f"  {'stage':>5}  {'levels':>6}  {'nodes':>6}  {'delay':>5}  logic"]

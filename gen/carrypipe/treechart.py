@@ -22,7 +22,7 @@ from collections.abc import Mapping
 from html import escape
 
 from . import report
-from .header import reset_clause
+from .header import plural, reset_clause
 from .svg import (FAINT, FONT, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS, SLOW, Svg,
                   measured_basis, num, slowest, stage_block, thousands)
 from .svg import band as bands
@@ -62,8 +62,8 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     y = MARGIN + 16
     out.text(MARGIN, y, f"{c.name} — stage chart", size=18, weight="bold")
     y += 20
-    out.text(MARGIN, y, f"{report.unit_phrase(plan)}; {len(plan.stages)} stage(s); latency "
-             f"{plan.latency} cycle(s)", size=12)
+    out.text(MARGIN, y, f"{report.unit_phrase(plan)}; {plural(len(plan.stages), 'stage')}; "
+             f"latency {plural(plan.latency, 'cycle')}", size=12)
     y += 17
     out.text(MARGIN, y, "Result bits across (most significant on the left), clock edges down: "
              "the dots each tree rank holds, then the final adder's registers.", size=11,
@@ -230,5 +230,5 @@ def _legend(out, plan, y) -> float:
     out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
     out.text(MARGIN + 140, y + 10, thousands(regs['total']), size=11,
              anchor="end", weight="bold", data_role="total")
-    out.text(MARGIN + 150, y + 10, f"register bits; latency {plan.latency} cycle(s)", size=11)
+    out.text(MARGIN + 150, y + 10, f"register bits; latency {plural(plan.latency, 'cycle')}", size=11)
     return y + 40
