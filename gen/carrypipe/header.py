@@ -27,6 +27,20 @@ def comment(lines, indent: str = "") -> list[str]:
     return out
 
 
+def command(text: str) -> list[str]:
+    """A shell command as `//   $ ...` comment lines of at most COLUMNS, each one but the last
+    continued with a backslash (a word longer than a line stays whole)."""
+    first, *words = text.split()
+    lines, line = [], f"//   $ {first}"
+    for word in words:
+        if len(line) + len(word) + 3 > COLUMNS:
+            lines.append(f"{line} \\")
+            line = f"//       {word}"
+        else:
+            line += f" {word}"
+    return [*lines, line]
+
+
 def timing_phrase(plan) -> str:
     lat = plan.latency
     gate = " while en is high" if plan.config.enable else ""

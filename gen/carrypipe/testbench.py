@@ -12,6 +12,7 @@ CARRYPIPE_TB_NO_FATAL for a simulator that lacks `$fatal`).
 
 from __future__ import annotations
 
+from .header import command, comment
 from .vectors import TAG_BITS, field_widths, output_ports
 
 
@@ -46,13 +47,18 @@ def testbench(plan, count: int) -> str:
     compare = " || ".join([f"{p.name} !== {f(p.name)}" for p in outs]
                           + ([f"out_valid !== {f('valid')}"] if c.valid else []))
     lines = [
-        f"// Self-checking testbench for {name} (carrypipe).",
-        f"// Reads {vector_file(plan)} (or +vectors=FILE): VECTORS vectors; +vcd writes {name}_tb.vcd.",
-        f"//   iverilog -g2005 -o {name}_tb.vvp {name}.v {name}_tb.v && vvp {name}_tb.vvp",
-        f"//   Or with Verilator 5: verilator --binary --timing --timescale 1ns/1ps --top-module {name}_tb"
-        f" {name}.v {name}_tb.v && obj_dir/V{name}_tb",
-        "// Its verdict is one line starting with PASS or FAIL (the simulator may add its own",
-        "// lines after it, for $fatal or $finish).",
+        *comment([f"Self-checking testbench for {name} (carrypipe).",
+                  f"Reads {vector_file(plan)} (or +vectors=FILE): VECTORS vectors; +vcd writes "
+                  f"{name}_tb.vcd.",
+                  "Run it from this folder with Icarus Verilog:"]),
+        *command(f"iverilog -g2005 -o {name}_tb.vvp {name}.v {name}_tb.v"),
+        *command(f"vvp {name}_tb.vvp"),
+        "// or with Verilator 5:",
+        *command(f"verilator --binary --timing --timescale 1ns/1ps --top-module {name}_tb "
+                 f"{name}.v {name}_tb.v"),
+        *command(f"obj_dir/V{name}_tb"),
+        *comment(["Its verdict is one line starting with PASS or FAIL (the simulator may add its "
+                  "own lines after it, for $fatal or $finish)."]),
         "`timescale 1ns / 1ps",
         f"module {name}_tb;",
         f"  parameter VECTORS = {count};",
