@@ -112,10 +112,12 @@ TREE_PLANS = [load_plan(ROOT / "configs" / name) for name in ("tap_mul18.yaml",
 def test_the_slowest_sentence_names_every_tied_stage(plan):
     text = report.report(plan)
     slow = [s.index for s in plan.slowest]
+    delay = plan.slowest[0].delay
+    units = f"{delay} unit{'s' * (delay != 1)}"  # "1 unit", not "1 units"
     if len(plan.stages) == 1:
-        assert f"One stage: {plan.slowest[0].delay} units." in text
+        assert f"One stage: {units}." in text
     elif len(slow) == len(plan.stages):
-        assert f"Every stage has the same unit-gate delay: {plan.slowest[0].delay} units." in text
+        assert f"Every stage has the same unit-gate delay: {units}." in text
     else:
         sentence = " ".join(text.split("\nSlowest: ", 1)[1].split("\n\n")[0].split())
         named = re.match(r"stages? ([\d, –]+) at ", sentence).group(1)

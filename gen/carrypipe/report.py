@@ -126,10 +126,10 @@ def slowest_sentence(plan: Plan) -> str:
     delays = sorted({s.delay for s in plan.stages}, reverse=True)
     slow = plan.slowest
     if len(plan.stages) == 1:
-        return f"One stage: {slow[0].delay} units."
+        return f"One stage: {plural(slow[0].delay, 'unit')}."
     if len(delays) == 1:
-        return f"Every stage has the same unit-gate delay: {slow[0].delay} units."
-    return (f"Slowest: {stages_phrase(slow)} at {slow[0].delay} units, "
+        return f"Every stage has the same unit-gate delay: {plural(slow[0].delay, 'unit')}."
+    return (f"Slowest: {stages_phrase(slow)} at {plural(slow[0].delay, 'unit')}, "
             f"{slow[0].delay - delays[1]} more than the next slowest ({delays[1]}).")
 
 
@@ -269,7 +269,7 @@ def _(plan: TreePlan, mark=None) -> list[str]:
     mark = _marks(plan)
     heights = t.matrix.heights()
     lines = [f"Tree      {c.tree.capitalize()} over {plan.unit.tree_phrase(c)}: "
-             f"{len(t.matrix.leaves)} dots, "
+             f"{plural(len(t.matrix.leaves), 'dot')}, "
              f"height {max(heights)}; {plural(plan.counter_levels, 'counter level')}, "
              f"{counters_phrase(t.fa(), t.ha())}",
              "",
@@ -331,7 +331,7 @@ def _(plan: SlicedPlan) -> list[str]:
         out += _tip(f"cut the unit into slices (`slice_width` or `slices`): {more};")
     elif len(slow) == len(plan.stages) and slow[0].width > 1:
         every = "every slice of the final adder ties" if plan.nest else "every stage ties"
-        out += _tip(f"{every} at {slow[0].delay} units: a smaller `slice_width` "
+        out += _tip(f"{every} at {plural(slow[0].delay, 'unit')}: a smaller `slice_width` "
                     f"narrows them all ({more});")
     elif any(s.width > 1 for s in slow):
         if len(slow) <= 4:

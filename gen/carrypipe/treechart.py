@@ -87,7 +87,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
         for leaf in tree.matrix.leaves:
             heights[leaf.column // band] += 1
         y = _dots(out, x0, y, cw, [math.ceil(h / band) for h in heights],
-                  f"matrix: {len(tree.matrix.leaves)} dots")
+                  f"matrix: {plural(len(tree.matrix.leaves), 'dot')}")
 
     stage_of_edge = {plan.edge(s.index): s for s in plan.stages}
     for edge in range(1, plan.latency + 1):
