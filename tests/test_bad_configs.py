@@ -232,6 +232,10 @@ def behaves(args: list, where: str, out) -> str | None:
 
 def test_the_corpus_covers_every_class():
     assert len(BAD) >= 600
+    # README and docs/verification.md give the corpus's size; they must say the true one.
+    root = Path(__file__).parent.parent
+    for doc in ("README.md", "docs/verification.md"):
+        assert f"{len(BAD):,} bad configs" in (root / doc).read_text(), doc
     labels = " ".join(what for what, _ in BAD)
     for part in ("YAML 1.1", "huge", "[ x 100000", "- x 350", "anchor", "alias", "merge",
                  "tag", "reserved name carrypipe_miter", "junk", "mix"):

@@ -88,6 +88,17 @@ def test_every_mutant_is_caught(keys):
         assert result.message.startswith(("FAILED: counterexample", "not proved:")), what
 
 
+def test_the_documented_mutant_count_is_the_true_one():
+    """README and docs/verification.md give how many mutants the units of
+    tests/mutants.py have (measured by tests/bench_mutants.py); they must say the true count."""
+    total = sum(len(mutants(emit.unit_verilog(plan_of(**keys)))) for keys in MUTATED)
+    root = Path(__file__).parent.parent
+    for doc in ("README.md", "docs/verification.md"):
+        text = (root / doc).read_text()
+        assert f"{total} mutants of" in " ".join(text.split()), doc
+        assert f"{len(MUTATED)} small units" in " ".join(text.split()), doc
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("keys", MUTATED, ids=lambda k: "-".join(str(v) for v in k.values())[:40])
 def test_every_mutant_is_caught_all_of_them(keys):
