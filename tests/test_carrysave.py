@@ -290,6 +290,17 @@ def report_manifest(p) -> str:
     ({"unit": "multiplier", "width": 1, "slice_width": 1},
      r"key 'slice_width': value 1 is not allowed; the tree leaves at most one bit in every "
      r"column: there is no final adder to split \(leave the key out\)\Z"),
+    # Without a final adder its keys' ranges mean nothing: only their defaults are taken.
+    ({"unit": "multiplier", "width": 4, "width_b": 1, "pipeline": "levels",
+      "cell": "kogge-stone", "local_width": 4000},
+     r"key 'local_width': value 4000 is not allowed; the tree leaves at most one bit in every "
+     r"column: there is no final adder \(leave the key out\)\Z"),
+    ({"unit": "multiplier", "width": 1, "width_b": 9, "pipeline": "blocks",
+      "cell": "sklansky", "block_width": 77}, r"key 'block_width': value 77 is not allowed"),
+    ({"unit": "multiplier", "width": 4, "width_b": 1, "pipeline": "levels",
+      "cell": "kogge-stone", "carry_increment": True}, r"key 'carry_increment': value true"),
+    ({"unit": "multiplier", "width": 4, "width_b": 1, "pipeline": "levels",
+      "cell": "kogge-stone", "levels_per_stage": True}, r"key 'levels_per_stage': value true"),
     # A final-adder key in the wrong pipeline mode names the mode (the tree is not why).
     ({"unit": "multiplier", "width": 8, "levels_per_stage": 2},
      r"key 'levels_per_stage' is given with pipeline 'slices'; expected it only with pipeline "
@@ -308,6 +319,10 @@ def test_bad_keys(keys, message):
 
 def test_normalized_config_round_trips():
     for keys in (dict(unit="multiplier", width=13, width_b=1),  # no final adder: no split
+                 dict(unit="multiplier", width=4, width_b=1, pipeline="levels",
+                      cell="kogge-stone", levels_per_stage=1, wire_registers=0),
+                 dict(unit="multiplier", width=1, width_b=3, pipeline="blocks",
+                      cell="sklansky"),
                  dict(unit="multiplier", width=1, signed=True),
                  dict(unit="multiplier", width=12, width_b=9, signed=True,
                       partial_products="booth4", tree="wallace", tree_levels_per_stage=2,

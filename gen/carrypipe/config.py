@@ -332,11 +332,7 @@ def from_mapping(data, where: str = "config") -> Config:
         raise ConfigError(f"{where}: keys 'slice_width' and 'slices' are both given; "
                           "expected at most one of them")
     if span == 0:
-        if reads("slice_width", unit, mode, tree) and ("slices" in data or "slice_width" in data):
-            key = "slices" if "slices" in data else "slice_width"
-            raise ConfigError(f"{where}: key '{key}': value {_shown(data[key])} is not "
-                              "allowed; the tree leaves at most one bit in every column: "
-                              "there is no final adder to split (leave the key out)")
+        _check_no_adder(where, unit, mode, tree, data)
         split: tuple[int, ...] = ()
     elif "slices" in data:
         split = check_split(where, "slices", data["slices"], span, what)
@@ -354,6 +350,26 @@ def from_mapping(data, where: str = "config") -> Config:
     kept = {k: (v if reads(k, unit, mode, tree) else own[k]) for k, v in values.items()
             if k in own and k not in ("width", "slices")}
     return Config(width=width, slices=split, **kept)
+
+
+# The final adder's keys with a range of their own; without a final adder only their
+# defaults are taken (a normalized config writes them).
+ADDER_RANGE_KEYS = ("levels_per_stage", "block_width", "local_width", "wire_registers",
+                    "carry_increment")
+
+
+def _check_no_adder(where: str, unit: str, mode: str, tree: str, data: dict) -> None:
+    """A counter tree that leaves at most one bit in every column has no final adder: a split
+    of it, or another value than the default for one of its keys, is refused."""
+    given = [k for k in ("slices", "slice_width") if k in data]
+    given += [k for k in ADDER_RANGE_KEYS if k in data and not (
+        type(data[k]) is type(KEYS[k][1]) and data[k] == KEYS[k][1])]
+    for key in given:
+        if reads(key, unit, mode, tree):
+            split = " to split" if key in ("slices", "slice_width") else ""
+            raise ConfigError(f"{where}: key '{key}': value {_shown(data[key])} is not "
+                              "allowed; the tree leaves at most one bit in every column: "
+                              f"there is no final adder{split} (leave the key out)")
 
 
 def split_span(c: Config) -> tuple[int, str]:
