@@ -82,6 +82,26 @@ def test_block_width_default_fits_the_width(width, block):
     assert c.block_width == block
 
 
+@pytest.mark.parametrize("text", ["name: t\nwidth: 8\ncell: ripple\t\n",
+                                  "name: t\nwidth: 8\t # operand width\ncell: ripple \t\r\n"])
+def test_tabs_after_a_value_are_separators(text):
+    # YAML 1.2 (section 6.2, separation spaces; from memory) allows tabs between a value and
+    # the end of its line or a comment; PyYAML's scanner alone stops on them.
+    c = parse_text(text, "t.yaml")
+    assert (c.width, c.cell) == (8, "ripple")
+
+
+@pytest.mark.parametrize("text, column", [("name: t\n\twidth: 8\n", 1),
+                                          ('name: "a\tb"\nwidth: 8\n', None)])
+def test_tabs_elsewhere_stay_as_written(text, column):
+    with pytest.raises(ConfigError) as err:
+        parse_text(text, "t.yaml")
+    if column:  # a tab in the indentation: YAML refuses it, at its own column
+        assert f"line 2, column {column}" in str(err.value)
+    else:  # inside a value the tab is kept, and named as it is
+        assert "value 'a\\tb'" in str(err.value)
+
+
 def test_missing_required_key():
     with pytest.raises(ConfigError, match=r"^config: key 'width' is missing; expected an integer from 1 to 4096\Z"):
         from_mapping({"name": "u"})

@@ -580,7 +580,14 @@ _StrictLoader.add_constructor("tag:yaml.org,2002:int", _StrictLoader.construct_y
 
 
 def parse_text(text: str, where: str) -> Config:
-    """Parse YAML text into a validated `Config`."""
+    """Parse YAML text into a validated `Config`.
+
+    Tabs between a value and the end of its line or a comment are read as spaces first: YAML
+    takes them as separators there, but PyYAML's scanner stops on them ("found character
+    '\\t' that cannot start any token"). Tabs elsewhere stay as written (in the indentation
+    YAML refuses them)."""
+    text = re.sub(r"(?<=\S)[ \t]*\t[ \t]*(?=#|\r?$)", lambda m: " " * len(m.group()), text,
+                  flags=re.M)
     try:
         data = yaml.load(text, Loader=_StrictLoader)  # noqa: S506 - safe loader subclass
     except yaml.YAMLError as exc:
