@@ -47,11 +47,12 @@ def keys_for(unit: str, width: int, tree: str, mode: str, turn: int) -> dict:
     span = units.KINDS[unit].adder_width(config.from_mapping({"name": "t", **keys}))
     if mode != "slices":
         keys.update(pipeline=mode, cell=("kogge-stone", "brent-kung", "sklansky")[turn % 3])
-        if mode == "blocks":
-            keys["block_width"] = max(1, min(span, 1 + turn % 5))
+        if mode == "blocks" and span:  # no final adder: its keys are left out
+            keys["block_width"] = min(span, 1 + turn % 5)
     else:
         keys["cell"] = ("native", "ripple", "han-carlson")[turn % 3]
-        keys["slice_width"] = max(1, min(span, 1 + (turn * 7) % 17))
+        if span:
+            keys["slice_width"] = min(span, 1 + (turn * 7) % 17)
     return keys
 
 
