@@ -117,3 +117,17 @@ def test_a_multiplier_holds_no_value_twice_in_a_rank(keys):
     (`reduction._lone`), so no rank of these multipliers (both operands 3 bits or more)
     holds a value twice: synthesis has no equal flip-flops to merge."""
     assert _copies(make(**keys).tree) == 0
+
+
+@pytest.mark.parametrize("width, width_b", [(5, 3), (7, 7), (8, 5), (12, 9), (2, 3)])
+def test_a_signed_booth_digit_that_is_never_two_gets_a_shorter_row(width, width_b, tmp_path):
+    """The top radix-4 digit of an odd-width signed b reads b's sign bit twice, so it is
+    never ±2 (MacSorley 1961's recoding table: digit 2 needs b_(2k+1) != b_2k); its row's
+    top two selection bits are then equal, and the row is one bit shorter. Full synthesis
+    (constant folding, equal flip-flops merged) finds no register to drop."""
+    p = make(unit="multiplier", width=width, width_b=width_b, signed=True,
+             partial_products="booth4")
+    text = emit.unit_verilog(p)
+    assert flip_flop_bits(text, tmp_path, "synth -flatten") == p.registers.total
+    top = (width_b - 1) // 2
+    assert f"booth_two[{top}]" not in text  # the constant 0 is not written out

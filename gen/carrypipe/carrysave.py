@@ -16,6 +16,7 @@ result bits below it wait in `<result>_low_<i>`.
 from __future__ import annotations
 
 from . import header
+from .dots import booth_single
 from .netlist import Arith, Const, Expr, Netlist, Ref, Rep, bit, cat
 from .pipeline import Frame
 from .reduction import Dot, Tree
@@ -123,9 +124,9 @@ def _booth_rows(c, f: Frame, leaves) -> dict[int, Expr]:
     selects: dict[str, dict[int, Expr]] = {"one": {}, "two": {}, "neg": {}}
     for k in used:
         hi, mid, lo = (_bit_of(b_src, n, c.signed, j) for j in (2 * k + 1, 2 * k, 2 * k - 1))
-        for name, e in (("one", _xor(mid, lo)),
-                        ("two", _or(_and(hi, _not(mid), _not(lo)), _and(_not(hi), mid, lo))),
-                        ("neg", hi)):
+        two = (None if booth_single(k, n, c.signed)  # hi is mid: never ±2
+               else _or(_and(hi, _not(mid), _not(lo)), _and(_not(hi), mid, lo)))
+        for name, e in (("one", _xor(mid, lo)), ("two", two), ("neg", hi)):
             if e is not None:
                 selects[name][k] = e
     wired = {name: b.wire_runs(f"booth_{name}", bits) for name, bits in selects.items() if bits}

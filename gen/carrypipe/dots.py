@@ -108,6 +108,12 @@ def value(leaf: Leaf, inputs: dict, m: int, n: int, signed: bool) -> int:
     return v ^ int(leaf.invert)
 
 
+def booth_single(k: int, n: int, signed: bool) -> bool:
+    """Whether digit k of a signed n-bit b reads b's sign bit twice (b_(2k+1) is its
+    extension, b_(2k) the bit itself: the top digit of an odd n), so that it is never ±2."""
+    return signed and 2 * k == n - 1
+
+
 def booth_rows(n: int, signed: bool) -> int:
     """Radix-4 digits of an n-bit b: ceil(n/2) signed; unsigned needs b's 0 above its top."""
     return (n + (0 if signed else 1) + 1) // 2
@@ -159,13 +165,20 @@ def _constant(leaf: Leaf, m: int, n: int, signed: bool) -> int | None:
 
 def booth_matrix(m: int, n: int, signed: bool) -> Matrix:
     """a * b with b recoded in radix 4: row k is digit k times a, a signed number of
-    m + 1 bits (signed a) or m + 2 bits (unsigned a, whose doubled value needs one more).
-    Bits that are the same for every input (past the tops of unsigned operands) join K."""
+    m + 1 bits (signed a) or m + 2 bits (unsigned a, whose doubled value needs one more);
+    m bits for a digit that is never ±2 (`booth_single`), whose selection's top two bits
+    are equal (from m = 2: a one-bit a's only selection bit is the row's low bit). Bits that are the same for every input (past the tops of unsigned operands)
+    join K."""
     width = m + n
-    length = m + 1 if signed else m + 2
     rows = booth_rows(n, signed)
     leaves, constant, shape = [], 0, []
     for k in range(rows):
+        if not signed:
+            length = m + 2
+        elif m > 1 and booth_single(k, n, signed):
+            length = m  # the selection's top two bits are equal
+        else:
+            length = m + 1
         low = 2 * k
         if low < width:
             leaves.append(Leaf(low, "booth_low", (k,)))
