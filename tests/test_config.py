@@ -83,12 +83,21 @@ def test_block_width_default_fits_the_width(width, block):
 
 
 @pytest.mark.parametrize("text", ["name: t\nwidth: 8\ncell: ripple\t\n",
-                                  "name: t\nwidth: 8\t # operand width\ncell: ripple \t\r\n"])
+                                  "name: t\nwidth: 8\t # operand width\ncell: ripple \t\r\n",
+                                  "name:\tt\nwidth:\t8\n\t\ncell:\t\tripple\n",
+                                  "name: t\nwidth: 8\ncell: ripple\nslices: [4,\t4]\n"])
 def test_tabs_after_a_value_are_separators(text):
     # YAML 1.2 (section 6.2, separation spaces; from memory) allows tabs between a value and
     # the end of its line or a comment; PyYAML's scanner alone stops on them.
     c = parse_text(text, "t.yaml")
     assert (c.width, c.cell) == (8, "ripple")
+
+
+def test_a_long_run_of_tabs_in_a_value_is_refused_at_once():
+    # 200,000 tabs inside a value: one pass over the line (a backtracking pattern took
+    # minutes here), then the YAML reader refuses the tab in a plain value.
+    with pytest.raises(ConfigError, match=r"not valid YAML at line 1, column 8"):
+        parse_text("name: a" + "\t" * 200_000 + "b\nwidth: 8\n", "t.yaml")
 
 
 @pytest.mark.parametrize("text, column", [("name: t\n\twidth: 8\n", 1),

@@ -103,6 +103,25 @@ def test_a_byte_order_mark_stays_and_the_edit_is_by_line():
     assert written == "\ufeff" + user.replace("slice_width: 8 ", "slice_width: 6 ")
 
 
+def test_a_config_with_tabs_is_edited_by_line():
+    # Tabs that `build` reads as separators (after a colon, before a comment) do not stop
+    # fit from editing the file in place.
+    user = "name: tab_add\nwidth:\t24\ncell: ripple\t# cheapest\nslice_width: 8\n"
+    written = config_edit.rewrite(user, chosen_from(user, dict(slices=[12, 12], cell="ripple")))
+    assert written == user.replace("slice_width: 8", "slice_width: 12")
+
+
+def test_a_tree_without_a_final_adder_is_written():
+    # A multiplier with a 1-bit operand has no final adder: fit's candidates change its
+    # tree only, and the written config has no split.
+    user = "name: tap\nunit: multiplier\nwidth: 8\nwidth_b: 1\n"
+    chosen = config.from_mapping({**config.parse_text(user, "t").normalized(),
+                                  "tree": "wallace"})
+    written = config_edit.rewrite(user, chosen)
+    assert sorted(written.splitlines()) == sorted([*user.splitlines(), "tree: wallace"])
+    assert config.parse_text(written, "t") == chosen
+
+
 def test_a_flow_mapping_is_written_whole():
     user = "{name: src_acc, width: 24, cell: native}\n"
     chosen = chosen_from(user, dict(slices=[12, 12]))

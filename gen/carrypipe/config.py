@@ -579,15 +579,45 @@ for _tag, _pattern, _first in (
 _StrictLoader.add_constructor("tag:yaml.org,2002:int", _StrictLoader.construct_yaml_int)
 
 
-def parse_text(text: str, where: str) -> Config:
-    """Parse YAML text into a validated `Config`.
+def untabbed(text: str) -> str:
+    """`text` with the tabs that separate read as spaces: a run of blanks after `:`, `,`,
+    `[`, `{` or `-`, or before a comment or the end of the line, outside quotes, and a blank
+    line. YAML 1.2 takes tabs as separators there, but PyYAML's scanner stops on them ("found
+    character '\\t' that cannot start any token"). Tabs in the indentation (YAML refuses
+    them), inside quotes or inside a value stay as written. Every line keeps its length, so
+    marks on the result point into `text` too."""
+    lines = text.split("\n")
+    for n, line in enumerate(lines):
+        if "\t" not in line:
+            continue
+        body = line.lstrip(" \t")
+        lead = len(line) - len(body)
+        if not body:
+            lines[n] = line.replace("\t", " ")
+            continue
+        chars, quote, k = list(line), None, lead
+        while k < len(chars):
+            ch = chars[k]
+            if quote:
+                quote = None if ch == quote else quote
+            elif ch in "'\"":
+                quote = ch
+            elif ch in " \t":
+                end = k
+                while end < len(chars) and chars[end] in " \t":
+                    end += 1
+                if chars[k - 1] in ":,[{-" or end == len(chars) or chars[end] in "#\r":
+                    chars[k:end] = " " * (end - k)
+                k = end
+                continue
+            k += 1
+        lines[n] = "".join(chars)
+    return "\n".join(lines)
 
-    Tabs between a value and the end of its line or a comment are read as spaces first: YAML
-    takes them as separators there, but PyYAML's scanner stops on them ("found character
-    '\\t' that cannot start any token"). Tabs elsewhere stay as written (in the indentation
-    YAML refuses them)."""
-    text = re.sub(r"(?<=\S)[ \t]*\t[ \t]*(?=#|\r?$)", lambda m: " " * len(m.group()), text,
-                  flags=re.M)
+
+def parse_text(text: str, where: str) -> Config:
+    """Parse YAML text (`untabbed`) into a validated `Config`."""
+    text = untabbed(text)
     try:
         data = yaml.load(text, Loader=_StrictLoader)  # noqa: S506 - safe loader subclass
     except yaml.YAMLError as exc:

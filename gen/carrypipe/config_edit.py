@@ -61,7 +61,7 @@ def wanted(text_keys: dict, chosen: Config) -> dict:
         return {k: v for k, v in out.items() if v is None or text_keys.get(k, object()) != v}
     want("pipeline", mode, mode != KEYS["pipeline"][1])
     want("cell", chosen.cell, chosen.cell != KEYS["cell"][1])
-    if mode == "slices":
+    if mode == "slices" and chosen.slices:  # (a tree may leave no final adder to split)
         split = list(chosen.slices)
         k = split[0]
         span, what = config.split_span(chosen)
@@ -93,7 +93,7 @@ def _scalar(value) -> str:
 
 
 def _edit(text: str, chosen: Config) -> str:
-    root = yaml.compose(text, Loader=yaml.SafeLoader)
+    root = yaml.compose(config.untabbed(text), Loader=yaml.SafeLoader)
     if not isinstance(root, yaml.MappingNode) or root.flow_style:
         raise _NoLineEdit
     lines = text.splitlines(keepends=True)
