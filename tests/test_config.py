@@ -292,3 +292,17 @@ def test_the_largest_real_config_is_within_the_size_bound(write_config):
     text = "name: u\nwidth: 4096\nslices:\n" + "  - 1  # one bit\n" * 4096
     assert len(text.encode()) > 1 << 16
     assert load(write_config(text)).slices == (1,) * 4096
+
+
+@pytest.mark.parametrize("name", ["verilator_u", "Verilator", "VERILATORX", "synopsys",
+                                  "Synopsys_sum"])
+def test_names_that_verilator_reads_as_its_own_directive_are_refused(name):
+    # Verilator takes a comment beginning with `verilator` or `synopsys_` as a metacomment
+    # (a directive) and stops on one it does not know (seen with Verilator 5.006 here; its
+    # manual documents the metacomments, from memory); comment lines of the emitted files
+    # may begin with the name.
+    with pytest.raises(ConfigError, match=rf"key 'name': value '{name}' is not allowed; "
+                                          r"expected a name that does not start with "
+                                          r"verilator or synopsys"):
+        from_mapping({"name": name, "width": 8})
+    from_mapping({"name": "my_" + name, "width": 8})  # inside a name they do no harm

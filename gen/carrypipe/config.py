@@ -84,6 +84,10 @@ RESERVED_PREFIX = "carrypipe_"
 # and the Windows device names, which name no file there (nul.v is the null device).
 RESERVED_NAMES = frozenset(["carrypipe", "fit", "miter", "con", "prn", "aux", "nul",
                             *(f"{port}{i}" for port in ("com", "lpt") for i in range(10))])
+# A comment that begins with `verilator` or `synopsys_` is a directive to Verilator (a
+# metacomment), and Verilator stops on one it does not know; comment lines of the emitted
+# files may begin with the unit's name (a wrapped file list), so no name begins so.
+DIRECTIVE_PREFIXES = ("verilator", "synopsys")
 
 
 class ConfigError(ValueError):
@@ -152,8 +156,8 @@ REQUIRED = object()
 KEYS = {
     "name": ("a Verilog identifier (letters, digits, _; not starting with a digit; "
              f"at most {MAX_NAME} characters; not a Verilog or SystemVerilog keyword; not "
-             f"starting with {RESERVED_PREFIX}; not carrypipe, fit, miter, con, prn, aux, nul, "
-             "comN or lptN, in any case)", REQUIRED),
+             f"starting with {RESERVED_PREFIX}, verilator or synopsys; not carrypipe, fit, "
+             "miter, con, prn, aux, nul, comN or lptN, in any case)", REQUIRED),
     "unit": ("one of " + ", ".join(UNITS), "adder"),
     "width": (f"an integer from 1 to {MAX_WIDTH}", REQUIRED),
     "cell": ("one of " + ", ".join(CELLS), "native"),
@@ -258,6 +262,10 @@ def check_name(where: str, name) -> None:
     if name.lower().startswith(RESERVED_PREFIX):
         raise _fail(where, "name", name, f"a name that does not start with {RESERVED_PREFIX} "
                     "(in any case), which carrypipe keeps for its own modules")
+    if name.lower().startswith(DIRECTIVE_PREFIXES):
+        raise _fail(where, "name", name, "a name that does not start with verilator or "
+                    "synopsys (in any case): a comment line beginning so is a directive to "
+                    "Verilator")
     if name.lower() in RESERVED_NAMES:
         raise _fail(where, "name", name, "a name other than carrypipe, fit and miter (names of "
                     "carrypipe's own) and the Windows device names con, prn, aux, nul, com0-com9 "
