@@ -302,6 +302,9 @@ def report_manifest(p) -> str:
       "cell": "kogge-stone", "carry_increment": True}, r"key 'carry_increment': value true"),
     ({"unit": "multiplier", "width": 4, "width_b": 1, "pipeline": "levels",
       "cell": "kogge-stone", "levels_per_stage": True}, r"key 'levels_per_stage': value true"),
+    ({"unit": "multiplier", "width": 8, "width_b": 1, "pipeline": "levels", "cell": "ripple"},
+     r"key 'cell': value 'ripple' is not allowed with key 'pipeline' 'levels'; expected one of "
+     r"kogge-stone"),
     # A final-adder key in the wrong pipeline mode names the mode (the tree is not why).
     ({"unit": "multiplier", "width": 8, "levels_per_stage": 2},
      r"key 'levels_per_stage' is given with pipeline 'slices'; expected it only with pipeline "

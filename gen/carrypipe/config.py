@@ -194,6 +194,8 @@ MODE_KEYS = {
     "local_width": ("levels",),
     "carry_increment": ("levels",),
 }
+SPLIT_KEYS = ("slice_width", "slices")
+PREFIX_KEYS = tuple(k for k in MODE_KEYS if k not in SPLIT_KEYS)  # the prefix modes' keys
 
 
 def reads(key: str, unit: str, mode: str, tree: str = "dadda") -> bool:
@@ -340,7 +342,7 @@ def from_mapping(data, where: str = "config") -> Config:
         raise ConfigError(f"{where}: keys 'slice_width' and 'slices' are both given; "
                           "expected at most one of them")
     if span == 0:
-        _check_no_adder(where, unit, mode, tree, data)
+        _check_no_adder(where, values, data)
         split: tuple[int, ...] = ()
     elif "slices" in data:
         split = check_split(where, "slices", data["slices"], span, what)
@@ -360,24 +362,21 @@ def from_mapping(data, where: str = "config") -> Config:
     return Config(width=width, slices=split, **kept)
 
 
-# The final adder's keys with a range of their own; without a final adder only their
-# defaults are taken (a normalized config writes them).
-ADDER_RANGE_KEYS = ("levels_per_stage", "block_width", "local_width", "wire_registers",
-                    "carry_increment")
-
-
-def _check_no_adder(where: str, unit: str, mode: str, tree: str, data: dict) -> None:
+def _check_no_adder(where: str, values: dict, data: dict) -> None:
     """A counter tree that leaves at most one bit in every column has no final adder: a split
-    of it, or another value than the default for one of its keys, is refused."""
-    given = [k for k in ("slices", "slice_width") if k in data]
-    given += [k for k in ADDER_RANGE_KEYS if k in data and not (
+    of it, or a value other than the default for one of its prefix keys (a normalized config
+    writes the defaults), is refused; its cell must still suit its mode. Every key in `data`
+    is one the unit reads (checked before)."""
+    given = [k for k in SPLIT_KEYS if k in data]
+    given += [k for k in PREFIX_KEYS if k in data and not (
         type(data[k]) is type(KEYS[k][1]) and data[k] == KEYS[k][1])]
     for key in given:
-        if reads(key, unit, mode, tree):
-            split = " to split" if key in ("slices", "slice_width") else ""
-            raise ConfigError(f"{where}: key '{key}': value {_shown(data[key])} is not "
-                              "allowed; the tree leaves at most one bit in every column: "
-                              f"there is no final adder{split} (leave the key out)")
+        split = " to split" if key in SPLIT_KEYS else ""
+        raise ConfigError(f"{where}: key '{key}': value {_shown(data[key])} is not "
+                          "allowed; the tree leaves at most one bit in every column: "
+                          f"there is no final adder{split} (leave the key out)")
+    if values["pipeline"] != "slices":
+        _check_prefix_cell(where, values, data)
 
 
 def split_span(c: Config) -> tuple[int, str]:
@@ -476,11 +475,7 @@ def check_mode(where: str, values: dict, what: str = "width", given=()) -> None:
         raise _fail(where, "levels_per_stage", lps, KEYS["levels_per_stage"][0])
     if not reads("wire_registers", unit, mode):  # a comparator's tree: any cell style
         return
-    if values["cell"] not in PREFIX_CELLS:
-        default = "" if "cell" in given else " (the default)"
-        raise ConfigError(f"{where}: key 'cell': value {values['cell']!r}{default} is not "
-                          f"allowed with key 'pipeline' {mode!r}; expected one of "
-                          f"{', '.join(PREFIX_CELLS)}")
+    _check_prefix_cell(where, values, given)
     block = values["block_width"]
     if mode == "blocks" and (not _is_int(block) or not 1 <= block <= values["width"]):
         raise _fail(where, "block_width", block, f"an integer from 1 to {what} "
@@ -497,6 +492,15 @@ def check_mode(where: str, values: dict, what: str = "width", given=()) -> None:
     if not _is_int(wires) or not 0 <= wires <= depth:
         raise _fail(where, "wire_registers", wires,
                     f"an integer from 0 to the depth of the {values['cell']} network ({depth})")
+
+
+def _check_prefix_cell(where: str, values: dict, given=()) -> None:
+    """A prefix mode's cell is a prefix style (`given`: the keys the config wrote)."""
+    if values["cell"] not in PREFIX_CELLS:
+        default = "" if "cell" in given else " (the default)"
+        raise ConfigError(f"{where}: key 'cell': value {values['cell']!r}{default} is not "
+                          f"allowed with key 'pipeline' {values['pipeline']!r}; expected one "
+                          f"of {', '.join(PREFIX_CELLS)}")
 
 
 def _check_increment(where: str, values: dict, what: str = "width") -> None:

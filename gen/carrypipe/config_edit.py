@@ -14,10 +14,8 @@ from __future__ import annotations
 import yaml
 
 from . import config
-from .config import KEYS, MODE_KEYS, Config
+from .config import KEYS, PREFIX_KEYS, SPLIT_KEYS, Config
 
-SPLIT_KEYS = ("slice_width", "slices")
-PREFIX_KEYS = tuple(k for k in MODE_KEYS if k not in SPLIT_KEYS)  # the prefix modes' keys
 FIT_TREE_KEYS = ("tree", "tree_levels_per_stage", "native_stages")  # a sum's or multiplier's
 EDITED = ("pipeline", "cell", *SPLIT_KEYS, *PREFIX_KEYS, *FIT_TREE_KEYS)  # the keys `fit` chooses
 
