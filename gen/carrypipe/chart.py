@@ -173,7 +173,7 @@ def _(pos: positions.Bits, plan: PrefixPlan) -> tuple[str, str, str]:
                      "waiting for that carry")
     local = (f" (in local blocks of {c.local_width} bits first)"
              if prefix.has_local_blocks(c.local_width, plan.width) else "")
-    return terms, finished, f"a {c.cell} prefix network over {plan.width} bits{local}"
+    return terms, finished, f"a {c.cell} prefix network over {plural(plan.width, 'bit')}{local}"
 
 
 @_position_words.register

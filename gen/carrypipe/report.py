@@ -206,10 +206,11 @@ def _network(pos, plan: PrefixPlan) -> tuple[str, list[str]]:
     raise TypeError(f"no network lines for {type(pos).__name__}")
 
 
-def _network_line(head: str, what: str, plan: PrefixPlan, nodes: int) -> str:
+def _network_line(head: str, what: str, tail: str, plan: PrefixPlan, nodes: int) -> str:
+    """`<head> over <n> <what>s<tail>: <depth> levels, <nodes> nodes`."""
     sch = plan.schedule
-    return (f"{head} over {len(sch.widths)} {what}: {plural(sch.network.depth, 'level')}, "
-            f"{plural(nodes, 'node')}")
+    return (f"{head} over {plural(len(sch.widths), what)}{tail}: "
+            f"{plural(sch.network.depth, 'level')}, {plural(nodes, 'node')}")
 
 
 @_network.register
@@ -223,22 +224,22 @@ def _(pos: positions.Bits, plan: PrefixPlan) -> tuple[str, list[str]]:
                          "their sums for carry-in 0")
     if sch.merged:
         notes.append("          the last prefix level is merged into the sum stage")
-    return _network_line(f"Prefix network  {c.cell}", "bits", plan, sch.network.nodes), notes
+    return _network_line(f"Prefix network  {c.cell}", "bit", "", plan, sch.network.nodes), notes
 
 
 @_network.register
 def _(pos: positions.Blocks, plan: PrefixPlan) -> tuple[str, list[str]]:
     c, widths = plan.config, plan.schedule.widths
     top = f" (the top one {widths[-1]})" if widths[-1] != c.block_width else ""
-    return _network_line(f"Prefix network  {c.cell}",
-                         f"blocks of {plural(c.block_width, 'bit')}{top}", plan,
+    return _network_line(f"Prefix network  {c.cell}", "block",
+                         f" of {plural(c.block_width, 'bit')}{top}", plan,
                          plan.schedule.network.nodes), []
 
 
 @_network.register
 def _(pos: positions.Slices, plan: PrefixPlan) -> tuple[str, list[str]]:
     # What is left of the network is the stages' kept nodes.
-    line = _network_line("Verdict tree    a balanced tree", "slices (compared in parallel)",
+    line = _network_line("Verdict tree    a balanced tree", "slice", " (compared in parallel)",
                          plan, sum(s.nodes for s in plan.stages))
     merged = ["          the last tree level is merged into the verdict stage"]
     return line, merged if plan.schedule.merged else []

@@ -221,8 +221,8 @@ class NativePlan(Plan):
         return carrysave.build_native(self)
 
     def structure(self) -> str:
-        return (f"`{self.unit.operator}` left to synthesis, then {len(self.stages)} register "
-                "rank(s) for the tools to retime into")
+        return (f"`{self.unit.operator}` left to synthesis, then "
+                f"{plural(len(self.stages), 'register rank')} for the tools to retime into")
 
     def layout(self) -> str:
         return "Stages: " + "; ".join(f"{s.index}: {s.logic}" for s in self.stages)

@@ -40,6 +40,7 @@ from __future__ import annotations
 import json
 
 from .compose import Cut, Outcome, Wiring, first_failing_part
+from .header import plural
 from .miter import chained
 from .reduction import Dot, Tree
 from .solver import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
@@ -279,9 +280,9 @@ def prove_tree(plan, net: dict, module: str, timeout: Deadline) -> Outcome:
     stages = tree.stages
     last = ("the final adder proved on the cut rows" if plan.adder
             else "the result (no final adder: one bit a column) proved on the cut rows")
-    method = (f"compositional: the tree's arithmetic checked exactly, each of {stages} "
-              "tree stage(s) proved register by register against the plan with every "
-              f"flip-flop cut, {last} (Yosys sat)")
+    method = (f"compositional: the tree's arithmetic checked exactly, each of "
+              f"{plural(stages, 'tree stage')} proved register by register against the plan "
+              f"with every flip-flop cut, {last} (Yosys sat)")
     problem = arithmetic(tree)
     if problem:
         return Outcome(method, f"the plan's tree: {problem}")
@@ -305,7 +306,7 @@ def prove_tree(plan, net: dict, module: str, timeout: Deadline) -> Outcome:
     log, _ = run_yosys("\n".join(script) + "\n", adder_files(plan, wiring), timeout)
     if FAILED in log:
         return Outcome(method, "the final adder: the result is not the sum of the rows "
-                               f"{lat} cycle(s) before (last rank cut)")
+                               f"{plural(lat, 'cycle')} before (last rank cut)")
     if PROVED not in log:
         raise no_verdict(timeout)
     return Outcome(method, None)

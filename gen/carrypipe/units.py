@@ -18,6 +18,7 @@ from dataclasses import dataclass
 
 from . import cells, prefix, reduction
 from . import dots as dm
+from .header import plural
 from .miter import chained, signed_overflow
 from .netlist import Cmp, Const, Expr, Mux, Rep, bit, cat, part
 
@@ -730,7 +731,7 @@ class Sum(CarrySave):
         return dm.sum_matrix(operands, width, signed)
 
     def tree_phrase(self, c):
-        return f"{c.operands} operands of {c.width} bits"
+        return f"{c.operands} operands of {plural(c.width, 'bit')}"
 
     def phrase(self, c):
         how = "signed " if c.signed else ""
