@@ -236,6 +236,7 @@ def test_the_corpus_covers_every_class():
     root = Path(__file__).parent.parent
     for doc in ("README.md", "docs/verification.md"):
         assert f"{len(BAD):,} bad configs" in (root / doc).read_text(), doc
+    assert f"All {len(BAD):,} configs" in (root / "README.md").read_text()
     labels = " ".join(what for what, _ in BAD)
     for part in ("YAML 1.1", "huge", "[ x 100000", "- x 350", "anchor", "alias", "merge",
                  "tag", "reserved name carrypipe_miter", "junk", "mix"):

@@ -437,7 +437,7 @@ def test_last_resort_finds_a_kind_the_model_put_low(monkeypatch, tmp_path):
     assert out.chosen is not None and out.chosen.label == hidden.label
     # The progress line's "up to N more" counts the last resort's runs too.
     steps = [tuple(map(int, m.groups())) for m in
-             (re.match(r"\[(\d+) run, up to (\d+) more\]", x) for x in lines) if m]
+             (re.match(r"\[(\d+) runs? done, up to (\d+) more\]", x) for x in lines) if m]
     assert len(steps) > 1 and all(done + left >= len(steps) for done, left in steps)
     assert fit.record(out.chosen, out)["note"].startswith("run as the last resort; ")
     monkeypatch.setattr(candidates, "last_resort", lambda *a: [])

@@ -92,7 +92,7 @@ class Progress:
         self.done += 1
         self.spent += seconds
         eta = self.spent / self.done * left
-        self.echo(f"[{self.done} run, up to {left} more] {label}: "
+        self.echo(f"[{plural(self.done, 'run')} done, up to {left} more] {label}: "
                   f"elapsed {_clock(time.monotonic() - self.start)}, ETA at most {_clock(eta)}")
 
 
