@@ -370,7 +370,8 @@ def _check_no_adder(where: str, values: dict, data: dict) -> None:
     given = [k for k in SPLIT_KEYS if k in data]
     given += [k for k in PREFIX_KEYS if k in data and not (
         type(data[k]) is type(KEYS[k][1]) and data[k] == KEYS[k][1])]
-    for key in given:
+    if given:
+        key = given[0]
         split = " to split" if key in SPLIT_KEYS else ""
         raise ConfigError(f"{where}: key '{key}': value {_shown(data[key])} is not "
                           "allowed; the tree leaves at most one bit in every column: "

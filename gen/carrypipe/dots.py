@@ -167,8 +167,8 @@ def booth_matrix(m: int, n: int, signed: bool) -> Matrix:
     """a * b with b recoded in radix 4: row k is digit k times a, a signed number of
     m + 1 bits (signed a) or m + 2 bits (unsigned a, whose doubled value needs one more);
     m bits for a digit that is never ±2 (`booth_single`), whose selection's top two bits
-    are equal (from m = 2: a one-bit a's only selection bit is the row's low bit). Bits that are the same for every input (past the tops of unsigned operands)
-    join K."""
+    are equal (from m = 2: a one-bit a's only selection bit is the row's low bit). Bits
+    that are the same for every input (past the tops of unsigned operands) join K."""
     width = m + n
     rows = booth_rows(n, signed)
     leaves, constant, shape = [], 0, []

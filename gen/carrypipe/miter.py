@@ -12,7 +12,8 @@ Wide sums are written as a ripple of adders of at most `CHUNK` bits (the carry o
 is the carry into the next: the schoolbook decomposition of an addition, common practice).
 A single wide `+` would be just as right, but Yosys's SAT front end turns a W-bit add into
 one expression nested about 3W deep, and the WebAssembly build runs out of call stack on it
-from about 950 bits (940 proved, 960 did not); each chunk's result is a fresh variable, so the nesting stays bounded.
+from about 950 bits (940 proved, 960 did not); each chunk's result is a fresh variable, so
+the nesting stays bounded.
 """
 
 from __future__ import annotations

@@ -230,5 +230,6 @@ def _legend(out, plan, y) -> float:
     out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
     out.text(MARGIN + 140, y + 10, thousands(regs['total']), size=11,
              anchor="end", weight="bold", data_role="total")
-    out.text(MARGIN + 150, y + 10, f"register bits; latency {plural(plan.latency, 'cycle')}", size=11)
+    out.text(MARGIN + 150, y + 10, f"register bits; latency {plural(plan.latency, 'cycle')}",
+             size=11)
     return y + 40
