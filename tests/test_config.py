@@ -171,8 +171,8 @@ def test_yaml_1_1_numbers_are_refused_as_written(text):
         assert not isinstance(yaml.safe_load(f"v: {text}")["v"], str)  # what YAML 1.1 reads
     with pytest.raises(ConfigError) as info:
         parse_text(f"name: u\nwidth: {text}\n", "u.yaml")
-    assert str(info.value) == (f"u.yaml: key 'width': value {text!r} is not allowed; expected an "
-                               "integer from 1 to 4096, written in plain decimal digits")
+    assert str(info.value) == (f"u.yaml: key 'width': {shown(text)}; expected an integer "
+                               "from 1 to 4096" + ", written in plain decimal digits" * bool(text))
 
 
 @pytest.mark.parametrize("text", BOOL_LOOKALIKES)
@@ -180,7 +180,23 @@ def test_yaml_1_1_booleans_are_refused_as_written(text):
     assert not isinstance(yaml.safe_load(f"v: {text}")["v"], str)  # what YAML 1.1 reads
     with pytest.raises(ConfigError) as info:
         parse_text(f"name: u\nwidth: 8\nvalid: {text}\n", "u.yaml")
-    assert str(info.value) == f"u.yaml: key 'valid': value {text!r} is not allowed; expected true or false"
+    assert str(info.value) == f"u.yaml: key 'valid': {shown(text)}; expected true or false"
+
+
+def shown(text: str) -> str:
+    """How a refusal names a value YAML 1.1 reads as a number, a boolean or null: an empty
+    one (`width:` with nothing after it, null in YAML 1.1) is no value, the rest as written."""
+    return f"value {text!r} is not allowed" if text else "no value is given"
+
+
+def test_an_empty_value_is_named_so():
+    """`width:` with nothing after it is not "value ''", and no digits hint follows."""
+    with pytest.raises(ConfigError) as info:
+        parse_text("name: u\nwidth:\ncell: ripple\n", "u.yaml")
+    assert str(info.value) == "u.yaml: key 'width': no value is given; expected an integer from 1 to 4096"
+    with pytest.raises(ConfigError) as info:
+        parse_text("name: u\nwidth: 8\ncell: ''\n", "u.yaml")
+    assert str(info.value).startswith("u.yaml: key 'cell': no value is given; expected one of ripple,")
 
 
 @pytest.mark.parametrize("text, shown", [("[true, 7]", "[true, 7]"), ("{a: null}", "{'a': null}"),
