@@ -131,3 +131,17 @@ def test_a_signed_booth_digit_that_is_never_two_gets_a_shorter_row(width, width_
     assert flip_flop_bits(text, tmp_path, "synth -flatten") == p.registers.total
     top = (width_b - 1) // 2
     assert f"booth_two[{top}]" not in text  # the constant 0 is not written out
+
+
+@pytest.mark.parametrize("keys", [
+    {"unit": unit, "width": w, "block_width": bw, "carry_in": cin, "cell": cell}
+    for unit, cin in (("adder", False), ("adder", True), ("subtractor", False),
+                      ("subtractor", True), ("addsub", False))
+    for w, bw, cell in ((5, 4, "sklansky"), (9, 4, "kogge-stone"), (3, 1, "brent-kung"))])
+def test_a_signed_one_bit_top_block_keeps_no_overflow_copy(keys, tmp_path):
+    """A 1-bit top block overflows for carry-in 0 exactly when it carries out (the carry into
+    its bit is 0, the overflow is that XOR the carry out: common practice), so its block
+    carry serves as that overflow bit: full synthesis (equal flip-flops merged) finds no
+    register to drop."""
+    p = make(signed=True, pipeline="blocks", **keys)
+    assert flip_flop_bits(emit.unit_verilog(p), tmp_path, "synth -flatten") == p.registers.total

@@ -95,8 +95,9 @@ class Results(Positions):
     """Positions that form result bits (an adder's, not a comparator's verdicts)."""
 
     @abstractmethod
-    def overflow(self, b, g, has_cin: bool) -> int:
-        """The signed-overflow term, from the group generates `g` once the network is done."""
+    def overflow(self, b, leaves: Leaves, g, has_cin: bool) -> int:
+        """The signed-overflow term, from stage 1's `leaves` and the group generates `g` once
+        the network is done."""
 
 
 class Chains(Positions):
@@ -163,7 +164,7 @@ class Bits(Results):
         leaves.sums[q] = b.term("sum", q, "sum", (leaves.own[q], carry), b.after(carry),
                                 lsb=q)
 
-    def overflow(self, b, g, has_cin: bool) -> int:
+    def overflow(self, b, leaves, g, has_cin: bool) -> int:
         """The carry into the top bit XOR the carry out of it (for a borrow chain, the
         borrows: common practice), formed once both are final."""
         top = len(g) - 1
@@ -203,10 +204,15 @@ class Blocks(Results, Chains):
         leaves.sums[q] = b.term("sum", q, "select", (leaves.own[q], leaves.alt[q], carry),
                                 b.after(carry), b.widths[q], b.lsbs[q])
 
-    def overflow(self, b, g, has_cin: bool) -> int:
-        """The top block's two chains give an overflow bit each, selected like its sum."""
+    def overflow(self, b, leaves, g, has_cin: bool) -> int:
+        """The top block's two chains give an overflow bit each, selected like its sum.  A
+        1-bit top block (not block 0, whose chain takes the unit's carry-in) overflows for
+        carry-in 0 exactly when it carries out, so its carry is that overflow bit."""
         top = len(g) - 1
-        v0 = b.term("blk_v0", top, "chain0_ovf", (), 1, 1, b.lsbs[top])
+        if top > 0 and b.widths[top] == 1:
+            v0 = leaves.g[top]
+        else:
+            v0 = b.term("blk_v0", top, "chain0_ovf", (), 1, 1, b.lsbs[top])
         if top == 0:
             return v0
         v1 = b.term("blk_v1", top, "chain1_ovf", (), 1, 1, b.lsbs[top])

@@ -328,7 +328,7 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
                 cout = term("cout", count - 1, "not", (cout,), terms[cout].stage)
             outputs["chain"] = cout
         if config.signed:
-            outputs["overflow"] = pos.overflow(b, g, has_cin)
+            outputs["overflow"] = pos.overflow(b, leaves, g, has_cin)
     else:
         top_lt, top_le = g[-1], p[-1]
         outputs["lt"] = term("lt", count - 1, "lt", (top_lt,), final)
