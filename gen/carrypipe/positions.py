@@ -206,8 +206,8 @@ class Blocks(Results, Chains):
 
     def overflow(self, b, leaves, g, has_cin: bool) -> int:
         """The top block's two chains give an overflow bit each, selected like its sum.  A
-        1-bit top block (not block 0, whose chain takes the unit's carry-in) overflows for
-        carry-in 0 exactly when it carries out, so its carry is that overflow bit."""
+        1-bit top block above block 0 overflows for carry-in 0 exactly when it carries out, so
+        its carry is that overflow bit."""
         top = len(g) - 1
         if top > 0 and b.widths[top] == 1:
             v0 = leaves.g[top]
