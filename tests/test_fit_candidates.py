@@ -93,14 +93,14 @@ def test_distinct_circuits_by_published_structure():
     assert "brent-kung 16x1" in labels(rows)  # 16-bit networks differ
 
 
-def partitions(keys):
-    """Candidates grouped by the emitted Verilog (header comment, which quotes the config,
-    left out) and by the circuit key."""
+def partitions(keys, width=8):
+    """Candidates grouped by the emitted Verilog (comments, which quote the config and name
+    the tree's style, left out) and by the circuit key."""
     by_text, by_key = {}, {}
-    for cfg in candidates.generate(base(width=8, **keys), config.CELLS):
+    for cfg in candidates.generate(base(width=width, **keys), config.CELLS):
         plan = make_plan(cfg)
-        body = "".join(line for line in emit.unit_verilog(plan).splitlines(True)
-                       if not line.startswith("//"))
+        code = (line.partition("//")[0].rstrip() for line in emit.unit_verilog(plan).splitlines())
+        body = "\n".join(line for line in code if line)
         label = Row(plan).label
         by_text.setdefault(body, set()).add(label)
         by_key.setdefault(candidates.circuit(plan), set()).add(label)
@@ -327,3 +327,14 @@ def test_a_trees_circuit_key_reads_its_final_adder(keys):
         assert any(set(group) <= set(same) for same in by_text), group
     pair = {"dadda/1 + han-carlson blocks of 8", "dadda/1 + kogge-stone blocks of 8"}
     assert any(pair <= set(group) for group in by_key)
+
+
+def test_trees_that_build_the_same_counters_are_one_circuit():
+    # A 3-operand sum has one counter level: Dadda and Wallace place the same counters, and
+    # one or two levels per stage the same rank, so the four trees are one circuit (they
+    # were placed and routed four times). Checked against the emitted Verilog, comments
+    # aside: the key groups exactly what the text groups.
+    by_text, by_key = partitions(dict(unit="sum", operands=3), width=4)
+    assert by_text == by_key
+    assert {"dadda/1 + native 5x1", "dadda/2 + native 5x1", "wallace/1 + native 5x1",
+            "wallace/2 + native 5x1"} in map(set, by_key)

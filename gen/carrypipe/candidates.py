@@ -22,7 +22,7 @@ from __future__ import annotations
 import json
 import statistics
 from functools import singledispatch
-from dataclasses import dataclass, field
+from dataclasses import asdict, dataclass, field
 
 from . import config, harness, units
 from .config import Config
@@ -170,6 +170,7 @@ def generate(base: Config, cells: tuple[str, ...] | None = None,
 
 # Config keys that describe the structure; `circuit` reads the structure from the plan.
 STRUCTURE_KEYS = ("name", "cell", "pipeline", "slices", *config.MODE_KEYS)
+TREE_KEYS = ("tree", "tree_levels_per_stage")  # a counter tree's: read from its plan too
 
 
 def circuit(plan: Plan) -> str:
@@ -193,14 +194,21 @@ def _circuit(plan: Plan):
 
 
 def _options(plan: Plan) -> dict:
-    return {k: v for k, v in plan.config.normalized().items() if k not in STRUCTURE_KEYS}
+    """The config's keys but the structure's (a final adder's config repeats its tree's)."""
+    return {k: v for k, v in plan.config.normalized().items()
+            if k not in STRUCTURE_KEYS and k not in TREE_KEYS}
 
 
 @_circuit.register
 def _(plan: TreePlan):
-    """The tree as configured, then its final adder's circuit (two prefix styles whose
-    networks coincide over the final adder's blocks give one key)."""
-    return [_options(plan), None if plan.adder is None else _circuit(plan.adder)]
+    """The tree as built, then its final adder's circuit: every value (operand bits or
+    partial products, counter outputs, registers with their stage) and every counter, not
+    the style or the levels per stage that placed them, so Dadda and Wallace, or one and two
+    levels per stage, give one key where they build the same tree (a 3-operand sum's one
+    level); two prefix styles whose networks coincide over the final adder's blocks do too."""
+    tree = plan.tree
+    return [_options(plan), [asdict(v) for v in tree.values], [asdict(c) for c in tree.counters],
+            tree.flip_carry, None if plan.adder is None else _circuit(plan.adder)]
 
 
 @_circuit.register
