@@ -36,6 +36,9 @@ JUST_MISSED = 0.10  # a measured miss this close to the target gets uneven varia
 # A candidate whose every seed failed in the tools (nextpnr-machxo2 fails to route the global
 # clock for some placements, about a third of seed-1 runs) gets up to this many more seeds.
 RETRY_SEEDS = 2
+# While no run has given a figure, a candidate whose every seed failed makes way for the next
+# best prediction, up to this many times (then `fit` says no candidate could be measured).
+RETRY_CANDIDATES = 2
 SEED_SPREAD = 0.05
 """How far nextpnr's placements of one design differ from seed to seed, about (measured:
 ±5-6 % over seeds 1-9 for the 64- and 256-bit units in docs/modes.md)."""
@@ -488,7 +491,7 @@ def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN
     of the ones without, each kind sends its middle candidate (by the rule's order), which
     halves what is left of that kind whether it meets or misses.  With no promising
     candidate left and nothing measured, the best `size` predictions are measured so the
-    table can show how far off the target is.
+    table can show how far off the target is (`first_look`).
     """
     factors = scale(rows)
     chosen = select(rows, target)
@@ -501,8 +504,8 @@ def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN
         todo = last_resort(rows, target, factors, margin)
         for r in sorted(todo, key=rank)[:max(size, 1)]:
             r.hopeful = True
-    if not todo and not any(r.measured for r in rows):
-        todo = sorted(open_rows, key=lambda r: -(r.predicted or 0))[:max(size, 1)]
+    if not todo:
+        todo = first_look(rows, size)
     blind: dict[tuple, list[Row]] = {}
     for r in sorted(todo, key=rank):
         if r.predicted is None and not r.forced and r is not chosen:
@@ -511,6 +514,18 @@ def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN
     todo = [r for r in todo if r.predicted is not None or r.forced or r is chosen
             or id(r) in probes]
     return sorted(todo, key=rank)[:max(size, 1)]
+
+
+def first_look(rows: list[Row], size: int) -> list[Row]:
+    """While no run has given a figure: the best `size` predictions, so the table can show
+    how far off the target is.  A candidate whose every seed failed in the tools (or timed
+    out, or did not fit) makes way for the next best, up to RETRY_CANDIDATES times: one
+    placement problem (nextpnr-machxo2's clock routing) should not end the search."""
+    if any(r.ok for r in rows) or sum(bool(r.measured) and r.done for r in rows) \
+            > RETRY_CANDIDATES:
+        return []
+    best_first = sorted((r for r in rows if not r.done), key=lambda r: -(r.predicted or 0))
+    return best_first[:max(size, 1)]
 
 
 def why_not_run(row: Row, rows: list[Row], target: float, factors: dict[tuple, float],

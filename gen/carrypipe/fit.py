@@ -150,7 +150,8 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                 row.measured.append(m)
                 store.put(keys[id(row), m.seed], m)
             progress.step(row.label, sum(m.seconds for m in results),
-                          left + _queued(rows, target, margin, settings.confirm_seeds))
+                          left + _queued(rows, target, margin, settings.confirm_seeds,
+                                                 executor.jobs))
         for row in batch:
             row.measured.sort(key=lambda m: m.seed)
             full = [m for m in row.measured if m.status == "no-fit"]
@@ -217,16 +218,18 @@ def environment_failure(outcome: Outcome) -> str | None:
             f"{measured[0].message}")
 
 
-def _queued(rows: list[Row], target: float, margin: float, confirm: int) -> int:
+def _queued(rows: list[Row], target: float, margin: float, confirm: int, size: int) -> int:
     """Candidates that may still be run: the promising ones, the choice when it is still to
-    be confirmed on more seeds and, while none meets the target, the last resort's (so "up
-    to N more" is not an undercount)."""
+    be confirmed on more seeds and, while none meets the target, the last resort's and, while
+    nothing has given a figure, the best predictions' (so "up to N more" is not an
+    undercount)."""
     factors = candidates.scale(rows)
     todo = {id(r) for r in rows if not r.done
             and candidates.promising(r, target, factors, rows, margin)}
     chosen = candidates.select(rows, target)
     if chosen is None:
         todo |= {id(r) for r in candidates.last_resort(rows, target, factors, margin)}
+        todo |= {id(r) for r in candidates.first_look(rows, size)}
     elif candidates.to_confirm(chosen, target, confirm):
         todo.add(id(chosen))
     return len(todo)
