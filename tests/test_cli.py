@@ -136,6 +136,29 @@ def test_command_line_mistakes_are_one_line(write_config, tmp_path, args, messag
         assert lines[0].endswith(" --help')")  # click's own checks point to the help
 
 
+@pytest.mark.parametrize("command, name, what", [
+    ("plan", "CONFIG", "a config file"), ("build", "CONFIG", "a config file"),
+    ("check", "CONFIG", "a config file"), ("fit", "CONFIG", "a config file"),
+    ("prove", "TARGET", "a config file or a build folder")])
+def test_an_empty_path_names_nothing(command, name, what):
+    # '' would read as the current folder (prove took it for a build folder) or as a file
+    # named '' ("error: : cannot read config").
+    extra = ["--target-mhz", "100"] if command == "fit" else []
+    r = run(command, "", *extra)
+    assert r.exit_code == 2
+    assert r.output == f"carrypipe: error: {name}: value '' is not allowed; expected {what}\n"
+
+
+def test_prove_reads_its_target_itself(write_config, monkeypatch):
+    # Every command reads a config the same way (one message for an unreadable one, e.g.
+    # "u.yaml: cannot read config: Permission denied"); prove's argument was checked by
+    # click first ("Invalid value for 'TARGET': Path ... is not readable").
+    cfg = write_config("name: u\nwidth: 0\n")
+    monkeypatch.setattr(os, "access", lambda *args, **kwargs: False)
+    r = run("prove", cfg)
+    assert r.exit_code == 2 and "key 'width': value 0 is not allowed" in r.output
+
+
 def test_missing_config_file(tmp_path):
     r = run("build", tmp_path / "nope.yaml")
     # The path as given: the file name alone would not say which folder was looked in.

@@ -322,3 +322,13 @@ def test_names_that_verilator_reads_as_its_own_directive_are_refused(name):
                                           r"verilator or synopsys"):
         from_mapping({"name": name, "width": 8})
     from_mapping({"name": "my_" + name, "width": 8})  # inside a name they do no harm
+
+
+def test_a_no_break_space_is_named():
+    # YAML does not read U+00A0 (text copied from a web page) as a space: `width:\u00a08` is
+    # one word, a key without its `:`, and PyYAML points past the end of the file.
+    with pytest.raises(ConfigError) as info:
+        parse_text("name: u\nwidth:\u00a08\n", "u.yaml")
+    assert str(info.value) == ("u.yaml: not valid YAML at line 3, column 1: could not find "
+                               "expected ':' (line 2, column 7 holds a no-break space, U+00A0, "
+                               "which YAML does not read as a space)")

@@ -270,8 +270,18 @@ def _seed(ctx, param, value):
     return _option_number("--seed", value, int, -1, "an integer of 0 or more")
 
 
+def _given(what: str):
+    """A path argument's check: an empty one names nothing (and '' would read as '.')."""
+    def check(ctx, param, value):
+        if value == "":
+            raise UserError(f"{param.human_readable_name}: value '' is not allowed; "
+                            f"expected {what}")
+        return value
+    return check
+
+
 # The config is read (and a folder, FIFO or device refused) by `config.read_text`.
-config_arg = click.argument("config", type=str)
+config_arg = click.argument("config", type=str, callback=_given("a config file"))
 vectors_opt = click.option("--vectors", default=str(emit.DEFAULT_VECTORS), show_default=True,
                            metavar="N", callback=_vectors,
                            help="Vectors in all: the directed corner cases (all of them, even when "
@@ -358,7 +368,7 @@ def plan_cmd(config, slice_width, slices, chart_path):
 # ---- prove (formal check of the emitted Verilog; see docs/verification.md) ----
 
 @main.command()
-@click.argument("target", type=click.Path())
+@click.argument("target", type=str, callback=_given("a config file or a build folder"))
 @click.option("--depth", metavar="N",
               help=f"Cycles to unroll: an integer above the unit's latency, at most "
                    f"{MAX_DEPTH}; results are compared from cycle latency+1 up to this one "

@@ -630,6 +630,19 @@ def untabbed(text: str) -> str:
     return "\n".join(lines)
 
 
+def _no_break(text: str) -> str:
+    """Where YAML fails on a no-break space (U+00A0, as text copied from a web page brings),
+    a hint naming its first place: YAML does not read it as a space, so `width:\u00a08` is
+    one word, a key without its `:`, and the error would point elsewhere."""
+    at = text.find("\u00a0")
+    if at < 0:
+        return ""
+    line = text.count("\n", 0, at)
+    column = at - (text.rfind("\n", 0, at) + 1)
+    return (f" (line {line + 1}, column {column + 1} holds a no-break space, U+00A0, which "
+            "YAML does not read as a space)")
+
+
 def parse_text(text: str, where: str) -> Config:
     """Parse YAML text (`untabbed`) into a validated `Config`."""
     text = untabbed(text)
@@ -639,7 +652,7 @@ def parse_text(text: str, where: str) -> Config:
         mark = getattr(exc, "problem_mark", None)
         at = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
         problem = getattr(exc, "problem", None) or "invalid YAML"
-        raise ConfigError(f"{where}: not valid YAML{at}: {problem}") from None
+        raise ConfigError(f"{where}: not valid YAML{at}: {problem}{_no_break(text)}") from None
     return from_mapping(data, where)
 
 
