@@ -193,10 +193,12 @@ def test_an_empty_value_is_named_so():
     """`width:` with nothing after it is not "value ''", and no digits hint follows."""
     with pytest.raises(ConfigError) as info:
         parse_text("name: u\nwidth:\ncell: ripple\n", "u.yaml")
-    assert str(info.value) == "u.yaml: key 'width': no value is given; expected an integer from 1 to 4096"
+    assert str(info.value) == ("u.yaml: key 'width': no value is given; expected an integer "
+                               "from 1 to 4096")
     with pytest.raises(ConfigError) as info:
         parse_text("name: u\nwidth: 8\ncell: ''\n", "u.yaml")
-    assert str(info.value).startswith("u.yaml: key 'cell': no value is given; expected one of ripple,")
+    assert str(info.value).startswith("u.yaml: key 'cell': no value is given; expected one "
+                                      "of ripple,")
 
 
 @pytest.mark.parametrize("text, shown", [("[true, 7]", "[true, 7]"), ("{a: null}", "{'a': null}"),
@@ -332,3 +334,6 @@ def test_a_no_break_space_is_named():
     assert str(info.value) == ("u.yaml: not valid YAML at line 3, column 1: could not find "
                                "expected ':' (line 2, column 7 holds a no-break space, U+00A0, "
                                "which YAML does not read as a space)")
+    with pytest.raises(ConfigError) as info:  # one in a quoted name, an error elsewhere
+        parse_text('name: "u\u00a0v"\nwidth: [8\n', "u.yaml")
+    assert "no-break" not in str(info.value)

@@ -137,6 +137,37 @@ def test_a_lone_row_spreads_its_seeds_over_the_workers(monkeypatch, tmp_path):
     assert fit.split_seeds((4,), 2) == [(4,)]
 
 
+@pytest.mark.parametrize("status, jobs, runs", [
+    ("error", 1, 3), ("error", 2, 6), ("timeout", 1, 1), ("timeout", 2, 2), ("no-fit", 2, 2)])
+def test_when_no_run_gives_a_figure(monkeypatch, tmp_path, status, jobs, runs):
+    # At a target no candidate is promising for, the best predictions are measured; a seed
+    # that fails in the tools is followed by the next, up to RETRY_SEEDS more, and no other
+    # candidate is tried (a broken tool costs 3 runs a worker, not the whole search). The
+    # progress line's "up to N more" never promises fewer runs than follow.
+    calls = []
+
+    def fails(job):
+        calls.append(job)
+        return [Measurement(s, status, message="ERROR: failed to route", seconds=0.0)
+                for s in job.seeds]
+    monkeypatch.setattr(toolflow, "measure", fails)
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path))
+    lines: list[str] = []
+
+    class Workers(Inline):
+        def __init__(self):
+            executor.Local.__init__(self, jobs)
+    out = fit.run(BASE, settings(2000), Workers(), echo=lines.append)
+    assert sum(len(j.seeds) for j in calls) == runs
+    assert len({json.dumps(j.config, sort_keys=True) for j in calls}) == jobs
+    promised = [int(m[1]) for m in map(re.compile(r"up to (\d+) more").search, lines) if m]
+    assert len(promised) == runs
+    assert all(left >= runs - done for done, left in enumerate(promised, 1))
+    # The tools failed every time: `fit` exits 3; a unit too large for the device is the
+    # design's answer (exit 1).
+    assert bool(fit.environment_failure(out)) == (status != "no-fit")
+
+
 def test_second_run_comes_from_the_cache(counted, tmp_path):
     first = fit.run(BASE, settings(250, seeds=3), executor.Local(1))
     ran = len(counted)

@@ -181,21 +181,19 @@ def test_next_batch_measures_the_best_predictions_when_none_is_promising():
     assert candidates.next_batch(rows, 500, 1) == []
 
 
-def test_a_best_prediction_that_fails_in_the_tools_makes_way_for_the_next():
-    # nextpnr-machxo2 fails to route the clock for some placements: the best prediction gets
-    # its retry seeds, then the next best is tried, up to RETRY_CANDIDATES times, so an
-    # unreachable target ends in "none meets" (exit 1) rather than in "no candidate could be
-    # measured" (exit 3) after one unlucky placement.
-    rows = [row([64], predicted=100), row([32, 32], predicted=120), row([16] * 4, predicted=110),
-            row([8] * 8, predicted=90), row([4] * 16, predicted=80)]
+def test_a_best_prediction_that_fails_in_the_tools_gets_its_retry_seeds():
+    # nextpnr-machxo2 fails to route the clock for some placements: while nothing has given a
+    # figure, the best prediction is tried on its next seeds (RETRY_SEEDS), so an unreachable
+    # target ends in "none meets" (exit 1) after a lucky seed, not in "no candidate could be
+    # measured" (exit 3) after one unlucky placement; no other candidate is tried.
+    rows = [row([64], predicted=100), row([32, 32], predicted=120), row([16] * 4, predicted=110)]
     order = []
     while batch := candidates.next_batch(rows, 500, 1):
         (r,) = batch
         seed = r.seeds_to_run()[0]
         order.append((r.latency, seed))
         r.measured.append(Measurement(seed, "error"))
-    assert order == [(2, 1), (2, 2), (2, 3), (4, 1), (4, 2), (4, 3), (1, 1), (1, 2), (1, 3)]
-    assert candidates.RETRY_CANDIDATES == 2
+    assert order == [(2, 1), (2, 2), (2, 3)]
     rows = [row([64], predicted=100), row([32, 32], predicted=120)]
     rows[1].measured = [Measurement(1, "error"), Measurement(2, "ok", mhz=125, luts=1)]
     assert candidates.next_batch(rows, 500, 1) == []  # a figure, and nothing promising

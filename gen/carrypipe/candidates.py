@@ -22,7 +22,7 @@ from __future__ import annotations
 import json
 import statistics
 from functools import singledispatch
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field
 
 from . import config, harness, units
 from .config import Config
@@ -36,9 +36,6 @@ JUST_MISSED = 0.10  # a measured miss this close to the target gets uneven varia
 # A candidate whose every seed failed in the tools (nextpnr-machxo2 fails to route the global
 # clock for some placements, about a third of seed-1 runs) gets up to this many more seeds.
 RETRY_SEEDS = 2
-# While no run has given a figure, a candidate whose every seed failed makes way for the next
-# best prediction, up to this many times (then `fit` says no candidate could be measured).
-RETRY_CANDIDATES = 2
 SEED_SPREAD = 0.05
 """How far nextpnr's placements of one design differ from seed to seed, about (measured:
 ±5-6 % over seeds 1-9 for the 64- and 256-bit units in docs/modes.md)."""
@@ -173,7 +170,8 @@ def generate(base: Config, cells: tuple[str, ...] | None = None,
 
 # Config keys that describe the structure; `circuit` reads the structure from the plan.
 STRUCTURE_KEYS = ("name", "cell", "pipeline", "slices", *config.MODE_KEYS)
-TREE_KEYS = ("tree", "tree_levels_per_stage")  # a counter tree's: read from its plan too
+# How a counter tree's counters were placed: the key reads the tree as built instead.
+TREE_STYLE_KEYS = ("tree", "tree_levels_per_stage")
 
 
 def circuit(plan: Plan) -> str:
@@ -185,7 +183,8 @@ def circuit(plan: Plan) -> str:
     that width give one key); for the prefix modes the pruned schedule, every kept term with
     what forms it, its stage and its last reader, numbered among the kept terms.  The cell
     style, the split and the mode keys themselves do not enter: `levels_per_stage: 2` and
-    `3` give one key when every stage holds the same levels.
+    `3` give one key when every stage holds the same levels; nor do a counter tree's style
+    and levels per stage (`TREE_STYLE_KEYS`), which the tree as built replaces.
     """
     return json.dumps(_circuit(plan), sort_keys=True)
 
@@ -197,9 +196,10 @@ def _circuit(plan: Plan):
 
 
 def _options(plan: Plan) -> dict:
-    """The config's keys but the structure's (a final adder's config repeats its tree's)."""
+    """The config's keys but those of the structure, which the key reads from the plan (a
+    final adder's config repeats its tree's keys too)."""
     return {k: v for k, v in plan.config.normalized().items()
-            if k not in STRUCTURE_KEYS and k not in TREE_KEYS}
+            if k not in STRUCTURE_KEYS and k not in TREE_STYLE_KEYS}
 
 
 @_circuit.register
@@ -209,9 +209,8 @@ def _(plan: TreePlan):
     the style or the levels per stage that placed them, so Dadda and Wallace, or one and two
     levels per stage, give one key where they build the same tree (a 3-operand sum's one
     level); two prefix styles whose networks coincide over the final adder's blocks do too."""
-    tree = plan.tree
-    return [_options(plan), [asdict(v) for v in tree.values], [asdict(c) for c in tree.counters],
-            tree.flip_carry, None if plan.adder is None else _circuit(plan.adder)]
+    return [_options(plan), plan.tree.digest,
+            None if plan.adder is None else _circuit(plan.adder)]
 
 
 @_circuit.register
@@ -326,6 +325,16 @@ class Row:
     @property
     def done(self) -> bool:
         return not self.fits or not self.seeds_to_run()
+
+    @property
+    def runs_left(self) -> int:
+        """Runs this row may still take once queued: one for its seeds, or while every seed
+        so far failed in the tools, one per retry seed left."""
+        if self.done:
+            return 0
+        if self.measured and not self.ok:
+            return self.seeds + RETRY_SEEDS - max(m.seed for m in self.measured)
+        return 1
 
 
 def meets(row: Row, target: float) -> bool:
@@ -490,8 +499,8 @@ def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN
     misses, the search goes on).  Candidates with a prediction go in the order of the rule;
     of the ones without, each kind sends its middle candidate (by the rule's order), which
     halves what is left of that kind whether it meets or misses.  With no promising
-    candidate left and nothing measured, the best `size` predictions are measured so the
-    table can show how far off the target is (`first_look`).
+    candidate left and no figure yet, the best `size` predictions are measured so the table
+    can show how far off the target is, on more seeds when they failed (`first_look`).
     """
     factors = scale(rows)
     chosen = select(rows, target)
@@ -517,15 +526,15 @@ def next_batch(rows: list[Row], target: float, size: int, margin: float = MARGIN
 
 
 def first_look(rows: list[Row], size: int) -> list[Row]:
-    """While no run has given a figure: the best `size` predictions, so the table can show
-    how far off the target is.  A candidate whose every seed failed in the tools (or timed
-    out, or did not fit) makes way for the next best, up to RETRY_CANDIDATES times: one
-    placement problem (nextpnr-machxo2's clock routing) should not end the search."""
-    if any(r.ok for r in rows) or sum(bool(r.measured) and r.done for r in rows) \
-            > RETRY_CANDIDATES:
+    """While no run has given a figure: the best `size` predictions (of the candidates that
+    fit or were measured), so the table can show how far off the target is, each on more
+    seeds while its seeds fail in the tools (`Row.seeds_to_run`: nextpnr-machxo2 fails to
+    route the clock for some placements); no other candidates."""
+    if any(r.ok for r in rows):
         return []
-    best_first = sorted((r for r in rows if not r.done), key=lambda r: -(r.predicted or 0))
-    return best_first[:max(size, 1)]
+    best_first = sorted((r for r in rows if r.measured or not r.done),
+                        key=lambda r: -(r.predicted or 0))
+    return [r for r in best_first[:max(size, 1)] if not r.done]
 
 
 def why_not_run(row: Row, rows: list[Row], target: float, factors: dict[tuple, float],

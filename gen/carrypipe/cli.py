@@ -115,12 +115,9 @@ class _Unread:
     def _quiet(self, call, *args):
         try:
             return call(*args)
-        except BrokenPipeError:
-            self._drop()
-            return call(*args)
         except OSError as exc:
             self._drop()  # what is still buffered goes nowhere, not into a second error
-            if not self._fatal:
+            if isinstance(exc, BrokenPipeError) or not self._fatal:
                 return call(*args)
             raise EnvironmentFault(f"cannot write the standard output: "
                                    f"{exc.strerror or exc}") from None

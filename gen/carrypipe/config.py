@@ -630,17 +630,16 @@ def untabbed(text: str) -> str:
     return "\n".join(lines)
 
 
-def _no_break(text: str) -> str:
-    """Where YAML fails on a no-break space (U+00A0, as text copied from a web page brings),
-    a hint naming its first place: YAML does not read it as a space, so `width:\u00a08` is
-    one word, a key without its `:`, and the error would point elsewhere."""
-    at = text.find("\u00a0")
-    if at < 0:
-        return ""
-    line = text.count("\n", 0, at)
-    column = at - (text.rfind("\n", 0, at) + 1)
-    return (f" (line {line + 1}, column {column + 1} holds a no-break space, U+00A0, which "
-            "YAML does not read as a space)")
+def _no_break(text: str, near: set[int]) -> str:
+    """Where YAML fails beside a no-break space (U+00A0, as text copied from a web page
+    brings), a hint naming it: YAML does not read it as a space, so `width:\u00a08` is one
+    word, a key without its `:`, and the error points past it.  `near`: the 0-based lines
+    around the error's marks; a no-break space elsewhere is left unsaid."""
+    for line, body in enumerate(text.split("\n")):
+        if line in near and "\u00a0" in body:
+            return (f" (line {line + 1}, column {body.index(chr(0xa0)) + 1} holds a no-break "
+                    "space, U+00A0, which YAML does not read as a space)")
+    return ""
 
 
 def parse_text(text: str, where: str) -> Config:
@@ -652,7 +651,15 @@ def parse_text(text: str, where: str) -> Config:
         mark = getattr(exc, "problem_mark", None)
         at = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
         problem = getattr(exc, "problem", None) or "invalid YAML"
-        raise ConfigError(f"{where}: not valid YAML{at}: {problem}{_no_break(text)}") from None
+        # PyYAML's mark can fall on the line after the trouble ("could not find expected
+        # ':'" at the start of the next line); its context mark names where a key began.
+        context, near = getattr(exc, "context_mark", None), set()
+        if mark:
+            near |= {mark.line - 1, mark.line}
+        if context:
+            near.add(context.line)
+        raise ConfigError(f"{where}: not valid YAML{at}: {problem}{_no_break(text, near)}") \
+            from None
     return from_mapping(data, where)
 
 

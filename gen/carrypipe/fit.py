@@ -151,7 +151,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                 store.put(keys[id(row), m.seed], m)
             progress.step(row.label, sum(m.seconds for m in results),
                           left + _queued(rows, target, margin, settings.confirm_seeds,
-                                                 executor.jobs))
+                                         executor.jobs))
         for row in batch:
             row.measured.sort(key=lambda m: m.seed)
             full = [m for m in row.measured if m.status == "no-fit"]
@@ -219,20 +219,22 @@ def environment_failure(outcome: Outcome) -> str | None:
 
 
 def _queued(rows: list[Row], target: float, margin: float, confirm: int, size: int) -> int:
-    """Candidates that may still be run: the promising ones, the choice when it is still to
-    be confirmed on more seeds and, while none meets the target, the last resort's and, while
-    nothing has given a figure, the best predictions' (so "up to N more" is not an
-    undercount)."""
+    """Runs that may still come: those of the promising candidates, of the choice when it is
+    still to be confirmed on more seeds and, while none meets the target, of the last
+    resort's and, while no run has given a figure, of the best predictions with their retry
+    seeds (so "up to N more" is not an undercount)."""
     factors = candidates.scale(rows)
-    todo = {id(r) for r in rows if not r.done
-            and candidates.promising(r, target, factors, rows, margin)}
+    todo = [r for r in rows if candidates.promising(r, target, factors, rows, margin)]
     chosen = candidates.select(rows, target)
+    retries = 0
     if chosen is None:
-        todo |= {id(r) for r in candidates.last_resort(rows, target, factors, margin)}
-        todo |= {id(r) for r in candidates.first_look(rows, size)}
+        todo += candidates.last_resort(rows, target, factors, margin)
+        looks = candidates.first_look(rows, size)
+        todo += looks  # one not measured yet may fail and take its retry seeds too
+        retries = candidates.RETRY_SEEDS * sum(not r.measured for r in looks)
     elif candidates.to_confirm(chosen, target, confirm):
-        todo.add(id(chosen))
-    return len(todo)
+        todo.append(chosen)
+    return sum(r.runs_left for r in {id(r): r for r in todo}.values()) + retries
 
 
 def ordered(rows: list[Row]) -> list[Row]:

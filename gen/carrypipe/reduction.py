@@ -29,8 +29,9 @@ value for given inputs, so the reduction is checked against Python's integers wi
 
 from __future__ import annotations
 
+import hashlib
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cached_property, lru_cache
 
 from . import dots as dm
 
@@ -115,6 +116,22 @@ class Tree:
     @property
     def width(self) -> int:
         return self.matrix.width
+
+    @cached_property
+    def digest(self) -> str:
+        """The tree as built, in a few bytes: every value (an operand bit or partial product,
+        a counter output, a register and its stage) and every counter, not the style or the
+        levels per stage that placed them.  Equal for two trees that write the same Verilog
+        (`fit` measures one circuit once); computed once per tree (trees are cached)."""
+        def dot(d):
+            return None if d is None else (d.value, d.invert)
+
+        values = [(v.column, v.kind, v.leaf and (v.leaf.op, v.leaf.args, v.leaf.invert),
+                   v.counter, dot(v.source), v.stage, v.row) for v in self.values]
+        counters = [(c.level, c.column, c.kind, c.number, tuple(map(dot, c.inputs)), c.sum,
+                     c.carry) for c in self.counters]
+        text = repr((values, counters, self.flip_carry))
+        return hashlib.sha256(text.encode()).hexdigest()
 
     @property
     def final(self) -> tuple[tuple[Dot, ...], ...]:
