@@ -327,8 +327,9 @@ def test_names_that_verilator_reads_as_its_own_directive_are_refused(name):
 
 
 def test_a_no_break_space_is_named():
-    # YAML does not read U+00A0 (text copied from a web page) as a space: `width:\u00a08` is
-    # one word, a key without its `:`, and PyYAML points past the end of the file.
+    # YAML does not read U+00A0 (text copied from a web page) as a space (YAML 1.2, section
+    # 5.5: white space is space and tab only; from memory): `width:\u00a08` is one word, a
+    # key without its `:`, and PyYAML points past the end of the file.
     with pytest.raises(ConfigError) as info:
         parse_text("name: u\nwidth:\u00a08\n", "u.yaml")
     assert str(info.value) == ("u.yaml: not valid YAML at line 3, column 1: could not find "
