@@ -319,8 +319,13 @@ class Row:
             if any(m.status not in ("error", "broken") for m in self.measured):
                 return ()
             nxt = max(tried) + 1
-            return (nxt,) if nxt <= self.seeds + RETRY_SEEDS else ()
+            return (nxt,) if nxt <= self.last_retry else ()
         return tuple(s for s in range(1, self.seeds + 1) if s not in tried)
+
+    @property
+    def last_retry(self) -> int:
+        """The last seed a row whose every seed failed in the tools may still take."""
+        return self.seeds + RETRY_SEEDS
 
     @property
     def done(self) -> bool:
@@ -333,7 +338,7 @@ class Row:
         if self.done:
             return 0
         if self.measured and not self.ok:
-            return self.seeds + RETRY_SEEDS - max(m.seed for m in self.measured)
+            return self.last_retry - max(m.seed for m in self.measured)
         return 1
 
 

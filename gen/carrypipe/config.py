@@ -630,14 +630,17 @@ def untabbed(text: str) -> str:
     return "\n".join(lines)
 
 
+NO_BREAK = "\u00a0"
+
+
 def _no_break(text: str, near: set[int]) -> str:
     """Where YAML fails beside a no-break space (U+00A0, as text copied from a web page
     brings), a hint naming it: YAML does not read it as a space, so `width:\u00a08` is one
     word, a key without its `:`, and the error points past it.  `near`: the 0-based lines
     around the error's marks; a no-break space elsewhere is left unsaid."""
     for line, body in enumerate(text.split("\n")):
-        if line in near and "\u00a0" in body:
-            return (f" (line {line + 1}, column {body.index(chr(0xa0)) + 1} holds a no-break "
+        if line in near and NO_BREAK in body:
+            return (f" (line {line + 1}, column {body.index(NO_BREAK) + 1} holds a no-break "
                     "space, U+00A0, which YAML does not read as a space)")
     return ""
 
