@@ -64,6 +64,25 @@ def test_path_ends():
     assert harness.inside_unit(f"unit.{levels.words[-3].name}_TRELLIS_FF_Q", levels)
 
 
+def test_path_words_mark_the_harness_register_named_after_a_unit_input():
+    # Yosys names a shift-in register after the unit port its Q drives (seen in a fit of a
+    # 16 x 12 multiplier on ECP5: unit.a_TRELLIS_FF_Q_12 -> unit.row2_stage_0_...); the
+    # unit has no input register there, so the words must not suggest one.
+    plan = make(width=8, carry_in=True)
+    path = toolflow.Measurement(seed=1, status="ok", start="unit.a_TRELLIS_FF_Q_12",
+                                end="unit.carry_stage_0_TRELLIS_FF_Q")
+    assert harness.path_words(path, plan) == (
+        "unit.a_TRELLIS_FF_Q_12 (the harness register feeding input a) -> "
+        "unit.carry_stage_0_TRELLIS_FF_Q")
+    # The unit's own input register (`a_in`) and a skew register are the unit's: unmarked.
+    levels = make(width=8, pipeline="levels", cell="kogge-stone", register_inputs=True,
+                  carry_in=True)
+    own = toolflow.Measurement(seed=1, status="ok", start="unit.a_in_TRELLIS_FF_Q_3",
+                               end="unit.cin_DFF_Q")
+    assert harness.path_words(own, levels) == ("unit.a_in_TRELLIS_FF_Q_3 -> unit.cin_DFF_Q "
+                                               "(the harness register feeding input cin)")
+
+
 def test_stage_of_a_path_end_in_every_mode():
     sliced = make(width=64, slice_width=4)
     assert harness.stage_of("unit.sum_stage_2_SB_DFF_Q", sliced) == 2

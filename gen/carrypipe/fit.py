@@ -262,7 +262,7 @@ def record(row: Row, outcome: Outcome) -> dict:
         note = "does not fit: " + row.size
     elif row.ok:
         path = median_seed(row)
-        note = f"critical path {path.start} -> {path.end}"
+        note = f"critical path {harness.path_words(path, row.plan)}"
         if path.inside is False:
             note += " (not the unit's: it ends in the harness)"
     elif row.measured:
@@ -358,7 +358,8 @@ def measured_section(outcome: Outcome) -> str:
         f"  Device    {s.device.name} ({s.device.part}), target {s.target_mhz:g} MHz",
         f"  Tools     {', '.join(outcome.tool_versions.values())}",
         f"  Fmax      {row.mhz:g} MHz, median of {plural(len(row.ok), 'seed')} ({per_seed})",
-        f"  Critical path at seed {path.seed}: {path.start} -> {path.end}{where}",
+        f"  Critical path at seed {path.seed}: "
+        f"{harness.path_words(path, row.plan)}{where}",
         ""])
 
 
@@ -373,7 +374,7 @@ def chart_figures(outcome: Outcome) -> tuple[dict[int, float], str]:
     at = "" if stage is not None else "; stage by the unit-gate model"
     return ({row.plan.slowest[0].index if stage is None else stage: round(1000 / row.mhz, 3)},
             f"{row.mhz:g} MHz, {seeds}, {s.device.name}, nextpnr; critical path "
-            f"{path.start} -> {path.end}{at}")
+            f"{harness.path_words(path, row.plan)}{at}")
 
 
 def files(outcome: Outcome, source: str | None = None) -> dict[str, str | bytes]:

@@ -38,9 +38,25 @@ def inside_unit(end_cell: str, plan: Plan) -> bool:
     (`_capture_hops`).  The path's length does not decide: every stage of a `levels` unit
     is a single LUT, as the harness's own paths are.
     """
+    return _capture_hops(end_cell) > 0 or not (end_cell.startswith(PREFIX)
+                                                or _feeds(end_cell, plan))
+
+
+def _feeds(cell: str, plan: Plan) -> str | None:
+    """The unit input a shift-in register feeds, when Yosys named it after that port."""
     ports = "|".join(re.escape(p.name) for p in plan.ports if p.direction == "input")
-    shift_in = re.match(rf"{INSTANCE}\.({ports})(\[|_[A-Z]|$)", end_cell)
-    return _capture_hops(end_cell) > 0 or not (end_cell.startswith(PREFIX) or shift_in)
+    shift_in = re.match(rf"{INSTANCE}\.({ports})(\[|_[A-Z]|$)", cell)
+    return shift_in.group(1) if shift_in else None
+
+
+def path_words(path, plan: Plan) -> str:
+    """A measured path (its `start` and `end` cells) for people: a shift-in register named
+    after the unit input it feeds is marked as the harness's (the name reads like a unit
+    register, and the unit may have none there)."""
+    def words(cell: str) -> str:
+        port = _feeds(cell, plan)
+        return f"{cell} (the harness register feeding input {port})" if port else cell
+    return f"{words(path.start)} -> {words(path.end)}"
 
 
 def _capture_hops(cell: str) -> int:
