@@ -95,6 +95,34 @@ def test_dadda_counter_counts(n):
         sum(1 for d in reduction.dadda_heights(n) if d < n)
 
 
+@pytest.mark.parametrize("signed", [False, True])
+def test_the_constant_adds_no_level_to_an_and_array(signed):
+    # A Dadda tree reduces a matrix of height h in as many levels as Dadda's sequence has
+    # heights below h (Dadda 1965); the one-bits of a signed array's constant (Baugh and
+    # Wooley 1973) are absorbed without adding one, for every shape from 3 x 3 to 24 x 24.
+    for m, n in itertools.product(range(3, 25), repeat=2):
+        matrix = dots.and_matrix(m, n, signed)
+        height = max(matrix.heights())
+        t = reduction.reduce(matrix, "dadda", 1, True)
+        assert sum(1 for lv in t.levels if lv.index) == \
+            sum(1 for d in reduction.dadda_heights(height) if d < height), (m, n)
+
+
+@needs_icarus
+@pytest.mark.parametrize("keys", [
+    dict(unit="multiplier", width=16, width_b=9, signed=True, pipeline="levels",
+         cell="kogge-stone"),
+    dict(unit="multiplier", width=3, width_b=8, signed=True, partial_products="booth4",
+         tree="wallace", slice_width=4),
+], ids=["and16x9", "booth3x8-wallace"])
+def test_half_adders_that_add_a_constant_bit(keys):
+    # These trees absorb a one-bit of the constant in a half adder (x + y + 1: sum
+    # ~(x ^ y), carry x | y); the unit still gives Python's product.
+    p = make(**keys)
+    assert any(c.one for c in p.tree.counters)
+    simulate(p, "icarus", count=400, seed=11)
+
+
 @pytest.mark.parametrize("n", [4, 8, 16, 32])
 def test_wallace_takes_as_many_levels(n):
     # Wallace (1964) and Dadda (1965) trees reduce n rows in the same number of levels

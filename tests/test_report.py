@@ -246,12 +246,15 @@ def test_a_final_adder_is_not_offered_the_input_rank_swap(keys):
 
 @pytest.mark.parametrize("keys, said", [
     (dict(unit="multiplier", width=8), "; bit 0 is finished by the tree"),
-    (dict(unit="multiplier", width=4, width_b=3, tree="wallace", signed=True),
+    (dict(unit="multiplier", width=4, width_b=4, tree="wallace", signed=True),
      "; bits 1:0 are finished by the tree"),
     (dict(unit="sum", operands=3, width=8), ", its carry out is the top bit"),
+    (dict(unit="sum", operands=3, width=8, signed=True),
+     ", its carry out, complemented, is the top bit"),
 ])
 def test_the_final_adder_line_counts_the_finished_bits(keys, said):
-    """The low columns the tree leaves with one dot are finished; one bit is singular."""
+    """The low columns the tree leaves with one dot are finished; one bit is singular; a
+    carry out that the constant's top one-bit complements says so."""
     line = next(x for x in report.table(make(**keys)) if x.startswith("Final adder"))
     assert line.endswith(said)
 
@@ -309,3 +312,13 @@ def test_the_tips_end_with_a_full_stop_and_a_narrow_top_block_is_named():
     assert "over 4 blocks of 5 bits (the top one 4):" in said
     assert "over 4 blocks of 4 bits:" in report.report(make(width=16, pipeline="blocks",
                                                              cell="sklansky", block_width=4))
+
+
+def test_the_other_tree_is_offered_only_when_it_differs():
+    # Three rows take one level of full adders whichever way they are placed (Dadda 1965 and
+    # Wallace 1964 agree on a single 3 -> 2 level), so a 3-operand sum is not told to try
+    # the other placement; a 5-operand sum is.
+    said = " ".join(tips(make(unit="sum", operands=3, width=8)).split())
+    assert "`tree: wallace`" not in said and "`tree: native`" in said
+    said = " ".join(tips(make(unit="sum", operands=5, width=8)).split())
+    assert "`tree: wallace` (another counter placement)" in said

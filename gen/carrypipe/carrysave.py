@@ -4,10 +4,11 @@ Stage 0 forms the partial products (`pp<j>`, one wire per row of the dot diagram
 Booth recoding also the digit selects `booth_one`, `booth_two`, `booth_neg` and the carried
 negate bits `booth_carry`), or reads a sum's operands as they are.  Every counter level then
 adds its columns with full adders (sum x ^ y ^ z, carry the majority x & y | x & z | y & z)
-and half adders (x ^ y, x & y); a counter output is a wire (`fa<n>_sum_l<level>`: the n-th
-full adder of each column at that level, at its column; `fa<n>_carry_l<level>` at the column
-above) when logic of its own stage reads it or it is read twice, else it is written into
-the register that holds it.  At the end of each stage every dot is registered, row by row:
+and half adders (x ^ y, x & y; ~(x ^ y), x | y for one that also adds a one-bit of the
+constant); a counter output is a wire (`fa<n>_sum_l<level>`: the n-th full adder of each
+column at that level, at its column; `fa<n>_carry_l<level>` at the column above) when logic
+of its own stage reads it or it is read twice, else it is written into the register that
+holds it.  At the end of each stage every dot is registered, row by row:
 `row<r>_stage_<i>` holds the r-th dot of each column.  The final adder (the nested plan's
 own builder, `slices.py` or `leveled.py`) adds `row0` and `row1` of the last rank; the
 result bits below it wait in `<result>_low_<i>`.
@@ -192,6 +193,9 @@ def _counters(plan, f: Frame, stage: int, expr: dict[int, Expr]) -> None:
             if cnt.kind == "fa":
                 x, y, z = ins
                 outs = ((cnt.sum, x ^ y ^ z), (cnt.carry, x & y | x & z | y & z))
+            elif cnt.one:  # x + y + 1
+                x, y = ins
+                outs = ((cnt.sum, ~(x ^ y)), (cnt.carry, x | y))
             else:
                 x, y = ins
                 outs = ((cnt.sum, x ^ y), (cnt.carry, x & y))

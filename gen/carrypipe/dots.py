@@ -149,17 +149,13 @@ def _constant(leaf: Leaf, m: int, n: int, signed: bool) -> int | None:
     k, i = leaf.args[0], (leaf.args[1] if len(leaf.args) > 1 else 0)
     if signed or (2 * k + 1 < n and i < m):  # every bit it reads is an input bit
         return None
-    a_bits = [j for j in (i, i - 1, 0) if 0 <= j < m]
-    b_bits = [j for j in (2 * k + 1, 2 * k, 2 * k - 1) if 0 <= j < n]
-    if signed:
-        a_bits += [m - 1]
-        b_bits += [n - 1]
-    a_bits, b_bits = sorted(set(a_bits)), sorted(set(b_bits))
+    a_bits = sorted({j for j in (i, i - 1, 0) if 0 <= j < m})
+    b_bits = sorted({j for j in (2 * k + 1, 2 * k, 2 * k - 1) if 0 <= j < n})
     seen = set()
     for bits in range(1 << (len(a_bits) + len(b_bits))):
         a = sum(1 << j for t, j in enumerate(a_bits) if bits >> t & 1)
         b = sum(1 << j for t, j in enumerate(b_bits) if bits >> (len(a_bits) + t) & 1)
-        seen.add(value(leaf, {"a": a, "b": b}, m, n, signed))
+        seen.add(value(leaf, {"a": a, "b": b}, m, n, False))
     return seen.pop() if len(seen) == 1 else None
 
 

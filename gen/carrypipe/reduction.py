@@ -15,10 +15,16 @@ products count as the first level), and the final adder adds the two rows that a
   height 3 to 2) places just the counters needed, as Dadda's does: greedy half adders there
   would leave lone dots between pairs, gaps in the rows the final adder takes.
 
-The constant K of the matrix (`dots.py`) is never a register: each one-bit of it waits in
-its column until a dot is there and is absorbed into it for free, x + 2^k = ~x + x 2^(k+1)
-(the complement in column k and the same dot again in column k + 1; in the top column
-N - 1 only the complement, the carry falling outside the result).  A one-bit in the top
+The constant K of the matrix (`dots.py`) is never a register.  Each one-bit of it waits in
+its column and is absorbed in one of two ways, neither of which adds a counter level:
+- by a half adder placed in its column anyway, which then adds it as a third input
+  (x + y + 1: sum ~(x ^ y), carry x | y; `Counter.one`), at no cost in dots;
+- by a dot, x + 2^k = ~x + x 2^(k+1) (the complement in column k and the same dot again in
+  column k + 1), when column k + 1 has room for one more dot: not above the Dadda height
+  the tallest column is at (so the levels still to come are as many); in the top column
+  N - 1 only the complement, the carry falling outside the result.
+A one-bit that meets neither before the columns are down to two dots is absorbed by a dot
+all the same (one more level, as when a column is one dot too tall).  A one-bit in the top
 column that never meets a dot (the column stays empty) is left to the final adder, whose
 carry out is then complemented (`Tree.flip_carry`).
 
@@ -88,13 +94,15 @@ class Counter:
     inputs: tuple[Dot, ...]
     sum: int
     carry: int | None  # None in the top column: a carry out of the result is dropped
+    one: bool = False  # a half adder that also adds a one-bit of K (sum ~(x ^ y), carry x | y)
 
 
 @dataclass(frozen=True)
 class Level:
     index: int  # 1-based; 0 is a multiplier's partial-product level
     stage: int  # 1-based stage holding it
-    target: int | None  # Dadda's height for this level (None: Wallace, or level 0)
+    target: int | None  # the height it brings every column to (None: level 0, or a Wallace
+    # level above height 3, which takes every column's dots three at a time)
     counters: tuple[int, ...]
     heights: tuple[int, ...]  # dots per column after the level (and absorbed constants)
     delay: int  # unit-gate arrival of its slowest output, from the stage's registers
@@ -129,7 +137,7 @@ class Tree:
         values = [(v.column, v.kind, v.leaf and (v.leaf.op, v.leaf.args, v.leaf.invert),
                    v.counter, dot(v.source), v.stage, v.row) for v in self.values]
         counters = [(c.level, c.column, c.kind, c.number, tuple(map(dot, c.inputs)), c.sum,
-                     c.carry) for c in self.counters]
+                     c.carry, c.one) for c in self.counters]
         text = repr((values, counters, self.flip_carry))
         return hashlib.sha256(text.encode()).hexdigest()
 
@@ -147,14 +155,14 @@ class Tree:
         if not pairs:
             if self.flip_carry:
                 raise AssertionError("a constant is left with no final adder")
-            return Rows(self.width, self.width, self.width, self.width, False)
+            return Rows(self.width, self.width, self.width, False)
         low, top = pairs[0], filled[-1]
         if any(heights[k] < 2 for k in range(low, pairs[-1])) or \
                 any(heights[k] == 0 for k in range(low, top)):
             raise AssertionError(f"gaps in the final rows: {heights}")
         if self.flip_carry and top != self.width - 2:
             raise AssertionError("the left constant does not meet the final carry")
-        return Rows(low, pairs[-1] + 1, top + 1, self.width, top + 1 < self.width)
+        return Rows(low, pairs[-1] + 1, top + 1, top + 1 < self.width)
 
     def fa(self) -> int:
         return sum(lv.full for lv in self.levels)
@@ -182,8 +190,8 @@ class Tree:
                 out.append(dot(v.source))
             else:
                 c = self.counters[v.counter]
-                bits = [dot(d) for d in c.inputs]
-                out.append(sum(bits) & 1 if v.kind == "sum" else sum(bits) >> 1)
+                total = sum(dot(d) for d in c.inputs) + c.one
+                out.append(total & 1 if v.kind == "sum" else total >> 1)
         return out
 
 
@@ -196,7 +204,6 @@ class Rows:
     low: int
     pairs: int
     top: int
-    width: int
     carry_out: bool
 
     @property
@@ -224,7 +231,22 @@ def tree_of(kind, c) -> Tree:
 def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
            first_level: bool) -> Tree:
     """Place the counters and register ranks.  `first_level`: the leaves are logic (a
-    multiplier's partial products), which count as level 0 of the first stage."""
+    multiplier's partial products), which count as level 0 of the first stage.
+
+    K's one-bits are placed both ways (module docstring: "wait" for room or a half adder)
+    and also each by a dot as soon as its column holds one ("eager"), and the tree with the
+    fewest stages, then register bits, is kept: waiting saves a level in most trees that
+    have a constant (716 of 20,752 sums and multipliers up to 32 x 32 bits, both trees, one
+    and two levels per stage, none worse), but Wallace's greedy levels sometimes have no
+    half adder in that column until the end (then eager is better)."""
+    trees = [_reduce(matrix, style, levels_per_stage, first_level, wait)
+             for wait in (True, False)]
+    return min(trees, key=lambda t: (t.stages, sum(len(c) for r in t.ranks for c in r)))
+
+
+def _reduce(matrix: dm.Matrix, style: str, levels_per_stage: int, first_level: bool,
+            wait: bool) -> Tree:
+    """`reduce` with K's one-bits waiting (`wait`) or eager."""
     n_cols = matrix.width
     values: list[Value] = []
     counters: list[Counter] = []
@@ -237,10 +259,11 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
         cols[leaf.column].append(Dot(len(values) - 1))
     pending = {k for k in range(n_cols) if matrix.constant >> k & 1}
 
-    def absorb() -> None:
-        """Absorb every waiting one-bit of K whose column holds a dot (low to high)."""
+    def absorb(room: int | None) -> None:
+        """Absorb into a dot every waiting one-bit of K whose column holds a dot and whose
+        column k + 1 holds fewer than `room` dots (None: any number), low to high."""
         for k in sorted(pending):
-            if cols[k]:
+            if cols[k] and (k + 1 == n_cols or room is None or len(cols[k + 1]) < room):
                 pending.discard(k)
                 at = _lone(cols, k)
                 d = cols[k][at]
@@ -251,7 +274,11 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
     def stage_of(level: int) -> int:
         return (level - (0 if first_level else 1)) // levels_per_stage + 1
 
-    absorb()
+    def room() -> int | None:
+        """The Dadda height the tallest column is at: up to it, one more dot costs no level."""
+        return dadda_heights(max(map(len, cols), default=0))[-1] if wait else None
+
+    absorb(room())
     if first_level:
         levels.append(Level(0, 1, None, (), tuple(map(len, cols)),
                             max(arrival.values(), default=0)))
@@ -271,7 +298,10 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
         ranks.append(tuple(rank))
 
     index = 0
-    while max(map(len, cols), default=0) > 2:
+    while max(map(len, cols), default=0) > 2 or _stranded(cols, pending):
+        if max(map(len, cols), default=0) <= 2:
+            absorb(None)  # down to two rows, a one-bit still waits: one more level
+            continue
         index += 1
         stage = stage_of(index)
         if levels and levels[-1].stage != stage:
@@ -289,6 +319,9 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
             plan = _counters(style, len(avail), total, target)
             outs, carries_out = [], []
             numbers = {"fa": 0, "ha": 0}
+            one = k in pending and "ha" in plan  # the first half adder takes the one-bit
+            if one:
+                pending.discard(k)
             for kind in plan:
                 size = 3 if kind == "fa" else 2
                 ins, avail = tuple(avail[:size]), avail[size:]
@@ -303,14 +336,16 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
                     values.append(Value(c_id, k + 1, "carry", counter=ci))
                     arrival[c_id] = base + DELAY[(kind, "carry")]
                     carries_out.append(Dot(c_id))
-                counters.append(Counter(ci, index, k, kind, numbers[kind], ins, s_id, c_id))
+                takes = one and kind == "ha" and numbers["ha"] == 0
+                counters.append(Counter(ci, index, k, kind, numbers[kind], ins, s_id, c_id,
+                                        takes))
                 numbers[kind] += 1
                 placed.append(ci)
                 outs.append(Dot(s_id))
             new[k] = outs + carries_in + avail
             carries_in = carries_out
         cols[:] = new
-        absorb()
+        absorb(room())
         slowest = max((arrival[d.value] for col in cols for d in col), default=0)
         full = sum(1 for ci in placed if counters[ci].kind == "fa")
         levels.append(Level(index, stage, target, tuple(placed), tuple(map(len, cols)),
@@ -323,6 +358,12 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
         raise AssertionError(f"constant bits {sorted(pending)} met no dot")  # see docstring
     return Tree(matrix, style, tuple(values), tuple(counters), tuple(levels),
                 levels[-1].stage, tuple(ranks), flip)
+
+
+def _stranded(cols: list[list[Dot]], pending: set[int]) -> bool:
+    """A one-bit of K still waits in a column that holds a dot (the top column's waits for
+    the final adder's carry only when the column is empty)."""
+    return any(cols[k] for k in pending)
 
 
 def _lone(cols: list[list[Dot]], k: int) -> int:

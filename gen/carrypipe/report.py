@@ -286,7 +286,8 @@ def _(plan: TreePlan, mark=None) -> list[str]:
     low = (f"; {'bit' if r.low == 1 else 'bits'} {bits(0, r.low - 1)} "
            f"{'is' if r.low == 1 else 'are'} finished by the tree" if r.low else "")
     lines += ["", f"Final adder  columns [{r.top - 1}:{r.low}] ({r.adder_width} bits)"
-              + (", its carry out is the top bit" if r.carry_out else "") + low]
+              + (f", its carry out{', complemented,' if t.flip_carry else ''} is the top bit"
+                 if r.carry_out else "") + low]
     view = plan.numbered_adder
     return lines + [f"  {line}" if line else line for line in table(view, mark)]
 
@@ -467,9 +468,10 @@ def _(plan: TreePlan) -> list[str]:
         # The final adder's own tips (its input register is the tree's last rank).
         inner = replace(plan.adder.config, register_inputs=True)
         out += tips(replace(plan.numbered_adder, config=inner))
-    other = "wallace" if c.tree == "dadda" else "dadda"
-    out += _tip(f"`tree: {other}` (another counter placement) or `tree: native` (the "
-                "operation left to synthesis, DSP blocks allowed);")
+    other = f"`tree: {plan.other_tree}` (another counter placement) or " \
+        if plan.other_tree else ""
+    out += _tip(f"{other}`tree: native` (the operation left to synthesis, DSP blocks "
+                "allowed);")
     return out + _input_tip(plan)
 
 

@@ -90,6 +90,14 @@ class TreePlan(Plan):
     def result_width(self) -> int:
         return self.tree.width
 
+    @cached_property
+    def other_tree(self) -> str | None:
+        """The other counter placement (`dadda` or `wallace`) when it builds another tree
+        (a 3-operand sum has one level, which both place alike), else None."""
+        other = "wallace" if self.config.tree == "dadda" else "dadda"
+        tree = self.unit.counter_tree(replace(self.config, tree=other))
+        return other if tree.digest != self.tree.digest else None
+
     @property
     def rows(self) -> reduction.Rows:
         return self.tree.rows

@@ -9,8 +9,9 @@ A direct proof of a multiplier (`prove.py`) asks the SAT solver whether the unit
    plus the constant left for the final adder's carry equal, as a weighted sum modulo 2^N,
    the matrix's dots plus its constant K: every counter's outputs are replaced by its inputs
    (a full adder's sum s and carry c satisfy s + 2c = x + y + z; a half adder's s + 2c =
-   x + y), every register by the dot it loads, every absorbed constant by its complement and
-   copy, and what is left must be the matrix term for term (`arithmetic`).
+   x + y, or x + y + 1 when it adds a one-bit of K), every register by the dot it loads,
+   every constant absorbed by a dot by its complement and copy, and what is left must be
+   the matrix term for term (`arithmetic`).
 2. The Verilog is the plan (Yosys sat, every flip-flop cut: its output a free input, its data
    input an output).  For every stage, every register bit `row<r>_stage_<i>[k]` loads
    exactly the planned function of the registers of the rank before it (of the inputs, or
@@ -89,6 +90,7 @@ def arithmetic(tree: Tree) -> str | None:
             return f"counter {c.index} drops a carry that counts (column {c.column})"
         for d in c.inputs:
             add(d, coef)
+        const += coef * c.one  # a half adder's one-bit of K: s + 2c = x + y + 1
     want = {}
     for v in tree.values:
         if v.kind == "leaf":
@@ -171,12 +173,12 @@ class _Reference:
                 cnt = tree.counters[v.counter]
                 ins = [self.dot(d) for d in cnt.inputs]
                 if v.kind == "sum":
-                    e = " ^ ".join(ins)
+                    e = f"~({' ^ '.join(ins)})" if cnt.one else " ^ ".join(ins)
                 elif cnt.kind == "fa":
                     x, y, z = ins
                     e = f"{x} & {y} | {x} & {z} | {y} & {z}"
                 else:
-                    e = " & ".join(ins)
+                    e = (" | " if cnt.one else " & ").join(ins)
             self.lines.append(f"  wire ref_v{index} = {e};")
         return f"ref_v{index}"
 
