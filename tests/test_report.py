@@ -254,9 +254,13 @@ def test_a_final_adder_is_not_offered_the_input_rank_swap(keys):
 ])
 def test_the_final_adder_line_counts_the_finished_bits(keys, said):
     """The low columns the tree leaves with one dot are finished; one bit is singular; a
-    carry out that the constant's top one-bit complements says so."""
-    line = next(x for x in report.table(make(**keys)) if x.startswith("Final adder"))
-    assert line.endswith(said)
+    carry out that the constant's top one-bit complements says so (the line wraps at the
+    report's width, its continuation indented)."""
+    lines = report.table(make(**keys))
+    at = next(i for i, x in enumerate(lines) if x.startswith("Final adder"))
+    rest = [x for x in itertools.takewhile(lambda x: x.startswith(" " * 13), lines[at + 1:])]
+    assert all(len(x) <= report.COLUMNS for x in [lines[at], *rest])
+    assert " ".join(x.strip() for x in [lines[at], *rest]).endswith(said)
 
 
 def test_a_final_adders_block_chains_get_the_block_width_tip():
@@ -282,6 +286,15 @@ def test_report_lines_wrap_at_their_column():
     for plan in PLANS:
         assert max(map(len, report.report(plan).splitlines())) <= report.COLUMNS == 92, \
             plan.config.name
+
+
+def test_the_tree_line_wraps_at_the_column():
+    # An 18 x 18 Booth multiplier's tree line ran to 120 columns.
+    lines = report.table(make(unit="multiplier", width=18, signed=True,
+                              partial_products="booth4"))
+    at = next(i for i, x in enumerate(lines) if x.startswith("Tree "))
+    assert lines[at + 1].startswith(" " * 10 + "1") and lines[at + 2] == ""
+    assert max(len(lines[at]), len(lines[at + 1])) <= report.COLUMNS
 
 
 @pytest.mark.parametrize("unit", ["sum", "multiplier"])

@@ -269,15 +269,15 @@ def _(plan: TreePlan, mark=None) -> list[str]:
     c, t, r = plan.config, plan.tree, plan.rows
     mark = _marks(plan)
     heights = t.matrix.heights()
-    lines = [f"Tree      {c.tree.capitalize()} over {plan.unit.tree_phrase(c)}: "
-             f"{plural(len(t.matrix.leaves), 'dot')}, "
-             f"height {max(heights)}; {plural(plan.counter_levels, 'counter level')}, "
-             f"{counters_phrase(t.fa(), t.ha())}",
-             "",
-             "Tree stages (heights: most dots in a column after the stage; delay in the "
-             "unit-gate model)",
-             f"  {'stage':>5}  {'levels':>6}  {'height':>6}  {'full':>5}  {'half':>5}  "
-             f"{'delay':>5}  logic"]
+    lines = _wrapped(f"{c.tree.capitalize()} over {plan.unit.tree_phrase(c)}: "
+                     f"{plural(len(t.matrix.leaves), 'dot')}, height {max(heights)}; "
+                     f"{plural(plan.counter_levels, 'counter level')}, "
+                     f"{counters_phrase(t.fa(), t.ha())}", "Tree      ", " " * 10)
+    lines += ["",
+              "Tree stages (heights: most dots in a column after the stage; delay in the "
+              "unit-gate model)",
+              f"  {'stage':>5}  {'levels':>6}  {'height':>6}  {'full':>5}  {'half':>5}  "
+              f"{'delay':>5}  logic"]
     for s in plan.tree_stages:
         lines.append(f"  {s.index:>5}  {s.depth:>6}  {max(s.heights):>6}  {s.full:>5}  "
                      f"{s.half:>5}  {s.delay:>5}  {s.logic}{mark(s)}")
@@ -285,9 +285,10 @@ def _(plan: TreePlan, mark=None) -> list[str]:
         return lines + ["", "Final adder  none: the tree leaves at most one dot per column"]
     low = (f"; {'bit' if r.low == 1 else 'bits'} {bits(0, r.low - 1)} "
            f"{'is' if r.low == 1 else 'are'} finished by the tree" if r.low else "")
-    lines += ["", f"Final adder  columns [{r.top - 1}:{r.low}] ({r.adder_width} bits)"
-              + (f", its carry out{', complemented,' if t.flip_carry else ''} is the top bit"
-                 if r.carry_out else "") + low]
+    lines += [""] + _wrapped(
+        f"columns [{r.top - 1}:{r.low}] ({r.adder_width} bits)"
+        + (f", its carry out{', complemented,' if t.flip_carry else ''} is the top bit"
+           if r.carry_out else "") + low, "Final adder  ", " " * 13)
     view = plan.numbered_adder
     return lines + [f"  {line}" if line else line for line in table(view, mark)]
 
