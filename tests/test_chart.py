@@ -16,7 +16,7 @@ import pytest
 from PIL import Image
 
 import gallery
-from carrypipe import chart, positions
+from carrypipe import chart, positions, svg
 from carrypipe.plan import SlicedPlan, Word
 from conftest import make
 
@@ -558,7 +558,7 @@ def test_every_chart_kind_renders_readably(stem):
     # no text runs off the picture (estimated with the fitting rule's glyph width)
     for e in texts(root):
         size, x = float(e.get("font-size")), float(e.get("x"))
-        w = chart._text_width(e.text or "", size)
+        w = svg.text_width(e.text or "", size)
         left = x - {"end": w, "middle": w / 2}.get(e.get("text-anchor"), 0)
         assert 0 <= left and left + w <= width, e.text
 

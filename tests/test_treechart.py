@@ -10,7 +10,7 @@ import cairosvg
 import pytest
 from PIL import Image
 
-from carrypipe import chart
+from carrypipe import chart, svg
 from conftest import make
 
 SVG = "{http://www.w3.org/2000/svg}"
@@ -137,3 +137,32 @@ def test_the_valid_bits_meaning_says_what_rst_does_as_in_the_adders_chart(reset)
     words = "valid bit, delayed like the data" + ("; rst clears it" if reset != "none" else "")
     for picture in (tree, adder):
         assert re.search(f">{re.escape(words)}<", picture)
+
+
+def test_the_legend_speaks_of_the_final_adders_own_mode():
+    # The legend read "result bits waiting for the upper slices" for a `levels` final adder,
+    # which has no slices; each kind now reads as the final adder's mode says, its bits
+    # numbered as the unit's (an 8 x 8 product: bits 15:1 from the final adder, bit 0
+    # finished by the tree).
+    levels = chart.svg(make(unit="multiplier", width=8, pipeline="levels",
+                            cell="kogge-stone"))
+    assert not [t for t in re.findall(r">([^<]*)<", levels) if "slice" in t]
+    assert ">final adder: output register: product [15:1]<" in levels
+    assert ">output deskew: product bits the tree finished, waiting for the final adder<" \
+        in levels
+    sliced = chart.svg(make(unit="multiplier", width=8, slice_width=5))
+    assert ">final adder: input skew: row0, row1 bits waiting for their slice<" in sliced
+    native = chart.svg(make(unit="sum", operands=3, width=8, tree="native", native_stages=2))
+    assert "final adder" not in native and "retime" in native
+
+
+@pytest.mark.parametrize("keys", list(CASES.values()), ids=list(CASES))
+def test_the_legend_wraps_inside_the_page(keys):
+    # A sliced final adder's deskew meaning ran 150 px past the page's right edge; the
+    # legend's lines are now wrapped as the adder chart's are (the chart's own glyph-width
+    # estimate, svg.text_width).
+    root = ET.fromstring(chart.svg(make(**keys)))
+    width = float(root.get("width"))
+    lines = [e for e in root.iter(f"{SVG}text") if e.get("fill") == "#444444"]
+    assert lines and all(float(e.get("x")) + svg.text_width(e.text, 11) <= width - svg.MARGIN
+                         for e in lines)

@@ -35,7 +35,7 @@ from html import escape
 from . import positions, prefix, report, treechart
 from .svg import (BLOCK, FAINT, FONT, IDLE_BLOCK, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS,
                   SLOW, SLOW_BLOCK, Svg, band, check_measured, measured_basis, num, slowest,
-                  stage_block, thousands)
+                  stage_block, text_fits, text_width, thousands, wrap)
 from .header import bits, plural, reset_clause
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
@@ -46,7 +46,6 @@ EXTRA_COLOURS = ("#7a7a7a", "#a39a2c", "#2b9fb3", "#9c5b3b")  # kinds the chart 
 PAPER = "#ffffff"
 CALM = "#3f5a86"  # notes that inform (banding), not warn
 ENABLE = "#56606b"
-CHAR = 0.55  # average glyph width of the font, in ems, for fitting labels
 
 MAX_COLUMNS = 72  # bit columns drawn one bit each; wider units are grouped into bands
 MAX_ROWS = 48  # time bands drawn one edge each; deeper pipelines are grouped into bands
@@ -60,32 +59,14 @@ def _span(lo: int, hi: int, sep: str = ":") -> str:
     return str(lo) if lo == hi else f"{hi}{sep}{lo}"
 
 
-def _text_width(text: str, size: float) -> float:
-    return len(text) * size * CHAR
-
-
-def _text_fits(text: str, size: float, room: float) -> bool:
-    return _text_width(text, size) <= room
-
-
-def _wrap(text: str, size: float, room: float) -> list[str]:
-    """`text` broken at spaces into lines that fit `room` px."""
-    lines: list[str] = []
-    for word in text.split(" "):
-        if lines and _text_fits(f"{lines[-1]} {word}", size, room):
-            lines[-1] += f" {word}"
-        else:
-            lines.append(word)
-    return lines
-
-
 # ---- what the chart says: words for each pipeline mode and unit kind ----
 
 @dataclass(frozen=True)
 class Words:
-    """The chart's words for one plan: what a stage block is, what the hand-off arrow
-    carries ("" when the stages hand nothing on), what each register kind holds, and the
-    structure in a few words for the subtitle."""
+    """The chart's words for one plan: what a stage block is (in a carry-save unit's chart,
+    what its rows show), what the hand-off arrow carries ("" when the stages hand nothing
+    on), what each register kind holds, and the structure in a few words for the
+    subtitle."""
 
     block: str
     handoff: str
@@ -214,6 +195,42 @@ def _(plan: PrefixPlan) -> Words:
                 "control": common["control"]}
     return Words("stage: its logic in one cycle, across all bits", "", meanings,
                  f"{structure}, {plural(len(plan.stages), 'stage')}")
+
+
+@words.register
+def _(plan: TreePlan) -> Words:
+    """A carry-save unit's kinds: its tree ranks, then its final adder's kinds in the words
+    of that adder's own mode, and the result bits the tree finished (`<result>_low`)."""
+    common = _common(plan)
+    meanings = {"input": common["input"],
+                "tree": "tree ranks: the dots left after each stage's counters, by column"}
+    result, r = plan.unit.result, plan.rows
+    if plan.adder is not None:
+        for kind, text in words(plan.numbered_adder).meanings.items():
+            if kind not in meanings and kind != "control":
+                meanings[kind] = "final adder: " + text
+        # Its own words number its bits from 0 and name its carry out `cout`: the unit's.
+        top = f"; its carry out is {result} [{r.top}]" if r.carry_out else ""
+        meanings["stage"] = "final adder: " + (
+            f"stage registers: each slice's {result} bits and the carry it hands on{top}"
+            if isinstance(plan.adder, SlicedPlan) else
+            f"output register: {result} [{r.top - (0 if r.carry_out else 1)}:{r.low}]")
+    if r.low and plan.adder is not None:
+        finished = f"{result} bits the tree finished, waiting for the final adder"
+        meanings["deskew"] = (meanings["deskew"] + "; " + finished if "deskew" in meanings
+                              else "output deskew: " + finished)
+    meanings["control"] = common["control"]
+    then = ", then the final adder's registers" if plan.adder is not None else ""
+    return Words(f"the dots each tree rank holds{then}", "", meanings, plan.structure())
+
+
+@words.register
+def _(plan: NativePlan) -> Words:
+    common = _common(plan)
+    return Words(f"the {plan.unit.result} as synthesis forms it, then the ranks after it",
+                 "", {"input": common["input"], "stage": f"result ranks: the {plan.unit.result} "
+                      "and the ranks after it, for the tools to retime into",
+                      "control": common["control"]}, plan.structure())
 
 
 @singledispatch
@@ -440,7 +457,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     (e.g. "nextpnr, ECP5-85F") is named beside it.  Without it the unit-gate model decides.
     """
     if isinstance(plan, (TreePlan, NativePlan)):  # a carry-save unit: its dot diagram
-        return treechart.svg(plan, measured, measured_source)
+        return treechart.svg(plan, words(plan), measured, measured_source)
     check_measured(plan, measured)
     lay = _Layout(plan)
     said = words(plan)
@@ -455,13 +472,13 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     latency = plural(plan.latency, "cycle")
     if c.register_inputs:
         latency += " (with the input register)"
-    for line in _wrap(f"{report.unit_phrase(plan)}; {said.structure}; latency {latency}", 12,
+    for line in wrap(f"{report.unit_phrase(plan)}; {said.structure}; latency {latency}", 12,
                       lay.width - 2 * MARGIN):
         y += 20
         out.text(MARGIN, y, line, size=12, data_role="subtitle")
     shade = "; darker = more register bits per bit position" if lay.shaded else ""
     y += 3
-    for line in _wrap("Bits across (most significant on the left), clock cycles down: each "
+    for line in wrap("Bits across (most significant on the left), clock cycles down: each "
                       f"band is the logic of one cycle above the registers its edge loads"
                       f"{shade}.", 11, lay.width - 2 * MARGIN):
         y += 14
@@ -576,7 +593,7 @@ def _axis(out: Svg, plan: Plan, lay: _Layout, y: float) -> None:
     out.text(MARGIN, y, "bit", size=10, fill=FAINT)
     w, size = plan.width, 10
     for b in _ticks(plan, lay, size):  # inside the data columns, clear of the carry-out one
-        half = _text_width(str(b), size) / 2
+        half = text_width(str(b), size) / 2
         x, anchor = lay.centre(b), "middle"
         if x - half < lay.data_x0:
             x, anchor = lay.data_x0, "start"
@@ -587,7 +604,7 @@ def _axis(out: Svg, plan: Plan, lay: _Layout, y: float) -> None:
     if lay.out:
         name = "/".join(_top_outputs(plan)) or "carry"
         x, cw = lay.x_of(w, lay.top - 1)
-        fits = _text_fits(name, size, cw)
+        fits = text_fits(name, size, cw)
         out.text(x + cw / 2 if fits else x + cw, y, name, size=size,
                  anchor="middle" if fits else "end", fill=INK, data_role="out-column",
                  data_bit=w)
@@ -607,7 +624,7 @@ def _ticks(plan: Plan, lay: _Layout, size: float) -> list[int]:
     w = plan.width
 
     def apart(a, b):
-        room = (_text_width(str(a), size) + _text_width(str(b), size)) / 2 + 10
+        room = (text_width(str(a), size) + text_width(str(b), size)) / 2 + 10
         return abs(lay.centre(a) - lay.centre(b)) >= room
 
     step = 4 if w > 16 else 1  # without boundaries: multiples of a power of two
@@ -692,7 +709,7 @@ def _io_strip(out: Svg, lay: _Layout, left: float, w: float, y: float, label: st
     out.add("rect", x=left, y=float(y), width=w, height=16.0, fill=fill, stroke=stroke,
             stroke_width=0.8)
     for shown in (ports + when, ports):  # the ports alone when the strip is narrow
-        if _text_fits(shown, 10, w - 6):
+        if text_fits(shown, 10, w - 6):
             out.text(left + w / 2, y + 12, shown, size=10, anchor="middle", fill=ink)
             break
     out.text(MARGIN, y + 12, label, size=10, fill=FAINT)
@@ -729,12 +746,12 @@ def _label_texts(plan: Plan, group: list, measured) -> list[str]:
 
 def _place(text: str, size: float, x: float, w: float, lay: _Layout) -> _Label | None:
     """Inside the block when it fits, else beside it in the empty lane (the wider side)."""
-    if _text_fits(text, size, w - 10):
+    if text_fits(text, size, w - 10):
         return _Label(text, size, x + w / 2, "middle")
     left_room, right_room = x - lay.x0 - 6, lay.grid_right - (x + w) - 6
-    if left_room >= right_room and _text_fits(text, size, left_room):
+    if left_room >= right_room and text_fits(text, size, left_room):
         return _Label(text, size, x - 6, "end")
-    if _text_fits(text, size, right_room):
+    if text_fits(text, size, right_room):
         return _Label(text, size, x + w + 6, "start")
     return None
 
@@ -833,7 +850,7 @@ def _legend(out: Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, s
         out.text(MARGIN + 140, y + 10, thousands(regs[kind]),
                  size=11, anchor="end", data_role="bits", data_kind=kind)
         meaning = said.meanings.get(kind, f"register of kind '{kind}'")
-        for i, line in enumerate(_wrap(meaning, 11, room)):
+        for i, line in enumerate(wrap(meaning, 11, room)):
             out.text(MARGIN + 150, y + 10 + 14 * i, line, size=11, fill="#444444",
                      data_role="meaning" if i == 0 else None)
             y += 14 if i else 0
@@ -847,7 +864,7 @@ def _legend(out: Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, s
     y += 28
     y = _symbols(out, plan, lay, said, y, slow)
     y += 20
-    for line in _wrap(slow_text, 12, lay.width - 2 * MARGIN):
+    for line in wrap(slow_text, 12, lay.width - 2 * MARGIN):
         out.text(MARGIN, y, line, size=12, weight="bold", fill=SLOW if slow else INK,
                  data_role="slowest")
         y += 16
@@ -873,7 +890,7 @@ def _symbols(out: Svg, plan: Plan, lay: _Layout, said: Words, y: float, slow) ->
         entries.append(("enable", f"en: {en.meaning}"))
     x = MARGIN
     for what, text in entries:
-        need = 28 + _text_width(text, 11) + 22
+        need = 28 + text_width(text, 11) + 22
         if x > MARGIN and x + need > lay.width - MARGIN:
             x, y = MARGIN, y + 20
         if what in ("block", "idle", "slow"):

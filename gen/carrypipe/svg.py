@@ -39,6 +39,28 @@ def stage_block(group, hot: bool, idle: bool, timed: bool = True
     return (SLOW_BLOCK if hot else IDLE_BLOCK if idle else BLOCK), data
 
 
+CHAR = 0.55  # average glyph width of the font, in ems, for fitting labels
+
+
+def text_width(text: str, size: float) -> float:
+    return len(text) * size * CHAR
+
+
+def text_fits(text: str, size: float, room: float) -> bool:
+    return text_width(text, size) <= room
+
+
+def wrap(text: str, size: float, room: float) -> list[str]:
+    """`text` broken at spaces into lines that fit `room` px."""
+    lines: list[str] = []
+    for word in text.split(" "):
+        if lines and text_fits(f"{lines[-1]} {word}", size, room):
+            lines[-1] += f" {word}"
+        else:
+            lines.append(word)
+    return lines
+
+
 def band(count: int, limit: int) -> int:
     """The smallest power of two that groups `count` items into at most `limit` bands."""
     size = 1

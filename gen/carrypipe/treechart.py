@@ -22,28 +22,19 @@ from collections.abc import Mapping
 from html import escape
 
 from . import report
-from .header import plural, reset_clause
+from .header import plural
 from .svg import (FAINT, FONT, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS, SLOW, Svg,
-                  measured_basis, num, slowest, stage_block, thousands)
+                  measured_basis, num, slowest, stage_block, thousands, wrap)
 from .svg import band as bands
 
-MEANINGS = {
-    "input": "input register: the operands as they arrive",
-    "tree": "tree ranks: the dots left after each stage's counters, by column",
-    "stage": "final adder: a slice's (or the output's) result bits and carry",
-    "skew": "final adder: row bits waiting for their slice",
-    "deskew": "result bits waiting for the upper slices (and bits the tree finished)",
-    "control": "valid bit, delayed like the data",
-    "prefix": "final adder: prefix terms between levels",
-    "result": "final adder: result bits on their way to the output",
-    "wire": "final adder: wire-pipelining copies of long-span terms",
-}
 MAX_COLUMNS = 96
 GRID_WIDTH, GUTTER = 900, 150
 
 
-def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str = "") -> str:
-    """The stage chart of a `TreePlan` or `NativePlan` (see the module docstring)."""
+def svg(plan, said, measured: Mapping[int, float] | None = None,
+        measured_source: str = "") -> str:
+    """The stage chart of a `TreePlan` or `NativePlan` (see the module docstring); `said`:
+    its words (`chart.words`): what the rows show and what each register kind holds."""
     slow, slow_text = slowest(plan, measured)
     c = plan.config
     width = plan.result_width
@@ -66,8 +57,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
              f"latency {plural(plan.latency, 'cycle')}", size=12)
     y += 17
     out.text(MARGIN, y, "Result bits across (most significant on the left), clock edges down: "
-             "the dots each tree rank holds, then the final adder's registers.", size=11,
-             fill=FAINT)
+             f"{said.block}.", size=11, fill=FAINT)
     if band > 1:
         y += 16
         out.text(MARGIN, y, f"Grouped into bands to stay readable: one column = {band} bits "
@@ -132,7 +122,7 @@ def svg(plan, measured: Mapping[int, float] | None = None, measured_source: str 
     y += 16
     out.text(MARGIN, y, f"outputs ready after edge {plan.latency}", size=10, fill=FAINT)
     y += 26
-    y = _legend(out, plan, y)
+    y = _legend(out, plan, said.meanings, y, page_w)
     out.text(MARGIN, y, slow_text, size=12, weight="bold", fill=SLOW if slow else INK,
              data_role="slowest")
     y += 16
@@ -211,7 +201,7 @@ def _bar(out, w, y, h, col_x, cw) -> None:
             data_edge=w.edge, data_count=w.width)
 
 
-def _legend(out, plan, y) -> float:
+def _legend(out, plan, meanings: Mapping[str, str], y, page_w: float) -> float:
     regs = plan.registers.as_dict()
     out.text(MARGIN, y, "Register bits by kind", size=13, weight="bold")
     y += 8
@@ -223,9 +213,11 @@ def _legend(out, plan, y) -> float:
         out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
         out.text(MARGIN + 140, y + 10, thousands(bits), size=11, anchor="end",
                  data_role="bits", data_kind=kind)
-        meaning = MEANINGS.get(kind, f"register of kind '{kind}'")
-        out.text(MARGIN + 150, y + 10, meaning + (reset_clause(plan) if kind == "control" else ""),
-                 size=11, fill="#444444")
+        meaning = meanings.get(kind, f"register of kind '{kind}'")
+        for i, line in enumerate(wrap(meaning, 11, page_w - 2 * MARGIN - 150)):
+            out.text(MARGIN + 150, y + 10 + 14 * i, line, size=11, fill="#444444",
+                     data_role="meaning" if i == 0 else None)
+            y += 14 if i else 0
         y += 20
     out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
     out.text(MARGIN + 140, y + 10, thousands(regs['total']), size=11,
