@@ -21,7 +21,6 @@ from .dots import booth_single
 from .netlist import Arith, Const, Expr, Netlist, Ref, Rep, bit, cat
 from .pipeline import Frame
 from .reduction import Dot, Tree
-from .treeplan import _runs
 
 
 def _is_one(x: Expr | None) -> bool:
@@ -242,21 +241,19 @@ def _result(plan, f: Frame) -> Expr:
     tree, r = plan.tree, plan.rows
     width = tree.width
     b = f.b
-    low_cols = [k for k in range(r.low) if tree.final[k]]
     if plan.adder is None:
         bits = [_final_bit(plan, f, k) for k in range(width)]
         return cat(*bits)
     drives = plan.adder.build_into(f, {"row0": _row(plan, f, 0), "row1": _row(plan, f, 1)})
     parts: list[Expr] = []
-    if low_cols:
-        b.section(*header.low_title(plan, low_cols))
-        current = {k: _final_bit(plan, f, k) for k in low_cols}
+    if plan.low_columns:
+        b.section(*header.low_title(plan, plan.low_columns))
+        current = {k: _final_bit(plan, f, k) for k in plan.low_columns}
         for s in plan.adder.stages:
-            n = plan.adder.number(s.index)
-            for i, (lsb, count) in enumerate(_runs(low_cols)):
-                reg = f.reg(f"{plan.unit.result}_low_{n}" + (f"_{lsb}" if i else ""))
-                b.load(reg, cat(*(current[k] for k in range(lsb, lsb + count))))
-                for k in range(lsb, lsb + count):
+            for w in plan.low_words[s.index]:
+                reg = f.reg(w.name)
+                b.load(reg, cat(*(current[k] for k in range(w.lsb, w.lsb + w.width))))
+                for k in range(w.lsb, w.lsb + w.width):
                     current[k] = reg[k]
         parts = [current.get(k, Const(0, 1)) for k in range(r.low)]
     else:

@@ -159,7 +159,7 @@ def tree_title(plan, stage) -> list[str]:
             f"{stage.index} holds each column's r-th dot, at the column's bit position."]
 
 
-def low_title(plan, columns: list[int]) -> list[str]:
+def low_title(plan, columns: tuple[int, ...]) -> list[str]:
     """The result bits the tree finished, waiting for the final adder."""
     first, last = plan.adder_stages[0].index, plan.adder_stages[-1].index
     name = plan.unit.result + "_low_"

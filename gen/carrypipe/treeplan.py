@@ -81,6 +81,23 @@ class TreePlan(Plan):
                 for stage, rank in enumerate(self.tree.ranks)
                 for row, runs in enumerate(_row_runs(rank))}
 
+    @cached_property
+    def low_columns(self) -> tuple[int, ...]:
+        """The result bits below the final adder that the tree finished (a dot there)."""
+        return tuple(k for k in range(self.rows.low) if self.tree.final[k]) \
+            if self.adder is not None else ()
+
+    @cached_property
+    def low_words(self) -> dict[int, tuple[Word, ...]]:
+        """The registers of those bits beside each stage of the final adder (by the adder's
+        stage index): `<result>_low_<stage>`, then `..._<first column>` for further runs."""
+        return {s.index: tuple(Word("deskew", f"{self.unit.result}_low",
+                                    self.adder.number(s.index), lsb, width,
+                                    self.edge(self.tree.stages + s.index),
+                                    position=lsb if n else None)
+                               for n, (lsb, width) in enumerate(_runs(self.low_columns)))
+                for s in self.adder.stages} if self.low_columns else {}
+
     def row_register(self, stage: int, row: int, column: int) -> str:
         """The name of the register holding the `row`-th dot of `column` after `stage`."""
         return next(w.name for w in self.rank_words[stage, row]
@@ -132,14 +149,9 @@ class TreePlan(Plan):
         words = self.io_words()
         for row_words in self.rank_words.values():
             words += row_words
+        for low_words in self.low_words.values():
+            words += low_words
         if self.adder is not None:
-            low = [k for k in range(self.rows.low) if self.tree.final[k]]
-            for s in self.adder.stages:
-                for n, (lsb, width) in enumerate(_runs(low)):
-                    words.append(Word("deskew", f"{self.unit.result}_low",
-                                      self.adder.number(s.index), lsb, width,
-                                      self.edge(self.tree.stages + s.index),
-                                      position=lsb if n else None))
             words += self.adder.words
         return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.lsb, x.name)))
 
