@@ -54,6 +54,11 @@ class Matrix:
     rows: tuple[tuple[int, int], ...]  # (first column, bits) of every partial-product row
     family: str  # what the leaves are: "operands" (input bits), "and" or "booth4" products
 
+    @property
+    def logic_leaves(self) -> bool:
+        """The leaves are logic (partial products, a level of their own), not input bits."""
+        return self.family != "operands"
+
     def heights(self) -> list[int]:
         out = [0] * self.width
         for leaf in self.leaves:

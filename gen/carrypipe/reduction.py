@@ -217,7 +217,7 @@ def tree(kind, width: int, width_b: int, operands: int, signed: bool, partial_pr
     """The tree of a carry-save unit of `kind` (a `units.CarrySave`, which gives its dot
     matrix); cached: config checks and plans ask alike."""
     matrix = kind.matrix(width, width_b, operands, signed, partial_products)
-    return reduce(matrix, style, levels_per_stage, matrix.family != "operands")
+    return reduce(matrix, style, levels_per_stage, matrix.logic_leaves)
 
 
 def tree_of(kind, c) -> Tree:
