@@ -235,13 +235,14 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
 
     K's one-bits are placed both ways (module docstring: "wait" for room or a half adder)
     and also each by a dot as soon as its column holds one ("eager"), and the tree with the
-    fewest stages, then register bits, is kept: waiting saves a level in most trees that
-    have a constant (716 of 20,752 sums and multipliers up to 32 x 32 bits, both trees, one
-    and two levels per stage, none worse), but Wallace's greedy levels sometimes have no
-    half adder in that column until the end (then eager is better)."""
+    fewest stages, then the least slowest-stage delay, then the fewest register bits, is
+    kept: waiting saves a level in most trees that have a constant, but Wallace's greedy
+    levels sometimes have no half adder in that column until the end (then eager is
+    better)."""
     trees = [_reduce(matrix, style, levels_per_stage, first_level, wait)
              for wait in (True, False)]
-    return min(trees, key=lambda t: (t.stages, sum(len(c) for r in t.ranks for c in r)))
+    return min(trees, key=lambda t: (t.stages, max(map(t.stage_delay, range(1, t.stages + 1))),
+                                     sum(len(c) for r in t.ranks for c in r)))
 
 
 def _reduce(matrix: dm.Matrix, style: str, levels_per_stage: int, first_level: bool,
