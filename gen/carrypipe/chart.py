@@ -215,7 +215,7 @@ def _(plan: TreePlan) -> Words:
             f"stage registers: each slice's {result} bits and the carry it hands on{top}"
             if isinstance(plan.adder, SlicedPlan) else
             f"output register: {result} [{r.top - (0 if r.carry_out else 1)}:{r.low}]")
-    if r.low and plan.adder is not None:
+    if plan.low_columns:
         finished = f"{result} bits the tree finished, waiting for the final adder"
         meanings["deskew"] = (meanings["deskew"] + "; " + finished if "deskew" in meanings
                               else "output deskew: " + finished)

@@ -170,6 +170,12 @@ class Tree:
     def ha(self) -> int:
         return sum(lv.half for lv in self.levels)
 
+    @property
+    def cost(self) -> tuple[int, int, int]:
+        """What `reduce` minimises: stages, the slowest stage's delay, register bits."""
+        return (self.stages, max(map(self.stage_delay, range(1, self.stages + 1))),
+                sum(len(col) for rank in self.ranks for col in rank))
+
     def stage_delay(self, stage: int) -> int:
         return max((lv.delay for lv in self.levels if lv.stage == stage), default=0)
 
@@ -241,8 +247,7 @@ def reduce(matrix: dm.Matrix, style: str, levels_per_stage: int,
     better)."""
     trees = [_reduce(matrix, style, levels_per_stage, first_level, wait)
              for wait in (True, False)]
-    return min(trees, key=lambda t: (t.stages, max(map(t.stage_delay, range(1, t.stages + 1))),
-                                     sum(len(c) for r in t.ranks for c in r)))
+    return min(trees, key=lambda t: t.cost)
 
 
 def _reduce(matrix: dm.Matrix, style: str, levels_per_stage: int, first_level: bool,
