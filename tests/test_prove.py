@@ -438,6 +438,38 @@ def test_compositional_finds_planted_faults(fault, found):
     assert result.message == found
 
 
+@pytest.mark.parametrize("unit", ["adder", "subtractor"])
+@pytest.mark.parametrize("cell", CELLS)
+def test_compositional_proves_the_signed_overflow(unit, cell):
+    # Found by a new-user trial: the compositional proof once checked sum and carry only,
+    # so a unit whose overflow was wrong was called proved.  The reference for overflow is
+    # its definition on the exact result (miter.signed_overflow); the direct proof agrees.
+    plan = plan_of(unit=unit, width=13, slices=[4, 1, 8], cell=cell, signed=True,
+                   carry_in=True)
+    result = prove.prove(plan, method="compositional")
+    assert result.proved, result.message
+    assert ", the last with its signed overflow, with every flip-flop cut" in result.message
+
+
+def _overflow_of_addition(text: str) -> str:
+    """A subtractor's overflow rule replaced by the adder's (operand signs equal, not
+    different): right for half of the sign combinations only."""
+    bad = re.sub(r"(overflow_stage_\d+ <= \(a_skew_\d+\[\d+\]) \^ ", r"\1 ~^ ", text, count=1)
+    assert bad != text
+    return bad
+
+
+def test_compositional_finds_a_wrong_overflow():
+    plan = plan_of(unit="subtractor", width=33, slice_width=7, cell="native", signed=True,
+                   carry_in=True, valid=True)
+    bad = _overflow_of_addition(emit.unit_verilog(plan))
+    result = prove.prove(plan, verilog=bad, method="compositional")
+    assert result.message == ("not proved: slice 4: its logic does not give the signed overflow "
+                              "of a - b - c on its own operand bits and carry-in (cell check, "
+                              "flip-flops cut)")
+    assert not prove.prove(plan, verilog=bad, method="direct").proved
+
+
 def test_compositional_refuses_a_data_register_with_a_reset():
     plan = plan_of(width=8, slice_width=4, cell="native", reset="sync", valid=True)
     text = emit.unit_verilog(plan)

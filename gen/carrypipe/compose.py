@@ -15,11 +15,15 @@ the claim into parts that each stay small at any width:
      S_j[i]          the net that reaches sum[i] through exactly L - e_j plain flip-flops;
      K_j             the data input of `carry_stage_j`, or for the last slice the net that
                      reaches cout through L - e_j plain flip-flops;
+     V               of a signed unit, the net that reaches overflow through L - e_j plain
+                     flip-flops of the last slice j;
    and checks e_{j+1} = e_j + 1.
 2. Cells (Yosys sat, combinational).  Every flip-flop is cut: its output becomes a free
    input and its data input an output.  Then `{K_j, S_j} == A_j + B_j + C_j` is proved for
    every slice, for all values of all free inputs (the unit's inputs and every cut output):
-   a slice whose logic reads anything but its own A_j, B_j, C_j fails here.
+   a slice whose logic reads anything but its own A_j, B_j, C_j fails here.  Of a signed
+   unit the last slice also proves V == the signed overflow of A_j op B_j op C_j taken as
+   numbers of the slice's k bits (`miter.signed_overflow`).
 3. Valid (in `prove.py`): the direct bounded proof with only `out_valid` compared, which is
    tiny because the data path drops out.
 
@@ -31,7 +35,10 @@ K_{j-1}(t - 1), which by part 2 is the carry out of bits lo'..hi' of slice j - 1
 its carry-in, at cycle t - 1 = (t - e_j) + e_{j-1}; the schoolbook rule (common practice)
 makes that the carry into bit lo.  Then S_j(t) holds bits lo..hi of the sum of cycle t - e_j,
 and sum[i](t) = S_j(t - (L - e_j)) holds bit i of the sum of cycle t - L.  The same holds
-for cout.  With `enable`, the structural check of `prove.py` adds what the direct proof adds.
+for cout.  The overflow of a W-bit signed operation depends only on the operands' top bits
+and the carry (borrow) into the top bit (their exclusive or with the carry out of it, common
+practice); the top slice's k-bit operation has the same top bits and, by the induction, the
+same carry into them, so its overflow is the unit's.  With `enable`, the structural check of `prove.py` adds what the direct proof adds.
 """
 
 from __future__ import annotations
@@ -41,7 +48,7 @@ import re
 from dataclasses import dataclass
 
 from .header import plural
-from .miter import chained
+from .miter import chained, signed_overflow
 from .plan import Plan
 from .solver import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
 from .tools import Deadline
@@ -124,6 +131,7 @@ class SliceNets:
     c: object
     s: list
     k: object | None  # None: the last slice of a unit without carry_out
+    v: object | None = None  # the overflow net of a signed unit's last slice
 
 
 def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
@@ -171,6 +179,11 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
             if n != lat - e:
                 return [], (f"cout leaves slice {j} through {plural(n, 'plain flip-flop')}, not "
                             f"the {lat - e} the latency requires")
+        if j == len(plan.slices) - 1 and "overflow" in (p.name for p in plan.ports):
+            nets.v, n = wiring.back(wiring.port["overflow"][0])
+            if n != lat - e:
+                return [], (f"overflow leaves slice {j} through {plural(n, 'plain flip-flop')}, "
+                            f"not the {lat - e} the latency requires")
         found.append(nets)
     return found, None
 
@@ -238,7 +251,16 @@ def cut_design(wiring: Wiring, nets: list[SliceNets], op: str) -> dict[str, str]
         got = cut.cat(n.s) if n.k is None else "{" + f"{cut.ref(n.k)}, " + cut.cat(n.s)[1:]
         want = f"ref_{n.index}[{k - 1}:0]" if n.k is None else f"ref_{n.index}"
         body.append(f"  wire ok_{n.index} = ({got} == {want});")
-    return cut.files(body, [f"ok_{n.index}" for n in nets])
+    oks = [f"ok_{n.index}" for n in nets]
+    top = nets[-1]
+    if top.v is not None:  # one part more: the overflow, after the slices' parts
+        k = len(top.s)
+        body += [f"  wire [{k - 1}:0] top_a = {cut.cat(top.a)};",
+                 f"  wire [{k - 1}:0] top_b = {cut.cat(top.b)};"]
+        body += signed_overflow("ovf", "top_a", "top_b", cut.ref(top.c), k, op)
+        body.append(f"  wire ok_{len(nets)} = ({cut.ref(top.v)} == ovf);")
+        oks.append(f"ok_{len(nets)}")
+    return cut.files(body, oks)
 
 
 def first_failing_part(files: dict[str, str], count: int, timeout: Deadline) -> int | None:
@@ -263,14 +285,20 @@ def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outco
     count = len(plan.slices)
     op = "+" if plan.unit.op == "add" else "-"
     spec = f"a {op} b {op} c"  # c: the carry (borrow) into the slice
+    signed = "overflow" in (p.name for p in plan.ports)
     method = (f"compositional: structure traced, each of {plural(count, 'slice')} proved "
-              f"against {spec} with every flip-flop cut (Yosys sat)")
+              f"against {spec}" + (", the last with its signed overflow," if signed else "")
+              + " with every flip-flop cut (Yosys sat)")
     wiring = Wiring(net, module)
     nets, problem = trace(plan, wiring)
     if problem:
         return Outcome(method, problem)
     files = cut_design(wiring, nets, op)
-    bad = first_failing_part(files, count, timeout)
+    bad = first_failing_part(files, count + signed, timeout)
+    if bad == count:
+        return Outcome(method, f"slice {count - 1}: its logic does not give the signed "
+                               f"overflow of {spec} on its own operand bits and carry-in "
+                               "(cell check, flip-flops cut)")
     if bad is not None:
         return Outcome(method, f"slice {bad}: its logic does not compute {spec} on its own "
                                "operand bits and carry-in (cell check, flip-flops cut)")
