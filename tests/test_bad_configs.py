@@ -16,6 +16,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
 import yaml
 from click.testing import CliRunner
 
@@ -309,4 +310,29 @@ def test_paths_that_are_not_regular_files(tmp_path):
                 and lines[0].startswith("carrypipe: error: ") and where in lines[0]):
             failed.append((kind, args[0], code, stderr[:200], exc))
     assert not failed, failed
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("keys, why", [
+    ({"name": "sum", "width": 8}, "sum is an output port of this unit"),
+    ({"name": "clk", "width": 8, "slice_width": 4}, "clk is an input port of this unit"),
+    ({"name": "acc", "unit": "accumulator", "width": 8}, "acc is an output port of this unit"),
+    ({"name": "carry_stage_0", "width": 8, "slice_width": 4},
+     "carry_stage_0 is a register of this unit"),
+    ({"name": "gen", "width": 8, "pipeline": "levels", "cell": "kogge-stone"},
+     "gen is a wire of this unit"),
+])
+def test_a_name_taken_by_one_of_the_units_signals_is_refused(tmp_path, keys, why):
+    # Found by a new-user trial: `name: sum` built a module with an output `sum`, which
+    # Verilator's -Wall lint flags (VARHIDDEN: a signal hiding its module's name).
+    cfg = tmp_path / "c.yaml"
+    cfg.write_text(yaml.safe_dump(keys))
+    out = tmp_path / "out"
+    for command in (["build", str(cfg), "-o", str(out)], ["plan", str(cfg)],
+                    ["check", str(cfg)]):
+        res = CliRunner().invoke(main, command)
+        assert res.exit_code == 2, res.output
+        assert res.output == (f"carrypipe: error: c.yaml: key 'name': value {keys['name']!r} is "
+                              "not allowed; expected a name other than the unit's own signal "
+                              f"names ({why})\n")
     assert not out.exists()

@@ -474,3 +474,20 @@ def test_last_resort_finds_a_kind_the_model_put_low(monkeypatch, tmp_path):
     monkeypatch.setattr(candidates, "last_resort", lambda *a: [])
     monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "again"))
     assert fit.run(base, s, executor.Local(1)).chosen is None
+
+
+def test_candidates_with_a_signal_named_like_the_unit_are_left_out(counted):
+    # A sliced adder may be named `gen`; a `levels` unit of the same width has a wire `gen`,
+    # and a module holding a signal of its own name fails Verilator's -Wall lint
+    # (VARHIDDEN), so fit must not choose or write such a unit.
+    base = config.from_mapping({"name": "gen", "width": 8})
+    dev = devices.get("ecp5-85k")
+    every = candidates.generate(base, None, ("slices", "levels"))
+    assert any(c.pipeline == "levels" for c in every)
+    out = fit.run(base, fit.Settings(250, dev, modes=("slices", "levels")), executor.Local(1))
+    assert {r.config.pipeline for r in out.rows} == {"slices"}
+    assert all(config.from_mapping(job.config).pipeline == "slices" for job in counted)
+    left = [n for n in out.notes if "left out: the name 'gen'" in n]
+    levels = candidates.distinct([fit.make_row(c, "even", dev) for c in every
+                                  if c.pipeline == "levels"])
+    assert len(left) == 1 and left[0].startswith(f"{len(levels)} candidates left out")

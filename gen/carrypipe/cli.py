@@ -23,6 +23,7 @@ from . import __version__, candidates, devices, emit, output, report, sim, tools
 from .config import (CELLS, PIPELINES, PREFIX_CELLS, TREES, ConfigError, check_split, load,
                      reads, split_span)
 from .config import read_text as read_config_text
+from .netlist import NameClash
 from .plan import DIRECT_UP_TO, make_plan
 from .prove import METHODS as PROOF_METHODS
 from .treeplan import DIRECT_BITS, DIRECT_ROWS
@@ -252,7 +253,14 @@ def load_plan(config_path: str, slice_width=None, slices=None):
             cfg = cfg.with_split(check_split("--slices", "slices", parts, span, what))
     except ConfigError as exc:
         raise UserError(str(exc)) from None
-    return make_plan(cfg)
+    plan = make_plan(cfg)
+    try:
+        plan.netlist()
+    except NameClash as exc:
+        raise UserError(f"{Path(config_path).name}: key 'name': value {cfg.name!r} is not "
+                        f"allowed; expected a name other than the unit's own signal names "
+                        f"({exc})") from None
+    return plan
 
 
 MAX_VECTORS = 10_000_000

@@ -20,6 +20,7 @@ from . import plot, toolflow
 from .candidates import Row
 from .config import Config
 from .header import plural
+from .netlist import NameClash
 from .plan import make_plan
 
 WARMUP_NOTE = ("note: the first call of each WebAssembly tool (yowasp-*) on a machine can take "
@@ -73,6 +74,20 @@ def make_row(cfg: Config, origin: str, device: devices.Device, seeds: int = 1) -
     return row
 
 
+def _named_apart(rows: list[Row]) -> tuple[list[Row], int]:
+    """The rows whose unit has no signal named like the unit (`netlist.NameClash`), and how
+    many others there were: the config's own unit is checked when it is read, another
+    mode's or split's names may still meet it."""
+    kept = []
+    for row in rows:
+        try:
+            row.plan.netlist()
+        except NameClash:
+            continue
+        kept.append(row)
+    return kept, len(rows) - len(kept)
+
+
 def mark_no_fit(row: Row, device: devices.Device, logic: int, flip_flops: int,
                 size: str) -> None:
     """Mark a candidate that does not fit `device`, naming a device with room for it."""
@@ -108,9 +123,9 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     versions = toolflow.versions(dev.family, settings.tools, settings.timeout)
     store = store or cache.Cache(read=settings.use_cache)
     new_row = lambda c, origin: make_row(c, origin, dev, settings.seeds)  # noqa: E731
-    rows = candidates.distinct([new_row(c, "even") for c in
-                                candidates.generate(base, settings.cells, settings.modes,
-                                                    settings.trees)])
+    rows, clashing = _named_apart(candidates.distinct(
+        [new_row(c, "even") for c in candidates.generate(base, settings.cells, settings.modes,
+                                                         settings.trees)]))
     progress, warned = Progress(echo), False
     measurements = cached = 0
     margin = model.margin(dev.name)
@@ -159,10 +174,16 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                 mark_no_fit(row, dev, full[0].logic_used or 0,
                             harness.design_flip_flops(row.plan),
                             full[0].message)
-        rows += candidates.uneven_rows(rows, target, new_row)
+        more, left_out = _named_apart(candidates.uneven_rows(rows, target, new_row))
+        rows += more
+        clashing += left_out
     chosen = candidates.select(rows, target)
     outcome = Outcome(settings, rows, versions, chosen, candidates.best(rows),
                       measurements=measurements, cached=cached)
+    if clashing:
+        outcome.notes.append(f"{plural(clashing, 'candidate')} left out: the name "
+                             f"{base.name!r} is one of their own signal names (a module "
+                             "named like one of its signals fails Verilator's -Wall lint)")
     if not plot.available():
         outcome.notes.append(plot.MISSING)
     if model.entry_for(dev.name) is None:

@@ -274,8 +274,21 @@ class Netlist:
         return self.reset != "none" and (vec.cls == CONTROL or self.reset_data)
 
 
+class NameClash(ValueError):
+    """A port, register or wire would carry the module's own name: legal Verilog, but a
+    signal that hides its module's name is a lint warning (Verilator -Wall: VARHIDDEN), so
+    the unit's name must be another."""
+
+    def __init__(self, vec: Vec):
+        self.vec = vec
+        what = {"input": "an input port", "output": "an output port", "reg": "a register",
+                "wire": "a wire"}[vec.role]
+        super().__init__(f"{vec.name} is {what} of this unit")
+
+
 class Builder:
-    """Collects a netlist section by section; every name is checked to be unique."""
+    """Collects a netlist section by section; every name is checked to be unique and to
+    differ from the module's."""
 
     def __init__(self, name: str):
         self.name = name
@@ -286,6 +299,8 @@ class Builder:
     def _new(self, vec: Vec) -> Vec:
         if vec.name in self.names:
             raise ValueError(f"{vec.name} is declared twice")
+        if vec.name == self.name:
+            raise NameClash(vec)
         self.names[vec.name] = vec
         return vec
 
