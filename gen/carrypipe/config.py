@@ -260,9 +260,11 @@ def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
 def check_name(where: str, name) -> None:
     """Validate `name`: a Verilog identifier that no Verilog keyword, no internal module of
     carrypipe and no file carrypipe writes beside the unit's can collide with."""
-    if (not isinstance(name, str) or not _IDENT.match(name) or len(name) > MAX_NAME
-            or name in VERILOG_KEYWORDS):
+    if not isinstance(name, str) or not _IDENT.match(name) or len(name) > MAX_NAME:
         raise _fail(where, "name", name, KEYS["name"][0])
+    if name in VERILOG_KEYWORDS:
+        raise _fail(where, "name", name, f"a name that is not a Verilog or SystemVerilog "
+                    f"keyword ({name} is one)")
     if name.lower().startswith(RESERVED_PREFIX):
         raise _fail(where, "name", name, f"a name that does not start with {RESERVED_PREFIX} "
                     "(in any case), which carrypipe keeps for its own modules")
