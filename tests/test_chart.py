@@ -348,7 +348,7 @@ def test_every_slice_is_labelled_with_its_bits(name):
     for b in blocks:
         hi, _, lo = b.get("data-bits").partition(":")
         assert f"bits {hi}:{lo}" in labels[b.get("data-stage")] or (
-            hi == lo and f"bits {lo}" in labels[b.get("data-stage")])
+            hi == lo and f"bit {lo}" in labels[b.get("data-stage")])
 
 
 @pytest.mark.parametrize("name", PREFIX_CASES)

@@ -36,7 +36,7 @@ from . import positions, prefix, report, treechart
 from .svg import (BLOCK, FAINT, FONT, IDLE_BLOCK, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS,
                   SLOW, SLOW_BLOCK, Svg, band, check_measured, measured_basis, num, slowest,
                   stage_block, text_fits, text_width, thousands, wrap)
-from .header import bits, plural, reset_clause
+from .header import bit_span, plural, reset_clause
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
 
@@ -236,7 +236,7 @@ def _(plan: NativePlan) -> Words:
 @singledispatch
 def _stage_text(plan, stage) -> str:
     """What a stage block holds, after its number: bits, or its logic."""
-    return f"bits {bits(stage.lsb, stage.msb)}"
+    return bit_span(stage.lsb, stage.msb)
 
 
 @_stage_text.register
@@ -739,7 +739,7 @@ def _label_texts(plan: Plan, group: list, measured) -> list[str]:
         lo, hi = min(s.lsb for s in group), max(s.msb for s in group)
         name = f"stages {first.index}–{last.index}"
         short = f"{first.index}–{last.index}"
-        what = f"bits {bits(lo, hi)}"
+        what = bit_span(lo, hi)
         figure = f"up to {figure}"
     return [f"{name} · {what} · {figure}", f"{short} · {what} · {figure}", f"{short} · {what}"]
 

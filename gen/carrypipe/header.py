@@ -59,6 +59,11 @@ def bits(lo: int, hi: int) -> str:
     return f"{hi}:{lo}" if hi != lo else str(lo)
 
 
+def bit_span(lo: int, hi: int) -> str:
+    """`bits 7:3`, or `bit 3` for one."""
+    return f"bits {hi}:{lo}" if hi != lo else f"bit {lo}"
+
+
 def plural(count: int, noun: str, many: str | None = None) -> str:
     """`1 stage`, `4 stages`."""
     return f"{count} {noun if count == 1 else many or noun + 's'}"
@@ -123,20 +128,21 @@ def slice_title(plan, s) -> list[str]:
     chain = (" with " + " and ".join(f"{f}_stage_{n - 1}" for f in kind.chain)
              if s.index else "")
     which = f"the final adder's slice {s.index}" if plan.nest else f"slice {s.index}"
-    out = [f"Stage {n}, loaded on edge {plan.edge(s.index)}: {which} {kind.verb} bits "
-           f"{bits(s.lsb, s.msb)}{chain}."]
+    out = [f"Stage {n}, loaded on edge {plan.edge(s.index)}: {which} {kind.verb} "
+           f"{bit_span(s.lsb, s.msb)}{chain}."]
     if s.index < len(plan.stages) - 1:
         nxt = plan.stages[s.index + 1]
         flags = f" and {', '.join(kind.travellers)}" if kind.travellers else ""
         ends = {op: plan.operand_end(op) for op in kind.operands
                 if plan.operand_end(op) > nxt.lsb}
         if len(set(ends.values())) == 1:
-            what = f"{', '.join(ends)} bits {bits(nxt.lsb, max(ends.values()) - 1)}"
+            what = f"{', '.join(ends)} {bit_span(nxt.lsb, max(ends.values()) - 1)}"
         else:  # a narrower operand (a tree's final adder)
-            what = ", ".join(f"{op} bits {bits(nxt.lsb, end - 1)}" for op, end in ends.items())
+            what = ", ".join(f"{op} {bit_span(nxt.lsb, end - 1)}" for op, end in ends.items())
         line = f"Skew: {what}{flags} wait for slice {s.index + 1}."
         if kind.result:
-            line += (f" Deskew: {kind.result} bits {bits(plan.base, nxt.lsb - 1)} travel on in "
+            travel = "travels" if plan.base == nxt.lsb - 1 else "travel"
+            line += (f" Deskew: {kind.result} {bit_span(plan.base, nxt.lsb - 1)} {travel} on in "
                      f"{kind.result}_deskew_{n + 1}.")
         out.append(line)
     return out
@@ -164,5 +170,5 @@ def low_title(plan, columns: tuple[int, ...]) -> list[str]:
     first, last = plan.adder_stages[0].index, plan.adder_stages[-1].index
     name = plan.unit.result + "_low_"
     held = f"{name}{first}" + (f" .. {name}{last}" if last != first else "")
-    return [f"{plan.unit.result} bits {bits(columns[0], columns[-1])}, finished by the tree, "
+    return [f"{plan.unit.result} {bit_span(columns[0], columns[-1])}, finished by the tree, "
             f"wait for the final adder in {held}."]

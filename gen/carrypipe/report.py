@@ -12,7 +12,7 @@ import textwrap
 from functools import singledispatch
 
 from . import __version__, cells, positions, prefix
-from .header import bits, plural, reset_phrase, stage_list, timing_phrase
+from .header import bit_span, bits, plural, reset_phrase, stage_list, timing_phrase
 from .plan import MODES, Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan, counters_phrase
 
@@ -338,7 +338,7 @@ def _(plan: SlicedPlan) -> list[str]:
                     f"narrows them all ({more});")
     elif any(s.width > 1 for s in slow):
         if len(slow) <= 4:
-            where = ", ".join(f"{s.index} (bits {bits(s.lsb, s.msb)})" for s in slow)
+            where = ", ".join(f"{s.index} ({bit_span(s.lsb, s.msb)})" for s in slow)
         else:
             widths = sorted({s.width for s in slow})
             each = f"{widths[0]} bits each" if len(widths) == 1 else "bits " + "/".join(
