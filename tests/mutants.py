@@ -40,9 +40,24 @@ _OPERATOR = re.compile(r"(?<=\s)(\||&|\^|\+|-|<=|<)(?=\s)|~(?=[\w(])")
 _RANGE = re.compile(r"\[(\d+):(\d+)\]")
 
 
+def unfold(text: str) -> str:
+    """The text with every statement that the writer folded over several lines
+    (`verilog.fold`, broken at spaces) on one line again, so a mutant is planted in a whole
+    statement whichever way it was printed."""
+    out: list[str] = []
+    open_statement = False
+    for line in text.split("\n"):
+        if open_statement:
+            out[-1] += " " + line.strip()
+        else:
+            out.append(line)
+        open_statement = bool(_LOGIC.match(out[-1])) and not out[-1].endswith(";")
+    return "\n".join(out)
+
+
 def logic_lines(text: str) -> list[int]:
     """Line numbers of assignments, wires with a value, and register loads (not reset
-    clauses)."""
+    clauses) of an unfolded text (`unfold`)."""
     lines = text.split("\n")
     return [n for n, line in enumerate(lines) if _LOGIC.match(line)
             and "<= 1'b0;" not in line and not re.search(r"<= \d+'d0;", line)]
@@ -50,7 +65,9 @@ def logic_lines(text: str) -> list[int]:
 
 def mutants(text: str, limit: int | None = None):
     """(description, mutated text) pairs: every operator of every logic line swapped, and
-    every part-select of a logic line's right-hand side shifted down by one bit."""
+    every part-select of a logic line's right-hand side shifted down by one bit; the
+    mutants are written unfolded."""
+    text = unfold(text)
     lines = text.split("\n")
     out = []
     for n in logic_lines(text):
@@ -81,6 +98,7 @@ def _put(lines: list[str], n: int, line: str) -> str:
 
 def drop_first_carry(text: str) -> str:
     """The unit with slice 1 reading a constant 0 instead of slice 0's carry."""
+    text = unfold(text)
     lines = text.split("\n")
     for n in logic_lines(text):
         if "carry_stage_0" in lines[n].split("<=", 1)[-1] and "carry_stage_0 <=" not in lines[n]:
@@ -93,6 +111,7 @@ def early_operand(text: str) -> str:
     """The unit with one line of slice 1's logic reading operand a straight from the port,
     a cycle early (the skew register bypassed; positions are the unit's, so `a[i]` and
     `a_skew_1[i]` name the same bit)."""
+    text = unfold(text)
     lines = text.split("\n")
     for n in logic_lines(text):
         rhs = re.split(r" <= | = ", lines[n], maxsplit=1)[-1]

@@ -11,7 +11,7 @@ import subprocess
 
 import pytest
 
-from carrypipe import emit, header
+from carrypipe import emit, header, verilog
 from carrypipe.config import CELLS, from_mapping
 from carrypipe.netlist import Builder, NetlistError
 from carrypipe.plan import make_plan
@@ -119,6 +119,28 @@ def test_unit_reads_like_hand_written_rtl(keys):
     assert declared == words  # every register is a word of the plan, by its name
     comments = [line for line in text.splitlines() if line.lstrip().startswith("//")]
     assert max(map(len, comments)) <= header.COLUMNS  # wrapped, as a colleague would
+
+
+# Wide slices and networks print long expressions (found by a new-user trial: lines up to
+# 1,385 columns); a colleague folds them.
+WIDE = [dict(unit="accumulator", width=64, slice_width=32, cell="kogge-stone", valid=True),
+        dict(width=256, pipeline="levels", cell="kogge-stone", local_width=16,
+             carry_increment=True, wire_registers=2),
+        dict(width=300, slice_width=150, cell="brent-kung", carry_in=True, signed=True,
+             enable=True, valid=True, reset="sync"),
+        dict(unit="addsub", width=33, pipeline="blocks", block_width=8, cell="kogge-stone"),
+        dict(unit="comparator", width=100, pipeline="levels", signed=True),
+        dict(unit="multiplier", width=16, partial_products="booth4", slice_width=16),
+        dict(unit="sum", operands=8, width=32, signed=True, pipeline="levels",
+             cell="sklansky")]
+
+
+@needs
+@pytest.mark.parametrize("keys", WIDE, ids=lambda k: f"{k.get('unit', 'adder')}-w{k['width']}")
+def test_a_wide_unit_folds_its_long_statements(tmp_path, keys):
+    text = emit.unit_verilog(make_plan(from_mapping({"name": "u", **keys})))
+    assert max(map(len, text.splitlines())) <= verilog.LINE
+    assert _warnings(tmp_path, text) == []
 
 
 needs_icarus = pytest.mark.skipif(not which("iverilog"), reason="iverilog is not on PATH")

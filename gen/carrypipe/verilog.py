@@ -14,6 +14,7 @@ from . import header
 from .netlist import Arith, Cat, Cmp, Const, Expr, Load, Mux, Netlist, Op, Ref, Rep, Vec
 
 INDENT = "  "
+LINE = 100  # statements longer than this are folded (`fold`)
 
 # Binding strength (higher binds tighter), Verilog-2005 table 5-4.
 _PREC = {"~": 10, "*": 9, "+": 8, "-": 8, "<": 7, "<=": 7, "==": 6, "&": 5, "^": 4, "|": 3, "?": 1}
@@ -102,6 +103,30 @@ def _extend(a: Expr, width: int) -> str:
     return f"{{{zeros}, {text}}}"
 
 
+def fold(line: str) -> list[str]:
+    """A statement longer than LINE columns as several lines, broken between tokens (every
+    space of a printed statement separates two), each operator starting the next line and
+    continuation lines indented two levels deeper; a shorter statement as it is."""
+    if len(line) <= LINE:
+        return [line]
+    lead = line[:len(line) - len(line.lstrip(" "))]
+    words = []
+    for w in line.strip(" ").split(" "):
+        glued = words and not any(ch.isalnum() or ch in "_{}()[]'" for ch in words[-1])
+        if glued:  # an operator goes with the operand after it
+            words[-1] += " " + w
+        else:
+            words.append(w)
+    lines, cur = [], lead + words[0]
+    for w in words[1:]:
+        if len(cur) + 1 + len(w) > LINE:
+            lines.append(cur)
+            cur = lead + INDENT * 2 + w
+        else:
+            cur += " " + w
+    return lines + [cur]
+
+
 def _target(refs: tuple) -> str:
     texts = [expr(r) for r in reversed(refs)]
     return texts[0] if len(texts) == 1 else "{" + ", ".join(texts) + "}"
@@ -130,14 +155,14 @@ def _always(net: Netlist, loads: list[Load], resets: bool, keep: bool) -> list[s
         lines.append(f"{pad}if (rst) begin")
         lines += [f"{pad}{INDENT}{v.name} <= {const(0, v.width)};" for v in regs]
         lines.append(f"{pad}end else{' if (en)' if net.enable else ''} begin")
-        lines += [f"{pad}{INDENT}{b}" for b in body]
+        lines += [ln for b in body for ln in fold(f"{pad}{INDENT}{b}")]
         lines.append(f"{pad}end")
     elif net.enable:
         lines.append(f"{pad}if (en) begin")
-        lines += [f"{pad}{INDENT}{b}" for b in body]
+        lines += [ln for b in body for ln in fold(f"{pad}{INDENT}{b}")]
         lines.append(f"{pad}end")
     else:
-        lines += [f"{pad}{b}" for b in body]
+        lines += [ln for b in body for ln in fold(f"{pad}{b}")]
     lines.append(f"{INDENT}end")
     return lines
 
@@ -165,9 +190,9 @@ def write(net: Netlist) -> str:
                  and a.targets[0].width == a.targets[0].vec.width}
         for v in s.wires:  # a wire driven whole by one expression is declared with it
             head = f"{INDENT}wire {rng(v)}{' ' if v.width > 1 else ''}{v.name}"
-            out.append(f"{head} = {expr(whole[id(v)].expr)};" if id(v) in whole else f"{head};")
-        out += [f"{INDENT}assign {_target(a.targets)} = {expr(a.expr)};" for a in s.assigns
-                if not (len(a.targets) == 1 and id(a.targets[0].vec) in whole)]
+            out += fold(f"{head} = {expr(whole[id(v)].expr)};" if id(v) in whole else f"{head};")
+        out += [ln for a in s.assigns if not (len(a.targets) == 1 and id(a.targets[0].vec) in whole)
+                for ln in fold(f"{INDENT}assign {_target(a.targets)} = {expr(a.expr)};")]
         groups: dict[tuple[bool, bool], list[Load]] = {}
         for ld in s.loads:
             v = ld.targets[0].vec
