@@ -213,10 +213,31 @@ def bit(e: Expr, i: int) -> Expr:
 
 
 def part(e: Expr, lo: int, n: int) -> Expr:
-    """Bits lo..lo+n-1 (0-based) of an expression: a slice stays a slice."""
+    """Bits lo..lo+n-1 (0-based) of a bitwise expression, keeping its shape: a slice stays
+    a slice, and `b ^ {12{sub}}` gives `b[7:4] ^ {4{sub}}`, not four one-bit terms."""
+    if not (0 <= lo and n >= 1 and lo + n <= e.width):
+        raise IndexError(f"bits {lo}..{lo + n - 1} of a {e.width}-bit expression")
+    if n == 1:
+        return bit(e, lo)
     if isinstance(e, Ref):
         return Ref(e.vec, e.lo + lo, n)
-    return cat(*(bit(e, i) for i in range(lo, lo + n)))
+    if isinstance(e, Const):
+        return Const(e.value >> lo & ((1 << n) - 1), n)
+    if isinstance(e, Rep):
+        return Rep(e.bit, n)
+    if isinstance(e, Op):
+        return Op(e.op, tuple(part(a, lo, n) for a in e.args))
+    if isinstance(e, Mux):
+        return Mux(e.sel, part(e.one, lo, n), part(e.zero, lo, n))
+    if isinstance(e, Cat):
+        pieces, at = [], 0
+        for p in e.parts:
+            a, b = max(lo, at), min(lo + n, at + p.width)
+            if a < b:
+                pieces.append(part(p, a - at, b - a))
+            at += p.width
+        return cat(*pieces)
+    raise TypeError(f"cannot take bits of {type(e).__name__}")
 
 
 # ---- statements and the netlist ----

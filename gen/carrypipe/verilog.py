@@ -69,9 +69,10 @@ def _expr(e: Expr) -> tuple[str, int]:
         for a in e.args:
             sub = _expr(a)
             # Mixed bitwise operators get parentheses for the reader, except the AND
-            # inside an OR of the carry operator (g | p & c), which every adder text uses.
-            mixed = isinstance(a, Op) and a.op not in ("~", e.op) and not (
-                e.op == "|" and a.op == "&")
+            # inside an OR of the carry operator (g | p & c), which every adder text uses;
+            # so does a comparison inside one (`(a == b) & e`).
+            mixed = isinstance(a, Cmp) or isinstance(a, Op) and a.op not in ("~", e.op) \
+                and not (e.op == "|" and a.op == "&")
             parts.append(f"({sub[0]})" if mixed or sub[1] < prec else sub[0])
         return f" {e.op} ".join(parts), prec
     if isinstance(e, Arith):
