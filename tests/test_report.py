@@ -335,3 +335,12 @@ def test_the_other_tree_is_offered_only_when_it_differs():
     assert "`tree: wallace`" not in said and "`tree: native`" in said
     said = " ".join(tips(make(unit="sum", operands=5, width=8)).split())
     assert "`tree: wallace` (another counter placement)" in said
+
+
+@pytest.mark.parametrize("width, offered", [(1, False), (2, False), (3, True), (64, True)])
+def test_a_sparser_cell_is_offered_only_where_the_network_has_levels_to_thin(width, offered):
+    # A new-user trial: a 1-bit `levels` unit (no prefix level) was told to try a sparser
+    # cell, which builds the same unit; with one level (2 bits) every prefix network is the
+    # same single node, so the tip starts at two levels.
+    text = report.report(make(width=width, pipeline="levels", cell="kogge-stone"))
+    assert ("a sparser prefix `cell`" in text) == offered
