@@ -38,7 +38,8 @@ and sum[i](t) = S_j(t - (L - e_j)) holds bit i of the sum of cycle t - L.  The s
 for cout.  The overflow of a W-bit signed operation depends only on the operands' top bits
 and the carry (borrow) into the top bit (their exclusive or with the carry out of it, common
 practice); the top slice's k-bit operation has the same top bits and, by the induction, the
-same carry into them, so its overflow is the unit's.  With `enable`, the structural check of `prove.py` adds what the direct proof adds.
+same carry into them, so its overflow is the unit's.  With `enable`, the structural check
+of `prove.py` adds what the direct proof adds.
 """
 
 from __future__ import annotations
@@ -123,6 +124,11 @@ class Wiring:
         return None
 
 
+def _has_overflow(plan: Plan) -> bool:
+    """Whether the unit has a signed-overflow output (a signed adder or subtractor)."""
+    return any(p.name == "overflow" for p in plan.ports)
+
+
 @dataclass
 class SliceNets:
     index: int
@@ -179,7 +185,7 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
             if n != lat - e:
                 return [], (f"cout leaves slice {j} through {plural(n, 'plain flip-flop')}, not "
                             f"the {lat - e} the latency requires")
-        if j == len(plan.slices) - 1 and "overflow" in (p.name for p in plan.ports):
+        if j == len(plan.slices) - 1 and _has_overflow(plan):
             nets.v, n = wiring.back(wiring.port["overflow"][0])
             if n != lat - e:
                 return [], (f"overflow leaves slice {j} through {plural(n, 'plain flip-flop')}, "
@@ -285,7 +291,7 @@ def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outco
     count = len(plan.slices)
     op = "+" if plan.unit.op == "add" else "-"
     spec = f"a {op} b {op} c"  # c: the carry (borrow) into the slice
-    signed = "overflow" in (p.name for p in plan.ports)
+    signed = _has_overflow(plan)
     method = (f"compositional: structure traced, each of {plural(count, 'slice')} proved "
               f"against {spec}" + (", the last with its signed overflow," if signed else "")
               + " with every flip-flop cut (Yosys sat)")
