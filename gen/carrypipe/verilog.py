@@ -104,28 +104,48 @@ def _extend(a: Expr, width: int) -> str:
     return f"{{{zeros}, {text}}}"
 
 
+# Where a folded statement breaks best, by the operator that starts the next line: the
+# loosest-binding first (a break before `&` in `g | p & c` would read as `(g | p) & c`).
+_BREAK_RANK = {"?": 0, ":": 0, "|": 1, "^": 2, "&": 3, "+": 4, "-": 4, "==": 5, "<": 5,
+               "<=": 5}
+
+
 def fold(line: str) -> list[str]:
     """A statement longer than LINE columns as several lines, broken between tokens (every
-    space of a printed statement separates two), each operator starting the next line and
-    continuation lines indented two levels deeper; a shorter statement as it is."""
+    space of a printed statement separates two), continuation lines indented two levels
+    deeper; a shorter statement as it is.  Each break is the one in reach that is least
+    deeply nested in brackets and braces, then before the loosest-binding operator (or
+    after a comma), then the last; an operator starts the line after it."""
     if len(line) <= LINE:
         return [line]
     lead = line[:len(line) - len(line.lstrip(" "))]
-    words = []
+    words: list[str] = []
     for w in line.strip(" ").split(" "):
-        glued = words and not any(ch.isalnum() or ch in "_{}()[]'" for ch in words[-1])
-        if glued:  # an operator goes with the operand after it
-            words[-1] += " " + w
+        if words and not any(ch.isalnum() or ch in "_{}()[]'" for ch in words[-1]):
+            words[-1] += " " + w  # an operator goes with the operand after it
         else:
             words.append(w)
-    lines, cur = [], lead + words[0]
-    for w in words[1:]:
-        if len(cur) + 1 + len(w) > LINE:
-            lines.append(cur)
-            cur = lead + INDENT * 2 + w
-        else:
-            cur += " " + w
-    return lines + [cur]
+    cost, depth, target = [], 0, True  # per word: how bad a break before it is
+    for k, w in enumerate(words):
+        op = w.split(" ", 1)[0] if " " in w else ""
+        after_comma = k > 0 and words[k - 1].endswith(",")
+        # The target and its `=` / `<=` stay on the first line.
+        cost.append((LINE, 0) if target else
+                    (depth, 0 if after_comma else _BREAK_RANK.get(op, 7)))
+        target = target and not (depth == 0 and op in ("=", "<="))
+        depth += sum(w.count(o) for o in "({") - sum(w.count(c) for c in ")}")
+    lines, first = [], 0  # words[first:] are not placed yet
+    while first < len(words):
+        head = lead if not lines else lead + INDENT * 2
+        end, width = first + 1, len(head) + len(words[first])
+        while end < len(words) and width + 1 + len(words[end]) <= LINE:
+            width += 1 + len(words[end])
+            end += 1
+        if end < len(words) and end - first > 1:  # break at the best place in reach
+            end = min(range(first + 1, end + 1), key=lambda k: (cost[k], -k))
+        lines.append(head + " ".join(words[first:end]))
+        first = end
+    return lines
 
 
 def _target(refs: tuple) -> str:
