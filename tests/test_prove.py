@@ -406,6 +406,12 @@ def test_compositional_covers_the_options(keys):
     assert result.proved, result.message
 
 
+def test_a_one_slice_unit_is_proved_in_its_one_slice():
+    # A re-trial read "each of 1 slice proved".
+    result = prove.prove(plan_of(width=12, cell="native"), method="compositional")
+    assert "structure traced, the one slice proved against a + b + c with" in result.message
+
+
 def _node_mutant(text: str) -> str:
     """Slice 0's first prefix node with its AND and OR exchanged."""
     for what, mutated in mutants(text):

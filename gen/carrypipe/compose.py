@@ -48,7 +48,7 @@ import json
 import re
 from dataclasses import dataclass
 
-from .header import plural
+from .header import each_of, plural
 from .miter import chained, signed_overflow
 from .plan import Plan
 from .solver import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
@@ -292,7 +292,7 @@ def prove_slices(plan: Plan, net: dict, module: str, timeout: Deadline) -> Outco
     op = "+" if plan.unit.op == "add" else "-"
     spec = f"a {op} b {op} c"  # c: the carry (borrow) into the slice
     signed = _has_overflow(plan)
-    method = (f"compositional: structure traced, each of {plural(count, 'slice')} proved "
+    method = (f"compositional: structure traced, {each_of(count, 'slice')} proved "
               f"against {spec}" + (", the last with its signed overflow," if signed else "")
               + " with every flip-flop cut (Yosys sat)")
     wiring = Wiring(net, module)

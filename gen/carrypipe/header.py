@@ -64,6 +64,11 @@ def bit_span(lo: int, hi: int) -> str:
     return f"bits {hi}:{lo}" if hi != lo else f"bit {lo}"
 
 
+def each_of(count: int, noun: str) -> str:
+    """`each of 4 slices`, `the one slice`."""
+    return f"the one {noun}" if count == 1 else f"each of {plural(count, noun)}"
+
+
 def plural(count: int, noun: str, many: str | None = None) -> str:
     """`1 stage`, `4 stages`."""
     return f"{count} {noun if count == 1 else many or noun + 's'}"

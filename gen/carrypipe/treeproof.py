@@ -41,7 +41,7 @@ from __future__ import annotations
 import json
 
 from .compose import Cut, Outcome, Wiring, first_failing_part
-from .header import plural
+from .header import each_of, plural
 from .miter import chained
 from .reduction import Dot, Tree
 from .solver import FAILED, PROVED, is_ff, no_verdict, run_yosys, sat_limit
@@ -282,8 +282,8 @@ def prove_tree(plan, net: dict, module: str, timeout: Deadline) -> Outcome:
     stages = tree.stages
     last = ("the final adder proved on the cut rows" if plan.adder
             else "the result (no final adder: one bit a column) proved on the cut rows")
-    method = (f"compositional: the tree's arithmetic checked exactly, each of "
-              f"{plural(stages, 'tree stage')} proved register by register against the plan "
+    method = (f"compositional: the tree's arithmetic checked exactly, "
+              f"{each_of(stages, 'tree stage')} proved register by register against the plan "
               f"with every flip-flop cut, {last} (Yosys sat)")
     problem = arithmetic(tree)
     if problem:
