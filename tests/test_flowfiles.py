@@ -133,3 +133,19 @@ def test_fusesoc_finds_the_core_and_runs_its_targets(built, tmp_path):
     unit = folder / "gate_add.v"
     unit.write_text(unit.read_text().replace("endmodule", "  wire spare = a[0];\nendmodule"))
     assert fusesoc("lint").returncode != 0
+
+
+@pytest.mark.parametrize("keys", [dict(unit="addsub", width=33, slice_width=8, carry_in=True,
+                                       signed=True, valid=True),
+                                  dict(unit="subtractor", width=1000, slice_width=250,
+                                       carry_in=True, signed=True)])
+def test_the_template_wraps_its_port_comments(keys):
+    # A new-user trial: a port's meaning ran the template's lines to 105 columns and more.
+    plan = make(name="u", **keys)
+    text = flowfiles.instance(plan)
+    assert max(map(len, text.splitlines())) <= 100
+    assert re.findall(r"^\s+\.(\w+)\s*\(", text, re.M) == [p.name for p in plan.ports]
+    lines = text.splitlines()
+    column = next(ln for ln in lines if ln.startswith("  .")).index("//")
+    continued = [ln for ln in lines if ln.startswith(" ") and ln.lstrip().startswith("//   ")]
+    assert continued and all(ln.index("//") == column for ln in continued)

@@ -7,9 +7,10 @@ Every figure is the plan's; file names are relative, so the folder can move.
 from __future__ import annotations
 
 import json
+import textwrap
 
 from . import __version__
-from .header import comment, timing_phrase
+from .header import COLUMNS, comment, timing_phrase
 from .testbench import vector_file
 
 
@@ -50,8 +51,11 @@ def instance(plan) -> str:
     for k, p in enumerate(plan.ports):
         comma = "," if k < len(plan.ports) - 1 else " "
         bits = f"{p.width} bit{'s' if p.width > 1 else ''}"
-        lines.append(f"  .{p.name:<{width}} ({p.name:<{width}}){comma}  // {p.direction:<6} "
-                     f"{bits}: {p.meaning}")
+        left = f"  .{p.name:<{width}} ({p.name:<{width}}){comma}  "
+        lines += textwrap.wrap(f"{p.direction:<6} {bits}: {p.meaning}", COLUMNS,
+                               initial_indent=f"{left}// ",
+                               subsequent_indent=" " * len(left) + "//   ",
+                               break_long_words=False, break_on_hyphens=False)
     lines += [");", ""]
     return "\n".join(lines)
 
