@@ -476,6 +476,20 @@ def test_compositional_finds_a_wrong_overflow():
     assert not prove.prove(plan, verilog=bad, method="direct").proved
 
 
+@pytest.mark.parametrize("output, register", [("overflow", "overflow_stage_3"),
+                                              ("cout", "carry_stage_3")])
+def test_compositional_names_an_output_tied_to_a_constant(output, register):
+    # A re-trial: an output register loading 1'b0 (which synthesis turns into a constant) was
+    # reported as "leaves slice 3 through 0 plain flip-flops".
+    plan = plan_of(width=13, slices=[4, 1, 4, 4], cell="ripple", signed=True, carry_in=True)
+    text = emit.unit_verilog(plan)
+    bad = re.sub(rf"(    {register} <= )[^;]*;", r"\g<1>1'b0;", text, count=1)
+    assert bad != text
+    result = prove.prove(plan, verilog=bad, method="compositional")
+    assert result.message == (f"not proved: slice 3: {output} is the constant 0, not a result "
+                              "of its slice")
+
+
 def test_compositional_refuses_a_data_register_with_a_reset():
     plan = plan_of(width=8, slice_width=4, cell="native", reset="sync", valid=True)
     text = emit.unit_verilog(plan)

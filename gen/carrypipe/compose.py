@@ -116,6 +116,18 @@ class Wiring:
                           f"{plural(cycles, 'plain flip-flop')}")
         return None, f"{port}[{index}] reaches its slice along {len(found)} different nets"
 
+    def before(self, port: str, index: int, cycles: int) -> tuple[object, str | None]:
+        """The net that reaches port[index] through exactly `cycles` plain flip-flops and no
+        logic, or a problem (a constant, or another number of flip-flops)."""
+        src, n = self.back(self.port[port][index])
+        name = f"{port}[{index}]" if len(self.port[port]) > 1 else port
+        if src in ("0", "1"):
+            return None, f"{name} is the constant {src}, not a result of its slice"
+        if n != cycles:
+            return None, (f"{name} leaves its slice through {plural(n, 'plain flip-flop')}, "
+                          f"not the {cycles} the latency requires")
+        return src, None
+
     def register(self, name: str) -> int | None:
         """The output bit of the one-bit plain register `name`, if there is one."""
         info = self.mod["netnames"].get(name)
@@ -161,11 +173,9 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
                 if problem:
                     return [], f"slice {j}: {problem}"
                 into.append(bit)
-            bit, n = wiring.back(wiring.port[plan.unit.result][i])
-            if n != lat - e:
-                return [], (f"slice {j}: sum[{i}] leaves it through "
-                            f"{plural(n, 'plain flip-flop')}, not the {lat - e} the latency "
-                            "requires")
+            bit, problem = wiring.before(plan.unit.result, i, lat - e)
+            if problem:
+                return [], f"slice {j}: {problem}"
             nets.s.append(bit)
         if j == 0:
             nets.c = "0"
@@ -180,16 +190,13 @@ def trace(plan: Plan, wiring: Wiring) -> tuple[list[SliceNets], str | None]:
             if nets.c is None:
                 return [], f"slice {j}: no plain one-bit register {chain}"
             found[-1].k = wiring.d_of[nets.c]
+        problem = None
         if j == len(plan.slices) - 1 and cfg.carry_out:
-            nets.k, n = wiring.back(wiring.port[plan.unit.carry_out_port(cfg)][0])
-            if n != lat - e:
-                return [], (f"cout leaves slice {j} through {plural(n, 'plain flip-flop')}, not "
-                            f"the {lat - e} the latency requires")
-        if j == len(plan.slices) - 1 and _has_overflow(plan):
-            nets.v, n = wiring.back(wiring.port["overflow"][0])
-            if n != lat - e:
-                return [], (f"overflow leaves slice {j} through {plural(n, 'plain flip-flop')}, "
-                            f"not the {lat - e} the latency requires")
+            nets.k, problem = wiring.before(plan.unit.carry_out_port(cfg), 0, lat - e)
+        if j == len(plan.slices) - 1 and _has_overflow(plan) and not problem:
+            nets.v, problem = wiring.before("overflow", 0, lat - e)
+        if problem:
+            return [], f"slice {j}: {problem}"
         found.append(nets)
     return found, None
 
