@@ -226,3 +226,17 @@ def test_a_block_reads_its_operand_as_one_vector_expression():
     for hi, lo in ((3, 0), (7, 4), (11, 8)):
         assert f"{{1'b0, b[{hi}:{lo}] ^ {{4{{sub}}}}}}" in text
     assert not re.search(r"b\[\d+\] \^ sub", text)
+
+
+def test_a_ports_comment_wraps_beside_a_wide_range():
+    # The port list aligns every comment after the widest range; at 4096 bits an
+    # adder/subtractor's `cout` meaning ran to 101 columns.  It wraps under its own column
+    # (header.trailing_comment, shared with the instantiation template).
+    plan = make_plan(from_mapping({"name": "u", "unit": "addsub", "width": 4096,
+                                   "slice_width": 2048, "carry_in": True, "signed": True,
+                                   "valid": True}))
+    lines = emit.unit_verilog(plan).splitlines()
+    assert max(map(len, lines)) <= verilog.LINE
+    k = next(n for n, ln in enumerate(lines) if re.match(r"  output wire\s+cout\b", ln))
+    assert lines[k + 1].strip() == "//   subtracting"
+    assert lines[k + 1].index("//") == lines[k].index("//")

@@ -7,10 +7,9 @@ Every figure is the plan's; file names are relative, so the folder can move.
 from __future__ import annotations
 
 import json
-import textwrap
 
 from . import __version__
-from .header import COLUMNS, comment, timing_phrase
+from .header import comment, timing_phrase, trailing_comment
 from .testbench import vector_file
 
 
@@ -51,11 +50,8 @@ def instance(plan) -> str:
     for k, p in enumerate(plan.ports):
         comma = "," if k < len(plan.ports) - 1 else " "
         bits = f"{p.width} bit{'s' if p.width > 1 else ''}"
-        left = f"  .{p.name:<{width}} ({p.name:<{width}}){comma}  "
-        lines += textwrap.wrap(f"{p.direction:<6} {bits}: {p.meaning}", COLUMNS,
-                               initial_indent=f"{left}// ",
-                               subsequent_indent=" " * len(left) + "//   ",
-                               break_long_words=False, break_on_hyphens=False)
+        lines += trailing_comment(f"  .{p.name:<{width}} ({p.name:<{width}}){comma}  ",
+                                  f"{p.direction:<6} {bits}: {p.meaning}")
     lines += [");", ""]
     return "\n".join(lines)
 

@@ -200,7 +200,7 @@ def write(net: Netlist) -> str:
         comma = "," if k < len(decl) - 1 else ""
         left = f"{INDENT}{kind} {r:<{w_rng}} {name}{comma}"
         width = len(INDENT) + 12 + w_rng + w_name + 2
-        out.append(f"{left:<{width}} // {meaning}".rstrip())
+        out += header.trailing_comment(f"{left:<{width}} ", meaning)
     out.append(");")
     for s in net.sections:
         out.append("")
