@@ -15,6 +15,7 @@ from carrypipe import emit, header, verilog
 from carrypipe.config import CELLS, from_mapping
 from carrypipe.netlist import Builder, NetlistError
 from carrypipe.plan import make_plan
+from carrypipe.testbench import testbench
 from carrypipe.tools import which
 
 FULL = dict(carry_in=True, valid=True, enable=True, reset="sync", register_inputs=True)
@@ -119,6 +120,32 @@ def test_unit_reads_like_hand_written_rtl(keys):
     assert declared == words  # every register is a word of the plan, by its name
     comments = [line for line in text.splitlines() if line.lstrip().startswith("//")]
     assert max(map(len, comments)) <= header.COLUMNS  # wrapped, as a colleague would
+
+
+def _testbench_warnings(tmp_path, plan):
+    """Verilator -Wall and Icarus -Wall over the unit compiled with its testbench, as the
+    testbench's own header runs them; Icarus's note that the unit takes the testbench's
+    timescale is expected (the unit has none, common practice for RTL) and left out."""
+    (tmp_path / "u.v").write_text(emit.unit_verilog(plan))
+    (tmp_path / "u_tb.v").write_text(testbench(plan, 10))
+    found = []
+    for cmd in (["verilator", "--lint-only", "-Wall", "--timing", "--timescale", "1ns/1ps",
+                 "--top-module", "u_tb", "u.v", "u_tb.v"],
+                ["iverilog", "-Wall", "-g2005", "-o", "u.vvp", "u.v", "u_tb.v"]):
+        out = subprocess.run(cmd, cwd=tmp_path, capture_output=True, text=True, timeout=120)
+        text = re.sub(r"warning: Some modules have no timescale.*?declared here: u\.v:\d+\n",
+                      "", out.stdout + out.stderr, flags=re.S)
+        found += [f"{cmd[0]}: {line}" for line in text.splitlines() if line.strip()]
+    return found
+
+
+@needs
+@pytest.mark.parametrize("keys", CASES, ids=IDS)
+def test_the_testbench_reads_without_warnings(tmp_path, keys):
+    """Found by a new-user trial: the testbench drew Verilator -Wall warnings (unread bits of
+    a vector copy, an unread reset or valid net, a blocking clock in an `always`)."""
+    plan = make_plan(from_mapping({"name": "u", **keys}))
+    assert _testbench_warnings(tmp_path, plan) == []
 
 
 # Wide slices and networks print long expressions (found by a new-user trial: lines up to
