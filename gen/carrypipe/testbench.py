@@ -42,7 +42,8 @@ def testbench(plan, count: int) -> str:
     conns = ",\n    ".join(f".{p.name}({p.name})" for p in plan.ports)
     shown_in = " ".join(f"{p.name}=%h" for p in ins)
     shown_out = " ".join(f"{p.name}=%h" for p in outs) + (" valid=%b" if c.valid else "")
-    want = ", ".join([f(p.name, "mem[k]") for p in outs] + ([f("valid", "mem[k]")] if c.valid else []))
+    want = ", ".join([f(p.name, "mem[k]") for p in outs]
+                     + ([f("valid", "mem[k]")] if c.valid else []))
     got = ", ".join([p.name for p in outs] + (["out_valid"] if c.valid else []))
     compare = " || ".join([f"{p.name} !== {f(p.name, 'mem[k]')}" for p in outs]
                           + ([f"out_valid !== {f('valid', 'mem[k]')}"] if c.valid else []))
