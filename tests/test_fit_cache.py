@@ -137,9 +137,13 @@ def test_a_lone_row_spreads_its_seeds_over_the_workers(monkeypatch, tmp_path):
     assert fit.split_seeds((4,), 2) == [(4,)]
 
 
-@pytest.mark.parametrize("status, jobs, runs", [
-    ("error", 1, 3), ("error", 2, 6), ("timeout", 1, 1), ("timeout", 2, 2), ("no-fit", 2, 2)])
-def test_when_no_run_gives_a_figure(monkeypatch, tmp_path, status, jobs, runs):
+@pytest.mark.parametrize("target, status, jobs, runs", [
+    (2000, "error", 1, 3), (2000, "error", 2, 6), (2000, "timeout", 1, 1),
+    (2000, "timeout", 2, 2), (2000, "no-fit", 2, 2), (2000, "broken", 2, 6),
+    # A reachable target makes every candidate promising; a broken tool still stops the
+    # search after 3 runs a worker (found by a docs trial: 45 runs with a crashing Yosys).
+    (100, "broken", 1, 3), (100, "broken", 2, 6)])
+def test_when_no_run_gives_a_figure(monkeypatch, tmp_path, target, status, jobs, runs):
     # At a target no candidate is promising for, the best predictions are measured; a seed
     # that fails in the tools is followed by the next, up to RETRY_SEEDS more, and no other
     # candidate is tried (a broken tool costs 3 runs a worker, not the whole search). The
@@ -157,9 +161,10 @@ def test_when_no_run_gives_a_figure(monkeypatch, tmp_path, status, jobs, runs):
     class Workers(Inline):
         def __init__(self):
             executor.Local.__init__(self, jobs)
-    out = fit.run(BASE, settings(2000), Workers(), echo=lines.append)
+    out = fit.run(BASE, settings(target), Workers(), echo=lines.append)
     assert sum(len(j.seeds) for j in calls) == runs
-    assert len({json.dumps(j.config, sort_keys=True) for j in calls}) == jobs
+    tried = len({json.dumps(j.config, sort_keys=True) for j in calls})
+    assert tried == jobs if target == 2000 else 1 <= tried <= runs
     promised = [int(m[1]) for m in map(re.compile(r"up to (\d+) more").search, lines) if m]
     assert len(promised) == runs
     assert all(left >= runs - done for done, left in enumerate(promised, 1))

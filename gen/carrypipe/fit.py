@@ -174,6 +174,8 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                 mark_no_fit(row, dev, full[0].logic_used or 0,
                             harness.design_flip_flops(row.plan),
                             full[0].message)
+        if tool_broken(rows, executor.jobs):
+            break  # environment_failure says so
         more, left_out = _named_apart(candidates.uneven_rows(rows, target, new_row))
         rows += more
         clashing += left_out
@@ -226,6 +228,15 @@ def split_seeds(seeds: tuple[int, ...], parts: int) -> list[tuple[int, ...]]:
         out.append(seeds[start:end])
         start = end
     return out
+
+
+def tool_broken(rows: list[Row], jobs: int) -> bool:
+    """Every run so far broke (a tool killed or silent: status `broken`, never a verdict on
+    the design), 1 + RETRY_SEEDS runs a worker or more: the tool, not the candidates, is at
+    fault, so the search stops there, whatever the target."""
+    measured = [m for row in rows for m in row.measured]
+    return (len(measured) >= (1 + candidates.RETRY_SEEDS) * jobs
+            and all(m.status == "broken" for m in measured))
 
 
 def environment_failure(outcome: Outcome) -> str | None:
