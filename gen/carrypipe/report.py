@@ -392,13 +392,13 @@ def _(plan: PrefixPlan) -> list[str]:
                     f"levels of {stages_phrase(deep)} over more stages;")
     # A tree's final adder is numbered as the unit's: its first stage follows the tree's.
     first = slow[0].index == plan.stages[0].index
-    return out + _position_tips(sch.positions, plan, first) + _input_tip(plan)
+    return out + _position_tips(sch.positions, plan, first)
 
 
 @singledispatch
 def _position_tips(pos, plan: PrefixPlan, first: bool) -> list[str]:
     """The tips a prefix-mode unit has by what a position is (one of the `positions`
-    types); `first`: stage 0 is among the slowest."""
+    types), the input register's last; `first`: stage 0 is among the slowest."""
     raise TypeError(f"no tips for {type(pos).__name__}")
 
 
@@ -418,7 +418,9 @@ def _(pos: positions.Bits, plan: PrefixPlan, first: bool) -> list[str]:
                     f"with `wire_registers: {moved.config.wire_registers}` (latency "
                     f"{moved.latency}{same}) moves the logic-free rank from the inputs into "
                     "the network, where it measured faster on ECP5 (docs/modes.md).")
-    return out
+    if c.wire_registers < plan.schedule.network.depth:
+        return out  # the wire-rank tip: one cycle more too, and measured faster (ECP5)
+    return out + _input_tip(plan)
 
 
 @_position_tips.register
@@ -428,15 +430,15 @@ def _(pos: positions.Blocks, plan: PrefixPlan, first: bool) -> list[str]:
     if c.block_width > 1 and first:
         out += _tip(f"a smaller `block_width` (now {c.block_width}) shortens the carry chains "
                     f"of stage {plan.stages[0].index};")
-    return out + _network_tips(plan)
+    return out + _network_tips(plan) + _input_tip(plan)
 
 
 @_position_tips.register
 def _(pos: positions.Slices, plan: PrefixPlan, first: bool) -> list[str]:
     if first and max(plan.schedule.widths) > 1:  # a comparator: never a final adder
         return _tip("narrower slices (`slice_width` or `slices`) shorten the comparisons of "
-                    "stage 0;")
-    return []
+                    "stage 0;") + _input_tip(plan)
+    return _input_tip(plan)
 
 
 def _network_tips(plan: PrefixPlan) -> list[str]:
