@@ -9,6 +9,7 @@ checks the pictures) in the default test run, so the gallery cannot silently bre
 
 from __future__ import annotations
 
+import hashlib
 import io
 import re
 import sys
@@ -60,13 +61,21 @@ def plan_of(stem: str):
                                                **GALLERY[stem][1]}))
 
 
+def svg_digest(svg_text: str) -> str:
+    """The SHA-256 of the chart a PNG was drawn from, kept in the PNG (text chunk
+    `svg-sha256`) so a test can tell a gallery image drawn from an older chart: fonts make
+    the pixels differ between machines, the chart's text does not."""
+    return hashlib.sha256(svg_text.encode()).hexdigest()
+
+
 def png(svg_text: str, scale: float = SCALE) -> bytes:
     """The chart as a small PNG: rendered by cairosvg, then each pixel mapped to the nearest
     colour of a palette of the chart's own colours (kept exact), their blends with white
-    (shades, anti-aliased edges) and greys (text)."""
+    (shades, anti-aliased edges) and greys (text); `svg_digest` in a text chunk."""
     import cairosvg
     import numpy as np
     from PIL import Image
+    from PIL.PngImagePlugin import PngInfo
 
     raw = cairosvg.svg2png(bytestring=svg_text.encode(), scale=scale)
     image = Image.open(io.BytesIO(raw)).convert("RGB")
@@ -83,8 +92,9 @@ def png(svg_text: str, scale: float = SCALE) -> bytes:
     index = distance.argmin(axis=1).astype(np.uint8)[where.reshape(-1)]
     paletted = Image.frombytes("P", image.size, index.tobytes())
     paletted.putpalette([v for c in colours for v in c])
-    out = io.BytesIO()
-    paletted.save(out, format="PNG", optimize=True)
+    out, info = io.BytesIO(), PngInfo()
+    info.add_text("svg-sha256", svg_digest(svg_text))
+    paletted.save(out, format="PNG", optimize=True, pnginfo=info)
     return out.getvalue()
 
 
