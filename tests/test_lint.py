@@ -267,3 +267,23 @@ def test_a_ports_comment_wraps_beside_a_wide_range():
     k = next(n for n, ln in enumerate(lines) if re.match(r"  output wire\s+cout\b", ln))
     assert lines[k + 1].strip() == "//   subtracting"
     assert lines[k + 1].index("//") == lines[k].index("//")
+
+
+def test_the_readmes_excerpt_is_the_demos_verilog():
+    """The README quotes the demo's Verilog (parts cut at `...`); each part must be what
+    `build` writes today, blank lines aside (found by a docs trial: a statement the writer
+    now folds was quoted on one line)."""
+    from pathlib import Path
+
+    from carrypipe.config import load
+
+    root = Path(__file__).parent.parent
+    readme = (root / "README.md").read_text()
+    start = readme.index("```verilog\nmodule ts_accum_add (")
+    block = readme[start + len("```verilog\n"):readme.index("```", start + 3)]
+    text = emit.unit_verilog(make_plan(load(str(root / "configs" / "demo.yaml"))))
+    text = text.replace("\n\n", "\n")
+    parts = [p for p in re.split(r"^  \.\.\.\n", block, flags=re.M) if p.strip()]
+    assert len(parts) == 3
+    for part in parts:
+        assert part in text, part
