@@ -12,10 +12,10 @@ import subprocess
 import pytest
 
 from carrypipe import emit, header, verilog
+from carrypipe import testbench as bench
 from carrypipe.config import CELLS, from_mapping
 from carrypipe.netlist import Builder, NetlistError
 from carrypipe.plan import make_plan
-from carrypipe.testbench import testbench
 from carrypipe.tools import which
 
 FULL = dict(carry_in=True, valid=True, enable=True, reset="sync", register_inputs=True)
@@ -127,7 +127,7 @@ def _testbench_warnings(tmp_path, plan):
     testbench's own header runs them; Icarus's note that the unit takes the testbench's
     timescale is expected (the unit has none, common practice for RTL) and left out."""
     (tmp_path / "u.v").write_text(emit.unit_verilog(plan))
-    (tmp_path / "u_tb.v").write_text(testbench(plan, 10))
+    (tmp_path / "u_tb.v").write_text(bench.testbench(plan, 10))
     found = []
     for cmd in (["verilator", "--lint-only", "-Wall", "--timing", "--timescale", "1ns/1ps",
                  "--top-module", "u_tb", "u.v", "u_tb.v"],
