@@ -9,6 +9,7 @@ import dataclasses
 import itertools
 import json
 import random
+import re
 
 import pytest
 
@@ -316,6 +317,10 @@ def report_manifest(p) -> str:
     ({"unit": "multiplier", "width": 8, "slices": [4, 4]},
      r"key 'slices': value \[4, 4\] is not allowed; expected slice widths that sum to the "
      r"final adder's width \(14\), not 8"),
+    # Found by a new-user trial: this one alone did not give the width.
+    ({"unit": "multiplier", "width": 8, "slices": [0, 14]},
+     r"key 'slices': value \[0, 14\] is not allowed; expected a list of positive integers "
+     r"\(LSB first\) that sum to the final adder's width \(14\)\Z"),
     ({"unit": "multiplier", "width": 1, "slice_width": 1},
      r"key 'slice_width': value 1 is not allowed; the tree leaves at most one bit in every "
      r"column: there is no final adder to split \(leave the key out\)\Z"),
@@ -403,3 +408,34 @@ def test_manifest_has_the_keys_of_an_adder_in_its_mode(keys):
         assert [s["index"] for s in found["stages"]] == list(range(first, p.latency))
         assert [s["levels"] for s in found["stages"]] == [list(s.levels)
                                                           for s in p.adder.stages]
+
+
+@pytest.mark.parametrize("keys, fixed", [
+    (dict(unit="multiplier", width=8, width_b=1), {"product": [8]}),
+    (dict(unit="multiplier", width=5, width_b=1, partial_products="booth4"), {"product": [5]}),
+    (dict(unit="multiplier", width=1, width_b=1, signed=True), {"product": [1]}),
+    (dict(unit="sum", width=1, operands=9), {"sum": [4]}),
+    (dict(unit="multiplier", width=5, width_b=3), {}),
+    (dict(unit="sum", width=2, operands=9, signed=True), {}),
+])
+def test_an_output_bit_tied_to_a_constant_is_named(keys, fixed):
+    """Found by a new-user trial: the Verilog said every result leaves a register, where a
+    column no dot reaches is the constant 0.  Such bits are named in the output section, and
+    each is 0 for every input by Python's integers (exhaustively: these units are small)."""
+    plan = make(**keys)
+    text = emit.unit_verilog(plan)
+    line = next(x for x in text.splitlines() if "// Outputs:" in x)
+    named = re.findall(r"(\w+) bit (\d+) is always 0", line)
+    assert {p: [int(b) for q, b in named if q == p] for p, _ in named} == fixed
+    c = plan.config
+
+    def value(v: int, w: int) -> int:
+        return v - (1 << w) if c.signed and v >> (w - 1) else v
+
+    ins = plan.unit.operand_ports(c)
+    width = plan.port(next(iter(fixed), plan.unit.result)).width
+    for values in itertools.product(*(range(1 << p.width) for p in ins)):
+        exact = [value(v, p.width) for v, p in zip(values, ins)]
+        result = (exact[0] * exact[1] if c.unit == "multiplier" else sum(exact)) % (1 << width)
+        for port, bits in fixed.items():
+            assert all(result >> b & 1 == 0 for b in bits), values

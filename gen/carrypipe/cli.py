@@ -23,6 +23,7 @@ from . import __version__, candidates, devices, emit, output, report, sim, tools
 from .config import (CELLS, PIPELINES, PREFIX_CELLS, TREES, ConfigError, check_split, load,
                      reads, split_span)
 from .config import read_text as read_config_text
+from .header import plural
 from .netlist import NameClash
 from .plan import DIRECT_UP_TO, make_plan
 from .prove import METHODS as PROOF_METHODS
@@ -317,7 +318,7 @@ def build(config, out_dir, vectors, seed):
     r = plan.registers
     click.echo(f"{plan.config.name}: {report.headline(plan)}, "
                f"{report.structure_phrase(plan)}, latency {plan.latency}, "
-               f"{r.total} register bits -> {dest}/")
+               f"{plural(r.total, 'register bit')} -> {dest}/")
     for fname in sorted(files):
         click.echo(f"  {fname}")
 

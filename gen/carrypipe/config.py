@@ -293,7 +293,8 @@ def check_split(where: str, key: str, value, width: int,
         return (value,) * full + ((rest,) if rest else ())
     if (not isinstance(value, list) or not value
             or not all(_is_int(v) and v >= 1 for v in value)):
-        raise _fail(where, key, value, KEYS["slices"][0].replace("width", what))
+        raise _fail(where, key, value, KEYS["slices"][0].replace("width", what)
+                    + f" ({width})")
     if sum(value) != width:
         raise _fail(where, key, value, f"slice widths that sum to {what} ({width}), "
                     f"not {sum(value)}")

@@ -5,7 +5,7 @@ registers made from the plan's words, and the output section.
 from __future__ import annotations
 
 from . import header
-from .netlist import CONTROL, DATA, Builder, Expr, Netlist, Vec
+from .netlist import CONTROL, DATA, Builder, Cat, Const, Expr, Netlist, Vec
 
 
 class Frame:
@@ -45,7 +45,9 @@ class Frame:
         """The output section (each output port from the register that holds it) and the
         netlist."""
         c = self.plan.config
-        self.b.section("Outputs: every result leaves a register of the last stage.")
+        fixed = constant_bits(drives)
+        self.b.section("Outputs: every result leaves a register of the last stage"
+                       + (f"; {', '.join(fixed)}." if fixed else "."))
         if c.valid:
             drives = {**drives, "out_valid": self.valid[-1]}
         for p in self.plan.ports:
@@ -53,3 +55,18 @@ class Frame:
                 self.b.drive(self.ports[p.name].all, drives[p.name])
         return self.b.netlist(reset=c.reset, reset_data=c.reset_data, enable=c.enable,
                               header=header.lines(self.plan))
+
+
+def constant_bits(drives: dict[str, Expr]) -> list[str]:
+    """The output bits tied to a constant (a column no dot reaches: the top product bit of
+    an unsigned multiplier by a 1-bit operand), as words: `product bit 8 is always 0`."""
+    out = []
+    for name, e in drives.items():
+        at = 0
+        for p in e.parts if isinstance(e, Cat) else (e,):
+            if isinstance(p, Const):
+                value = "0" if p.value == 0 else f"{p.width}'d{p.value}"
+                out.append(f"{name} {header.bit_span(at, at + p.width - 1)} "
+                           f"{'is' if p.width == 1 else 'are'} always {value}")
+            at += p.width
+    return out

@@ -14,8 +14,8 @@ Method (see docs/verification.md for the soundness argument):
   3. With `enable`, the SAT proof runs with `en` held high, and a structural check of the
      unit's netlist shows that every flip-flop is clocked by `clk` and enabled by `en`, that
      only flip-flops outside the cone of the results have the sync reset `rst`, and that
-     every output is a flip-flop output: a run with `en` is then the always-enabled run with
-     cycles repeated, so the proof carries over.
+     every output bit is a flip-flop output or a constant: a run with `en` is then the
+     always-enabled run with cycles repeated, so the proof carries over.
 """
 
 from __future__ import annotations
@@ -68,7 +68,8 @@ def structure(plan: Plan, net: dict) -> str | None:
     Every flip-flop is clocked by the rising edge of clk and (with `enable`) enabled by en
     alone; a flip-flop with a reset is reset by rst, in the config's way (sync or async), to
     0; with `reset_data` every flip-flop has that reset, else none in the fan-in of a data
-    output does (the valid bits have it); every output is a flip-flop output.
+    output does (the valid bits have it); every output bit is a flip-flop output or a
+    constant.
     """
     c = plan.config
     mod = net["modules"][c.name]
