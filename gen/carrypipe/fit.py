@@ -81,7 +81,7 @@ def _named_apart(rows: list[Row]) -> tuple[list[Row], int]:
     kept = []
     for row in rows:
         try:
-            row.plan.netlist()
+            row.plan.build_netlist()
         except NameClash:
             continue
         kept.append(row)

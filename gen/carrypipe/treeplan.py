@@ -155,7 +155,7 @@ class TreePlan(Plan):
             words += self.adder.words
         return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.lsb, x.name)))
 
-    def netlist(self):
+    def build_netlist(self):
         from . import carrysave
 
         return carrysave.build(self)
@@ -235,7 +235,7 @@ class NativePlan(Plan):
             words.append(Word("stage", name, s.index, 0, self.result_width, self.edge(s.index)))
         return tuple(sorted(words, key=lambda x: (x.edge, x.kind, x.lsb, x.name)))
 
-    def netlist(self):
+    def build_netlist(self):
         from . import carrysave
 
         return carrysave.build_native(self)
