@@ -211,10 +211,7 @@ def _(plan: TreePlan) -> Words:
                 meanings[kind] = "final adder: " + text
         # Its own words number its bits from 0 and name its carry out `cout`: the unit's.
         top = f"; its carry out is {result} [{r.top}]" if r.carry_out else ""
-        meanings["stage"] = "final adder: " + (
-            f"stage registers: each slice's {result} bits and the carry it hands on{top}"
-            if isinstance(plan.adder, SlicedPlan) else
-            f"output register: {result} [{r.top - (0 if r.carry_out else 1)}:{r.low}]")
+        meanings["stage"] = "final adder: " + _adder_stage(plan.adder, result, r, top)
     if plan.low_columns:
         finished = f"{result} bits the tree finished, waiting for the final adder"
         meanings["deskew"] = (meanings["deskew"] + "; " + finished if "deskew" in meanings
@@ -242,6 +239,36 @@ def _stage_text(plan, stage) -> str:
 @_stage_text.register
 def _(plan: PrefixPlan, stage) -> str:
     return stage.logic
+
+
+@singledispatch
+def _runs(plan) -> bool:
+    """Whether ranks are drawn as runs of each kind, not term by term: a prefix plan's."""
+    return False
+
+
+@_runs.register
+def _(plan: PrefixPlan) -> bool:
+    return True
+
+
+def _shaded_runs(plan: PrefixPlan, bit_band: int) -> bool:
+    """Runs shade by how full they are where one cell stands for many bits of a prefix rank,
+    or where a rank's terms per position tell the structure: a block's two candidate sums
+    before its select, two carries before its group reaches bit 0 (per bit, in `levels`,
+    they would only flicker)."""
+    return bit_band > 1 or plan.schedule.positions.shaded
+
+
+@singledispatch
+def _adder_stage(adder, result: str, rows, top: str) -> str:
+    """What a carry-save unit's final adder holds in its `stage` registers."""
+    return f"output register: {result} [{rows.top - (0 if rows.carry_out else 1)}:{rows.low}]"
+
+
+@_adder_stage.register
+def _(adder: SlicedPlan, result: str, rows, top: str) -> str:
+    return f"stage registers: each slice's {result} bits and the carry it hands on{top}"
 
 
 @singledispatch
@@ -292,14 +319,10 @@ class _Layout:
         band_h = min(60.0, max(15.0, GRID_HEIGHT / self.rows))
         self.rh = round(band_h * 0.45, 2)  # register row
         self.lh = round(band_h - self.rh, 2)  # logic lane
-        # Prefix ranks are drawn as runs of each kind, not term by term.  Cells shade by how
-        # full they are where one cell stands for many edges, or for many bits of a prefix
-        # rank, or where a rank's terms per position tell the structure: a block's two
-        # candidate sums before its select, two carries before its group reaches bit 0 (per
-        # bit, in `levels`, they would only flicker).
-        self.runs = isinstance(plan, PrefixPlan)
-        self.shaded = self.edge_band > 1 or (self.runs and (
-            self.bit_band > 1 or plan.schedule.positions.shaded))
+        # Cells shade by how full they are where one cell stands for many edges, or as
+        # `_runs` says.
+        self.runs = _runs(plan)
+        self.shaded = self.edge_band > 1 or self.runs and _shaded_runs(plan, self.bit_band)
         self.x0 = MARGIN + GUTTER
         self.data_x0 = self.x0 + (self.cw + OUT_GAP if self.out else 0)
         self.grid_w = self.columns * self.cw
@@ -447,6 +470,7 @@ def _join_runs(cells: list[_Cell], lay: _Layout) -> list[_Cell]:
 
 # ---- the picture ----
 
+@singledispatch
 def svg(plan: Plan, measured: Mapping[int, float] | None = None,
         measured_source: str = "") -> str:
     """The stage chart of `plan` as SVG text.
@@ -456,8 +480,6 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     is given the slowest stage is chosen by it, stage labels show it, and `measured_source`
     (e.g. "nextpnr, ECP5-85F") is named beside it.  Without it the unit-gate model decides.
     """
-    if isinstance(plan, (TreePlan, NativePlan)):  # a carry-save unit: its dot diagram
-        return treechart.svg(plan, words(plan), measured, measured_source)
     check_measured(plan, measured)
     lay = _Layout(plan)
     said = words(plan)
@@ -585,6 +607,13 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     title = f"<title>{escape(c.name)}: stage chart</title>"
     background = f'<rect x="0" y="0" width="{lay.width}" height="{height}" fill="{PAPER}"/>'
     return "\n".join([head, title, background, *out.parts, "</svg>"]) + "\n"
+
+
+@svg.register(TreePlan)
+@svg.register(NativePlan)
+def _(plan, measured: Mapping[int, float] | None = None, measured_source: str = "") -> str:
+    """A carry-save unit's chart: its dot diagram (`treechart`)."""
+    return treechart.svg(plan, words(plan), measured, measured_source)
 
 
 def _axis(out: Svg, plan: Plan, lay: _Layout, y: float) -> None:
