@@ -146,6 +146,8 @@ def test_the_testbench_reads_without_warnings(tmp_path, keys):
     a vector copy, an unread reset or valid net, a blocking clock in an `always`)."""
     plan = make_plan(from_mapping({"name": "u", **keys}))
     assert _testbench_warnings(tmp_path, plan) == []
+    # and no long lines (a 16-operand sum's FAIL message was one of 195 columns)
+    assert max(map(len, bench.testbench(plan, 10).splitlines())) <= verilog.LINE
 
 
 # Wide slices and networks print long expressions (found by a new-user trial: lines up to

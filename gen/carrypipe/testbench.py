@@ -13,6 +13,7 @@ CARRYPIPE_TB_NO_FATAL for a simulator that lacks `$fatal`).
 from __future__ import annotations
 
 from .header import command, comment
+from .verilog import LINE
 from .vectors import TAG_BITS, field_widths, output_ports
 
 
@@ -40,13 +41,17 @@ def testbench(plan, count: int) -> str:
         return f"  {kind} {rng}{p.name}{init};"
 
     conns = ",\n    ".join(f".{p.name}({p.name})" for p in plan.ports)
-    shown_in = " ".join(f"{p.name}=%h" for p in ins)
-    shown_out = " ".join(f"{p.name}=%h" for p in outs) + (" valid=%b" if c.valid else "")
-    want = ", ".join([f(p.name, "mem[k]") for p in outs]
-                     + ([f("valid", "mem[k]")] if c.valid else []))
-    got = ", ".join([p.name for p in outs] + (["out_valid"] if c.valid else []))
-    compare = " || ".join([f"{p.name} !== {f(p.name, 'mem[k]')}" for p in outs]
-                          + ([f"out_valid !== {f('valid', 'mem[k]')}"] if c.valid else []))
+    # The FAIL line is written a field at a time, so no line of the testbench is long.
+    shown = ([(f" {p.name}=%h", f(p.name, "mem[k]")) for p in ins] + [(" expected", None)]
+             + [(f" {p.name}=%h", f(p.name, "mem[k]")) for p in outs]
+             + ([(" valid=%b", f("valid", "mem[k]"))] if c.valid else []) + [(" got", None)]
+             + [(f" {p.name}=%h", p.name) for p in outs]
+             + ([(" valid=%b", "out_valid")] if c.valid else []))
+    terms = ([f"{p.name} !== {f(p.name, 'mem[k]')}" for p in outs]
+             + ([f"out_valid !== {f('valid', 'mem[k]')}"] if c.valid else []))
+    compare = f"      if ({' || '.join(terms)}) begin"
+    if len(compare) > LINE:  # a term a line
+        compare = "      if (" + "\n          || ".join(terms) + ") begin"
     lines = [
         *comment([f"Self-checking testbench for {name} (carrypipe).",
                   f"Reads {vector_file(plan)} (or +vectors=FILE): VECTORS vectors; +vcd writes "
@@ -122,10 +127,10 @@ def testbench(plan, count: int) -> str:
         "  // Compare the outputs with vector k's expected values (an X or Z never matches).",
         "  task check;",
         "    begin",
-        f"      if ({compare}) begin",
-        f"        $display(\"FAIL vector %0d (cycle %0d): {shown_in} expected {shown_out}"
-        f" got {shown_out}\",",
-        f"          k, cycle, {', '.join(f(p.name, 'mem[k]') for p in ins)}, {want}, {got});",
+        compare,
+        "        $write(\"FAIL vector %0d (cycle %0d):\", k, cycle);",
+        *(f"        $write(\"{text}\"{f', {arg}' if arg else ''});" for text, arg in shown),
+        "        $display(\"\");",
         "        fail;",
         "      end",
         "      if (en) checked = checked + 1;  // a new result (with en low it only holds)",
@@ -144,8 +149,9 @@ def testbench(plan, count: int) -> str:
         "    // Every entry carries its number plus one: a missing or damaged one fails here.",
         "    for (k = 0; k < VECTORS; k = k + 1) begin",
         f"      if (^mem[k] === 1'bx || {f('tag', 'mem[k]')} !== {TAG_BITS}'d1 + k) begin",
-        "        $display(\"FAIL the vectors file %0s holds %0d of the %0d vectors asked for"
-        " (VECTORS)\", path, k, VECTORS);",
+        "        $write(\"FAIL the vectors file %0s holds %0d of the %0d vectors\", path, k,"
+        " VECTORS);",
+        "        $display(\" asked for (VECTORS)\");",
         "        fail;",
         "      end",
         "    end",
