@@ -592,3 +592,14 @@ def test_the_output_register_is_drawn_full(keys):
     root = parse(chart.svg(plan))
     last = [c for c in cells(root, "stage") if c["data-edge"] == str(plan.latency)]
     assert last and all(c.get("fill-opacity") is None for c in last)
+
+
+def test_a_band_of_unmeasured_stages_names_its_deepest_model_delay():
+    """Found by a code review: with measured figures for some stages only, a band of stages
+    none of which was measured took its first stage's model delay (`delay 4` for stages
+    80–81, whose slice 81 adds 20 bits: delay 42)."""
+    widths = [1] * 50 + [20] + [1] * 30 + [20]
+    plan = make(width=sum(widths), slices=widths)
+    labels = re.findall(r">(stages \d+–\d+ · [^<]*)<", chart.svg(plan, measured={0: 2.5}))
+    band = next(t for t in labels if t.startswith("stages 80–81"))
+    assert band.endswith(f"up to delay {plan.stages[81].delay}") and plan.stages[81].delay > 4

@@ -112,3 +112,19 @@ def test_a_miss_bounds_others_only_by_a_stage_of_the_same_part():
         three.measured = [Measurement(1, "ok", mhz=260.7, start="x", end=end, inside=True)]
         assert three.measured_stage == stage
         assert (candidates.bound(one, [three, one], 350) is three) is bounded
+
+
+def test_a_native_miss_bounds_no_other_native_candidate():
+    """Found by a code review: `tree: native` stages have no delay model (every one 0), so
+    one measured miss ruled out every other native candidate, including those with more
+    ranks behind the operation for the tools to retime into (docs/fit.md: each kind without
+    a prediction is probed at its middle split instead)."""
+    keys = {"name": "nm", "unit": "multiplier", "width": 16, "tree": "native"}
+    two, four = (candidates.Row(make_plan(config.from_mapping({**keys, "native_stages": n})))
+                 for n in (2, 4))
+    assert candidates.kind(two) == candidates.kind(four)
+    end = f"unit.{two.plan.words[-1].name}_TRELLIS_FF_Q"
+    two.measured = [Measurement(1, "ok", mhz=250.0, start="x", end=end, inside=True)]
+    assert two.measured_stage is not None
+    assert candidates.bound(four, [two, four], 300) is None
+    assert "no shorter stages" not in candidates.why_not_run(four, [two, four], 300, {}, None)

@@ -438,7 +438,11 @@ def bound(row: Row, rows: list[Row], target: float) -> Row | None:
     A miss whose critical path names no stage bounds nothing.  Measured: on iCE40 HX8K a
     4 x 16 sum, Dadda with 2 levels per stage, missed 350 MHz with Han-Carlson 3 levels per
     stage (260.7 MHz, the path in the final adder), while 1 level per stage, whose slowest
-    stage in the model is its tree's, as deep, measured 390.3."""
+    stage in the model is its tree's, as deep, measured 390.3.  A unit without a delay model
+    (`tree: native`: every stage 0) is bounded by nothing: more ranks behind the operation
+    may make it faster."""
+    if not row.plan.timed:
+        return None
     misses = []
     for m in rows:
         stage = m.measured_stage if m.mhz is not None and m.mhz < target else None

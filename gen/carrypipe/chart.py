@@ -759,7 +759,9 @@ def _label_texts(plan: Plan, group: list, measured) -> list[str]:
     """A stage block's label, from the fullest to the shortest form; every form keeps what
     the stage holds (its bits, or its logic)."""
     first, last = group[0], group[-1]
-    worst = max(group, key=lambda s: measured.get(s.index, 0) if measured else s.delay)
+    timed = [s for s in group if measured and s.index in measured]
+    worst = max(timed, key=lambda s: measured[s.index]) if timed \
+        else max(group, key=lambda s: s.delay)
     figure = (f"{num(measured[worst.index])} ns" if measured and worst.index in measured
               else f"delay {worst.delay}")
     if len(group) == 1:

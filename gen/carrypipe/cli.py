@@ -358,12 +358,12 @@ def plan_cmd(config, slice_width, slices, chart_path):
     plan = load_plan(config, slice_width, slices)
     if chart_path is not None:
         dest = Path(chart_path)
-        if dest.suffix.lower() != ".svg" or dest.is_dir():
-            raise UserError(f"--chart: value {chart_path!r} is not allowed; expected the "
-                            "name of an SVG file ending in .svg (not a folder)")
         try:
+            if dest.suffix.lower() != ".svg" or dest.is_dir():
+                raise UserError(f"--chart: value {chart_path!r} is not allowed; expected the "
+                                "name of an SVG file ending in .svg (not a folder)")
             output.write_file(dest, chart.svg(plan), "--chart")
-        except OSError as exc:
+        except OSError as exc:  # a name too long for the file system, too
             raise EnvironmentFault(f"cannot write the chart {chart_path}: "
                                    f"{exc.strerror or exc}") from None
     click.echo(report.report(plan), nl=False)
@@ -427,7 +427,7 @@ def _depth(text: str, latency: int) -> int:
 def load_target(target: str):
     """A config file, or a build folder: (plan, Verilog text or None, what is proved)."""
     path = Path(target)
-    if not path.is_dir():
+    if not os.path.isdir(target):  # False for a name too long, too: then not a config either
         plan = load_plan(target)
         return plan, None, f"{plan.config.name} (the Verilog generated from {path.name})"
     try:
