@@ -128,3 +128,19 @@ def test_a_native_miss_bounds_no_other_native_candidate():
     assert two.measured_stage is not None
     assert candidates.bound(four, [two, four], 300) is None
     assert "no shorter stages" not in candidates.why_not_run(four, [two, four], 300, {}, None)
+
+
+def test_the_search_and_the_report_name_the_median_seeds_stage():
+    """Found by a code review: the search narrowed the stage where the first seed's path
+    ended, while the report and the chart named the median seed's."""
+    keys = {"name": "px", "unit": "sum", "operands": 4, "width": 16,
+            "tree_levels_per_stage": 2, "pipeline": "levels", "cell": "han-carlson",
+            "levels_per_stage": 3}
+    row = candidates.Row(make_plan(config.from_mapping(keys)))
+    words = {w.edge - row.plan.input_cycles - 1: w for w in row.plan.words
+             if w.kind != "input"}
+    ends = {0: f"unit.{words[0].name}_SB_DFF_Q", 1: f"unit.{words[1].name}_SB_DFF_Q"}
+    row.measured = [Measurement(1, "ok", mhz=300.0, start="x", end=ends[0], inside=True),
+                    Measurement(2, "ok", mhz=260.0, start="x", end=ends[1], inside=True),
+                    Measurement(3, "ok", mhz=250.0, start="x", end=ends[0], inside=True)]
+    assert row.median_seed.seed == 2 and row.measured_stage == row.slowest_stage == 1

@@ -296,13 +296,18 @@ class Row:
         return self.measured[0].luts if self.measured else None
 
     @property
+    def median_seed(self):
+        """The measurement at the median Fmax (the lower middle one for an even count): the
+        critical path the report, the chart and the search all name."""
+        ok = sorted(self.ok, key=lambda m: (m.mhz, m.seed))
+        return ok[(len(ok) - 1) // 2] if ok else None
+
+    @property
     def measured_stage(self) -> int | None:
-        """The stage whose register ends the measured critical path, when its name tells."""
-        for m in self.ok:
-            stage = harness.stage_of(m.end, self.plan)
-            if stage is not None:
-                return stage
-        return None
+        """The stage whose register ends the median seed's critical path, when its name
+        tells."""
+        path = self.median_seed
+        return None if path is None else harness.stage_of(path.end, self.plan)
 
     @property
     def slowest_stage(self) -> int:

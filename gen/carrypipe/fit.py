@@ -293,7 +293,7 @@ def record(row: Row, outcome: Outcome) -> dict:
     if not row.fits:
         note = "does not fit: " + row.size
     elif row.ok:
-        path = median_seed(row)
+        path = row.median_seed
         note = f"critical path {harness.path_words(path, row.plan)}"
         if path.inside is False:
             note += " (not the unit's: it ends in the harness)"
@@ -316,12 +316,6 @@ def record(row: Row, outcome: Outcome) -> dict:
             "carry": first.carry if first else None,
             "flip_flops": first.flip_flops if first else None,
             "meets": candidates.meets(row, target), "note": note}
-
-
-def median_seed(row: Row):
-    """The measurement at the median Fmax (the lower middle one for an even count)."""
-    ok = sorted(row.ok, key=lambda m: (m.mhz, m.seed))
-    return ok[(len(ok) - 1) // 2]
 
 
 def table(outcome: Outcome) -> str:
@@ -381,8 +375,7 @@ def measured_section(outcome: Outcome) -> str:
     """The chosen unit's measurement, for the end of its report: device, tools, the seeds'
     Fmax and the critical path at the median seed."""
     s, row = outcome.settings, outcome.chosen
-    path = median_seed(row)
-    stage = harness.stage_of(path.end, row.plan)
+    path, stage = row.median_seed, row.measured_stage
     where = f", ends in stage {stage}" if stage is not None else ", ends outside the unit's stages"
     per_seed = ", ".join(f"seed {m.seed}: {m.mhz:g}" for m in row.ok)
     return "\n".join([
@@ -400,11 +393,10 @@ def chart_figures(outcome: Outcome) -> tuple[dict[int, float], str]:
     period at the stage where the critical path ends (the unit-gate model's slowest stage
     when the path names none), the seeds, the device and the path."""
     s, row = outcome.settings, outcome.chosen
-    path = median_seed(row)
-    stage = harness.stage_of(path.end, row.plan)
+    path = row.median_seed
     seeds = seed_words(row, "median of seeds 1-{n}")
-    at = "" if stage is not None else "; stage by the unit-gate model"
-    return ({row.plan.slowest[0].index if stage is None else stage: round(1000 / row.mhz, 3)},
+    at = "" if row.measured_stage is not None else "; stage by the unit-gate model"
+    return ({row.slowest_stage: round(1000 / row.mhz, 3)},
             f"{row.mhz:g} MHz, {seeds}, {s.device.name}, nextpnr; critical path "
             f"{harness.path_words(path, row.plan)}{at}")
 

@@ -105,7 +105,7 @@ class TreePlan(Plan):
 
     @property
     def result_width(self) -> int:
-        return self.tree.width
+        return _result_width(self.config)
 
     @cached_property
     def other_tree(self) -> str | None:
@@ -303,6 +303,8 @@ def make_tree_plan(config: Config) -> Plan:
                        for i in range(config.native_stages))
         return NativePlan(config=config, stages=stages)
     tree = kind.counter_tree(config)
+    if tree.width != width:  # the dot matrix's arithmetic against the unit's result port
+        raise AssertionError(f"a tree of {tree.width} columns for a {width}-bit result")
     stages = []
     for s in range(1, tree.stages + 1):
         levels = tree.stage_levels(s)
