@@ -36,7 +36,7 @@ from . import positions, prefix, report, treechart
 from .svg import (BLOCK, FAINT, FONT, IDLE_BLOCK, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS,
                   SLOW, SLOW_BLOCK, Svg, band, check_measured, measured_basis, num, slowest,
                   stage_block, text_fits, text_width, thousands, wrap)
-from .header import bit_span, plural, reset_clause
+from .header import bit_span, bits, plural, reset_clause
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
 
@@ -53,10 +53,6 @@ GRID_WIDTH, GRID_HEIGHT = 920, 720  # about the space the grid may take, in px
 GUTTER, LANE_GAP, OUT_GAP = 96, 14, 6
 LANE_WIDTH = 34  # least width of a side lane, so its name fits above it
 MIN_GRID = 320  # least width of the grid, in px
-
-
-def _span(lo: int, hi: int, sep: str = ":") -> str:
-    return str(lo) if lo == hi else f"{hi}{sep}{lo}"
 
 
 # ---- what the chart says: words for each pipeline mode and unit kind ----
@@ -578,7 +574,7 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
         first, last = lay.band_edges(t)
         out.text(lay.bits_x, grid_top + t * band_h + lay.lh + lay.rh / 2 + 3.5,
                  thousands(count), size=9.5, anchor="end", fill=FAINT, data_role="row-bits",
-                 data_edge=_span(first, last), data_count=count)
+                 data_edge=bits(first, last), data_count=count)
 
     # valid and the flags travelling beside the data; en beside the rows it holds.
     for name, x in lay.lane_x.items():
@@ -713,7 +709,7 @@ def _register_cells(out: Svg, plan: Plan, lay: _Layout, colours, grid_top: float
                 class_="reg", data_kind=cell.kind,
                 data_name=families[0] if len(families) == 1 else cell.kind,
                 data_families=" ".join(families), data_bits=f"{cell.hi}:{cell.lo}",
-                data_edge=_span(min(cell.edges), max(cell.edges)), data_count=cell.count)
+                data_edge=bits(min(cell.edges), max(cell.edges)), data_count=cell.count)
 
 
 def _port_list(plan: Plan, direction: str) -> str:
@@ -863,7 +859,7 @@ def _enable(out: Svg, lay: _Layout, grid_top: float) -> None:
     out.add("line", x1=float(x), y1=float(top), x2=float(x), y2=float(bottom), stroke=ENABLE,
             stroke_width=0.8, stroke_opacity=0.6)
     out.add("path", d=segments, stroke=ENABLE, stroke_width=4.0, fill="none",
-            class_="enable", data_port="en", data_edges=_span(1, lay.edges))
+            class_="enable", data_port="en", data_edges=bits(1, lay.edges))
 
 
 def _legend(out: Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, slow_text,

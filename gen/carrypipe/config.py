@@ -143,7 +143,7 @@ class Config:
         return data
 
     def with_split(self, slices) -> "Config":
-        """The same unit with another split (used by what-if previews and `fit`)."""
+        """The same unit with another split (`plan --slice-width` / `--slices` previews)."""
         return replace(self, slices=tuple(slices))
 
     def replaced(self, **keys) -> "Config":

@@ -287,9 +287,6 @@ class Netlist:
     enable: bool = False  # every register loads only while `en` is high
     header: list[str] = field(default_factory=list)
 
-    def port(self, name: str) -> Vec:
-        return next(p.vec for p in self.ports if p.vec.name == name)
-
     def resets(self, vec: Vec) -> bool:
         """Whether `rst` clears this register."""
         return self.reset != "none" and (vec.cls == CONTROL or self.reset_data)

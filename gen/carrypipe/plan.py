@@ -57,7 +57,8 @@ class Word:
     these.
     """
 
-    kind: str  # input, stage, skew, deskew, control; prefix modes: prefix, result, wire
+    kind: str  # input, stage, skew, deskew, control; prefix modes: prefix, result, wire;
+    # sums and multipliers: tree
     family: str
     stage: int | None
     lsb: int

@@ -179,7 +179,7 @@ def _hex(binary: str) -> str:
 def _counterexample(log: str, plan: Plan, compare: tuple[str, ...]) -> str:
     """The failing trace as one line per cycle of concrete inputs, then the mismatch."""
     steps: dict[int, dict[str, str]] = {}
-    for step, signal, hexval, binary in _ROW.findall(log):
+    for step, signal, _, binary in _ROW.findall(log):
         if step != "init":
             steps.setdefault(int(step), {})[signal] = _hex(binary)
     if not steps:

@@ -41,7 +41,6 @@ from functools import cached_property, lru_cache
 
 from . import dots as dm
 
-STYLES = ("dadda", "wallace")
 # Unit-gate delays (Tyagi 1993): AND/OR 1, XOR 2, inverters free.  A full adder's sum is an
 # XOR pair, its carry a majority (AND, then a 3-input OR); a half adder is an XOR and an AND.
 DELAY = {("fa", "sum"): 4, ("fa", "carry"): 3, ("ha", "sum"): 2, ("ha", "carry"): 1}

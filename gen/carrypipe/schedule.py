@@ -112,8 +112,10 @@ class Schedule:
     wired: tuple[int, ...]  # prefix levels with a wire rank in front
     terms: tuple[Term, ...]
     last: dict  # term index -> last stage reading it, for the terms that are kept
-    outputs: dict  # result: per position the term of its result bits; chain, overflow,
-    stages: tuple[StageInfo, ...]  # lt, eq, gt: the term each output register loads
+    # result: per position the term of its result bits; chain, overflow, lt, eq, gt: the
+    # term each output register loads
+    outputs: dict
+    stages: tuple[StageInfo, ...]
 
     def kept(self) -> list[Term]:
         return list(self._kept)
