@@ -17,10 +17,10 @@ buffer of a simulator's scanner (Icarus takes one `//` comment as one token of a
 16 KiB; a 1,500-slice unit's slice list is longer)."""
 
 
-def _wrapped(text: str, first: str, rest: str) -> list[str]:
-    """`text` wrapped at COLUMNS after `first` on its first line and `rest` on the others;
+def wrapped(text: str, first: str = "", rest: str = "", columns: int = COLUMNS) -> list[str]:
+    """`text` wrapped at `columns` after `first` on its first line and `rest` on the others;
     a word longer than a line stays whole."""
-    return textwrap.wrap(text, COLUMNS, initial_indent=first, subsequent_indent=rest,
+    return textwrap.wrap(text, columns, initial_indent=first, subsequent_indent=rest,
                          break_long_words=False, break_on_hyphens=False)
 
 
@@ -28,14 +28,14 @@ def comment(lines, indent: str = "") -> list[str]:
     """`lines` as `//` comments, each wrapped at COLUMNS with a hanging indent."""
     out = []
     for line in lines:
-        out += _wrapped(line, f"{indent}// ", f"{indent}//   ") or [f"{indent}//"]
+        out += wrapped(line, f"{indent}// ", f"{indent}//   ") or [f"{indent}//"]
     return out
 
 
 def trailing_comment(code: str, text: str) -> list[str]:
     """`code // text`, the comment wrapped at COLUMNS and continued under its own column
     (a port's meaning beside its declaration or connection)."""
-    return _wrapped(text, f"{code}// ", " " * len(code) + "//   ") or [f"{code}//"]
+    return wrapped(text, f"{code}// ", " " * len(code) + "//   ") or [f"{code}//"]
 
 
 def command(text: str) -> list[str]:

@@ -250,6 +250,12 @@ class Plan:
         top = max(s.delay for s in self.stages)
         return tuple(s for s in self.stages if s.delay == top)
 
+    @property
+    def next_slowest(self) -> int | None:
+        """The longest unit-gate delay below the slowest stages' (None when all tie)."""
+        return max((s.delay for s in self.stages if s.delay < self.slowest[0].delay),
+                   default=None)
+
     def moved_input_rank(self) -> "Plan | None":
         """The same unit with its input register spent on a wire rank instead: only some
         levels units take the swap (`PrefixPlan`)."""

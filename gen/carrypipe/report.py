@@ -8,11 +8,11 @@ from __future__ import annotations
 
 import json
 from dataclasses import replace
-import textwrap
 from functools import singledispatch
 
 from . import __version__, cells, positions, prefix
-from .header import bit_span, bits, plural, reset_phrase, stage_list, timing_phrase
+from .header import (bit_span, bits, plural, reset_phrase, stage_list, timing_phrase,
+                     wrapped)
 from .plan import MODES, Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan, counters_phrase
 
@@ -123,14 +123,13 @@ def stages_phrase(stages) -> str:
 
 
 def slowest_sentence(plan: Plan) -> str:
-    delays = sorted({s.delay for s in plan.stages}, reverse=True)
-    slow = plan.slowest
+    slow, runner_up = plan.slowest, plan.next_slowest
     if len(plan.stages) == 1:
         return f"One stage: {plural(slow[0].delay, 'unit')}."
-    if len(delays) == 1:
+    if runner_up is None:
         return f"Every stage has the same unit-gate delay: {plural(slow[0].delay, 'unit')}."
     return (f"Slowest: {stages_phrase(slow)} at {plural(slow[0].delay, 'unit')}, "
-            f"{slow[0].delay - delays[1]} more than the next slowest ({delays[1]}).")
+            f"{slow[0].delay - runner_up} more than the next slowest ({runner_up}).")
 
 
 def report(plan: Plan) -> str:
@@ -299,10 +298,11 @@ def _(plan: NativePlan, mark=None) -> list[str]:
              "Stages (no delay model: synthesis chooses the logic)",
              f"  {'stage':>5}  logic"]
     return lines + [f"  {s.index:>5}  {s.logic}" for s in plan.stages]
+
+
 def _wrapped(text: str, first: str = "", rest: str = "") -> list[str]:
     """`text` as report lines of at most COLUMNS characters after the indents given."""
-    return textwrap.wrap(text, COLUMNS, initial_indent=first, subsequent_indent=rest,
-                         break_on_hyphens=False, break_long_words=False)
+    return wrapped(text, first, rest, COLUMNS)
 
 
 def _tip(text: str) -> list[str]:
