@@ -425,14 +425,9 @@ def _(plan: NativePlan) -> tuple:
     return ("native",)
 
 
-def _part(plan: Plan, stage: int) -> str:
-    """Which part of a unit a stage belongs to: a counter tree's stages, or the adder's."""
-    return "tree" if isinstance(plan, TreePlan) and stage < plan.tree.stages else "adder"
-
-
 def _deepest(plan: Plan, part: str) -> int:
     """The largest unit-gate delay among a unit's stages of one part (0 when it has none)."""
-    return max((s.delay for s in plan.stages if _part(plan, s.index) == part), default=0)
+    return max((s.delay for s in plan.stages if plan.part(s.index) == part), default=0)
 
 
 def bound(row: Row, rows: list[Row], target: float) -> Row | None:
@@ -453,7 +448,7 @@ def bound(row: Row, rows: list[Row], target: float) -> Row | None:
         stage = m.measured_stage if m.mhz is not None and m.mhz < target else None
         if stage is None or kind(m) != kind(row):
             continue
-        if m.plan.stages[stage].delay <= _deepest(row.plan, _part(m.plan, stage)):
+        if m.plan.stages[stage].delay <= _deepest(row.plan, m.plan.part(stage)):
             misses.append(m)
     return max(misses, key=lambda m: (m.plan.slowest[0].delay, m.mhz)) if misses else None
 
@@ -585,7 +580,7 @@ def uneven_rows(rows: list[Row], target: float, make_row) -> list[Row]:
     known = {circuit(r.plan) for r in rows}
     new = []
     for r in rows:
-        if (r.origin != "even" or not isinstance(r.plan, SlicedPlan) or r.mhz is None
+        if (r.origin != "even" or not r.plan.uneven or r.mhz is None
                 or not target * (1 - JUST_MISSED) <= r.mhz < target or r.spawned):
             continue
         r.spawned = True

@@ -27,6 +27,7 @@ class Style:
     name: str
     family: str  # "behavioural", "gates" or "prefix"
     network: str  # the `prefix.BUILDERS` network that times it (serial: a ripple chain)
+    dense: bool = False  # a prefix network of much wiring (Kogge-Stone) or fan-out (Sklansky)
 
     def carry_network(self, width: int) -> prefix.Network:
         return prefix.network(self.network, width)
@@ -35,8 +36,10 @@ class Style:
 STYLES = {s.name: s for s in (
     Style("ripple", "gates", "serial"),
     Style("native", "behavioural", "serial"),
-    *(Style(name, "prefix", name) for name in prefix.PREFIX_STYLES),
+    *(Style(name, "prefix", name, name in ("kogge-stone", "sklansky"))
+      for name in prefix.PREFIX_STYLES),
 )}
+SPARSE_STYLES = ("han-carlson", "brent-kung")  # the sparse networks a tip offers
 PREFIX_STYLES = tuple(n for n, s in STYLES.items() if s.family == "prefix")
 
 

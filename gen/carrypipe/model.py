@@ -32,7 +32,7 @@ from __future__ import annotations
 import json
 import math
 from dataclasses import dataclass
-from functools import cache
+from functools import cache, singledispatch
 from importlib import resources
 
 from . import cells, devices, harness, schedule
@@ -87,14 +87,20 @@ def figures(plan: Plan, depth: dict | None = None) -> Figures:
     `depth` holds, per "<unit kind>/<cell>", what synthesis made of one slice of each of
     several widths (the family's depth tables, synthesized by `tests/bench_model.py`);
     without it, or for a kind and cell it lacks, a slice is read from its structure."""
-    depth = depth or {}
-    kind = plan.config.unit
-    if isinstance(plan, SlicedPlan):
-        stages = tuple(_slice_figures(s, kind, depth) for s in plan.stages)
-    else:
-        stages = _prefix_figures(plan, depth)
     flops = harness.design_flip_flops(plan)
-    return Figures(stages, math.log2(max(flops, 1)), kind)
+    return Figures(stage_figures(plan, depth or {}), math.log2(max(flops, 1)),
+                   plan.config.unit)
+
+
+@singledispatch
+def stage_figures(plan, depth: dict) -> tuple[StageFigures, ...]:
+    """The stages of a plan the model reads (`describes`), as it sees them."""
+    raise TypeError(f"the model does not read a {type(plan).__name__}")
+
+
+@stage_figures.register
+def _(plan: SlicedPlan, depth: dict) -> tuple[StageFigures, ...]:
+    return tuple(_slice_figures(s, plan.config.unit, depth) for s in plan.stages)
 
 
 def slice_depth(depth: dict, kind: str, cell: str, width: int) -> tuple[float, float] | None:
@@ -129,7 +135,8 @@ def _slice_figures(s, kind: str, depth: dict) -> StageFigures:
     return StageFigures(chain, luts, span=0 if behavioural else span, fanout=fanout)
 
 
-def _prefix_figures(plan, depth: dict) -> tuple[StageFigures, ...]:
+@stage_figures.register
+def _(plan: PrefixPlan, depth: dict) -> tuple[StageFigures, ...]:
     """A prefix-mode stage: the blocks' (or compared slices') two carry chains in stage 1,
     timed as a native slice of that width; else one LUT level per prefix level evaluated
     (at least one: sums, selects, verdicts; none in a stage of wire registers only)."""
@@ -209,7 +216,7 @@ def depth_for(device: str) -> dict:
 def describes(plan: Plan) -> bool:
     """Whether the model reads `plan`: the sliced and prefix modes of the adder kinds, not
     (yet) the carry-save units' counter trees, which `fit` bounds by measured misses."""
-    return isinstance(plan, (SlicedPlan, PrefixPlan))
+    return stage_figures.dispatch(type(plan)) is not stage_figures.dispatch(object)
 
 
 def predict(plan: Plan, device: str) -> float | None:

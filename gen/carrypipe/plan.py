@@ -176,6 +176,7 @@ class Plan:
     mode = ""  # set by each mode
     register_kinds = ()  # kinds the register table always lists
     timed = True  # the stages' `delay` (unit-gate model) describes their logic
+    uneven = False  # its split may be made uneven stage by stage (`fit`'s near misses)
     proof_methods = ("direct",)
 
     @property
@@ -249,6 +250,11 @@ class Plan:
         """Every stage tied for the longest unit-gate path, lowest index first."""
         top = max(s.delay for s in self.stages)
         return tuple(s for s in self.stages if s.delay == top)
+
+    def part(self, stage: int) -> str:
+        """Which part of the unit stage `stage` belongs to (the model's delays compare
+        within a part only): an adder's stages are all the adder's."""
+        return "adder"
 
     @property
     def next_slowest(self) -> int | None:
@@ -345,6 +351,7 @@ class SlicedPlan(Plan):
     mode = "slices"
     register_kinds = ("input", "stage", "skew", "deskew", "control")
     proof_methods = ("direct", "compositional")
+    uneven = True
 
     def delay_with(self, cell: str, s: Slice) -> int:
         """The unit-gate delay slice `s` would have with `cell` instead (for the report's

@@ -444,9 +444,9 @@ def _(pos: positions.Slices, plan: PrefixPlan, first: bool) -> list[str]:
 def _network_tips(plan: PrefixPlan) -> list[str]:
     """Tips on the network of an arithmetic unit: a sparser cell, one more wire rank."""
     c, out = plan.config, []
-    if c.cell in ("kogge-stone", "sklansky") and plan.schedule.network.depth > 1:
-        out += _tip("a sparser prefix `cell` (han-carlson, brent-kung) has less wiring and "
-                    "fan-out;")
+    if cells.STYLES[c.cell].dense and plan.schedule.network.depth > 1:
+        out += _tip(f"a sparser prefix `cell` ({', '.join(cells.SPARSE_STYLES)}) has less "
+                    "wiring and fan-out;")
     if c.wire_registers < plan.schedule.network.depth:
         which = "one more long-span level" if c.wire_registers else "the longest-span level"
         out += _tip(f"`wire_registers: {c.wire_registers + 1}` puts a logic-free register "

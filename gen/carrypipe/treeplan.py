@@ -107,6 +107,9 @@ class TreePlan(Plan):
     def result_width(self) -> int:
         return _result_width(self.config)
 
+    def part(self, stage: int) -> str:
+        return "tree" if stage < self.tree.stages else "adder"
+
     @cached_property
     def other_tree(self) -> str | None:
         """The other counter placement (`dadda` or `wallace`) when it builds another tree
