@@ -34,8 +34,8 @@ from html import escape
 
 from . import positions, prefix, report, treechart
 from .svg import (BLOCK, FAINT, FONT, IDLE_BLOCK, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS,
-                  SLOW, SLOW_BLOCK, Svg, band, check_measured, measured_basis, num, slowest,
-                  stage_block, text_fits, text_width, thousands, wrap)
+                  SLOW, SLOW_BLOCK, Svg, band, check_measured, measured_basis, num,
+                  register_table, slowest, stage_block, text_fits, text_width, thousands, wrap)
 from .header import bit_span, bits, plural, reset_clause
 from .plan import Plan, PrefixPlan, SlicedPlan
 from .treeplan import NativePlan, TreePlan
@@ -865,30 +865,10 @@ def _enable(out: Svg, lay: _Layout, grid_top: float) -> None:
 def _legend(out: Svg, plan: Plan, lay: _Layout, said: Words, colours, y, slow, slow_text,
             measured, source) -> float:
     regs = plan.registers.as_dict()
-    out.text(MARGIN, y, "Register bits by kind", size=13, weight="bold")
     order = [*said.meanings, *regs]  # the mode's own order, then any other kind
     kinds = [k for k in dict.fromkeys(order) if k != "total" and regs.get(k, 0) > 0]
-    y += 8
-    room = lay.width - 2 * MARGIN - 150
-    for kind in kinds:
-        out.add("rect", x=float(MARGIN), y=float(y), width=14.0, height=12.0,
-                fill=colours[kind], class_="key", data_kind=kind)
-        out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
-        out.text(MARGIN + 140, y + 10, thousands(regs[kind]),
-                 size=11, anchor="end", data_role="bits", data_kind=kind)
-        meaning = said.meanings.get(kind, f"register of kind '{kind}'")
-        for i, line in enumerate(wrap(meaning, 11, room)):
-            out.text(MARGIN + 150, y + 10 + 14 * i, line, size=11, fill="#444444",
-                     data_role="meaning" if i == 0 else None)
-            y += 14 if i else 0
-        y += 20
-    y += 4
-    out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
-    out.text(MARGIN + 140, y + 10, thousands(regs["total"]), size=11, anchor="end",
-             weight="bold", data_role="total")
-    out.text(MARGIN + 150, y + 10, f"register bits; latency {plural(plan.latency, 'cycle')}",
-             size=11)
-    y += 28
+    y = register_table(out, plan, kinds, colours.__getitem__, said.meanings, y, lay.width,
+                       before_total=4) + 28
     y = _symbols(out, plan, lay, said, y, slow)
     y += 20
     for line in wrap(slow_text, 12, lay.width - 2 * MARGIN):

@@ -7,7 +7,7 @@ import math
 from collections.abc import Mapping
 from html import escape
 
-from .header import stage_list
+from .header import plural, stage_list
 
 SLOW, INK, FAINT = "#d62728", "#222222", "#8c8c8c"
 REGISTER_COLOURS = {"input": "#5b7db1", "tree": "#d0762c", "skew": "#e69a28",
@@ -71,6 +71,35 @@ def band(count: int, limit: int) -> int:
 
 def thousands(n: int) -> str:
     return f"{n:,}".replace(",", " ")
+
+
+def register_table(out: "Svg", plan, kinds, colour, meanings: Mapping[str, str], y: float,
+                   width: float, before_total: float = 0) -> float:
+    """Both charts' table of register bits: a swatch, the kind, its bits and what it holds
+    (wrapped to the page `width`) for each of `kinds`, then the total and the latency;
+    returns the y of the total's line."""
+    regs = plan.registers.as_dict()
+    out.text(MARGIN, y, "Register bits by kind", size=13, weight="bold")
+    y += 8
+    for kind in kinds:
+        out.add("rect", x=float(MARGIN), y=float(y), width=14.0, height=12.0,
+                fill=colour(kind), class_="key", data_kind=kind)
+        out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
+        out.text(MARGIN + 140, y + 10, thousands(regs[kind]), size=11, anchor="end",
+                 data_role="bits", data_kind=kind)
+        meaning = meanings.get(kind, f"register of kind '{kind}'")
+        for i, line in enumerate(wrap(meaning, 11, width - 2 * MARGIN - 150)):
+            out.text(MARGIN + 150, y + 10 + 14 * i, line, size=11, fill="#444444",
+                     data_role="meaning" if i == 0 else None)
+            y += 14 if i else 0
+        y += 20
+    y += before_total
+    out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
+    out.text(MARGIN + 140, y + 10, thousands(regs["total"]), size=11, anchor="end",
+             weight="bold", data_role="total")
+    out.text(MARGIN + 150, y + 10, f"register bits; latency {plural(plan.latency, 'cycle')}",
+             size=11)
+    return y
 
 
 def slowest(plan, measured: Mapping[int, float] | None) -> tuple[set[int], str]:

@@ -24,7 +24,7 @@ from html import escape
 from . import report
 from .header import plural
 from .svg import (FAINT, FONT, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS, SLOW, Svg,
-                  measured_basis, num, slowest, stage_block, thousands, wrap)
+                  measured_basis, num, register_table, slowest, stage_block, thousands)
 from .svg import band as bands
 
 MAX_COLUMNS = 96
@@ -202,26 +202,6 @@ def _bar(out, w, y, h, col_x, cw) -> None:
 
 
 def _legend(out, plan, meanings: Mapping[str, str], y, page_w: float) -> float:
-    regs = plan.registers.as_dict()
-    out.text(MARGIN, y, "Register bits by kind", size=13, weight="bold")
-    y += 8
-    for kind, bits in regs.items():
-        if kind == "total" or not bits:  # only the kinds the unit has
-            continue
-        out.add("rect", x=float(MARGIN), y=float(y), width=14.0, height=12.0,
-                fill=REGISTER_COLOURS.get(kind, "#7a7a7a"), class_="key", data_kind=kind)
-        out.text(MARGIN + 20, y + 10, kind, size=11, weight="bold")
-        out.text(MARGIN + 140, y + 10, thousands(bits), size=11, anchor="end",
-                 data_role="bits", data_kind=kind)
-        meaning = meanings.get(kind, f"register of kind '{kind}'")
-        for i, line in enumerate(wrap(meaning, 11, page_w - 2 * MARGIN - 150)):
-            out.text(MARGIN + 150, y + 10 + 14 * i, line, size=11, fill="#444444",
-                     data_role="meaning" if i == 0 else None)
-            y += 14 if i else 0
-        y += 20
-    out.text(MARGIN + 20, y + 10, "total", size=11, weight="bold")
-    out.text(MARGIN + 140, y + 10, thousands(regs['total']), size=11,
-             anchor="end", weight="bold", data_role="total")
-    out.text(MARGIN + 150, y + 10, f"register bits; latency {plural(plan.latency, 'cycle')}",
-             size=11)
-    return y + 40
+    kinds = [k for k, bits in plan.registers.as_dict().items() if k != "total" and bits]
+    return register_table(out, plan, kinds, lambda k: REGISTER_COLOURS.get(k, "#7a7a7a"),
+                          meanings, y, page_w) + 40
