@@ -85,19 +85,24 @@ def plural(count: int, noun: str, many: str | None = None) -> str:
     return f"{count} {noun if count == 1 else many or noun + 's'}"
 
 
+def runs(positions) -> list[tuple[int, int]]:
+    """(first, last) of each run of consecutive numbers among `positions`, in order."""
+    out: list[list[int]] = []
+    for i in sorted(positions):
+        if out and i == out[-1][1] + 1:
+            out[-1][1] = i
+        else:
+            out.append([i, i])
+    return [(a, b) for a, b in out]
+
+
 def stage_list(indices) -> str:
     """Stage numbers for a sentence, every one named: each number when there are few
     ("0, 2, 5"), runs of consecutive ones when there are many ("0, 2–255")."""
     ordered = sorted(indices)
     if len(ordered) <= 16:
         return ", ".join(map(str, ordered))
-    runs: list[list[int]] = []
-    for i in ordered:
-        if runs and i == runs[-1][1] + 1:
-            runs[-1][1] = i
-        else:
-            runs.append([i, i])
-    return ", ".join(str(a) if a == b else f"{a}–{b}" for a, b in runs)
+    return ", ".join(str(a) if a == b else f"{a}–{b}" for a, b in runs(ordered))
 
 
 def reset_phrase(plan) -> str:

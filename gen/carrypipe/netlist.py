@@ -19,6 +19,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from .header import runs
+
 DATA, CONTROL = "data", "control"  # register classes: which registers a reset clears
 
 
@@ -371,14 +373,10 @@ class Builder:
     def wire_runs(self, name: str, bits: dict[int, Expr]) -> "Runs":
         """Wires of one family of one-bit terms: one wire per contiguous run of positions
         (named `name`, or `name_<first position>` when there are several)."""
-        runs: list[list[int]] = []
-        for q in sorted(bits):
-            if runs and runs[-1][-1] == q - 1:
-                runs[-1].append(q)
-            else:
-                runs.append([q])
-        return Runs([self.wire_bits(name + (f"_{run[0]}" if len(runs) > 1 else ""),
-                                    {q: bits[q] for q in run}) for run in runs])
+        found = runs(bits)
+        return Runs([self.wire_bits(name + (f"_{lo}" if len(found) > 1 else ""),
+                                    {q: bits[q] for q in range(lo, hi + 1)})
+                     for lo, hi in found])
 
     def drive(self, target: Ref, expr: Expr) -> None:
         """A continuous assignment to an output port (or a declared wire)."""

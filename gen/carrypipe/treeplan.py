@@ -23,7 +23,7 @@ from functools import cached_property
 
 from . import reduction, units
 from .config import Config
-from .header import plural
+from .header import plural, runs
 from .plan import DIRECT_UP_TO, MODES, Nest, Plan, Word
 
 # `prove --method auto` proves a tree directly up to this many partial-product rows and
@@ -75,11 +75,11 @@ class TreePlan(Plan):
         """The tree's register words by (stage, row): row r of a stage's rank holds each
         column's r-th dot, in runs of columns (`row<r>_stage_<i>`, then `..._<first column>`
         for every further run)."""
-        return {(stage, row): tuple(Word("tree", f"row{row}_stage", stage, lsb, width,
+        return {(stage, row): tuple(Word("tree", f"row{row}_stage", stage, lsb, last - lsb + 1,
                                          self.edge(stage), position=lsb if n else None)
-                                    for n, (lsb, width) in enumerate(runs))
+                                    for n, (lsb, last) in enumerate(found))
                 for stage, rank in enumerate(self.tree.ranks)
-                for row, runs in enumerate(_row_runs(rank))}
+                for row, found in enumerate(_row_runs(rank))}
 
     @cached_property
     def low_columns(self) -> tuple[int, ...]:
@@ -92,10 +92,10 @@ class TreePlan(Plan):
         """The registers of those bits beside each stage of the final adder (by the adder's
         stage index): `<result>_low_<stage>`, then `..._<first column>` for further runs."""
         return {s.index: tuple(Word("deskew", f"{self.unit.result}_low",
-                                    self.adder.number(s.index), lsb, width,
+                                    self.adder.number(s.index), lsb, last - lsb + 1,
                                     self.edge(self.tree.stages + s.index),
                                     position=lsb if n else None)
-                               for n, (lsb, width) in enumerate(_runs(self.low_columns)))
+                               for n, (lsb, last) in enumerate(runs(self.low_columns)))
                 for s in self.adder.stages} if self.low_columns else {}
 
     def row_register(self, stage: int, row: int, column: int) -> str:
@@ -258,21 +258,10 @@ class NativePlan(Plan):
         return "tree: native"
 
 
-def _runs(columns: list[int]) -> list[tuple[int, int]]:
-    """(first column, count) of each run of consecutive columns."""
-    runs: list[list[int]] = []
-    for k in columns:
-        if runs and runs[-1][0] + runs[-1][1] == k:
-            runs[-1][1] += 1
-        else:
-            runs.append([k, 1])
-    return [tuple(r) for r in runs]
-
-
 def _row_runs(rank) -> list[list[tuple[int, int]]]:
     """For each row r of a rank (the r-th dot of each column), its runs of columns."""
     top = max((len(col) for col in rank), default=0)
-    return [_runs([k for k, col in enumerate(rank) if len(col) > r]) for r in range(top)]
+    return [runs(k for k, col in enumerate(rank) if len(col) > r) for r in range(top)]
 
 
 def counters_phrase(full: int, half: int) -> str:
