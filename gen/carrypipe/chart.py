@@ -714,8 +714,8 @@ def _register_cells(out: Svg, plan: Plan, lay: _Layout, colours, grid_top: float
 
 def _port_list(plan: Plan, direction: str) -> str:
     """The data ports of one side, wide ones with their range: `a, b [63:0] + cin`."""
-    skip = ("clk", "rst", "en", "in_valid", "out_valid")
-    ports = [p for p in plan.ports if p.direction == direction and p.name not in skip]
+    ports = [p for p in plan.ports if p.direction == direction and not p.control
+             and p.name not in ("in_valid", "out_valid")]
     wide = [p.name for p in ports if p.width == plan.width]
     narrow = [p.name for p in ports if p.width != plan.width]
     text = f"{', '.join(wide)} [{plan.width - 1}:0]" if wide else ""

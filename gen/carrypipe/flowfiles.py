@@ -25,7 +25,7 @@ def include(plan) -> str:
     defines = [("LATENCY", plan.latency, f"{edges} from inputs to results"),
                ("WIDTH", c.width, "operand width")]
     defines += [(f"{p.name.upper()}_WIDTH", p.width, f"{p.direction} {p.name}")
-                for p in plan.ports if p.name not in ("clk", "rst", "en")]
+                for p in plan.ports if not p.control]
     defines.append(("REGISTER_BITS", plan.registers.total, "register bits of the unit as written"))
     width = max(len(macro(plan, d[0])) for d in defines)
     digits = max(len(str(d[1])) for d in defines)

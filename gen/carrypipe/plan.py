@@ -269,8 +269,7 @@ class Plan:
 
     def data_inputs(self) -> list[Port]:
         """Input ports that carry data (not clk, rst, en)."""
-        return [p for p in self.ports if p.direction == "input"
-                and p.name not in ("clk", "rst", "en")]
+        return [p for p in self.ports if p.direction == "input" and not p.control]
 
     def operand_inputs(self) -> list[Port]:
         """The data inputs but in_valid: what the input register holds and a vector sets."""

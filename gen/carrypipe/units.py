@@ -23,12 +23,20 @@ from .miter import chained, signed_overflow
 from .netlist import Cmp, Const, Expr, Mux, Rep, bit, cat, part
 
 
+CONTROL_PORTS = ("clk", "rst", "en")  # a unit's clock, reset and enable
+
+
 @dataclass(frozen=True)
 class Port:
     name: str
     direction: str  # "input" or "output"
     width: int
     meaning: str
+
+    @property
+    def control(self) -> bool:
+        """The clock, reset or enable: not data (the valid bits are data's companions)."""
+        return self.name in CONTROL_PORTS
 
 
 def to_signed(value: int, width: int) -> int:
