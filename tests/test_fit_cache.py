@@ -171,6 +171,13 @@ def test_when_no_run_gives_a_figure(monkeypatch, tmp_path, target, status, jobs,
     # The tools failed every time: `fit` exits 3; a unit too large for the device is the
     # design's answer (exit 1).
     assert bool(fit.environment_failure(out)) == (status != "no-fit")
+    # A candidate never run after the tools broke says so, not a prediction's reason (a
+    # re-trial saw "predicted 269.2 < 0.9 x 100 MHz" for a target of 100 MHz).
+    notes = [fit.record(r, out)["note"] for r in out.rows if not r.measured]
+    if status == "broken":
+        assert notes and all(n.startswith("not run: the search stopped") for n in notes)
+    else:
+        assert not any("the search stopped" in n for n in notes)
 
 
 def test_second_run_comes_from_the_cache(counted, tmp_path):

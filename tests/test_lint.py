@@ -289,3 +289,23 @@ def test_the_readmes_excerpt_is_the_demos_verilog():
     assert len(parts) == 3
     for part in parts:
         assert part in text, part
+
+
+@pytest.mark.parametrize("keys", [dict(width=8, valid=True, reset="sync"),
+                                  dict(unit="multiplier", width=24, width_b=24, signed=True,
+                                       partial_products="booth4", pipeline="levels",
+                                       cell="kogge-stone", valid=True, enable=True),
+                                  dict(unit="sum", operands=16, width=64, signed=True,
+                                       valid=True, enable=True, reset="async")],
+                         ids=["adder", "multiplier", "sum"])
+def test_no_verilog_line_is_long_whatever_the_name(keys):
+    """Found by a re-trial: with a long unit name (up to config.MAX_NAME characters) the
+    testbench's $dumpfile line, its default vector path, the template's instance line and
+    the include file's defines ran past 100 columns (105 already for the demo's name)."""
+    from carrypipe.config import MAX_NAME
+
+    for name in ("u", "ts_accum_add", "n" * MAX_NAME):
+        files = emit.render(make_plan(from_mapping({"name": name, **keys})), vectors=10)
+        for fname, text in files.items():
+            if fname.endswith((".v", ".vh")):
+                assert max(map(len, text.splitlines())) <= verilog.LINE, (name, fname)

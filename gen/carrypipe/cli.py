@@ -10,6 +10,7 @@ are one line on stderr, "carrypipe: error: ...", naming the key, tool or path.
 from __future__ import annotations
 
 import contextlib
+import errno
 import math
 import os
 import re
@@ -205,18 +206,27 @@ def _out_folder(out_dir: str | None, name: str) -> tuple[Path, str]:
     return Path(out_dir), "-o"
 
 
+def _too_long(exc: OSError, option: str, value) -> None:
+    """A name the file system refuses as too long is bad input (exit status 2), not an
+    unwritable folder."""
+    if exc.errno == errno.ENAMETOOLONG:
+        raise UserError(f"{option}: value {str(value)!r} is not allowed; expected a name the "
+                        f"file system takes ({exc.strerror})") from None
+
+
 @contextlib.contextmanager
-def _writing(dest: Path):
+def _writing(dest: Path, option: str):
     """A folder that cannot be written, as one line (exit status 3)."""
     try:
         yield
     except OSError as exc:
+        _too_long(exc, option, dest)
         raise EnvironmentFault(f"cannot write the folder {dest}: "
                                f"{exc.strerror or exc}") from None
 
 
 def _write_folder(files: dict, dest: Path, option: str) -> list[Path]:
-    with _writing(dest):
+    with _writing(dest, option):
         return emit.write(files, dest, option)
 
 
@@ -363,7 +373,8 @@ def plan_cmd(config, slice_width, slices, chart_path):
                 raise UserError(f"--chart: value {chart_path!r} is not allowed; expected the "
                                 "name of an SVG file ending in .svg (not a folder)")
             output.write_file(dest, chart.svg(plan), "--chart")
-        except OSError as exc:  # a name too long for the file system, too
+        except OSError as exc:
+            _too_long(exc, "--chart", chart_path)
             raise EnvironmentFault(f"cannot write the chart {chart_path}: "
                                    f"{exc.strerror or exc}") from None
     click.echo(report.report(plan), nl=False)
@@ -528,7 +539,7 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, confirm, no_ca
         raise UserError(f"--cluster: value {cluster!r} is not allowed; expected "
                         "tcp://HOST:PORT of a Dask scheduler")
     dest, option = _out_folder(out_dir, base.name)
-    with _writing(dest):
+    with _writing(dest, option):
         output.probe_folder(dest, option)  # before the long run, not after it
     settings = fitting.Settings(target_mhz, devices.get(device), styles, n_seeds, tool_kind,
                                 timeout, not no_cache, chosen_modes, chosen_trees,

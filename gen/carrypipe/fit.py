@@ -59,6 +59,7 @@ class Outcome:
     notes: list[str] = field(default_factory=list)
     measurements: int = 0  # seeds x candidates measured, from the cache or the tools
     cached: int = 0  # of those, served from the cache
+    broken: bool = False  # the search stopped: every run broke in the tools (`tool_broken`)
 
 
 def make_row(cfg: Config, origin: str, device: devices.Device, seeds: int = 1) -> Row:
@@ -126,7 +127,7 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     rows, clashing = _named_apart(candidates.distinct(
         [new_row(c, "even") for c in candidates.generate(base, settings.cells, settings.modes,
                                                          settings.trees)]))
-    progress, warned = Progress(echo), False
+    progress, warned, broken = Progress(echo), False, False
     measurements = cached = 0
     margin = model.margin(dev.name)
     while batch := candidates.next_batch(rows, target, executor.jobs, margin,
@@ -174,14 +175,14 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
                 mark_no_fit(row, dev, full[0].logic_used or 0,
                             harness.design_flip_flops(row.plan),
                             full[0].message)
-        if tool_broken(rows, executor.jobs):
+        if broken := tool_broken(rows, executor.jobs):
             break  # environment_failure says so
         more, left_out = _named_apart(candidates.uneven_rows(rows, target, new_row))
         rows += more
         clashing += left_out
     chosen = candidates.select(rows, target)
     outcome = Outcome(settings, rows, versions, chosen, candidates.best(rows),
-                      measurements=measurements, cached=cached)
+                      measurements=measurements, cached=cached, broken=broken)
     if clashing:
         outcome.notes.append(f"{plural(clashing, 'candidate')} left out: the name "
                              f"{base.name!r} is one of their own signal names (a module "
@@ -299,6 +300,8 @@ def record(row: Row, outcome: Outcome) -> dict:
             note += " (not the unit's: it ends in the harness)"
     elif row.measured:
         note = f"{first.status}: {first.message}"
+    elif outcome.broken:
+        note = "not run: the search stopped, every run so far broke in the tools"
     else:
         note = candidates.why_not_run(row, rows, target, factors, outcome.chosen,
                                       model.margin(outcome.settings.device.name))
