@@ -112,3 +112,17 @@ def test_a_tool_that_breaks_is_told_from_one_that_judges_the_design(tmp_path, mo
                                    (1, 2))
     assert [m.status for m in got] == [status, status]
     assert got[0].message.startswith(text), got[0].message
+
+
+def test_a_tool_killed_by_its_version_probe_stops_fit_before_any_run(tmp_path, monkeypatch):
+    """Found by a re-trial: with `--tools system` a Yosys killed by its own `-V` left the
+    versions unknown and `fit` ran its candidates all the same; now the probe's failure is
+    the environment's answer at once (tools.ToolBroken: one line, exit status 3)."""
+    from carrypipe import toolflow, tools
+
+    fakes = {"yosys": _fake(tmp_path, "yosys", "kill -KILL $$"),
+             "nextpnr": _fake(tmp_path, "nextpnr", "echo nextpnr-ecp5 -- 0.11")}
+    monkeypatch.setattr(toolflow, "executable",
+                        lambda name, kind: fakes["yosys" if name == "yosys" else "nextpnr"])
+    with pytest.raises(tools.ToolBroken, match=r" -V failed \(killed by SIGKILL\)$"):
+        toolflow.versions(devices.get("ecp5-85k").family, "system")

@@ -51,7 +51,10 @@ def versions(family: devices.Family, kind: str, timeout: float | None = None) ->
         if kind == "wheel":
             out[tool] = f"yowasp-{tool} " + importlib.metadata.version(f"yowasp-{tool}")
         else:
-            run = tools.run([cmd, "-V" if tool == "yosys" else "--version"], None, timeout)
+            flag = "-V" if tool == "yosys" else "--version"
+            run = tools.run([cmd, flag], None, timeout)
+            if run.returncode < 0:  # killed: a broken tool, before any candidate is run
+                raise tools.ToolBroken(f"{cmd} {flag} failed ({tools.exit_status(run)})")
             lines = (run.stdout + run.stderr).strip().splitlines()
             out[tool] = lines[0] if lines else f"{tool} (version not reported)"
     return out
