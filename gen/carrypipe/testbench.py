@@ -164,12 +164,10 @@ def testbench(plan, count: int) -> str:
         "    taken = 0;",
         "    checked = 0;",
         "    cycle = 0;",
-        *(["    // Two cycles of reset (with en low: the reset must act all the same).",
-           "    repeat (2) @(posedge clk);",
-           "    #1 rst = 1'b0;"] if "rst" in has else
-          ["    // Two idle cycles (with en low), as a unit with a reset has.",
-           "    repeat (2) @(posedge clk);",
-           "    #1;"]),
+        "    // Two cycles of reset (with en low: the reset must act all the same)."
+        if "rst" in has else "    // Two idle cycles (with en low), as a unit with a reset has.",
+        "    repeat (2) @(posedge clk);",
+        "    #1 rst = 1'b0;" if "rst" in has else "    #1;",
         "    drive;",
         "    forever begin",
         "      @(posedge clk);",
