@@ -524,6 +524,12 @@ class PrefixPlan(Plan):
         wired = f" wired {c.wire_registers}" if c.wire_registers else ""
         return f"{c.cell} {self.schedule.positions.label(c)}{wired}"
 
+    @property
+    def wire_rank_left(self) -> bool:
+        """Whether a network level still has no wire rank in front (`wire_registers` could
+        grow by one)."""
+        return self.config.wire_registers < self.schedule.network.depth
+
     def moved_input_rank(self) -> "PrefixPlan | None":
         """The same levels unit with its input register spent on one more wire rank instead
         (the trade measured faster on ECP5; docs/modes.md), or None when it does not apply
@@ -531,7 +537,7 @@ class PrefixPlan(Plan):
         slices and the blocks mode take no such swap; other plans: `Plan`)."""
         c = self.config
         if self.nest is not None or not isinstance(self.schedule.positions, positions.Bits) \
-                or not c.register_inputs or c.wire_registers >= self.schedule.network.depth:
+                or not c.register_inputs or not self.wire_rank_left:
             return None
         return make_plan(c.replaced(register_inputs=False,
                                     wire_registers=c.wire_registers + 1))

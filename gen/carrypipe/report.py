@@ -418,7 +418,7 @@ def _(pos: positions.Bits, plan: PrefixPlan, first: bool) -> list[str]:
                     f"with `wire_registers: {moved.config.wire_registers}` (latency "
                     f"{moved.latency}{same}) moves the logic-free rank from the inputs into "
                     "the network, where it measured faster on ECP5 (docs/modes.md).")
-    if c.wire_registers < plan.schedule.network.depth:
+    if plan.wire_rank_left:
         return out  # the wire-rank tip: one cycle more too, and measured faster (ECP5)
     return out + _input_tip(plan)
 
@@ -447,7 +447,7 @@ def _network_tips(plan: PrefixPlan) -> list[str]:
     if cells.STYLES[c.cell].dense and plan.schedule.network.depth > 1:
         out += _tip(f"a sparser prefix `cell` ({', '.join(cells.SPARSE_STYLES)}) has less "
                     "wiring and fan-out;")
-    if c.wire_registers < plan.schedule.network.depth:
+    if plan.wire_rank_left:
         which = "one more long-span level" if c.wire_registers else "the longest-span level"
         out += _tip(f"`wire_registers: {c.wire_registers + 1}` puts a logic-free register "
                     f"rank in front of {which}: one cycle more, shorter routed nets;")
