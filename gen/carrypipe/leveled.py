@@ -108,7 +108,7 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
             return args[0] | args[1] & args[2]
         if op == "dot_p":
             return args[0] & args[1]
-        if op in ("wire", "lt", "ovf_gen"):
+        if op in ("wire", "copy", "ovf_gen"):
             return args[0]
         if op == "not":
             return ~args[0]
@@ -116,10 +116,8 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
             return args[0] ^ (args[1] if op == "xor" else c0)
         if op == "select":
             return Mux(args[2], args[1], args[0])
-        if op == "eq":
-            return args[1] & ~args[0]
-        if op == "gt":
-            return ~args[0]
+        if op == "and_not":
+            return args[0] & ~args[1]
         total = chain(i, op.startswith(("chain1", "cmp1")))
         if op.startswith("cmp"):
             return total
@@ -184,16 +182,12 @@ def stages(plan, f: Frame, src: dict[str, Expr]) -> dict[str, Expr]:
                 for n, (word, r) in enumerate(found):
                     _load(b, r, inside.get((family, n), []), lambda t: at(t.index, stage), base)
         else:
-            out = sch.outputs
-            if "result" in out:
-                r = outs[f"{kind.result}_stage"]
-                _load(b, r, [terms[x] for x in out["result"]], lambda t: at(t.index, stage),
-                      base)
-            for key, family in (("chain", f"{kind.chain[0]}_stage"),
-                                ("overflow", "overflow_stage"), ("lt", "lt_stage"),
-                                ("eq", "eq_stage"), ("gt", "gt_stage")):
-                if key in out:
-                    b.load(outs[family], at(out[key], stage))
+            for family, x in sch.outputs.items():
+                if family == "result":
+                    _load(b, outs[f"{kind.result}_stage"], [terms[t] for t in x],
+                          lambda t: at(t.index, stage), base)
+                else:
+                    b.load(outs[f"{family}_stage"], at(x, stage))
     drives = {}
     for port_name, family in kind.output_families(c).items():
         drives[port_name] = b.names[f"{family}_stage"].all

@@ -60,9 +60,10 @@ from .positions import Positions, positions_of
 
 # Register kind of each term kind (see `Plan.registers`).
 PREFIX_KINDS = ("gen", "prop", "grp_gen", "grp_prop", "blk_c0", "blk_c1", "grp_c0", "grp_c1")
-RESULT_KINDS = ("sum", "csum", "blk_s0", "blk_s1", "blk_v0", "blk_v1", "ovf", "cout", "lt", "eq",
-                "gt")
-OPERAND_KINDS = ("sub",)  # operand flags that travel with the terms to the output stage
+RESULT_KINDS = ("sum", "csum", "blk_s0", "blk_s1", "blk_v0", "blk_v1", "ovf", "cout")
+# Operand flags that travel with the terms to the output stage (a term of kind `flag` is
+# named after its input).
+OPERAND_KINDS = tuple(sorted({f for k in units.KINDS.values() for f in k.travellers}))
 
 # Unit-gate delay of each operation, from the model of `prefix.Gates` (a 2:1 select is an
 # AND-OR; gen_cin is g_0 | p_0 & cin after p_0; sum_cin is p_0 ^ cin after p_0).
@@ -70,7 +71,7 @@ _G = prefix.UNIT_GATES
 OP_DELAY = {"gen": _G.and_or, "prop": _G.xor, "gen_cin": _G.xor + 2 * _G.and_or,
             "dot_g": 2 * _G.and_or, "dot_p": _G.and_or, "wire": 0, "sum": _G.xor,
             "xor": _G.xor, "sum_cin": 2 * _G.xor, "select": 2 * _G.and_or, "flag": 0,
-            "ovf_cin": _G.xor, "ovf_gen": 0, "lt": 0, "eq": _G.and_or, "gt": 0, "pass": 0,
+            "ovf_cin": _G.xor, "ovf_gen": 0, "copy": 0, "and_not": _G.and_or, "pass": 0,
             "not": 0, "sum_flip": _G.and_or + _G.xor}
 
 
@@ -112,8 +113,8 @@ class Schedule:
     wired: tuple[int, ...]  # prefix levels with a wire rank in front
     terms: tuple[Term, ...]
     last: dict  # term index -> last stage reading it, for the terms that are kept
-    # result: per position the term of its result bits; chain, overflow, lt, eq, gt: the
-    # term each output register loads
+    # "result": per position the term of its result bits; every other key is the family of
+    # a one-bit output register (carry, overflow, lt, ...) and gives the term it loads
     outputs: dict
     stages: tuple[StageInfo, ...]
 
@@ -323,19 +324,16 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
         outputs["result"] = tuple(sums)
         if config.carry_out:
             cout = g[-1]
-            if "sub" in flags:  # add/subtract: the borrow is the complement of the carry,
-                # formed with the carry itself (g | p & g' ^ sub: four inputs, one LUT4)
-                cout = term("cout", count - 1, "xor", (cout, flags["sub"]), terms[cout].stage)
-            elif kind.inverts_carry_out:  # a tree's final adder with a constant left
-                cout = term("cout", count - 1, "not", (cout,), terms[cout].stage)
-            outputs["chain"] = cout
+            gate = kind.carry_out_term(flags)
+            if gate:  # formed with the carry itself (cout = carry ^ sub is g | p & g' ^ sub:
+                op, others = gate  # four inputs, one LUT4)
+                cout = term("cout", count - 1, op, (cout, *others), terms[cout].stage)
+            outputs[kind.chain[0]] = cout
         if config.signed:
             outputs["overflow"] = pos.overflow(b, leaves, g, has_cin)
     else:
-        top_lt, top_le = g[-1], p[-1]
-        outputs["lt"] = term("lt", count - 1, "lt", (top_lt,), final)
-        outputs["eq"] = term("eq", count - 1, "eq", (top_lt, top_le), final)
-        outputs["gt"] = term("gt", count - 1, "gt", (top_le,), final)
+        for family, op, args in kind.verdicts(g[-1], p[-1]):
+            outputs[family] = term(family, count - 1, op, args, final)
 
     # Results formed before the last planned stage (a last prefix level that only a pruned
     # carry-out needed, or that a carry-out shares with the selects) leave a cycle sooner.

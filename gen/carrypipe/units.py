@@ -177,6 +177,18 @@ class Kind:
         """What one slice registers: (register families, value) pairs (see `slices.py`)."""
         raise NotImplementedError
 
+    def carry_out_term(self, flags: dict) -> tuple[str, tuple[int, ...]] | None:
+        """How a prefix schedule forms the carry-out port from the top group's carry: an
+        operation (see `leveled.py`) and the flag terms it reads besides that carry (`flags`:
+        input name -> term), or None when the port is the carry itself."""
+        return None
+
+    def verdicts(self, below: int, at_most: int) -> tuple[tuple[str, str, tuple], ...]:
+        """A unit without a result (a comparator's `levels` mode): each one-bit output's
+        register family, operation and argument terms, from the network's top terms: the
+        borrow of a - b with borrow-in 0 (`below`) and with borrow-in 1 (`at_most`)."""
+        return ()
+
     entry_delay = 0  # unit gates in front of the adder's generate/propagate
 
     def slice_delay(self, c, cell: str, width: int, first: bool, top: bool, carry_in: bool,
@@ -423,6 +435,9 @@ class AddSub(Arithmetic):
     def core_carry_out(self, chain, flags):
         return chain ^ flags["sub"]
 
+    def carry_out_term(self, flags):
+        return "xor", (flags["sub"],)  # the borrow is the complement of the carry
+
     def phrase(self, c):
         cin = " + cin" if c.carry_in else ""
         return (f"{c.width}-bit {'signed ' if c.signed else ''}{self.noun}, sum = "
@@ -469,6 +484,10 @@ class Comparator(Kind):
 
     def output_families(self, c):
         return {"lt": "lt", "eq": "eq", "gt": "gt"}
+
+    def verdicts(self, below, at_most):
+        return (("lt", "copy", (below,)), ("eq", "and_not", (at_most, below)),
+                ("gt", "not", (at_most,)))
 
     def slice(self, ctx):
         c, s = ctx.config, ctx.s
@@ -633,6 +652,9 @@ class FinalAdder(Plain):
 
     def core_carry_out(self, chain, flags):
         return ~chain if self.inverts_carry_out else chain
+
+    def carry_out_term(self, flags):
+        return ("not", ()) if self.inverts_carry_out else None
 
 
 def _clog2(n: int) -> int:
