@@ -357,12 +357,9 @@ def _(plan: SlicedPlan) -> list[str]:
         out += _tip(f"`cell: {faster[0]}` has a shorter path than {c.cell} in the slowest "
                     f"{'stages' if len(slow) > 1 else 'stage'};")
     others = [m for m in kind.modes if m != "slices"] if c.width > 1 else []
-    if others == ["levels"]:
-        out += _tip("`pipeline: levels` compares all slices in parallel and joins their "
-                    "verdicts in a tree, without the skew triangle (docs/modes.md);")
-    elif others:
-        out += _tip("`pipeline: " + "` or `".join(others) + "` pipelines the carry network "
-                    "itself, without skew or deskew triangles: for wide units (docs/modes.md);")
+    if others:
+        out += _tip("`pipeline: " + "` or `".join(others) + f"` {kind.prefix_gain} "
+                    "(docs/modes.md);")
     return out + _input_tip(plan)
 
 

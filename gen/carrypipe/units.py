@@ -78,6 +78,9 @@ class Kind:
     tree = False  # a carry-save kind: a counter tree, then a final adder (`TreePlan`)
     max_width = 4096  # `width` and `width_b` at most (config.MAX_WIDTH is the widest kind)
     inverts_carry_out = False  # the carry-out port is the chain bit complemented
+    # What its modes other than `slices` do, for the report's tips
+    prefix_gain = ("pipelines the carry network itself, without skew or deskew triangles: "
+                   "for wide units")
 
     # ---- ports ----
     def carry_in_port(self, c) -> str | None:
@@ -459,6 +462,8 @@ class Comparator(Kind):
                  "block_width": (), "wire_registers": (), "local_width": (),
                  "carry_increment": ()}
     TREE_SLICE = 8  # default slice width of the levels mode
+    prefix_gain = ("compares all slices in parallel and joins their verdicts in a tree, "
+                   "without the skew triangle")
 
     def default_slice_width(self, width, mode):
         return min(width, self.TREE_SLICE) if mode == "levels" else width
