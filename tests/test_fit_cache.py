@@ -393,6 +393,8 @@ DAMAGE = {
     "another seed's entry": _text(lambda d: {**d, "seed": 2, "mhz": d["mhz"] / 2}),
     "seed true": _text(lambda d: {**d, "seed": True, "mhz": d["mhz"] / 2}),
     "inside as 1": _text(lambda d: {**d, "inside": 1}),
+    "routing delay as a string": _text(lambda d: {**d, "routing_ns": "1.2"}),
+    "logic delay negative": _text(lambda d: {**d, "logic_ns": -0.5}),
     "LUTs as a float": _text(lambda d: {**d, "luts": 64.5}),
     "LUTs with 5000 digits": lambda entry: re.sub(r'"luts": \d+', '"luts": ' + "9" * 5000, entry),
     "an extra key": _text(lambda d: {**d, "note": "x"}),
@@ -435,7 +437,8 @@ def test_a_damaged_entry_is_measured_again_and_rewritten(counted, tmp_path, dama
 def test_entries_are_checked_against_the_schema(tmp_path):
     store = cache.Cache(tmp_path)
     ok = Measurement(3, "ok", mhz=301.5, luts=70, carry=64, flip_flops=140, logic_used=400,
-                     start="unit.a", end="unit.sum_stage_1", inside=True, seconds=2.5)
+                     start="unit.a", end="unit.sum_stage_1", logic_ns=1.25, routing_ns=2.0,
+                     inside=True, seconds=2.5)
     store.put("ef" * 32, ok)
     assert store.get("ef" * 32, 3) == ok
     assert store.get("ef" * 32, 1) is None  # the entry is seed 3's
@@ -448,6 +451,9 @@ def test_entries_are_checked_against_the_schema(tmp_path):
     assert not cache.valid({**ok.as_dict(), "start": None}, 3)
     assert not cache.valid({**ok.as_dict(), "seconds": -1.0}, 3)
     assert not cache.valid({**ok.as_dict(), "luts": True}, 3)
+    assert not cache.valid({**ok.as_dict(), "routing_ns": math.inf}, 3)
+    assert not cache.valid({**ok.as_dict(), "logic_ns": False}, 3)
+    assert cache.valid({**ok.as_dict(), "logic_ns": None, "routing_ns": None}, 3)
 
 
 def test_last_resort_finds_a_kind_the_model_put_low(monkeypatch, tmp_path):

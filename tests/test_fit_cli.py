@@ -205,11 +205,21 @@ def test_real_fit_writes_a_rebuildable_choice_and_reruns_from_cache(unit, tmp_pa
     assert f"Fmax      {mhz} MHz, median of 1 seed (seed 1: {mhz})" in report
     assert re.search(r"Critical path at seed 1: unit\.\S+ (\(the harness register feeding "
                      r"input (a|b|cin)\) )?-> \S+, ends in stage \d", report)
+    # The path's delay, split as nextpnr's report gives it, adds up to the clock period
+    # (1000 / MHz, to the rounding of the figures).
+    delay = re.search(r"^  Delay     ([0-9.]+) ns: ([0-9.]+) in cells \(clock-to-out and "
+                      r"setup included\), ([0-9.]+) routing \((\d+) %\)$", report, re.M)
+    assert delay, report
+    total, cells_ns, routing = map(float, delay.groups()[:3])
+    assert total == pytest.approx(cells_ns + routing, abs=0.0015)
+    assert total == pytest.approx(1000 / float(mhz), rel=0.002)
+    assert int(delay.group(4)) == round(100 * routing / (cells_ns + routing))
     chart = (out / "lab_add8_chart.svg").read_text()
     assert f"{mhz} MHz, seed 1, ice40-hx8k, nextpnr; critical path unit." in chart
     # Every measured candidate's critical path lies inside the unit.
     csv_text = (out / "fit.csv").read_text()
     assert "not the unit's" not in csv_text and "critical path unit." in csv_text
+    assert re.search(r"critical path unit\.\S+ .*-> \S+, \d+ % routing", csv_text)
     first = {p.name: p.read_bytes() for p in out.iterdir()}
 
     def no_tools(*a, **k):
@@ -255,6 +265,21 @@ def test_a_close_choice_is_measured_on_more_seeds(unit, tmp_path, monkeypatch, o
     assert min(c["latency"] for c in doc["candidates"]) == chosen["latency"]
     assert f"200.0 MHz ({'seed 1' if seeds == (1,) else f'median of {len(seeds)} seeds'})" \
         in res.output
+
+
+def test_the_critical_path_delay_is_split_into_cells_and_routing(unit, tmp_path, monkeypatch):
+    """The chosen unit's report and the table give the median seed's path delay as nextpnr
+    splits it (made-up figures: 0.9 ns in cells, 1.35 ns routing = 2.25 ns, 60 %)."""
+    monkeypatch.setattr(toolflow, "measure", lambda job: [
+        Measurement(s, "ok", mhz=444.44, luts=1, start="unit.a_in", end="unit.sum_stage_1",
+                    logic_ns=0.9, routing_ns=1.35, inside=True) for s in job.seeds])
+    res = run(unit, "--target-mhz", "300", "--device", "ecp5-85k", "--cells", "native",
+              "--modes", "slices", "-o", str(tmp_path / "o"))
+    assert res.exit_code == 0, res.output
+    report = (tmp_path / "o" / "lab_add8.txt").read_text()
+    assert ("  Delay     2.250 ns: 0.900 in cells (clock-to-out and setup included), "
+            "1.350 routing (60 %)\n") in report
+    assert "critical path unit.a_in -> unit.sum_stage_1, 60 % routing" in res.output
 
 
 def test_the_options_table_of_the_docs_lists_every_option():

@@ -33,6 +33,7 @@ STORED = ("ok", "no-fit", "error")
 FIELDS = frozenset(f.name for f in fields(Measurement))
 COUNTS = ("luts", "carry", "flip_flops", "logic_used")
 TEXTS = ("start", "end", "message")
+DELAYS = ("logic_ns", "routing_ns")
 MAX_ENTRY_BYTES = 1 << 16  # an entry is a few hundred bytes
 
 
@@ -98,6 +99,7 @@ def valid(data, seed: int) -> bool:
             and data["status"] in STORED and all(type(data[f]) is str for f in TEXTS)
             and (_real(mhz) and mhz > 0 if data["status"] == "ok" else mhz is None)
             and all(data[f] is None or type(data[f]) is int for f in COUNTS)
+            and all(data[f] is None or _real(data[f]) and data[f] >= 0 for f in DELAYS)
             and (data["inside"] is None or type(data["inside"]) is bool)
             and _real(data["seconds"]) and data["seconds"] >= 0)
 

@@ -296,6 +296,8 @@ def record(row: Row, outcome: Outcome) -> dict:
     elif row.ok:
         path = row.median_seed
         note = f"critical path {harness.path_words(path, row.plan)}"
+        if _routed(path) is not None:
+            note += f", {_routed(path)} % routing"
         if path.inside is False:
             note += " (not the unit's: it ends in the harness)"
     elif row.measured:
@@ -388,7 +390,17 @@ def measured_section(outcome: Outcome) -> str:
         f"  Fmax      {row.mhz:g} MHz, median of {plural(len(row.ok), 'seed')} ({per_seed})",
         f"  Critical path at seed {path.seed}: "
         f"{harness.path_words(path, row.plan)}{where}",
+        *([f"  Delay     {path.logic_ns + path.routing_ns:.3f} ns: {path.logic_ns:.3f} in cells "
+           f"(clock-to-out and setup included), {path.routing_ns:.3f} routing "
+           f"({_routed(path)} %)"] if _routed(path) is not None else []),
         ""])
+
+
+def _routed(m) -> int | None:
+    """The routed nets' share of a measured critical path, in percent (None: not read)."""
+    if m.logic_ns is None or m.routing_ns is None or m.logic_ns + m.routing_ns <= 0:
+        return None
+    return round(100 * m.routing_ns / (m.logic_ns + m.routing_ns))
 
 
 def chart_figures(outcome: Outcome) -> tuple[dict[int, float], str]:

@@ -24,7 +24,7 @@ from .plan import make_plan
 from .tools import ToolBroken, ToolTimeout
 
 TOOLS = ("wheel", "system")
-FLOW_VERSION = 9  # bump when the harness, scripts, arguments, path reading or the
+FLOW_VERSION = 10  # bump when the harness, scripts, arguments, path reading or the
 # emitted Verilog change a result
 FREQ_MHZ = 500  # the clock constraint nextpnr optimizes for, above any reachable figure
 PINS = "pins"  # the harness's pin file, `pins.cst` or `pins.pdc` (devices.pin_constraints)
@@ -84,6 +84,8 @@ class Measurement:
     logic_used: int | None = None  # the device's LUT sites used, harness included
     start: str = ""
     end: str = ""
+    logic_ns: float | None = None  # the critical path's cell delays (clock-to-out, setup in)
+    routing_ns: float | None = None  # and its routed nets'
     inside: bool | None = None  # the critical path ends inside the unit
     message: str = ""
     seconds: float = field(default=0.0, compare=False)
@@ -212,6 +214,8 @@ def _place(pnr, plan, device, seed, work, timeout, unit) -> Measurement:
     path = rep.path
     return Measurement(seed, "ok", mhz=round(rep.mhz, 2), logic_used=rep.logic_used,
                        start=path.start if path else "", end=path.end if path else "",
+                       logic_ns=round(path.logic_ns, 3) if path else None,
+                       routing_ns=round(path.routing_ns, 3) if path else None,
                        inside=harness.inside_unit(path.end, plan) if path else None, **unit)
 
 
