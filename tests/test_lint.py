@@ -301,11 +301,13 @@ def test_the_readmes_excerpt_is_the_demos_verilog():
 def test_no_verilog_line_is_long_whatever_the_name(keys):
     """Found by a re-trial: with a long unit name (up to config.MAX_NAME characters) the
     testbench's $dumpfile line, its default vector path, the template's instance line and
-    the include file's defines ran past 100 columns (105 already for the demo's name)."""
+    the include file's defines ran past 100 columns (105 already for the demo's name); the
+    VHDL package is held to the same."""
     from carrypipe.config import MAX_NAME
 
     for name in ("u", "ts_accum_add", "n" * MAX_NAME):
         files = emit.render(make_plan(from_mapping({"name": name, **keys})), vectors=10)
         for fname, text in files.items():
-            if fname.endswith((".v", ".vh")):
+            if fname.endswith((".v", ".vh", ".vhd")):
                 assert max(map(len, text.splitlines())) <= verilog.LINE, (name, fname)
+        assert f"{name}_pkg.vhd" in files

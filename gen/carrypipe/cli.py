@@ -20,7 +20,7 @@ from pathlib import Path
 
 import click
 
-from . import __version__, candidates, devices, emit, output, report, sim, tools, units
+from . import __version__, candidates, devices, emit, flowfiles, output, report, sim, tools, units
 from .config import (CELLS, PIPELINES, PREFIX_CELLS, TREES, ConfigError, check_split, load,
                      reads, split_span)
 from .config import read_text as read_config_text
@@ -331,6 +331,13 @@ def build(config, out_dir, vectors, seed):
                f"{plural(r.total, 'register bit')} -> {dest}/")
     for fname in sorted(files):
         click.echo(f"  {fname}")
+    unfit = flowfiles.vhdl_unfit(plan.config.name)
+    if unfit:
+        click.echo(f"note: no {flowfiles.vhdl_package_name(plan)}.vhd: the name "
+                   f"{plan.config.name} is {unfit}, so no VHDL component can carry it")
+    elif flowfiles.vhdl_case_note(plan.config.name):
+        click.echo(f"note: {flowfiles.vhdl_package_name(plan)}.vhd: "
+                   f"{flowfiles.vhdl_case_note(plan.config.name)}")
 
 
 @main.command()

@@ -1,0 +1,194 @@
+"""The VHDL package `<name>_pkg.vhd`: its component binds to the Verilog unit.
+
+Checked against the tools, not against carrypipe's own text:
+- GHDL (IEEE 1076, when installed) analyses the package and elaborates a VHDL design that
+  binds its component to an entity whose ports are read from the emitted Verilog's module
+  header; a component port of another name, direction or width fails elaboration.
+- Icarus Verilog (when installed) compiles a VHDL wrapper that instantiates the component
+  together with the Verilog unit, and the unit's own testbench, pointed at the wrapper,
+  prints PASS through it.
+The wrapper is written from the manifest's documented port list, as a user would.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import subprocess
+
+import pytest
+
+from carrypipe import config, emit, flowfiles
+from carrypipe.plan import make_plan
+from carrypipe.tools import which
+
+GHDL = which("ghdl")
+IVERILOG = which("iverilog") and which("vvp")
+
+CASES = [
+    {"name": "acc_add", "width": 16, "slice_width": 5, "valid": True, "reset": "sync"},
+    {"name": "MixedCase", "unit": "subtractor", "width": 9, "pipeline": "levels",
+     "cell": "kogge-stone", "signed": True, "enable": True},
+    {"name": "cmp_w", "unit": "comparator", "width": 12, "pipeline": "levels",
+     "slice_width": 4, "valid": True, "reset": "async"},
+    {"name": "as1", "unit": "addsub", "width": 1, "carry_in": True},
+    {"name": "acc_t", "unit": "accumulator", "width": 10, "slice_width": 4},
+    {"name": "sum5", "unit": "sum", "operands": 5, "width": 6, "signed": True},
+    {"name": "mul_b", "unit": "multiplier", "width": 5, "width_b": 3,
+     "partial_products": "booth4", "register_inputs": True},
+    {"name": "n" * 64, "width": 6, "carry_out": False},  # config.MAX_NAME: lines broken
+]
+IDS = [c["name"][:12] for c in CASES]
+
+
+def _built(tmp_path, keys) -> tuple[dict, dict]:
+    plan = make_plan(config.from_mapping(keys))
+    files = emit.render(plan, vectors=60)
+    emit.write(files, tmp_path / "u")
+    return files, json.loads(files[f"{keys['name']}.json"])
+
+
+def _vhdl_type(width: int) -> str:
+    return "std_logic" if width == 1 else f"std_logic_vector({width - 1} downto 0)"
+
+
+def _wrapper(name: str, ports: list[dict], bind: bool) -> str:
+    """A VHDL entity `<name>_vwrap` with the manifest's ports, instantiating the component
+    from the package (`bind`: name the entity to bind, for GHDL's default-binding rule)."""
+    decl = ";\n    ".join(f"{p['name']} : {'in' if p['direction'] == 'input' else 'out'} "
+                          f"{_vhdl_type(p['width'])}" for p in ports)
+    conn = ", ".join(f"{p['name']} => {p['name']}" for p in ports)
+    spec = f"  for u : {name} use entity work.{name};\n" if bind else ""
+    return (f"library ieee;\nuse ieee.std_logic_1164.all;\nuse work.{name}_pkg.all;\n"
+            f"entity {name}_vwrap is\n  port (\n    {decl}\n  );\nend entity;\n"
+            f"architecture wrap of {name}_vwrap is\n{spec}begin\n"
+            f"  u : {name} port map ({conn});\nend architecture;\n")
+
+
+def _stub_from_verilog(name: str, verilog: str) -> str:
+    """An entity with the ports the Verilog module header declares (drivers left open)."""
+    header = verilog[verilog.index(f"module {name} ("):verilog.index(");")]
+    found = re.findall(r"^\s*(input|output)\s+wire\s+(?:\[(\d+):0\]\s+)?(\w+)", header, re.M)
+    assert found, header
+    decl = ";\n    ".join(f"{n} : {'in' if d == 'input' else 'out'} "
+                          f"{_vhdl_type(int(msb) + 1 if msb else 1)}" for d, msb, n in found)
+    return (f"library ieee;\nuse ieee.std_logic_1164.all;\nentity {name} is\n  port (\n"
+            f"    {decl}\n  );\nend entity;\narchitecture stub of {name} is\nbegin\n"
+            "end architecture;\n")
+
+
+def _run(folder, *cmd) -> subprocess.CompletedProcess:
+    return subprocess.run(cmd, cwd=folder, capture_output=True, text=True, timeout=300)
+
+
+def _ghdl_binds(folder, name: str, verilog: str, package: str, ports: list[dict]) -> str:
+    """'' when GHDL analyses, elaborates and runs the design; else its messages."""
+    (folder / "stub.vhd").write_text(_stub_from_verilog(name, verilog))
+    (folder / "pkg.vhd").write_text(package)
+    (folder / "wrap.vhd").write_text(_wrapper(name, ports, bind=True))
+    for op, *rest in (["-a", "stub.vhd", "pkg.vhd", "wrap.vhd"], ["-e", f"{name}_vwrap"],
+                      ["-r", f"{name}_vwrap", "--stop-time=1ns"]):
+        run = _run(folder, GHDL, op, "--std=93", *rest)
+        if run.returncode != 0:
+            return run.stdout + run.stderr
+    return ""
+
+
+@pytest.mark.skipif(not GHDL, reason="GHDL is not installed")
+@pytest.mark.parametrize("keys", CASES, ids=IDS)
+def test_ghdl_binds_the_component_to_the_verilog_ports(tmp_path, keys):
+    files, manifest = _built(tmp_path, keys)
+    name = keys["name"]
+    package = files[f"{name}_pkg.vhd"]
+    assert f"{name}_pkg.vhd" in manifest["files"]
+    work = tmp_path / "ghdl"
+    work.mkdir()
+    verilog = files[f"{name}.v"]
+    assert _ghdl_binds(work, name, verilog, package, manifest["ports"]) == ""
+    # The same design with a component port a bit narrower, or an output turned into an
+    # input, fails: the check can fail.
+    mutants = [re.sub(r"(\n\s+\w+\s+: )out(\s+std_logic)", r"\1in \2", package, count=1)]
+    wide = [p["width"] for p in manifest["ports"] if p["width"] > 1]
+    if wide:
+        mutants.append(package.replace(f"std_logic_vector({wide[0] - 1} downto 0)",
+                                       f"std_logic_vector({wide[0] - 2} downto 0)", 1))
+    for n, mutant in enumerate(mutants):
+        assert mutant != package
+        bad = tmp_path / f"ghdl_bad{n}"
+        bad.mkdir()
+        assert _ghdl_binds(bad, name, verilog, mutant, manifest["ports"]) != ""
+
+
+def _icarus_through_vhdl(tmp_path, keys) -> subprocess.CompletedProcess:
+    """Compile the unit, its package, a VHDL wrapper and the testbench pointed at the
+    wrapper with Icarus; run the simulation when that compiles."""
+    files, manifest = _built(tmp_path, keys)
+    name = keys["name"]
+    folder = tmp_path / "u"
+    (folder / "wrap.vhd").write_text(_wrapper(name, manifest["ports"], bind=False))
+    bench = files[f"{name}_tb.v"]
+    pointed = re.sub(rf"^(\s*){name} dut \(", rf"\1{name}_vwrap dut (", bench, count=1,
+                     flags=re.M)
+    assert pointed != bench
+    (folder / "tb.v").write_text(pointed)
+    compiled = _run(folder, "iverilog", "-g2012", "-o", "sim.vvp", f"{name}_pkg.vhd",
+                    "wrap.vhd", f"{name}.v", "tb.v")
+    return compiled if compiled.returncode else _run(folder, "vvp", "-n", "sim.vvp")
+
+
+LOWER = [c for c in CASES if c["name"] == c["name"].lower()]
+
+
+@pytest.mark.skipif(not IVERILOG, reason="Icarus Verilog is not installed")
+@pytest.mark.parametrize("keys", LOWER[:4], ids=[c["name"][:12] for c in LOWER[:4]])
+def test_the_testbench_passes_through_a_vhdl_wrapper_in_icarus(tmp_path, keys):
+    run = _icarus_through_vhdl(tmp_path, keys)
+    assert run.returncode == 0, run.stderr
+    assert re.search(r"^PASS \d+ vectors", run.stdout, re.M), run.stdout
+
+
+@pytest.mark.skipif(not IVERILOG, reason="Icarus Verilog is not installed")
+def test_icarus_looks_a_mixed_case_module_up_in_lower_case(tmp_path):
+    """What the package's note on capitals says (Icarus Verilog 11.0 here): the
+    component MixedCase is looked up as module mixedcase, which the Verilog does not have."""
+    run = _icarus_through_vhdl(tmp_path, CASES[1])
+    assert run.returncode != 0 and "Unknown module type: mixedcase" in run.stderr, run
+    assert "Icarus Verilog does" in flowfiles.vhdl_case_note("MixedCase")
+
+
+@pytest.mark.parametrize("name, why", [("Process", "a VHDL reserved word"),
+                                       ("add_", "not a VHDL identifier"),
+                                       ("_add", "not a VHDL identifier"),
+                                       ("a__b", "not a VHDL identifier")])
+def test_a_name_vhdl_cannot_carry_gets_no_package(name, why):
+    """IEEE 1076 basic identifiers: a letter first, no underscore at the end or twice in a
+    row, not a reserved word in any case (Verilog allows all four names)."""
+    plan = make_plan(config.from_mapping({"name": name, "width": 4}))
+    files = emit.render(plan, vectors=10)
+    assert not any(f.endswith(".vhd") for f in files)
+    assert why in flowfiles.vhdl_unfit(name)
+
+
+def test_no_port_name_is_a_vhdl_reserved_word():
+    """Every unit kind's ports (with every option) can be VHDL component ports."""
+    for keys in CASES:
+        plan = make_plan(config.from_mapping(keys))
+        assert all(flowfiles.vhdl_unfit(p.name) is None for p in plan.ports), keys
+
+
+@pytest.mark.parametrize("name, note", [
+    ("add_", "note: no add__pkg.vhd: the name add_ is not a VHDL identifier"),
+    ("Gain", "note: Gain_pkg.vhd: VHDL reads Gain without its case"),
+    ("gain", None)])
+def test_build_says_what_the_vhdl_package_cannot_do(tmp_path, name, note):
+    from click.testing import CliRunner
+
+    from carrypipe.cli import main
+
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text(f"name: {name}\nwidth: 4\n")
+    res = CliRunner().invoke(main, ["build", str(cfg), "-o", str(tmp_path / "o")])
+    assert res.exit_code == 0, res.output
+    notes = [line for line in res.output.splitlines() if line.startswith("note:")]
+    assert notes == ([] if note is None else [next(n for n in notes if n.startswith(note))])
+    assert (tmp_path / "o" / f"{name}_pkg.vhd").exists() == (name != "add_")
