@@ -64,6 +64,7 @@ def test_split(keys, split):
     ({"unit": "accumulator", "pipeline": "levels"}, r"config: key 'pipeline': value 'levels' is not allowed with unit 'accumulator'; expected one of slices\Z"),
     ({"name": "module"}, r"config: key 'name': value 'module' is not allowed; expected a name that is not a Verilog or SystemVerilog keyword \(module is one\)\Z"),
     ({"name": "small"}, r"config: key 'name': value 'small' is not allowed; expected a name that is not a Verilog or SystemVerilog keyword \(small is one\)\Z"),
+    ({"name": "integer"}, r"config: key 'name': value 'integer' is not allowed; expected a name that is not a Verilog or SystemVerilog keyword \(integer is one\)\Z"),  # found by a trial: the message once added "written in plain decimal digits"
     ({"name": "1abc"}, r"config: key 'name': value '1abc' is not allowed"),
     ({"name": "../x"}, r"config: key 'name': value '../x' is not allowed"),
     ({"name": "a" * 65}, r"config: key 'name': value 'aaaa.*\.\.\. is not allowed"),

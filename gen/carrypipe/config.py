@@ -250,7 +250,7 @@ def _is_text(value) -> bool:
 def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
     if value == "":  # `width:` with nothing after it (or '')
         return ConfigError(f"{where}: key '{key}': no value is given; expected {allowed}")
-    if "integer" in allowed and _is_text(value):
+    if allowed.startswith(("an integer", "a list of positive integers")) and _is_text(value):
         head, sep, tail = allowed.partition(";")
         allowed = f"{head}, written in plain decimal digits{sep}{tail}"
     return ConfigError(f"{where}: key '{key}': value {_shown(value)} is not allowed; "
