@@ -52,17 +52,27 @@ def _vhdl_type(width: int) -> str:
     return "std_logic" if width == 1 else f"std_logic_vector({width - 1} downto 0)"
 
 
-def _wrapper(name: str, ports: list[dict], bind: bool) -> str:
+def _wrapper(name: str, ports: list[dict], bind: bool, instance: str | None = None) -> str:
     """A VHDL entity `<name>_vwrap` with the manifest's ports, instantiating the component
-    from the package (`bind`: name the entity to bind, for GHDL's default-binding rule)."""
+    from the package (`bind`: name the entity to bind, for GHDL's default-binding rule;
+    `instance`: the instance statement to use, labelled `u_<name>`, instead of our own)."""
     decl = ";\n    ".join(f"{p['name']} : {'in' if p['direction'] == 'input' else 'out'} "
                           f"{_vhdl_type(p['width'])}" for p in ports)
     conn = ", ".join(f"{p['name']} => {p['name']}" for p in ports)
-    spec = f"  for u : {name} use entity work.{name};\n" if bind else ""
+    label = f"u_{name}" if instance else "u"
+    body = instance or f"  u : {name} port map ({conn});"
+    spec = f"  for {label} : {name} use entity work.{name};\n" if bind else ""
     return (f"library ieee;\nuse ieee.std_logic_1164.all;\nuse work.{name}_pkg.all;\n"
             f"entity {name}_vwrap is\n  port (\n    {decl}\n  );\nend entity;\n"
             f"architecture wrap of {name}_vwrap is\n{spec}begin\n"
-            f"  u : {name} port map ({conn});\nend architecture;\n")
+            f"{body}\nend architecture;\n")
+
+
+def _printed_instance(package: str) -> str:
+    """The instance the package prints in its comments, uncommented."""
+    lines = package[package.index("-- An instance"):package.index("end package")].splitlines()
+    first = next(k for k, line in enumerate(lines) if line.strip().startswith("--   u_"))
+    return "\n".join(line.strip()[len("--"):] for line in lines[first:])
 
 
 def _stub_from_verilog(name: str, verilog: str) -> str:
@@ -81,11 +91,12 @@ def _run(folder, *cmd) -> subprocess.CompletedProcess:
     return subprocess.run(cmd, cwd=folder, capture_output=True, text=True, timeout=300)
 
 
-def _ghdl_binds(folder, name: str, verilog: str, package: str, ports: list[dict]) -> str:
+def _ghdl_binds(folder, name: str, verilog: str, package: str, ports: list[dict],
+                instance: str | None = None) -> str:
     """'' when GHDL analyses, elaborates and runs the design; else its messages."""
     (folder / "stub.vhd").write_text(_stub_from_verilog(name, verilog))
     (folder / "pkg.vhd").write_text(package)
-    (folder / "wrap.vhd").write_text(_wrapper(name, ports, bind=True))
+    (folder / "wrap.vhd").write_text(_wrapper(name, ports, bind=True, instance=instance))
     for op, *rest in (["-a", "stub.vhd", "pkg.vhd", "wrap.vhd"], ["-e", f"{name}_vwrap"],
                       ["-r", f"{name}_vwrap", "--stop-time=1ns"]):
         run = _run(folder, GHDL, op, "--std=93", *rest)
@@ -105,6 +116,17 @@ def test_ghdl_binds_the_component_to_the_verilog_ports(tmp_path, keys):
     work.mkdir()
     verilog = files[f"{name}.v"]
     assert _ghdl_binds(work, name, verilog, package, manifest["ports"]) == ""
+    # VHDL-2008 reads the package too.
+    std08 = tmp_path / "ghdl08"
+    std08.mkdir()
+    (std08 / "pkg.vhd").write_text(package)
+    run = _run(std08, GHDL, "-a", "--std=08", "pkg.vhd")
+    assert run.returncode == 0, run.stdout + run.stderr
+    # The instance the package prints in its comments, as printed.
+    printed = tmp_path / "ghdl_printed"
+    printed.mkdir()
+    assert _ghdl_binds(printed, name, verilog, package, manifest["ports"],
+                       _printed_instance(package)) == ""
     # The same design with a component port a bit narrower, or an output turned into an
     # input, fails: the check can fail.
     mutants = [re.sub(r"(\n\s+\w+\s+: )out(\s+std_logic)", r"\1in \2", package, count=1)]
@@ -173,11 +195,15 @@ def test_no_port_name_is_a_vhdl_reserved_word():
     """Every unit kind's ports (with every option) can be VHDL component ports."""
     for keys in CASES:
         plan = make_plan(config.from_mapping(keys))
-        assert all(flowfiles.vhdl_unfit(p.name) is None for p in plan.ports), keys
+        for p in plan.ports:  # `sub` is also a character literal: a port may shadow it
+            assert p.name not in flowfiles.VHDL_RESERVED, p.name
+            assert re.fullmatch(r"[a-z](_?[a-z0-9])*", p.name), p.name
 
 
 @pytest.mark.parametrize("name, note", [
-    ("add_", "note: no add__pkg.vhd: the name add_ is not a VHDL identifier"),
+    ("add_", "note: no add__pkg.vhd: add_ is not a VHDL identifier"),
+    ("natural", "note: no natural_pkg.vhd: natural is declared by std.standard, and a "
+     "component of that name would hide it where both are used"),
     ("Gain", "note: Gain_pkg.vhd: VHDL reads Gain without its case"),
     ("gain", None)])
 def test_build_says_what_the_vhdl_package_cannot_do(tmp_path, name, note):
@@ -191,4 +217,52 @@ def test_build_says_what_the_vhdl_package_cannot_do(tmp_path, name, note):
     assert res.exit_code == 0, res.output
     notes = [line for line in res.output.splitlines() if line.startswith("note:")]
     assert notes == ([] if note is None else [next(n for n in notes if n.startswith(note))])
-    assert (tmp_path / "o" / f"{name}_pkg.vhd").exists() == (name != "add_")
+    assert (tmp_path / "o" / f"{name}_pkg.vhd").exists() == (note is None or "Gain" in note)
+
+
+GHDL_SOURCES = {"std.standard": "std/v08/standard.vhdl", "std.textio": "std/v08/textio.vhdl",
+                "ieee.std_logic_1164": "ieee2008/std_logic_1164.vhdl",
+                "ieee.numeric_std": "ieee2008/numeric_std.vhdl"}
+
+
+@pytest.mark.parametrize("package", sorted(GHDL_SOURCES))
+def test_the_standard_names_kept_apart_are_those_the_packages_declare(package):
+    """The names a component must not take, listed from memory, against the VHDL-2008
+    sources of the standard packages that GHDL ships: every listed name is in the package's
+    declarations, and every type, subtype, subprogram and constant it declares is listed
+    (or a reserved word: the operators)."""
+    from pathlib import Path
+
+    source = Path("/usr/lib/ghdl/src") / GHDL_SOURCES[package]
+    if not source.is_file():
+        pytest.skip(f"GHDL's library source {source} is not installed")
+    text = re.sub(r"--[^\n]*", "", source.read_text(encoding="latin-1"))
+    words = {w.lower() for w in re.findall(r"[A-Za-z]\w*", text)}
+    declared = {m.lower() for m in re.findall(
+        r"(?i)\b(?:type|subtype|function|procedure|constant)\s+\"?([A-Za-z]\w*)", text)}
+    listed = set(flowfiles.VHDL_DECLARED[package].split())
+    assert listed <= words
+    others = {n for ns in flowfiles.VHDL_DECLARED.values() for n in ns.split()}
+    assert declared - others - flowfiles.VHDL_RESERVED <= {"universal_integer", "universal_real"}
+    assert package in flowfiles.vhdl_unfit(sorted(listed)[0])
+
+
+@pytest.mark.skipif(not GHDL, reason="GHDL is not installed")
+def test_two_packages_whose_names_meet_need_selected_names(tmp_path):
+    """What the README says of `gain` and `gain_latency` used together: each declares
+    `gain_latency` (a constant, a component), so neither is visible by its simple name."""
+    for name in ("gain", "gain_latency"):
+        files = emit.render(make_plan(config.from_mapping({"name": name, "width": 4})),
+                            vectors=10)
+        (tmp_path / f"{name}_pkg.vhd").write_text(files[f"{name}_pkg.vhd"])
+    design = ("library ieee;\nuse ieee.std_logic_1164.all;\nuse work.gain_pkg.all;\n"
+              "use work.gain_latency_pkg.all;\nentity top is\nend entity;\n"
+              "architecture a of top is\n  constant k : natural := {};\nbegin\nend architecture;\n")
+    (tmp_path / "simple.vhd").write_text(design.format("GAIN_LATENCY"))
+    (tmp_path / "selected.vhd").write_text(design.format("work.gain_pkg.GAIN_LATENCY"))
+    base = ["gain_pkg.vhd", "gain_latency_pkg.vhd"]
+    simple = _run(tmp_path, GHDL, "-a", "--std=93", *base, "simple.vhd")
+    assert simple.returncode != 0 and "gain_latency" in simple.stderr.lower(), simple
+    (tmp_path / "work-obj93.cf").unlink(missing_ok=True)
+    selected = _run(tmp_path, GHDL, "-a", "--std=93", *base, "selected.vhd")
+    assert selected.returncode == 0, selected.stderr

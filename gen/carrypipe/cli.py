@@ -333,8 +333,8 @@ def build(config, out_dir, vectors, seed):
         click.echo(f"  {fname}")
     unfit = flowfiles.vhdl_unfit(plan.config.name)
     if unfit:
-        click.echo(f"note: no {flowfiles.vhdl_package_name(plan)}.vhd: the name "
-                   f"{plan.config.name} is {unfit}, so no VHDL component can carry it")
+        click.echo(f"note: no {flowfiles.vhdl_package_name(plan)}.vhd: {plan.config.name} is "
+                   f"{unfit}")
     elif flowfiles.vhdl_case_note(plan.config.name):
         click.echo(f"note: {flowfiles.vhdl_package_name(plan)}.vhd: "
                    f"{flowfiles.vhdl_case_note(plan.config.name)}")

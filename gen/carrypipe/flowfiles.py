@@ -74,9 +74,9 @@ def instance(plan) -> str:
     return "\n".join(lines)
 
 
-# Reserved words of VHDL (IEEE 1076-2008, clause 15.10; listed from memory), which no VHDL
-# identifier may be, in any case.
-VHDL_RESERVED = frozenset("""
+# Reserved words of VHDL (IEEE 1076-2008, clause 15.10, and the two 1076-2019 adds, private
+# and view; listed from memory), which no VHDL identifier may be, in any case.
+VHDL_RESERVED = frozenset("""private view
 abs access after alias all and architecture array assert assume assume_guarantee attribute
 begin block body buffer bus case component configuration constant context cover default
 disconnect downto else elsif end entity exit fairness file for force function generate
@@ -86,6 +86,32 @@ procedure process property protected pure range record register reject release r
 restrict restrict_guarantee return rol ror select sequence severity shared signal sla sll
 sra srl strong subtype then to transport type unaffected units until use variable vmode
 vprop vunit wait when while with xnor xor""".split())
+# Names the standard packages declare (VHDL-2008; listed from memory): a component of such a
+# name, made visible by `use <name>_pkg.all`, hides the standard one in the user's design (or
+# in the package itself: a unit `std_logic`), and the library names.
+VHDL_DECLARED = {
+    "std.standard": """boolean false true bit character severity_level note warning error failure
+        integer real time fs ps ns us ms sec min hr delay_length now natural positive string
+        boolean_vector bit_vector integer_vector real_vector time_vector file_open_kind
+        read_mode write_mode append_mode file_open_status open_ok status_error name_error
+        mode_error foreign nul soh stx etx eot enq ack bel bs ht lf vt ff cr so si dle dc1 dc2
+        dc3 dc4 nak syn etb can em sub esc fsp gsp rsp usp del """ + " ".join(
+        f"c{n}" for n in range(128, 160)),
+    "std.textio": """line text side right left width input output readline writeline read
+        write justify tee sread swrite string_read string_write bread bwrite binary_read
+        binary_write oread owrite octal_read octal_write hread hwrite hex_read hex_write""",
+    "ieee.std_logic_1164": """std_ulogic std_ulogic_vector resolved std_logic std_logic_vector
+        x01 x01z ux01 ux01z to_bit to_bitvector to_stdulogic to_stdulogicvector
+        to_stdlogicvector to_x01 to_x01z to_ux01 rising_edge falling_edge is_x to_01 to_bv
+        to_slv to_sulv to_bit_vector to_std_logic_vector to_std_ulogic_vector to_string
+        to_ostring to_hstring to_bstring to_binary_string to_octal_string to_hex_string""",
+    "ieee.numeric_std": """unsigned signed unresolved_unsigned unresolved_signed u_unsigned
+        u_signed to_integer to_unsigned to_signed resize shift_left shift_right rotate_left
+        rotate_right std_match find_leftmost find_rightmost minimum maximum copyrightnotice""",
+    "a library": "ieee std work",
+}
+_VHDL_DECLARED_BY = {name: where for where, names in VHDL_DECLARED.items()
+                     for name in names.split()}
 _VHDL_IDENT = re.compile(r"[A-Za-z](_?[A-Za-z0-9])*\Z")  # a VHDL basic identifier
 
 
@@ -94,10 +120,17 @@ def vhdl_package_name(plan) -> str:
 
 
 def vhdl_unfit(name: str) -> str | None:
-    """Why `name` cannot be a VHDL basic identifier (None when it can): the package's
-    component must carry the Verilog module's name to bind to it."""
+    """Why `name` cannot name the package's component (None when it can), completing "<name>
+    is ...": the component must carry the Verilog module's name to bind to it, as a VHDL
+    basic identifier that hides nothing a VHDL design commonly uses."""
     if name.lower() in VHDL_RESERVED:
-        return "a VHDL reserved word"
+        return "a VHDL reserved word, which no VHDL name may be"
+    where = _VHDL_DECLARED_BY.get(name.lower())
+    if where == "a library":
+        return "the name of a VHDL library, which a component of that name would hide"
+    if where:
+        return (f"declared by {where}, and a component of that name would hide it where "
+                "both are used")
     if not _VHDL_IDENT.match(name):
         return ("not a VHDL identifier (it starts or ends with an underscore, or has two "
                 "in a row)")
@@ -153,7 +186,15 @@ def vhdl_package(plan) -> str:
         mode = "in " if p.direction == "input" else "out"
         code = f"      {p.name:<{name_w}} : {mode} {types[p.name] + semi:<{type_w + 1}}  "
         lines += wrapped(p.meaning, f"{code}-- ", " " * len(code) + "--   ")
-    lines += ["    );", "  end component;", f"end package {pkg};", ""]
+    lines += ["    );", "  end component;", ""]
+    lines += note("An instance, in an architecture that uses this package (connect every port; "
+                  "`open` for an output you do not use):", "  ")
+    head = f"  --   u_{c.name} : {c.name} port map ("
+    lines += [head] if len(head) <= LINE else [f"  --   u_{c.name}",
+                                               f"  --     : {c.name} port map ("]
+    lines += [f"  --     {p.name:<{name_w}} => {p.name}{',' if k < len(plan.ports) - 1 else ');'}"
+              for k, p in enumerate(plan.ports)]
+    lines += [f"end package {pkg};", ""]
     return "\n".join(lines)
 
 
