@@ -61,8 +61,8 @@ from .positions import Positions, positions_of
 # Register kind of each term kind (see `Plan.registers`).
 PREFIX_KINDS = ("gen", "prop", "grp_gen", "grp_prop", "blk_c0", "blk_c1", "grp_c0", "grp_c1")
 RESULT_KINDS = ("sum", "csum", "blk_s0", "blk_s1", "blk_v0", "blk_v1", "ovf", "cout")
-# Operand flags that travel with the terms to the output stage (a term of kind `flag` is
-# named after its input).
+# Operand flags that travel with the terms to the output stage (a term formed by `flag` has
+# its input's name as its kind).
 OPERAND_KINDS = tuple(sorted({f for k in units.KINDS.values() for f in k.travellers}))
 
 # Unit-gate delay of each operation, from the model of `prefix.Gates` (a 2:1 select is an
@@ -324,10 +324,10 @@ def make_schedule(config: Config, kind: units.Kind | None = None,
         outputs["result"] = tuple(sums)
         if config.carry_out:
             cout = g[-1]
-            gate = kind.carry_out_term(flags)
-            if gate:  # formed with the carry itself (cout = carry ^ sub is g | p & g' ^ sub:
-                op, others = gate  # four inputs, one LUT4)
-                cout = term("cout", count - 1, op, (cout, *others), terms[cout].stage)
+            if kind.carry_out_op:  # formed in the stage of the carry itself
+                op, names = kind.carry_out_op
+                cout = term("cout", count - 1, op, (cout, *(flags[n] for n in names)),
+                            terms[cout].stage)
             outputs[kind.chain[0]] = cout
         if config.signed:
             outputs["overflow"] = pos.overflow(b, leaves, g, has_cin)

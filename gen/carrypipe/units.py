@@ -26,6 +26,12 @@ from .netlist import Cmp, Const, Expr, Mux, Rep, bit, cat, part
 CONTROL_PORTS = ("clk", "rst", "en")  # a unit's clock, reset and enable
 
 
+# The operations that form a carry-out port from the chain bit (and flags): the expression
+# and its unit gates (an inverter costs none in the model).
+CARRY_OUT_OPS = {"xor": (lambda chain, flag: chain ^ flag, prefix.UNIT_GATES.xor),
+                 "not": (lambda chain: ~chain, 0)}
+
+
 @dataclass(frozen=True)
 class Port:
     name: str
@@ -77,7 +83,6 @@ class Kind:
     settle = 0  # cycles a bounded proof needs beyond latency + 1 (a state to build up)
     tree = False  # a carry-save kind: a counter tree, then a final adder (`TreePlan`)
     max_width = 4096  # `width` and `width_b` at most (config.MAX_WIDTH is the widest kind)
-    inverts_carry_out = False  # the carry-out port is the chain bit complemented
     # What its modes other than `slices` do, for the report's tips
     prefix_gain = ("pipelines the carry network itself, without skew or deskew triangles: "
                    "for wide units")
@@ -180,12 +185,6 @@ class Kind:
         """What one slice registers: (register families, value) pairs (see `slices.py`)."""
         raise NotImplementedError
 
-    def carry_out_term(self, flags: dict) -> tuple[str, tuple[int, ...]] | None:
-        """How a prefix schedule forms the carry-out port from the top group's carry: an
-        operation (see `leveled.py`) and the flag terms it reads besides that carry (`flags`:
-        input name -> term), or None when the port is the carry itself."""
-        return None
-
     def verdicts(self, below: int, at_most: int) -> tuple[tuple[str, str, tuple], ...]:
         """A unit without a result (a comparator's `levels` mode): each one-bit output's
         register family, operation and argument terms, from the network's top terms: the
@@ -227,8 +226,18 @@ class Arithmetic(Kind):
     """Adder, subtractor, add/subtract: the W-bit result, the chain out, signed overflow."""
 
     chain_port = ("cin", "cout")
-    transforms_carry_out = False  # the carry-out port is not the chain bit itself
-    carry_out_gate = 0  # unit gates from the chain bit to the carry-out (an inverter: none)
+    # How the carry-out port is formed from the chain bit: an operation of CARRY_OUT_OPS and
+    # the flag inputs it reads besides that bit; None when the port is the chain bit itself.
+    carry_out_op: tuple[str, tuple[str, ...]] | None = None
+
+    @property
+    def transforms_carry_out(self) -> bool:
+        return self.carry_out_op is not None
+
+    @property
+    def carry_out_gate(self) -> int:
+        """Unit gates from the chain bit to the carry-out port."""
+        return CARRY_OUT_OPS[self.carry_out_op[0]][1] if self.carry_out_op else 0
 
     def has_carry_in(self, c):
         return c.carry_in
@@ -344,8 +353,12 @@ class Arithmetic(Kind):
         return port
 
     def core_carry_out(self, chain: Expr, flags: dict) -> Expr:
-        """The `cout`/`bout` port value from the top slice's chain bit."""
-        return chain
+        """The `cout`/`bout` port value from the top slice's chain bit (`flags`: input name
+        -> its expression)."""
+        if self.carry_out_op is None:
+            return chain
+        op, names = self.carry_out_op
+        return CARRY_OUT_OPS[op][0](chain, *(flags[n] for n in names))
 
     def overflow(self, x_msb: Expr, y_msb: Expr, s_msb: Expr) -> Expr:
         """Signed overflow from the top bits of the core's operands and result: an addition
@@ -411,8 +424,9 @@ class AddSub(Arithmetic):
     def subtracts(self, inputs):
         return bool(inputs["sub"])
 
-    transforms_carry_out = True
-    carry_out_gate = prefix.UNIT_GATES.xor  # cout = chain ^ sub
+    # cout = chain ^ sub: the borrow is the complement of the carry (in a prefix schedule
+    # formed with the carry itself, g | p & g' ^ sub: four inputs, one LUT4)
+    carry_out_op = ("xor", ("sub",))
     entry_delay = prefix.UNIT_GATES.xor  # b ^ sub
 
     def has_carry_in(self, c):
@@ -434,12 +448,6 @@ class AddSub(Arithmetic):
 
     def core_carry_in(self, port, flags):
         return flags["sub"] if port is None else port ^ flags["sub"]
-
-    def core_carry_out(self, chain, flags):
-        return chain ^ flags["sub"]
-
-    def carry_out_term(self, flags):
-        return "xor", (flags["sub"],)  # the borrow is the complement of the carry
 
     def phrase(self, c):
         cin = " + cin" if c.carry_in else ""
@@ -653,13 +661,7 @@ class FinalAdder(Plain):
     def __init__(self, result: str, flip: bool):
         super().__init__("final adder", "adds", "add", result, "carry", ("cin", "cout"),
                          "carry into bit 0", "carry out of the top bit")
-        self.inverts_carry_out = self.transforms_carry_out = flip
-
-    def core_carry_out(self, chain, flags):
-        return ~chain if self.inverts_carry_out else chain
-
-    def carry_out_term(self, flags):
-        return ("not", ()) if self.inverts_carry_out else None
+        self.carry_out_op = ("not", ()) if flip else None
 
 
 def _clog2(n: int) -> int:
