@@ -18,7 +18,7 @@ import subprocess
 
 import pytest
 
-from carrypipe import config, emit, flowfiles
+from carrypipe import config, emit, units, vhdl
 from carrypipe.plan import make_plan
 from carrypipe.tools import which
 
@@ -59,8 +59,8 @@ def _wrapper(name: str, ports: list[dict], bind: bool, instance: str | None = No
     decl = ";\n    ".join(f"{p['name']} : {'in' if p['direction'] == 'input' else 'out'} "
                           f"{_vhdl_type(p['width'])}" for p in ports)
     conn = ", ".join(f"{p['name']} => {p['name']}" for p in ports)
-    label = f"u_{name}" if instance else "u"
-    body = instance or f"  u : {name} port map ({conn});"
+    label = f"u_{name}" if instance else "dut"
+    body = instance or f"  dut : {name} port map ({conn});"
     spec = f"  for {label} : {name} use entity work.{name};\n" if bind else ""
     return (f"library ieee;\nuse ieee.std_logic_1164.all;\nuse work.{name}_pkg.all;\n"
             f"entity {name}_vwrap is\n  port (\n    {decl}\n  );\nend entity;\n"
@@ -175,29 +175,60 @@ def test_icarus_looks_a_mixed_case_module_up_in_lower_case(tmp_path):
     component MixedCase is looked up as module mixedcase, which the Verilog does not have."""
     run = _icarus_through_vhdl(tmp_path, CASES[1])
     assert run.returncode != 0 and "Unknown module type: mixedcase" in run.stderr, run
-    assert "Icarus Verilog does" in flowfiles.vhdl_case_note("MixedCase")
+    assert "Icarus Verilog does" in vhdl.case_note("MixedCase")
 
 
-@pytest.mark.parametrize("name, why", [("Process", "a VHDL reserved word"),
-                                       ("add_", "not a VHDL identifier"),
-                                       ("_add", "not a VHDL identifier"),
-                                       ("a__b", "not a VHDL identifier")])
-def test_a_name_vhdl_cannot_carry_gets_no_package(name, why):
-    """IEEE 1076 basic identifiers: a letter first, no underscore at the end or twice in a
-    row, not a reserved word in any case (Verilog allows all four names)."""
-    plan = make_plan(config.from_mapping({"name": name, "width": 4}))
+def _plan(name: str, unit: str = "adder"):
+    return make_plan(config.from_mapping({"name": name, "unit": unit, "width": 4}))
+
+
+@pytest.mark.parametrize("name, unit, why", [
+    ("Process", "adder", "a VHDL reserved word"), ("add_", "adder", "not a VHDL identifier"),
+    ("_add", "adder", "not a VHDL identifier"), ("a__b", "adder", "not a VHDL identifier"),
+    ("Sum", "adder", "its own port sum in VHDL"), ("LT", "comparator", "its own port lt"),
+    ("Work", "adder", "the name of a VHDL library"),
+    ("log2", "adder", "declared by ieee.math_real")])
+def test_a_name_vhdl_cannot_carry_gets_no_package(name, unit, why):
+    """IEEE 1076 names: a basic identifier has a letter first, no underscore at the end or
+    twice in a row, is no reserved word, and has no case (so `Sum` is the port `sum`);
+    Verilog allows every name here.  GHDL refuses the ones that are no identifier."""
+    plan = _plan(name, unit)
     files = emit.render(plan, vectors=10)
     assert not any(f.endswith(".vhd") for f in files)
-    assert why in flowfiles.vhdl_unfit(name)
+    assert why in vhdl.unfit(plan)
 
 
-def test_no_port_name_is_a_vhdl_reserved_word():
-    """Every unit kind's ports (with every option) can be VHDL component ports."""
-    for keys in CASES:
-        plan = make_plan(config.from_mapping(keys))
-        for p in plan.ports:  # `sub` is also a character literal: a port may shadow it
-            assert p.name not in flowfiles.VHDL_RESERVED, p.name
-            assert re.fullmatch(r"[a-z](_?[a-z0-9])*", p.name), p.name
+@pytest.mark.skipif(not GHDL, reason="GHDL is not installed")
+def test_ghdl_refuses_the_reserved_words_and_the_underscore_names(tmp_path):
+    """The reserved words (listed from memory) against GHDL --std=08, which knows VHDL-2008
+    but for five: the PSL words fairness, strong and assume_guarantee, and VHDL-2019's
+    private and view, which it takes as names; and the names with bad underscores."""
+    takes = {"assume_guarantee", "fairness", "strong", "private", "view"}
+    words = sorted(vhdl.RESERVED - takes) + ["add_", "_add", "a__b"]
+    (tmp_path / "ok.vhd").write_text("entity ok_name is\nend entity;\n")
+    assert _run(tmp_path, GHDL, "-a", "--std=08", "ok.vhd").returncode == 0
+    accepted = []
+    for word in words:
+        (tmp_path / "w.vhd").write_text(f"entity {word} is\nend entity;\n")
+        if _run(tmp_path, GHDL, "-a", "--std=08", "w.vhd").returncode == 0:
+            accepted.append(word)
+    assert accepted == []
+
+
+def test_every_port_can_be_a_vhdl_port():
+    """Every unit kind's ports with every option that adds one: VHDL basic identifiers in
+    lower case and no reserved word (`sub` is also a character literal of std.standard: a
+    port may shadow it)."""
+    names = set()
+    for kind in units.KINDS.values():
+        keys = {"name": "u", "unit": kind.name, "width": 4, "valid": True, "enable": True,
+                "reset": "sync"}
+        keys.update({k: True for k in ("carry_in", "signed") if k not in kind.refused})
+        keys.update({"operands": 16} if kind.name == "sum" else {})
+        names |= {p.name for p in make_plan(config.from_mapping(keys)).ports}
+    assert {"sub", "overflow", "cout", "lt", "clear", "x15", "product"} <= names
+    for name in names:
+        assert name not in vhdl.RESERVED and re.fullmatch(r"[a-z](_?[a-z0-9])*", name), name
 
 
 @pytest.mark.parametrize("name, note", [
@@ -222,13 +253,14 @@ def test_build_says_what_the_vhdl_package_cannot_do(tmp_path, name, note):
 
 GHDL_SOURCES = {"std.standard": "std/v08/standard.vhdl", "std.textio": "std/v08/textio.vhdl",
                 "ieee.std_logic_1164": "ieee2008/std_logic_1164.vhdl",
-                "ieee.numeric_std": "ieee2008/numeric_std.vhdl"}
+                "ieee.numeric_std": "ieee2008/numeric_std.vhdl",
+                "ieee.math_real": "ieee2008/math_real.vhdl"}
 
 
 @pytest.mark.parametrize("package", sorted(GHDL_SOURCES))
 def test_the_standard_names_kept_apart_are_those_the_packages_declare(package):
-    """The names a component must not take, listed from memory, against the VHDL-2008
-    sources of the standard packages that GHDL ships: every listed name is in the package's
+    """The names a component must not take against the VHDL-2008 sources of the standard
+    packages that GHDL ships: every listed name is in the package's
     declarations, and every type, subtype, subprogram and constant it declares is listed
     (or a reserved word: the operators)."""
     from pathlib import Path
@@ -240,11 +272,11 @@ def test_the_standard_names_kept_apart_are_those_the_packages_declare(package):
     words = {w.lower() for w in re.findall(r"[A-Za-z]\w*", text)}
     declared = {m.lower() for m in re.findall(
         r"(?i)\b(?:type|subtype|function|procedure|constant)\s+\"?([A-Za-z]\w*)", text)}
-    listed = set(flowfiles.VHDL_DECLARED[package].split())
+    listed = set(vhdl.DECLARED[package].split())
     assert listed <= words
-    others = {n for ns in flowfiles.VHDL_DECLARED.values() for n in ns.split()}
-    assert declared - others - flowfiles.VHDL_RESERVED <= {"universal_integer", "universal_real"}
-    assert package in flowfiles.vhdl_unfit(sorted(listed)[0])
+    others = {n for ns in vhdl.DECLARED.values() for n in ns.split()}
+    assert declared - others - vhdl.RESERVED <= {"universal_integer", "universal_real"}
+    assert package in vhdl.unfit(_plan(sorted(listed)[0]))
 
 
 @pytest.mark.skipif(not GHDL, reason="GHDL is not installed")

@@ -20,7 +20,7 @@ from pathlib import Path
 
 import click
 
-from . import __version__, candidates, devices, emit, flowfiles, output, report, sim, tools, units
+from . import __version__, candidates, devices, emit, output, report, sim, tools, units, vhdl
 from .config import (CELLS, PIPELINES, PREFIX_CELLS, TREES, ConfigError, check_split, load,
                      reads, split_span)
 from .config import read_text as read_config_text
@@ -331,13 +331,8 @@ def build(config, out_dir, vectors, seed):
                f"{plural(r.total, 'register bit')} -> {dest}/")
     for fname in sorted(files):
         click.echo(f"  {fname}")
-    unfit = flowfiles.vhdl_unfit(plan.config.name)
-    if unfit:
-        click.echo(f"note: no {flowfiles.vhdl_package_name(plan)}.vhd: {plan.config.name} is "
-                   f"{unfit}")
-    elif flowfiles.vhdl_case_note(plan.config.name):
-        click.echo(f"note: {flowfiles.vhdl_package_name(plan)}.vhd: "
-                   f"{flowfiles.vhdl_case_note(plan.config.name)}")
+    for note in vhdl.notes(plan):
+        click.echo(f"note: {note}")
 
 
 @main.command()
@@ -560,7 +555,7 @@ def fit(config, target, device, cells, modes, trees, jobs, seeds, confirm, no_ca
     unmeasured = fitting.environment_failure(outcome)
     if unmeasured:  # nothing was learnt about the design: keep the folder as it was
         raise EnvironmentFault(unmeasured)
-    for note in outcome.notes:
+    for note in outcome.notes + (vhdl.notes(outcome.chosen.plan) if outcome.chosen else []):
         click.echo(f"note: {note}")
     click.echo(fitting.summary(outcome))
     written = _write_folder(fitting.files(outcome, source), dest, option)

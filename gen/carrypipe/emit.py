@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from . import chart, flowfiles, output, report, verilog
+from . import chart, flowfiles, output, report, verilog, vhdl
 from .plan import Plan
 from .testbench import testbench, vector_file
 from .vectors import hex_lines, suite
@@ -41,6 +41,7 @@ def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
         f"{name}.txt": report.report(plan),
         f"{name}_chart.svg": chart.svg(plan, measured, measured_source),
         **flowfiles.files(plan),
+        **vhdl.files(plan),
     }
     manifest_name = f"{name}.json"
     files[manifest_name] = report.manifest_text(plan, [*files, manifest_name])

@@ -296,8 +296,9 @@ def record(row: Row, outcome: Outcome) -> dict:
     elif row.ok:
         path = row.median_seed
         note = f"critical path {harness.path_words(path, row.plan)}"
-        if _routed(path) is not None:
-            note += f", {_routed(path)} % routing"
+        routed = _routed(path)
+        if routed is not None:
+            note += f", {routed} % routing"
         if path.inside is False:
             note += " (not the unit's: it ends in the harness)"
     elif row.measured:
@@ -383,6 +384,10 @@ def measured_section(outcome: Outcome) -> str:
     path, stage = row.median_seed, row.measured_stage
     where = f", ends in stage {stage}" if stage is not None else ", ends outside the unit's stages"
     per_seed = ", ".join(f"seed {m.seed}: {m.mhz:g}" for m in row.ok)
+    routed = _routed(path)
+    delay = [] if routed is None else [
+        f"  Delay     {path.logic_ns + path.routing_ns:.3f} ns: {path.logic_ns:.3f} in cells "
+        f"(clock-to-out and setup included), {path.routing_ns:.3f} routing ({routed} %)"]
     return "\n".join([
         "Measured by carrypipe fit (open-tool estimate, not sign-off)",
         f"  Device    {s.device.name} ({s.device.part}), target {s.target_mhz:g} MHz",
@@ -390,9 +395,7 @@ def measured_section(outcome: Outcome) -> str:
         f"  Fmax      {row.mhz:g} MHz, median of {plural(len(row.ok), 'seed')} ({per_seed})",
         f"  Critical path at seed {path.seed}: "
         f"{harness.path_words(path, row.plan)}{where}",
-        *([f"  Delay     {path.logic_ns + path.routing_ns:.3f} ns: {path.logic_ns:.3f} in cells "
-           f"(clock-to-out and setup included), {path.routing_ns:.3f} routing "
-           f"({_routed(path)} %)"] if _routed(path) is not None else []),
+        *delay,
         ""])
 
 

@@ -1,6 +1,6 @@
 """Files that drop a unit into a build flow: an include file of defines, an instantiation
-template, a filelist, a core description in the open CAPI2 format (FuseSoC), and a VHDL
-package declaring the unit as a component for mixed-language designs.
+template, a filelist, and a core description in the open CAPI2 format (FuseSoC).  The VHDL
+package is `vhdl.py`'s.
 
 Every figure is the plan's; file names are relative, so the folder can move.
 """
@@ -10,9 +10,7 @@ from __future__ import annotations
 import json
 
 from . import __version__
-import re
-
-from .header import comment, timing_phrase, trailing_comment, wrapped
+from .header import comment, timing_phrase, trailing_comment
 from .testbench import vector_file
 from .verilog import LINE
 
@@ -74,130 +72,6 @@ def instance(plan) -> str:
     return "\n".join(lines)
 
 
-# Reserved words of VHDL (IEEE 1076-2008, clause 15.10, and the two 1076-2019 adds, private
-# and view; listed from memory), which no VHDL identifier may be, in any case.
-VHDL_RESERVED = frozenset("""private view
-abs access after alias all and architecture array assert assume assume_guarantee attribute
-begin block body buffer bus case component configuration constant context cover default
-disconnect downto else elsif end entity exit fairness file for force function generate
-generic group guarded if impure in inertial inout is label library linkage literal loop map
-mod nand new next nor not null of on open or others out package parameter port postponed
-procedure process property protected pure range record register reject release rem report
-restrict restrict_guarantee return rol ror select sequence severity shared signal sla sll
-sra srl strong subtype then to transport type unaffected units until use variable vmode
-vprop vunit wait when while with xnor xor""".split())
-# Names the standard packages declare (VHDL-2008; listed from memory): a component of such a
-# name, made visible by `use <name>_pkg.all`, hides the standard one in the user's design (or
-# in the package itself: a unit `std_logic`), and the library names.
-VHDL_DECLARED = {
-    "std.standard": """boolean false true bit character severity_level note warning error failure
-        integer real time fs ps ns us ms sec min hr delay_length now natural positive string
-        boolean_vector bit_vector integer_vector real_vector time_vector file_open_kind
-        read_mode write_mode append_mode file_open_status open_ok status_error name_error
-        mode_error foreign nul soh stx etx eot enq ack bel bs ht lf vt ff cr so si dle dc1 dc2
-        dc3 dc4 nak syn etb can em sub esc fsp gsp rsp usp del """ + " ".join(
-        f"c{n}" for n in range(128, 160)),
-    "std.textio": """line text side right left width input output readline writeline read
-        write justify tee sread swrite string_read string_write bread bwrite binary_read
-        binary_write oread owrite octal_read octal_write hread hwrite hex_read hex_write""",
-    "ieee.std_logic_1164": """std_ulogic std_ulogic_vector resolved std_logic std_logic_vector
-        x01 x01z ux01 ux01z to_bit to_bitvector to_stdulogic to_stdulogicvector
-        to_stdlogicvector to_x01 to_x01z to_ux01 rising_edge falling_edge is_x to_01 to_bv
-        to_slv to_sulv to_bit_vector to_std_logic_vector to_std_ulogic_vector to_string
-        to_ostring to_hstring to_bstring to_binary_string to_octal_string to_hex_string""",
-    "ieee.numeric_std": """unsigned signed unresolved_unsigned unresolved_signed u_unsigned
-        u_signed to_integer to_unsigned to_signed resize shift_left shift_right rotate_left
-        rotate_right std_match find_leftmost find_rightmost minimum maximum copyrightnotice""",
-    "a library": "ieee std work",
-}
-_VHDL_DECLARED_BY = {name: where for where, names in VHDL_DECLARED.items()
-                     for name in names.split()}
-_VHDL_IDENT = re.compile(r"[A-Za-z](_?[A-Za-z0-9])*\Z")  # a VHDL basic identifier
-
-
-def vhdl_package_name(plan) -> str:
-    return f"{plan.config.name}_pkg"
-
-
-def vhdl_unfit(name: str) -> str | None:
-    """Why `name` cannot name the package's component (None when it can), completing "<name>
-    is ...": the component must carry the Verilog module's name to bind to it, as a VHDL
-    basic identifier that hides nothing a VHDL design commonly uses."""
-    if name.lower() in VHDL_RESERVED:
-        return "a VHDL reserved word, which no VHDL name may be"
-    where = _VHDL_DECLARED_BY.get(name.lower())
-    if where == "a library":
-        return "the name of a VHDL library, which a component of that name would hide"
-    if where:
-        return (f"declared by {where}, and a component of that name would hide it where "
-                "both are used")
-    if not _VHDL_IDENT.match(name):
-        return ("not a VHDL identifier (it starts or ends with an underscore, or has two "
-                "in a row)")
-    return None
-
-
-def vhdl_case_note(name: str) -> str | None:
-    """A warning for a name with capitals: VHDL identifiers have no case, and a tool may
-    look the Verilog module up under the name in lower case (None for a lower-case name)."""
-    if name == name.lower():
-        return None
-    return (f"VHDL reads {name} without its case, and a tool may look the Verilog module up "
-            f"as {name.lower()} (Icarus Verilog does, and then does not find it); a unit "
-            "name in lower case avoids the question")
-
-
-def vhdl_package(plan) -> str:
-    """`<name>_pkg.vhd`: a VHDL-93 package with the unit as a component (its ports in the
-    documented order, `std_logic` and `std_logic_vector(w - 1 downto 0)`) and the include
-    file's figures as constants, for VHDL designs that instantiate the Verilog unit."""
-    c, pkg = plan.config, vhdl_package_name(plan)
-
-    def note(text: str, pad: str = "") -> list[str]:
-        return wrapped(text, f"{pad}-- ", f"{pad}--   ")
-
-    lines = [*note(f"{pkg}.vhd: generated by carrypipe {__version__} with {c.name}.v; do not "
-                   "edit."),
-             *note(f"The Verilog module {c.name} as a VHDL component, for a VHDL design that "
-                   f"instantiates it (compile {c.name}.v beside it), with its figures as "
-                   "constants."),
-             *note(f"Timing: {timing_phrase(plan)}."),
-             *note(f"{vhdl_case_note(c.name)}." if vhdl_case_note(c.name) else ""),
-             "library ieee;", "use ieee.std_logic_1164.all;", "", f"package {pkg} is"]
-    consts = [(f"{macro(plan, n)}", v, meaning) for n, v, meaning in figures(plan)]
-    width = max(len(n) for n, _, _ in consts)
-    digits = max(len(str(v)) for _, v, _ in consts)
-    rows = [(f"  constant {n:<{width}} : natural := {str(v) + ';':<{digits + 1}}", meaning)
-            for n, v, meaning in consts]
-    if max(len(f"{code}  -- {meaning}") for code, meaning in rows) <= LINE:
-        lines += [f"{code}  -- {meaning}" for code, meaning in rows]
-    else:  # a long unit name: each comment above its constant, its type below if need be
-        for n, v, meaning in consts:
-            code = f"  constant {n} : natural := {v};"
-            lines += [*note(meaning, "  "), *([code] if len(code) <= LINE else
-                                              [f"  constant {n}", f"    : natural := {v};"])]
-    lines += ["", f"  component {c.name} is", "    port ("]
-    name_w = max(len(p.name) for p in plan.ports)
-    types = {p.name: "std_logic" if p.width == 1 else
-             f"std_logic_vector({p.width - 1} downto 0)" for p in plan.ports}
-    type_w = max(len(t) for t in types.values())
-    for k, p in enumerate(plan.ports):
-        semi = ";" if k < len(plan.ports) - 1 else ""
-        mode = "in " if p.direction == "input" else "out"
-        code = f"      {p.name:<{name_w}} : {mode} {types[p.name] + semi:<{type_w + 1}}  "
-        lines += wrapped(p.meaning, f"{code}-- ", " " * len(code) + "--   ")
-    lines += ["    );", "  end component;", ""]
-    lines += note("An instance, in an architecture that uses this package (connect every port; "
-                  "`open` for an output you do not use):", "  ")
-    head = f"  --   u_{c.name} : {c.name} port map ("
-    lines += [head] if len(head) <= LINE else [f"  --   u_{c.name}",
-                                               f"  --     : {c.name} port map ("]
-    lines += [f"  --     {p.name:<{name_w}} => {p.name}{',' if k < len(plan.ports) - 1 else ');'}"
-              for k, p in enumerate(plan.ports)]
-    lines += [f"end package {pkg};", ""]
-    return "\n".join(lines)
-
-
 def filelist(plan) -> str:
     """`<name>.f`: the unit's sources, relative to the folder, for simulators and tools."""
     return f"+incdir+.\n{plan.config.name}.v\n"
@@ -256,8 +130,5 @@ def _yaml(value, depth: int) -> list[str]:
 
 def files(plan) -> dict[str, str]:
     name = plan.config.name
-    out = {f"{name}.vh": include(plan), f"{name}_inst.v": instance(plan),
-           f"{name}.f": filelist(plan), f"{name}.core": core(plan)}
-    if vhdl_unfit(name) is None:
-        out[f"{vhdl_package_name(plan)}.vhd"] = vhdl_package(plan)
-    return out
+    return {f"{name}.vh": include(plan), f"{name}_inst.v": instance(plan),
+            f"{name}.f": filelist(plan), f"{name}.core": core(plan)}
