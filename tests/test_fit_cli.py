@@ -290,3 +290,16 @@ def test_the_options_table_of_the_docs_lists_every_option():
                  if p.opts[0].startswith("-") and p.name != "help"]
     assert all(names & documented for names in spellings)
     assert documented <= set().union(*spellings)
+
+
+def test_fit_says_what_build_says_about_the_vhdl_package(write_config, tmp_path, monkeypatch):
+    """The chosen unit's folder is a build's: a name with capitals gets the same note."""
+    monkeypatch.setenv("CARRYPIPE_CACHE", str(tmp_path / "cache"))
+    cfg = str(write_config(UNIT.replace("lab_add8", "Lab_add8")))
+    monkeypatch.setattr(toolflow, "measure", lambda job: [
+        Measurement(s, "ok", mhz=300.0, luts=1, inside=True) for s in job.seeds])
+    res = run(cfg, "--target-mhz", "250", "--device", "ecp5-85k", "--cells", "native",
+              "--modes", "slices", "-o", str(tmp_path / "o"))
+    assert res.exit_code == 0, res.output
+    assert "note: Lab_add8_pkg.vhd: VHDL reads Lab_add8 without its case" in res.output
+    assert (tmp_path / "o" / "Lab_add8_pkg.vhd").is_file()
