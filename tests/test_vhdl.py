@@ -298,3 +298,24 @@ def test_two_packages_whose_names_meet_need_selected_names(tmp_path):
     (tmp_path / "work-obj93.cf").unlink(missing_ok=True)
     selected = _run(tmp_path, GHDL, "-a", "--std=93", *base, "selected.vhd")
     assert selected.returncode == 0, selected.stderr
+
+
+@pytest.mark.skipif(not GHDL, reason="GHDL is not installed")
+def test_the_readme_example_analyses_against_the_demo_package(tmp_path):
+    """The README's VHDL lines, its `...` filled with an entity and the remaining signals,
+    against the package of configs/demo.yaml, in GHDL."""
+    from pathlib import Path
+
+    root = Path(__file__).parent.parent
+    readme = (root / "README.md").read_text()
+    start = readme.index("```vhdl\n") + len("```vhdl\n")
+    block = readme[start:readme.index("```", start)]
+    first, middle, last = block.split("...\n")
+    design = (first + "entity top is\nend entity;\narchitecture a of top is\n"
+              "  signal clk, rst, cin, in_valid, cout, out_valid : std_logic;\n" + middle
+              + "begin\n" + last + "end architecture;\n")
+    plan = make_plan(config.load(str(root / "configs" / "demo.yaml")))
+    (tmp_path / "pkg.vhd").write_text(vhdl.package(plan))
+    (tmp_path / "top.vhd").write_text(design)
+    run = _run(tmp_path, GHDL, "-a", "--std=93", "pkg.vhd", "top.vhd")
+    assert run.returncode == 0, run.stdout + run.stderr
