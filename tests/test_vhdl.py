@@ -185,7 +185,8 @@ def _plan(name: str, unit: str = "adder"):
 @pytest.mark.parametrize("name, unit, why", [
     ("Process", "adder", "a VHDL reserved word"), ("add_", "adder", "not a VHDL identifier"),
     ("_add", "adder", "not a VHDL identifier"), ("a__b", "adder", "not a VHDL identifier"),
-    ("Sum", "adder", "its own port sum in VHDL"), ("LT", "comparator", "its own port lt"),
+    ("Sum", "adder", "the unit's own port sum in VHDL"),
+    ("LT", "comparator", "the unit's own port lt"),
     ("Work", "adder", "the name of a VHDL library"),
     ("log2", "adder", "declared by ieee.math_real")])
 def test_a_name_vhdl_cannot_carry_gets_no_package(name, unit, why):
@@ -233,8 +234,8 @@ def test_every_port_can_be_a_vhdl_port():
 
 @pytest.mark.parametrize("name, note", [
     ("add_", "note: no add__pkg.vhd: add_ is not a VHDL identifier"),
-    ("natural", "note: no natural_pkg.vhd: natural is declared by std.standard, and a "
-     "component of that name would hide it where both are used"),
+    ("natural", "note: no natural_pkg.vhd: natural is declared by std.standard: a design "
+     "that uses both would see neither (VHDL hides two such names from each other)"),
     ("Gain", "note: Gain_pkg.vhd: VHDL reads Gain without its case"),
     ("gain", None)])
 def test_build_says_what_the_vhdl_package_cannot_do(tmp_path, name, note):
@@ -254,7 +255,7 @@ def test_build_says_what_the_vhdl_package_cannot_do(tmp_path, name, note):
 GHDL_SOURCES = {"std.standard": "std/v08/standard.vhdl", "std.textio": "std/v08/textio.vhdl",
                 "ieee.std_logic_1164": "ieee2008/std_logic_1164.vhdl",
                 "ieee.numeric_std": "ieee2008/numeric_std.vhdl",
-                "ieee.math_real": "ieee2008/math_real.vhdl"}
+                "ieee.math_real": "ieee2008/math_real.vhdl", "std.env": "std/env.vhdl"}
 
 
 @pytest.mark.parametrize("package", sorted(GHDL_SOURCES))
@@ -319,3 +320,41 @@ def test_the_readme_example_analyses_against_the_demo_package(tmp_path):
     (tmp_path / "top.vhd").write_text(design)
     run = _run(tmp_path, GHDL, "-a", "--std=93", "pkg.vhd", "top.vhd")
     assert run.returncode == 0, run.stdout + run.stderr
+
+
+USES = {"file_open": 'file_open(f, "x.txt", read_mode);', "file_close": "file_close(f);",
+        "endfile": "if endfile(f) then\n    end if;", "flush": "flush(f);",
+        "deallocate": "deallocate(l);"}
+
+
+@pytest.mark.skipif(not GHDL, reason="GHDL is not installed")
+@pytest.mark.parametrize("name", sorted(USES))
+def test_the_implicit_textio_names_meet_a_component_of_their_name(tmp_path, name):
+    """The operations std.textio declares implicitly with its types (so not in its source
+    text) against GHDL --std=08: a design using one analyses alone, and not beside a package
+    whose component has its name; carrypipe writes no such package."""
+    assert name in vhdl.IMPLICIT["std.textio"].split()
+    assert "std.textio" in vhdl.unfit(_plan(name))
+    (tmp_path / "p.vhd").write_text(f"package p is\n  component {name} is\n  end component;\n"
+                                    "end package;\n")
+    design = ("use std.textio.all;\n{}entity t is\nend entity;\narchitecture a of t is\n"
+              "begin\n  process\n    file f : text;\n    variable l : line;\n  begin\n"
+              f"    {USES[name]}\n    wait;\n  end process;\nend architecture;\n")
+    (tmp_path / "alone.vhd").write_text(design.format(""))
+    (tmp_path / "both.vhd").write_text(design.format("use work.p.all;\n"))
+    alone = _run(tmp_path, GHDL, "-a", "--std=08", "alone.vhd")
+    assert alone.returncode == 0, alone.stderr
+    both = _run(tmp_path, GHDL, "-a", "--std=08", "p.vhd", "both.vhd")
+    assert both.returncode != 0 and "conflicts" in both.stderr, both
+
+
+@pytest.mark.skipif(not IVERILOG, reason="Icarus Verilog is not installed")
+def test_icarus_reads_the_package_only_in_a_systemverilog_mode(tmp_path):
+    """What the README says (Icarus Verilog 11.0 here): -g2012 compiles the package, -g2005
+    stops at it."""
+    files, _ = _built(tmp_path, LOWER[0])
+    folder, pkg = tmp_path / "u", f"{LOWER[0]['name']}_pkg.vhd"
+    assert pkg in files
+    assert _run(folder, "iverilog", "-g2012", "-o", "p.vvp", pkg).returncode == 0
+    old = _run(folder, "iverilog", "-g2005", "-o", "p.vvp", pkg)
+    assert old.returncode != 0 and "syntax error" in old.stderr, old

@@ -32,9 +32,9 @@ sll sra srl strong subtype then to transport type unaffected units until use var
 vmode vprop vunit wait when while with xnor xor""".split())
 
 # What the standard packages of VHDL-2008 declare, as GHDL's library sources give it (tests
-# check these lists against the sources both ways): a component of such a name, made visible
-# by `use <name>_pkg.all`, hides the standard name in a design that uses both, and in the
-# package itself (a unit `std_logic`).
+# check these lists against the sources both ways): where a design makes such a name and the
+# component of the same name visible by use clauses, VHDL makes neither visible; in the
+# package itself the component hides it (a unit `std_logic`).
 DECLARED = {
     "std.standard": """boolean false true bit character severity_level note warning error failure
         integer real time fs ps ns us ms sec min hr delay_length now natural positive string
@@ -46,6 +46,7 @@ DECLARED = {
     "std.textio": """line text side right left width input output readline writeline read
         write justify tee sread swrite string_read string_write bread bwrite binary_read
         binary_write oread owrite octal_read octal_write hread hwrite hex_read hex_write""",
+    "std.env": "stop finish resolution_limit",
     "ieee.std_logic_1164": """std_ulogic std_ulogic_vector resolved std_logic std_logic_vector
         x01 x01z ux01 ux01z to_bit to_bitvector to_stdulogic to_stdulogicvector
         to_stdlogicvector to_x01 to_x01z to_ux01 rising_edge falling_edge is_x to_01 to_bv
@@ -61,9 +62,12 @@ DECLARED = {
         sqrt cbrt exp log log2 log10 sin cos tan arcsin arccos arctan sinh cosh tanh arcsinh
         arccosh arctanh copyrightnotice""",
 }
+# Declared implicitly with the types of std.textio (its file type: file_open, file_close,
+# endfile, flush; its access type LINE: deallocate), so not in its source text.
+IMPLICIT = {"std.textio": "file_open file_close endfile flush deallocate"}
 LIBRARIES = ("ieee", "std", "work")
-_DECLARED_BY = {name: where for where, names in reversed(DECLARED.items())
-                for name in names.split()}
+_DECLARED_BY = {name: where for table in (IMPLICIT, DECLARED)
+                for where, names in reversed(table.items()) for name in names.split()}
 _IDENT = re.compile(r"[A-Za-z](_?[A-Za-z0-9])*\Z")  # a VHDL basic identifier
 
 
@@ -83,12 +87,12 @@ def unfit(plan) -> str | None:
         return ("not a VHDL identifier (it starts or ends with an underscore, or has two "
                 "in a row)")
     if low in {p.name for p in plan.ports}:
-        return f"its own port {low} in VHDL, which has no case"
+        return f"the unit's own port {low} in VHDL, which has no case"
     if low in LIBRARIES:
         return "the name of a VHDL library, which a component of that name would hide"
     if low in _DECLARED_BY:
-        return (f"declared by {_DECLARED_BY[low]}, and a component of that name would hide "
-                "it where both are used")
+        return (f"declared by {_DECLARED_BY[low]}: a design that uses both would see neither "
+                "(VHDL hides two such names from each other)")
     return None
 
 
