@@ -355,6 +355,8 @@ def test_icarus_reads_the_package_only_in_a_systemverilog_mode(tmp_path):
     files, _ = _built(tmp_path, LOWER[0])
     folder, pkg = tmp_path / "u", f"{LOWER[0]['name']}_pkg.vhd"
     assert pkg in files
-    assert _run(folder, "iverilog", "-g2012", "-o", "p.vvp", pkg).returncode == 0
-    old = _run(folder, "iverilog", "-g2005", "-o", "p.vvp", pkg)
+    unit = f"{LOWER[0]['name']}.v"
+    new = _run(folder, "iverilog", "-g2012", "-o", "p.vvp", pkg, unit)
+    assert new.returncode == 0, new.stderr
+    old = _run(folder, "iverilog", "-g2005", "-o", "p.vvp", pkg, unit)
     assert old.returncode != 0 and "syntax error" in old.stderr, old
