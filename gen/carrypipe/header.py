@@ -107,6 +107,11 @@ def stage_list(indices) -> str:
 
 def reset_phrase(plan) -> str:
     c = plan.config
+    if c.reset == "none" and c.valid:  # no flip-flop starts known without a reset (ASIC)
+        gate = " with en high" if c.enable else ""
+        return (f"no reset; the valid bits start unknown (X in simulation), and out_valid is "
+                f"defined once in_valid has been driven for {plural(plan.latency, 'edge')}"
+                f"{gate}")
     if c.reset == "none":
         return "no reset"
     what = "every register" if c.reset_data else "the valid bits only"

@@ -143,7 +143,7 @@ def report(plan: Plan) -> str:
         f"Latency   {plural(plan.latency, 'cycle')}" + (" (includes the input register)"
                                                         if c.register_inputs else ""),
         *_wrapped(f"Timing    {timing_phrase(plan)}", rest=" " * 10),
-        f"Reset     {reset_phrase(plan)}",
+        *_wrapped(f"Reset     {reset_phrase(plan)}", rest=" " * 10),
         "",
         *table(plan),
         "",
