@@ -296,9 +296,8 @@ def record(row: Row, outcome: Outcome) -> dict:
     elif row.ok:
         path = row.median_seed
         note = f"critical path {harness.path_words(path, row.plan)}"
-        routed = _routed(path)
-        if routed is not None:
-            note += f", {routed} % routing"
+        if path.routing_share is not None:
+            note += f", {path.routing_share} % routing"
         if path.inside is False:
             note += " (not the unit's: it ends in the harness)"
     elif row.measured:
@@ -384,10 +383,9 @@ def measured_section(outcome: Outcome) -> str:
     path, stage = row.median_seed, row.measured_stage
     where = f", ends in stage {stage}" if stage is not None else ", ends outside the unit's stages"
     per_seed = ", ".join(f"seed {m.seed}: {m.mhz:g}" for m in row.ok)
-    routed = _routed(path)
-    delay = [] if routed is None else [
-        f"  Delay     {path.logic_ns + path.routing_ns:.3f} ns: {path.logic_ns:.3f} in cells "
-        f"(clock-to-out and setup included), {path.routing_ns:.3f} routing ({routed} %)"]
+    delay = [] if path.routing_share is None else [
+        f"  Delay     {path.total_ns:.3f} ns: {path.logic_ns:.3f} in cells (clock-to-out and "
+        f"setup included), {path.routing_ns:.3f} routing ({path.routing_share} %)"]
     return "\n".join([
         "Measured by carrypipe fit (open-tool estimate, not sign-off)",
         f"  Device    {s.device.name} ({s.device.part}), target {s.target_mhz:g} MHz",
@@ -397,13 +395,6 @@ def measured_section(outcome: Outcome) -> str:
         f"{harness.path_words(path, row.plan)}{where}",
         *delay,
         ""])
-
-
-def _routed(m) -> int | None:
-    """The routed nets' share of a measured critical path, in percent (None: not read)."""
-    if m.logic_ns is None or m.routing_ns is None or m.logic_ns + m.routing_ns <= 0:
-        return None
-    return round(100 * m.routing_ns / (m.logic_ns + m.routing_ns))
 
 
 def chart_figures(outcome: Outcome) -> tuple[dict[int, float], str]:

@@ -93,6 +93,17 @@ class Measurement:
     def as_dict(self) -> dict:
         return asdict(self)
 
+    @property
+    def routing_share(self) -> int | None:
+        """The routed nets' share of the critical path's delay, in percent (None: not read)."""
+        if self.logic_ns is None or self.routing_ns is None or self.total_ns <= 0:
+            return None
+        return round(100 * self.routing_ns / self.total_ns)
+
+    @property
+    def total_ns(self) -> float:
+        return (self.logic_ns or 0.0) + (self.routing_ns or 0.0)
+
 
 def scripts(plan, device: devices.Device, seed: int) -> tuple[list[str], list[str]]:
     """The Yosys and nextpnr argument lists (relative file names, run in the work folder)."""
@@ -211,12 +222,12 @@ def _place(pnr, plan, device, seed, work, timeout, unit) -> Measurement:
         rep = timing.place_report(report.read_text(), device.family)
     except (OSError, ValueError, timing.ReportError) as exc:  # ValueError: not JSON
         return Measurement(seed, "error", message=f"nextpnr's report: {exc}", **unit)
-    path = rep.path
-    return Measurement(seed, "ok", mhz=round(rep.mhz, 2), logic_used=rep.logic_used,
-                       start=path.start if path else "", end=path.end if path else "",
-                       logic_ns=round(path.logic_ns, 3) if path else None,
-                       routing_ns=round(path.routing_ns, 3) if path else None,
-                       inside=harness.inside_unit(path.end, plan) if path else None, **unit)
+    path = rep.path  # without one, the fields keep their defaults ("", None)
+    read = dict(start=path.start, end=path.end, logic_ns=round(path.logic_ns, 3),
+                routing_ns=round(path.routing_ns, 3),
+                inside=harness.inside_unit(path.end, plan)) if path else {}
+    return Measurement(seed, "ok", mhz=round(rep.mhz, 2), logic_used=rep.logic_used, **read,
+                       **unit)
 
 
 def _failure(tool: str, run, wanted: str) -> tuple[str, str]:
