@@ -149,3 +149,55 @@ def test_the_template_wraps_its_port_comments(keys):
     column = next(ln for ln in lines if ln.startswith("  .")).index("//")
     continued = [ln for ln in lines if ln.startswith(" ") and ln.lstrip().startswith("//   ")]
     assert continued and all(ln.index("//") == column for ln in continued)
+
+
+TOP_CORE = """CAPI=2:
+name: "trial:design:top:1"
+filesets:
+  rtl:
+    files: [top.v]
+    file_type: verilogSource
+    depend: ["carrypipe:units:gate_add"]
+targets:
+  default:
+    filesets: [rtl]
+    toplevel: top
+"""
+
+
+@pytest.mark.skipif(not FUSESOC, reason="fusesoc (pip install 'carrypipe[test]') is needed")
+def test_a_design_that_depends_on_the_core_gets_the_vhdl_package_but_not_in_verilog_tools(
+        built, tmp_path):
+    """FuseSoC gives a dependent design the core's default target: the VHDL package for a
+    mixed-language tool (GHDL here stands for one), the Verilog alone for Icarus, which
+    would warn about a VHDL file."""
+    plan, folder = built
+    (tmp_path / "top").mkdir()
+    (tmp_path / "top" / "top.core").write_text(TOP_CORE)
+    (tmp_path / "top" / "top.v").write_text("module top; endmodule\n")
+
+    def sources(tool):
+        work = tmp_path / f"work_{tool}"
+        work.mkdir()
+        out = subprocess.run([FUSESOC, "--cores-root", str(folder), "--cores-root",
+                              str(tmp_path / "top"), "run", "--setup", "--tool", tool,
+                              "trial:design:top"], cwd=work, capture_output=True, text=True,
+                             timeout=600)
+        assert out.returncode == 0, out.stdout + out.stderr
+        eda, = work.glob("build/*/*/*.eda.yml")
+        names = re.findall(r"name: (\S+)", eda.read_text())
+        return [Path(n).name for n in names], out.stdout + out.stderr
+
+    mixed, _ = sources("ghdl")
+    assert "gate_add_pkg.vhd" in mixed and "gate_add.v" in mixed
+    verilog, log = sources("icarus")
+    assert "gate_add.v" in verilog and "gate_add_pkg.vhd" not in verilog
+    assert "unknown file type" not in log
+
+
+def test_a_unit_without_a_package_lists_no_vhdl_in_its_core():
+    """A name VHDL cannot carry (a reserved word here) gets no package, so no fileset."""
+    files = emit.render(make(**{**KEYS, "name": "signal"}), vectors=10)
+    assert "signal_pkg.vhd" not in files
+    assert "vhdl" not in files["signal.core"]
+    assert "vhdlSource" in emit.render(make(**KEYS), vectors=10)["gate_add.core"]

@@ -36,12 +36,13 @@ def render(plan: Plan, vectors: int = DEFAULT_VECTORS, seed: int = DEFAULT_SEED,
     chart's slowest stage by measurement instead of by the unit-gate model."""
     name = plan.config.name
     vecs = suite(plan, vectors, seed)
+    package = vhdl.files(plan)
     files = {
         **simulation_files(plan, vecs),
         f"{name}.txt": report.report(plan),
         f"{name}_chart.svg": chart.svg(plan, measured, measured_source),
-        **flowfiles.files(plan),
-        **vhdl.files(plan),
+        **flowfiles.files(plan, sorted(package)),
+        **package,
     }
     manifest_name = f"{name}.json"
     files[manifest_name] = report.manifest_text(plan, [*files, manifest_name])

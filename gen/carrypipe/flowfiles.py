@@ -77,24 +77,29 @@ def filelist(plan) -> str:
     return f"+incdir+.\n{plan.config.name}.v\n"
 
 
-def core(plan) -> str:
+def core(plan, vhdl_files=()) -> str:
     """`<name>.core`: a CAPI2 core with the unit (default and lint targets) and its
-    testbench (a sim target), so a FuseSoC library that holds the folder finds it."""
+    testbench (a sim target), so a FuseSoC library that holds the folder finds it.  The
+    VHDL package, if any, joins the default target (what a design that depends on the core
+    gets) for every tool but the two Verilog-only ones the core names."""
     c = plan.config
     name = c.name
+    vhdl = {"vhdl": {"files": list(vhdl_files), "file_type": "vhdlSource"}} if vhdl_files else {}
+    default = ["rtl", *(["!tool_icarus ? (!tool_verilator ? (vhdl))"] if vhdl_files else [])]
     doc = {
         "name": f"carrypipe:units:{name}:{__version__}",
         "description": plan.unit.phrase(c),
         "filesets": {
             "rtl": {"files": [f"{name}.v", {f"{name}.vh": {"is_include_file": True}}],
                     "file_type": "verilogSource"},
+            **vhdl,
             "tb": {"files": [f"{name}_tb.v",
                              {vector_file(plan): {"file_type": "user",
                                                   "copyto": vector_file(plan)}}],
                    "file_type": "verilogSource"},
         },
         "targets": {
-            "default": {"filesets": ["rtl"], "toplevel": name},
+            "default": {"filesets": default, "toplevel": name},
             "lint": {"default_tool": "verilator", "filesets": ["rtl"], "toplevel": name,
                      "tools": {"verilator": {"mode": "lint-only",
                                              "verilator_options": ["-Wall"]}}},
@@ -128,7 +133,8 @@ def _yaml(value, depth: int) -> list[str]:
     return lines
 
 
-def files(plan) -> dict[str, str]:
+def files(plan, vhdl_files=()) -> dict[str, str]:
+    """The flow files by name; `vhdl_files` names the VHDL package the core lists."""
     name = plan.config.name
     return {f"{name}.vh": include(plan), f"{name}_inst.v": instance(plan),
-            f"{name}.f": filelist(plan), f"{name}.core": core(plan)}
+            f"{name}.f": filelist(plan), f"{name}.core": core(plan, vhdl_files)}
