@@ -71,6 +71,12 @@ CASES += [
          cell="sklansky"),
     dict(unit="sum", operands=3, width=1),
     dict(unit="sum", operands=7, width=10, tree="native", signed=True),
+    # reset_active: low (rst_n)
+    dict(width=12, slice_width=5, valid=True, reset="async", reset_active="low", enable=True),
+    dict(unit="accumulator", width=12, slice_width=5, reset="sync", reset_data=True,
+         reset_active="low"),
+    dict(unit="multiplier", width=6, partial_products="booth4", pipeline="levels",
+         cell="kogge-stone", valid=True, reset="async", reset_data=True, reset_active="low"),
 ]
 IDS = [f"{c.get('unit', 'adder')}-{c['cell'] if 'cell' in c else 'native'}-w{c['width']}-"
        f"{c.get('pipeline', 'slices')}-{n}" for n, c in enumerate(CASES)]

@@ -17,6 +17,7 @@ from pathlib import Path
 import yaml
 
 from . import cells, prefix, units
+from .reset import ACTIVE
 
 MAX_WIDTH = max(k.max_width for k in units.KINDS.values())  # the widest of any kind
 UNITS = tuple(units.KINDS)
@@ -109,6 +110,7 @@ class Config:
     enable: bool = False
     reset: str = "none"
     reset_data: bool = False
+    reset_active: str = "high"
     signed: bool = False
     register_inputs: bool = False
     pipeline: str = "slices"
@@ -128,7 +130,8 @@ class Config:
         """The config as plain data with every default filled in (for headers, manifests, caches).
 
         Keys that the unit kind and pipeline mode do not read are left out (a prefix mode takes
-        no split, a comparator no carry-in), and a `slices` unit leaves out `pipeline` too.
+        no split, a comparator no carry-in), a `slices` unit leaves out `pipeline` too, and a
+        unit without a reset `reset_active`.
         `from_mapping` of the result gives the same config back.
         """
         data = asdict(self)
@@ -140,6 +143,8 @@ class Config:
                 del data[key]
         if self.pipeline == "slices" and "pipeline" in data:
             del data["pipeline"]
+        if self.reset == "none":  # no reset port: no polarity
+            del data["reset_active"]
         return data
 
     def with_split(self, slices) -> "Config":
@@ -169,6 +174,7 @@ KEYS = {
     "enable": ("true or false", False),
     "reset": ("one of " + ", ".join(RESETS), "none"),
     "reset_data": ("true or false", False),
+    "reset_active": ("one of " + ", ".join(ACTIVE), "high"),
     "signed": ("true or false", False),
     "register_inputs": ("true or false", False),
     "pipeline": ("one of " + ", ".join(PIPELINES), "slices"),
@@ -325,7 +331,7 @@ def from_mapping(data, where: str = "config") -> Config:
     if not _is_int(width) or not 1 <= width <= MAX_WIDTH:
         raise _fail(where, "width", width, KEYS["width"][0])
     for key, choices in (("unit", UNITS), ("cell", CELLS), ("reset", RESETS),
-                         ("pipeline", PIPELINES), ("tree", TREES),
+                         ("reset_active", ACTIVE), ("pipeline", PIPELINES), ("tree", TREES),
                          ("partial_products", PARTIAL_PRODUCTS)):
         if values[key] not in choices:
             raise _fail(where, key, values[key], KEYS[key][0])
@@ -457,6 +463,10 @@ def _check_reset(where: str, values: dict) -> None:
     if values["reset_data"] and values["reset"] == "none":
         raise ConfigError(f"{where}: key 'reset_data': value true is not allowed with reset "
                           "'none'; expected reset 'sync' or 'async' beside it")
+    if values["reset_active"] != "high" and values["reset"] == "none":
+        raise ConfigError(f"{where}: key 'reset_active': value {values['reset_active']!r} is "
+                          "not allowed with reset 'none'; expected reset 'sync' or 'async' "
+                          "beside it")
 
 
 def block_count(width: int, block_width: int) -> int:

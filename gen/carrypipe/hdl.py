@@ -10,7 +10,9 @@ like any component::
 
 The registers that `rst` clears in the Verilog are the ones the `sync` domain's reset clears
 here (the valid bits, or every register with `reset_data`); `reset: async` expects a domain
-with `async_reset=True`.  Every register holds while `en` is low, as in the Verilog.
+with `async_reset=True`.  An Amaranth domain's reset is active high, so `reset_active: low`
+(the Verilog's `rst_n`) changes nothing here.  Every register holds while `en` is low, as in
+the Verilog.
 """
 
 from __future__ import annotations
@@ -19,6 +21,7 @@ from amaranth.hdl import Cat, Const, EnableInserter, Module, Mux, Signal, Value
 from amaranth.lib import wiring
 from amaranth.lib.wiring import In, Out
 
+from . import reset
 from .netlist import Arith, Cmp, Expr, Netlist, Op, Ref, Rep
 from .netlist import Cat as NetCat
 from .netlist import Const as NetConst
@@ -26,10 +29,11 @@ from .netlist import Mux as NetMux
 
 
 def elaborate(net: Netlist, ports: dict[str, Value]) -> Module:
-    """Amaranth statements for `net`, with `ports` standing for its ports (not clk, rst)."""
+    """Amaranth statements for `net`, with `ports` standing for its ports (not the clock and
+    the reset)."""
     m = Module()
     sig: dict[int, Value] = {id(p.vec): ports[p.vec.name] for p in net.ports
-                             if p.vec.name not in ("clk", "rst")}
+                             if p.vec.name not in ("clk", net.reset.name)}
     for s in net.sections:
         for v in s.regs:
             sig[id(v)] = Signal(v.width, name=v.name, reset_less=not net.resets(v))
@@ -88,11 +92,16 @@ class Unit(wiring.Component):
         self.plan = plan
         self.latency = plan.latency  # cycles from inputs to results, as the manifest's
         super().__init__({p.name: (In if p.direction == "input" else Out)(p.width)
-                          for p in plan.ports if p.name not in ("clk", "rst")})
+                          for p in self.signals()})
+
+    def signals(self):
+        """The plan's ports but the clock and the reset, which are the `sync` domain's."""
+        control = ("clk", reset.of(self.plan.config).name)
+        return [p for p in self.plan.ports if p.name not in control]
 
     def elaborate(self, platform):
-        names = [p.name for p in self.plan.ports if p.name not in ("clk", "rst")]
-        return elaborate(self.plan.netlist(), {n: getattr(self, n) for n in names})
+        return elaborate(self.plan.netlist(), {p.name: getattr(self, p.name)
+                                               for p in self.signals()})
 
 
 def clock_domain(config):

@@ -9,7 +9,7 @@ from __future__ import annotations
 import json
 import textwrap
 
-from . import __version__
+from . import __version__, reset
 
 COLUMNS = 100
 """Comment lines wrap at this column: easy to read, and no comment grows past the input
@@ -115,7 +115,7 @@ def reset_phrase(plan) -> str:
     if c.reset == "none":
         return "no reset"
     what = "every register" if c.reset_data else "the valid bits only"
-    return f"{c.reset} reset rst (active high) clears {what}"
+    return f"{c.reset} reset {reset.of(c).words()} clears {what}"
 
 
 def lines(plan) -> list[str]:
@@ -140,7 +140,8 @@ def input_title(plan) -> list[str]:
 
 def reset_clause(plan) -> str:
     """What a valid bit's description adds when the unit has a reset (it clears them)."""
-    return "; rst clears it" if plan.config.reset != "none" else ""
+    c = plan.config
+    return f"; {reset.of(c).name} clears it" if c.reset != "none" else ""
 
 
 def valid_title(plan) -> list[str]:

@@ -18,6 +18,8 @@ the nesting stays bounded.
 
 from __future__ import annotations
 
+from . import reset
+
 MITER = "carrypipe_miter"
 CHUNK = 256
 
@@ -91,13 +93,14 @@ def miter_verilog(plan, compare: tuple[str, ...] | None = None) -> str:
         lines += ["    end", "  end"]
         # The valid chain is reset like the unit's (synchronously or not), even while en is
         # low; data the reference never resets (with reset_data the proof holds rst low).
-        edge = "posedge clk or posedge rst" if c.reset == "async" else "posedge clk"
+        rst = reset.of(c)
+        edge = f"posedge clk or {rst.edge}" if c.reset == "async" else "posedge clk"
         lines.append(f"  always @({edge}) begin")
         clear = [f"      ref_valid_{k} <= 1'b0;" for k in range(1, lat + 1)]
         shift = [f"      ref_valid_{k} <= ref_valid_{k - 1};" for k in range(1, lat + 1)]
         if c.reset != "none":
-            lines += ["    if (rst) begin", *clear, f"    end else if ({en}) begin", *shift,
-                      "    end"]
+            lines += [f"    if ({rst.asserted}) begin", *clear, f"    end else if ({en}) begin",
+                      *shift, "    end"]
         else:
             lines += [f"    if ({en}) begin", *shift, "    end"]
         lines.append("  end")

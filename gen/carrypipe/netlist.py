@@ -20,6 +20,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from .header import runs
+from .reset import ResetPort
 
 DATA, CONTROL = "data", "control"  # register classes: which registers a reset clears
 
@@ -284,14 +285,14 @@ class Netlist:
     name: str
     ports: list[Port]
     sections: list[Section]
-    reset: str = "none"  # none, sync, async: how rst acts (on CONTROL registers, DATA too
-    reset_data: bool = False  # when reset_data)
+    reset: ResetPort = ResetPort("none")  # how the reset acts (on CONTROL registers, DATA
+    reset_data: bool = False  # too when reset_data)
     enable: bool = False  # every register loads only while `en` is high
     header: list[str] = field(default_factory=list)
 
     def resets(self, vec: Vec) -> bool:
-        """Whether `rst` clears this register."""
-        return self.reset != "none" and (vec.cls == CONTROL or self.reset_data)
+        """Whether the reset clears this register."""
+        return self.reset.kind != "none" and (vec.cls == CONTROL or self.reset_data)
 
 
 class NameClash(ValueError):
@@ -576,5 +577,5 @@ def check(net: Netlist) -> None:
     for p in net.ports:
         if p.vec.role == "input" and p.vec.name != "clk":
             for b in range(p.vec.width):
-                if (id(p.vec), b) not in read and p.vec.name not in ("rst", "en"):
+                if (id(p.vec), b) not in read and p.vec.name not in (net.reset.name, "en"):
                     raise NetlistError(f"input {p.vec.name}[{b}] is never read")

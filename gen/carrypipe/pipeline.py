@@ -4,7 +4,7 @@ registers made from the plan's words, and the output section.
 
 from __future__ import annotations
 
-from . import header
+from . import header, reset
 from .netlist import CONTROL, DATA, Builder, Cat, Const, Expr, Netlist, Vec
 
 
@@ -53,7 +53,7 @@ class Frame:
         for p in self.plan.ports:
             if p.direction == "output":
                 self.b.drive(self.ports[p.name].all, drives[p.name])
-        return self.b.netlist(reset=c.reset, reset_data=c.reset_data, enable=c.enable,
+        return self.b.netlist(reset=reset.of(c), reset_data=c.reset_data, enable=c.enable,
                               header=header.lines(self.plan))
 
 

@@ -24,7 +24,7 @@ import re
 import time
 from dataclasses import dataclass
 
-from . import emit, tools
+from . import emit, reset, tools
 from .header import plural
 from .solver import FAILED, PROVED, Rejected, is_ff, netlist, no_verdict, run_yosys, sat_limit
 from .miter import MITER, miter_verilog
@@ -76,7 +76,8 @@ def structure(plan: Plan, net: dict) -> str | None:
     port = {name: p["bits"] for name, p in mod["ports"].items()}
     clk = port["clk"][0]
     en = port["en"][0] if "en" in port else None
-    rst = port["rst"][0] if "rst" in port else None
+    rst_port = reset.of(c)
+    rst = port[rst_port.name][0] if rst_port.name in port else None
     driver, ffs = {}, {}
     for name, cell in mod["cells"].items():
         for pin, bits in cell["connections"].items():
@@ -102,7 +103,8 @@ def structure(plan: Plan, net: dict) -> str | None:
         if cell["type"] not in allowed:
             return (f"flip-flop {name} is a {cell['type']}, not a flip-flop "
                     + ("enabled by en" if en is not None else "without enable")
-                    + (f" with the {kind} reset rst or none" if kind else " without reset"))
+                    + (f" with the {kind} reset {rst_port.name} or none" if kind
+                       else " without reset"))
         if con["CLK"] != [clk] or int(par["CLK_POLARITY"], 2) != 1:
             return f"flip-flop {name} is not clocked by the rising edge of clk"
         if en is not None and not _gated_by(con["EN"], int(par["EN_POLARITY"], 2), en,
@@ -111,11 +113,12 @@ def structure(plan: Plan, net: dict) -> str | None:
         reset_pin = "SRST" if cell["type"].startswith("$sdff") else "ARST"
         if reset_pin in con:
             value = par["SRST_VALUE" if reset_pin == "SRST" else "ARST_VALUE"]
-            if con[reset_pin] != [rst] or int(par[f"{reset_pin}_POLARITY"], 2) != 1 \
+            if con[reset_pin] != [rst] \
+                    or int(par[f"{reset_pin}_POLARITY"], 2) != rst_port.level(True) \
                     or int(value, 2) != 0:
-                return f"flip-flop {name} has a reset other than rst (active high, to 0)"
+                return f"flip-flop {name} has a reset other than {rst_port.words()}, to 0"
         elif c.reset_data:
-            return f"flip-flop {name} is not cleared by rst (reset_data: true)"
+            return f"flip-flop {name} is not cleared by {rst_port.name} (reset_data: true)"
     outputs = [p.name for p in plan.ports if p.direction == "output"]
     for out in outputs:
         for bit in port.get(out, []):
@@ -134,7 +137,7 @@ def structure(plan: Plan, net: dict) -> str | None:
             continue
         seen.add(bit)
         if bit == rst:
-            return "a data output depends on rst"
+            return f"a data output depends on {rst_port.name}"
         name = driver.get(bit)
         if name is None or name in walked:
             continue
@@ -270,12 +273,12 @@ def prove(plan: Plan, depth: int | None = None, timeout: float | None = None,
     if c.enable:
         done += "; en held high, every flip-flop enabled by en (structural check)"
     if c.reset != "none":
-        done += (f"; {c.reset} reset rst clears "
+        done += (f"; {c.reset} reset {reset.of(c).name} clears "
                  + ("every flip-flop" if c.reset_data else "only flip-flops outside the data "
                     "path") + " (structural check)")
         if plan.unit.keeps_result and not c.reset_data and data:
-            done += ("; the total proved with rst held low (a reset of the valid bits leaves "
-                     "it undefined until the next clear)")
+            done += (f"; the total proved with {reset.of(c).held()} (a reset of the valid "
+                     "bits leaves it undefined until the next clear)")
     seconds = time.monotonic() - start
     if PROVED in log:
         return Proof(True, done, depth, f"proved: {done}; {seconds:.1f} s", seconds)
@@ -305,7 +308,7 @@ def _bounded(plan: Plan, verilog: str, depth: int, compare: tuple[str, ...], hol
     files = {f"{name}.v": verilog, "miter.v": miter_verilog(plan, compare)}
     shows = ["ok"] + [o for o in compare]
     shows += [_ref(o, lat) for o in compare]
-    sets = ("-set en 1 " if c.enable else "") + ("-set rst 0 " if hold_rst else "")
+    sets = ("-set en 1 " if c.enable else "") + (reset.of(c).inactive_set() if hold_rst else "")
     sets += plan.unit.proof_sets(c)
     script = [f"read_verilog {name}.v", "read_verilog miter.v",
               f"hierarchy -top {MITER} -check", "proc", "flatten", "async2sync",

@@ -12,6 +12,7 @@ CARRYPIPE_TB_NO_FATAL for a simulator that lacks `$fatal`).
 
 from __future__ import annotations
 
+from . import reset
 from .header import command, comment
 from .verilog import LINE
 from .vectors import TAG_BITS, field_widths, output_ports
@@ -35,6 +36,8 @@ def testbench(plan, count: int) -> str:
 
     ins, outs = plan.operand_inputs(), output_ports(plan)
     has = {p.name for p in plan.ports}
+    rst = reset.of(plan.config)
+    resets = rst.name in has
 
     def decl(kind, p, init=""):
         rng = f"[{p.width - 1}:0] " if p.width > 1 else ""
@@ -76,7 +79,7 @@ def testbench(plan, count: int) -> str:
         *(decl("reg", p, " = 0") for p in ins),
         "  reg in_valid = 1'b0;",
         "  reg en = 1'b0;",
-        *(["  reg rst = 1'b1;"] if "rst" in has else []),
+        *([f"  reg {rst.name} = 1'b{rst.level(True)};"] if resets else []),
         "  reg gap_done = 1'b0;",
         *(decl("wire", p) for p in outs),
         *(["  wire out_valid;"] if "out_valid" in has else []),
@@ -165,9 +168,9 @@ def testbench(plan, count: int) -> str:
         "    checked = 0;",
         "    cycle = 0;",
         "    // Two cycles of reset (with en low: the reset must act all the same)."
-        if "rst" in has else "    // Two idle cycles (with en low), as a unit with a reset has.",
+        if resets else "    // Two idle cycles (with en low), as a unit with a reset has.",
         "    repeat (2) @(posedge clk);",
-        "    #1 rst = 1'b0;" if "rst" in has else "    #1;",
+        f"    #1 {rst.name} = 1'b{rst.level(False)};" if resets else "    #1;",
         "    drive;",
         "    forever begin",
         "      @(posedge clk);",
@@ -192,7 +195,7 @@ def testbench(plan, count: int) -> str:
         "          check;",
         "        end",
     ]
-    if "rst" in has and "out_valid" in has:
+    if resets and "out_valid" in has:
         lines += [
             "      end else if (out_valid !== 1'b0) begin",
             "        $display(\"FAIL cycle %0d: out_valid=%b before the first result after reset\",",

@@ -40,6 +40,7 @@ from __future__ import annotations
 
 import json
 
+from . import reset
 from .compose import Cut, Outcome, Wiring, first_failing_part
 from .header import each_of, plural
 from .miter import chained
@@ -301,7 +302,8 @@ def prove_tree(plan, net: dict, module: str, timeout: Deadline) -> Outcome:
                                "(flip-flops cut)")
     c = plan.config
     lat = len(plan.adder_stages) if plan.adder else 0
-    sets = ("-set en 1 " if c.enable else "") + ("-set rst 0 " if c.reset != "none" else "")
+    sets = ("-set en 1 " if c.enable else "") + (reset.of(c).inactive_set()
+                                                 if c.reset != "none" else "")
     script = ["read_json rest.json", "read_verilog rows.v", f"hierarchy -top {ADDER_MITER} -check",
               "proc", "flatten", "async2sync", "attrmap -remove init", "opt_clean",
               f"sat -seq {lat + 1} -prove-skip {lat} -prove ok 1 {sets}{sat_limit(timeout)}"]

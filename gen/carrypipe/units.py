@@ -16,14 +16,14 @@ from __future__ import annotations
 import random
 from dataclasses import dataclass
 
-from . import cells, prefix, reduction
+from . import cells, prefix, reduction, reset
 from . import dots as dm
 from .header import plural
 from .miter import chained, signed_overflow
 from .netlist import Cmp, Const, Expr, Mux, Rep, bit, cat, part
 
 
-CONTROL_PORTS = ("clk", "rst", "en")  # a unit's clock, reset and enable
+CONTROL_PORTS = ("clk", "rst", "rst_n", "en")  # a unit's clock, reset and enable
 
 
 # The operations that form a carry-out port from the chain bit (and flags): the expression
@@ -107,7 +107,9 @@ class Kind:
         if c.reset != "none":
             what = "every register" if c.reset_data else "the valid bits"
             how = "asynchronous" if c.reset == "async" else "synchronous"
-            ports.append(Port("rst", "input", 1, f"{how} reset, active high: clears {what}"))
+            rst = reset.of(c)
+            ports.append(Port(rst.name, "input", 1,
+                              f"{how} reset, active {rst.active}: clears {what}"))
         if c.enable:
             ports.append(Port("en", "input", 1, "clock enable: while low every register holds"))
         ports += self.operand_ports(c)

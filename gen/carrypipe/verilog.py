@@ -166,14 +166,15 @@ def _declarations(kind: str, vecs: list[Vec]) -> list[str]:
 
 def _always(net: Netlist, loads: list[Load], resets: bool, keep: bool) -> list[str]:
     """One `always` block for loads that share a reset behaviour and the keep attribute."""
-    edge = "posedge clk or posedge rst" if resets and net.reset == "async" else "posedge clk"
+    rst = net.reset
+    edge = f"posedge clk or {rst.edge}" if resets and rst.kind == "async" else "posedge clk"
     lines = [f"{INDENT}(* keep *)"] if keep else []
     lines.append(f"{INDENT}always @({edge}) begin")
     body = [f"{_target(ld.targets)} <= {expr(ld.expr)};" for ld in loads]
     pad = INDENT * 2
     if resets:
         regs = list(dict.fromkeys(t.vec for ld in loads for t in ld.targets))
-        lines.append(f"{pad}if (rst) begin")
+        lines.append(f"{pad}if ({rst.asserted}) begin")
         lines += [f"{pad}{INDENT}{v.name} <= {const(0, v.width)};" for v in regs]
         lines.append(f"{pad}end else{' if (en)' if net.enable else ''} begin")
         lines += [ln for b in body for ln in fold(f"{pad}{INDENT}{b}")]
