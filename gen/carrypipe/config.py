@@ -258,7 +258,10 @@ def _fail(where: str, key: str, value, allowed: str) -> ConfigError:
         return ConfigError(f"{where}: key '{key}': no value is given; expected {allowed}")
     if allowed.startswith(("an integer", "a list of positive integers")) and _is_text(value):
         head, sep, tail = allowed.partition(";")
-        allowed = f"{head}, written in plain decimal digits{sep}{tail}"
+        quoted = any(type(v) is str and re.fullmatch(r"-?(0|[1-9][0-9]*)", v)
+                     for v in (value if isinstance(value, list) else [value]))
+        how = "without quotes" if quoted else "in plain decimal digits"
+        allowed = f"{head}, written {how}{sep}{tail}"
     return ConfigError(f"{where}: key '{key}': value {_shown(value)} is not allowed; "
                        f"expected {allowed}")
 

@@ -16,15 +16,12 @@ import time
 from dataclasses import dataclass, field
 
 from . import __version__, cache, candidates, config, config_edit, devices, emit, harness, model
-from . import plot, toolflow
+from . import plot, toolflow, tools
 from .candidates import Row
 from .config import Config
 from .header import plural
 from .netlist import NameClash
 from .plan import make_plan
-
-WARMUP_NOTE = ("note: the first call of each WebAssembly tool (yowasp-*) on a machine can take "
-               "about a minute while it compiles; later calls start in a second")
 
 
 INPUT_RANK_NOTE = ("the config registers the inputs (`register_inputs: true`); when the "
@@ -127,7 +124,9 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     rows, clashing = _named_apart(candidates.distinct(
         [new_row(c, "even") for c in candidates.generate(base, settings.cells, settings.modes,
                                                          settings.trees)]))
-    progress, warned, broken = Progress(echo), False, False
+    # Said once, before the first runs, when a wheel has yet to compile on this machine.
+    warned = settings.tools != "wheel" or all(tools.compiled(t) for t in ("yosys", dev.family.pnr))
+    progress, broken = Progress(echo), False
     measurements = cached = 0
     margin = model.margin(dev.name)
     while batch := candidates.next_batch(rows, target, executor.jobs, margin,
@@ -154,8 +153,8 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
         jobs = [(row, toolflow.Job(row.config.normalized(), dev.name, part, settings.tools,
                                    settings.timeout))
                 for row, missing in todo for part in split_seeds(missing, parts)]
-        if jobs and settings.tools == "wheel" and not warned:
-            echo(WARMUP_NOTE)
+        if jobs and not warned:
+            echo(tools.WARMUP_NOTE)
             warned = True
         left = len(jobs)
         by_job = {id(job): row for row, job in jobs}

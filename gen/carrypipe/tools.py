@@ -85,6 +85,31 @@ def find(name: str, install: str) -> str:
     return found
 
 
+WARMUP_NOTE = ("note: the first call of a WebAssembly tool (yowasp-*) on a machine can take "
+               "about a minute while it compiles; later calls start in a second")
+
+
+def compiled(tool: str) -> bool:
+    """Whether the wheel of `tool` ("yosys", "nextpnr-ecp5", ...) has its WebAssembly module
+    compiled on this machine.  yowasp-runtime (1.x, as pinned: read from its source) keeps
+    each compiled module in its cache folder under the SHA-1 of the module, and compiles
+    one it does not find there, for about a minute.  False when that cannot be told (the
+    wheel not importable here, say), so a caller says too much rather than too little."""
+    import hashlib
+    from importlib import resources
+
+    package, wasm = "yowasp_" + tool.replace("-", "_"), f"{tool}.wasm"
+    try:
+        import platformdirs
+
+        digest = hashlib.sha1(resources.files(package).joinpath(wasm).read_bytes()).hexdigest()
+    except (ImportError, OSError):
+        return False
+    folder = os.environ.get("YOWASP_CACHE_DIR") or platformdirs.user_cache_dir(
+        "YoWASP", appauthor=False)
+    return os.path.isfile(os.path.join(folder, package, wasm, digest))
+
+
 # ---- time limits ----
 
 class Deadline:
