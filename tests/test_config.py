@@ -107,10 +107,17 @@ def test_a_long_run_of_tabs_in_a_value_is_refused_at_once():
 def test_tabs_elsewhere_stay_as_written(text, column):
     with pytest.raises(ConfigError) as err:
         parse_text(text, "t.yaml")
-    if column:  # a tab in the indentation: YAML refuses it, at its own column
-        assert f"line 2, column {column}" in str(err.value)
+    if column:  # a tab in the indentation: YAML refuses it, at its own column, said plainly
+        assert str(err.value) == (f"t.yaml: not valid YAML at line 2, column {column}: a tab in "
+                                  "the indentation; expected spaces there (YAML indents with "
+                                  "spaces)")
     else:  # inside a value the tab is kept, and named as it is
         assert "value 'a\\tb'" in str(err.value)
+
+
+def test_a_tab_indenting_a_list_item_is_named_at_its_line():
+    with pytest.raises(ConfigError, match=r"line 4, column 1: a tab in the indentation; "):
+        parse_text("name: t\nwidth: 8\nslices:\n\t- 4\n\t- 4\n", "t.yaml")
 
 
 def test_missing_required_key():

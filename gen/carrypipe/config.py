@@ -670,6 +670,10 @@ def parse_text(text: str, where: str) -> Config:
         mark = getattr(exc, "problem_mark", None)
         at = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
         problem = getattr(exc, "problem", None) or "invalid YAML"
+        lines = text.splitlines()
+        if mark and "'\\t'" in problem and mark.line < len(lines) \
+                and not lines[mark.line][:mark.column].strip():
+            problem = "a tab in the indentation; expected spaces there (YAML indents with spaces)"
         # PyYAML's mark can fall on the line after the trouble ("could not find expected
         # ':'" at the start of the next line); its context mark names where a key began.
         context, near = getattr(exc, "context_mark", None), set()
