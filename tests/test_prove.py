@@ -249,6 +249,29 @@ def test_an_edited_unit_that_is_no_longer_the_unit_fails(tmp_path, edit, says):
     assert res.output.startswith(f"{unit}: {says}"), res.output
 
 
+@pytest.mark.parametrize("edit, says", [
+    (lambda t: t.replace("if (rst) begin", "if (!rst) begin", 1),
+     "Async reset \\rst yields non-constant value"),
+    (lambda t: t.replace("posedge clk or posedge rst", "posedge clk or negedge clk", 1),
+     "Multiple edge sensitive events found"),
+], ids=["reset condition against its edge", "two clock edges"])
+def test_an_always_block_yosys_cannot_make_flip_flops_of_fails_the_design(tmp_path, edit, says):
+    """Found by a trial: Yosys's `proc` refuses these edits; that is the unit's fault (exit 1,
+    not proved), not a broken tool (exit 3)."""
+    cfg = tmp_path / "u.yaml"
+    cfg.write_text("name: u\nwidth: 6\nslice_width: 3\nenable: true\nvalid: true\n"
+                   "reset: async\n")
+    runner = CliRunner()
+    assert runner.invoke(main, ["build", str(cfg), "-o", str(tmp_path / "b")]).exit_code == 0
+    unit = tmp_path / "b" / "u.v"
+    text = unit.read_text()
+    unit.write_text(edit(text))
+    assert unit.read_text() != text
+    res = runner.invoke(main, ["prove", str(tmp_path / "b")])
+    assert res.exit_code == 1, res.output
+    assert res.output.startswith(f"{unit}: not proved: Yosys cannot read the unit u: {says}")
+
+
 def test_prove_refuses_a_folder_that_is_not_a_build(tmp_path):
     (tmp_path / "empty").mkdir()
     res = CliRunner().invoke(main, ["prove", str(tmp_path / "empty")])

@@ -5,6 +5,7 @@ the Verilog (both must then fail)."""
 
 from __future__ import annotations
 
+import json
 import re
 import subprocess
 import sys
@@ -65,6 +66,9 @@ def test_the_port_is_rst_n_in_the_place_of_rst():
     assert "always @(posedge clk or negedge rst_n)" in text and "if (!rst_n)" in text
     assert not re.search(r"\brst\b", text)
     assert "Reset: async reset rst_n (active low) clears the valid bits only." in text
+    manifest = json.loads(emit.render(plan, vectors=10)["rn.json"])
+    assert manifest["reset"] == {"kind": "async", "clears": "valid bits", "port": "rst_n",
+                                 "active": "low"}
 
 
 def test_the_normalized_config_holds_the_polarity_only_with_a_reset():

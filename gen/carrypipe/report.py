@@ -10,7 +10,7 @@ import json
 from dataclasses import replace
 from functools import singledispatch
 
-from . import __version__, cells, positions, prefix
+from . import __version__, cells, positions, prefix, reset
 from .header import (bit_span, bits, plural, reset_phrase, stage_list, timing_phrase,
                      wrapped)
 from .plan import MODES, Plan, PrefixPlan, SlicedPlan
@@ -55,7 +55,9 @@ def manifest(plan: Plan, files: list[str]) -> dict:
         "latency": plan.latency,
         "pipeline": c.pipeline,  # (null with `tree: native`: `stage_entries`)
         "reset": {"kind": c.reset, "clears": ("every register" if c.reset_data else
-                                               "valid bits" if c.reset != "none" else "nothing")},
+                                               "valid bits" if c.reset != "none" else "nothing"),
+                  **({"port": reset.of(c).name, "active": c.reset_active}
+                     if c.reset != "none" else {})},
         "ports": port_entries(plan),
         "slices": [{"lsb": s.lsb, "msb": s.msb, "width": s.width, "cell": s.cell,
                     "wait_before": s.wait_before, "wait_after": s.wait_after,

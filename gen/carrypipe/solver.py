@@ -25,13 +25,21 @@ class Rejected(tools.ToolBroken):
     module or port): a fault of the Verilog when that is the user's, else of the tool run."""
 
 
+# Errors of Yosys's `proc` about an always block it cannot make flip-flops of: an edited
+# unit's fault (a reset condition that does not match its edge, two clock edges), not the
+# tool's.
+PROCESS_ERRORS = r"ERROR: (Async reset \S+ yields non-constant value|Multiple edge sensitive events)"
+
+
 def _about_the_input(error: str, files: dict[str, str]) -> bool:
     """Whether a Yosys error line is about the Verilog it read: a parse error located in one
-    of `files` ("u.v:3: ERROR: ..."), or a module or port that the design lacks."""
+    of `files` ("u.v:3: ERROR: ..."), a module or port that the design lacks, or an always
+    block that `proc` cannot turn into flip-flops."""
     return (any(error.startswith(f"{name}:") for name in files)
             or re.match(r"ERROR: Module `[^']*'( referenced in module `[^']*' in cell `[^']*')?"
                         r" (is not part of the design|not found|does not have a port)",
-                        error) is not None)
+                        error) is not None
+            or re.match(PROCESS_ERRORS, error) is not None)
 
 
 SIZES = "see docs/verification.md for the sizes that prove"
