@@ -160,3 +160,34 @@ def test_prove_proves_rst_n_and_refuses_a_flipped_polarity(tmp_path, keys):
     verdict = prove.prove(plan, verilog=text)
     assert not verdict.proved
     assert "has a reset other than rst_n (active low), to 0" in verdict.message
+
+
+@pytest.mark.skipif(not ICARUS, reason="Icarus is not installed")
+@pytest.mark.parametrize("active", ["high", "low"])
+@pytest.mark.parametrize("kind, reset_data", [("async", False), ("async", True),
+                                              ("sync", False), ("sync", True)])
+def test_the_emitted_testbench_checks_the_reset_between_edges(tmp_path, active, kind,
+                                                              reset_data):
+    """After the vectors it asserts the reset between two edges: an asynchronous reset that
+    waits for the clock, or a synchronous one that does not, fails it (found by an ASIC
+    trial: the testbench once reset only at the start)."""
+    keys = {"name": "rn", "width": 9, "slice_width": 4, "valid": True, "enable": True,
+            "reset": kind, "reset_data": reset_data, "reset_active": active}
+    name = build(keys, tmp_path)
+    assert "PASS 300 vectors" in run_testbench(tmp_path, name)
+    unit = tmp_path / f"{name}.v"
+    text = unit.read_text()
+    edge = "negedge rst_n" if active == "low" else "posedge rst"
+    if kind == "async":  # made synchronous: waits for the clock
+        mutant = text.replace(f"always @(posedge clk or {edge})", "always @(posedge clk)")
+        says = "did not clear out_valid" + (" and every output" if reset_data else "")
+        says += " before the next edge"
+    else:  # made asynchronous: clears before the clock edge
+        cond = "!rst_n" if active == "low" else "rst"
+        mutant = text.replace(f"always @(posedge clk) begin\n    if ({cond}) begin",
+                              f"always @(posedge clk or {edge}) begin\n    if ({cond}) begin")
+        says = "cleared out_valid before the clock edge"
+    assert mutant != text
+    unit.write_text(mutant)
+    out = run_testbench(tmp_path, name)
+    assert "PASS" not in out and says in out, out

@@ -4,7 +4,8 @@ It opens and reads the packed vector file (see `vectors.field_widths`), checks t
 entry is there (each carries its own number, so a missing, short or empty file fails, in
 Icarus, where missing entries read as X, and in Verilator, where they read as 0), offers one
 vector per enabled clock edge, and compares every result `latency` enabled edges later with
-the expected value that Python computed; an X or Z in any output is a mismatch.  It ends with
+the expected value that Python computed; an X or Z in any output is a mismatch.  A unit with
+a reset is then reset between two edges (`reset_task`), to show the reset's kind.  It ends with
 one line that starts with PASS (only when every one of VECTORS vectors was checked) or FAIL;
 on FAIL it also stops through `$fatal`, so simulators that support it exit non-zero (define
 CARRYPIPE_TB_NO_FATAL for a simulator that lacks `$fatal`).
@@ -14,12 +15,73 @@ from __future__ import annotations
 
 from . import reset
 from .header import command, comment
-from .verilog import LINE
+from .verilog import LINE, const
 from .vectors import TAG_BITS, field_widths, output_ports
 
 
 def vector_file(plan) -> str:
     return f"{plan.config.name}_vectors.hex"
+
+
+def reset_task(plan, rst, ins) -> list[str]:
+    """`reset_check`, run after the vectors: the reset asserted between two edges, with `en`
+    low, clears out_valid (and with reset_data every output) at once when asynchronous, at
+    the next rising edge when synchronous."""
+    c = plan.config
+    on, off = (f"{rst.name} = 1'b{rst.level(a)};" for a in (True, False))
+    terms = ((["out_valid === 1'b0"] if c.valid else [])
+             + ([f"{p.name} === {const(0, p.width)}" for p in output_ports(plan)]
+                if c.reset_data else []))
+    test = f"      if (!({' && '.join(terms)})) begin"
+    if len(test) > LINE:  # a term a line
+        test = "      if (!(" + "\n          && ".join(terms) + ")) begin"
+    what = " and ".join((["out_valid"] if c.valid else [])
+                        + (["every output"] if c.reset_data else []))
+    lines = [
+        "  // After the vectors: LATENCY edges of all-ones inputs with in_valid high, then the",
+        "  // reset asserted between two edges with en low (it acts all the same).",
+        f"  // It clears {what} "
+        + ("at once (asynchronous)." if c.reset == "async"
+           else "at the next rising edge (synchronous), not before."),
+        "  task reset_check;",
+        "    begin",
+        *(f"      {p.name} = {const((1 << p.width) - 1, p.width)};" for p in ins),
+        "      in_valid = 1'b1;",
+        "      en = 1'b1;",
+        "      repeat (LATENCY) @(posedge clk);",
+        "      #1 en = 1'b0;",
+    ]
+    if c.valid:
+        lines += ["      if (out_valid !== 1'b1) begin",
+                  "        $display(\"FAIL reset check: out_valid=%b before the reset\", "
+                  "out_valid);",
+                  "        fail;",
+                  "      end"]
+    lines += [f"      {on}", "      #1;"]
+    if c.reset == "async":
+        lines += [test,
+                  f"        $write(\"FAIL reset check: {rst.name} did not clear {what}\");",
+                  "        $display(\" before the next edge\");",
+                  "        fail;",
+                  "      end"]
+    elif c.valid:
+        lines += ["      if (out_valid !== 1'b1) begin",
+                  f"        $write(\"FAIL reset check: the synchronous {rst.name}\");",
+                  "        $display(\" cleared out_valid before the clock edge\");",
+                  "        fail;",
+                  "      end"]
+    lines += ["      @(posedge clk);",
+              "      #1;",
+              test,
+              f"        $write(\"FAIL reset check: {rst.name} did not clear {what}\");",
+              "        $display(\" at the next edge\");",
+              "        fail;",
+              "      end",
+              f"      {off}",
+              "    end",
+              "  endtask",
+              ""]
+    return lines
 
 
 def testbench(plan, count: int) -> str:
@@ -127,6 +189,7 @@ def testbench(plan, count: int) -> str:
         "    end",
         "  endtask",
         "",
+        *(reset_task(plan, rst, ins) if resets else []),
         "  // Compare the outputs with vector k's expected values (an X or Z never matches).",
         "  task check;",
         "    begin",
@@ -188,6 +251,7 @@ def testbench(plan, count: int) -> str:
         "            $display(\"FAIL checked %0d of %0d vectors\", checked, VECTORS);",
         "            fail;",
         "          end else begin",
+        *(["            reset_check;"] if resets else []),
         "            $display(\"PASS %0d vectors, latency %0d\", checked, LATENCY);",
         "            $finish;",
         "          end",
