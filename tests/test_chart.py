@@ -554,7 +554,7 @@ def test_every_chart_kind_renders_readably(stem):
     colours = {rgb for _, rgb in image.getcolors(width * height)}
     for kind, bits in plan.registers.as_dict().items():
         if kind != "total" and bits:
-            assert hex_rgb(chart.COLOURS[kind]) in colours, kind
+            assert hex_rgb(svg.REGISTER_COLOURS[kind]) in colours, kind  # tree kinds too
     # no text runs off the picture (estimated with the fitting rule's glyph width)
     for e in texts(root):
         size, x = float(e.get("font-size")), float(e.get("x"))
