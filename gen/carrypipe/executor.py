@@ -26,6 +26,9 @@ CLUSTER_TIMEOUT = 10.0  # seconds
 
 
 class Local:
+    """Worker processes on this machine (or none, for one job at a time)."""
+    here = True  # the tools run on this machine, with its caches
+
     def __init__(self, jobs: int = 1):
         self.jobs = jobs
 
@@ -97,6 +100,7 @@ async def _handshake(address: str, timeout: float) -> None:
 
 class Cluster:
     """Dask distributed: the scheduler at `address` spreads the work over its workers."""
+    here = False
 
     def __init__(self, address: str, timeout: float | None = None):
         try:

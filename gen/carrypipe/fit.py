@@ -124,8 +124,10 @@ def run(base: Config, settings: Settings, executor, echo=lambda text: None,
     rows, clashing = _named_apart(candidates.distinct(
         [new_row(c, "even") for c in candidates.generate(base, settings.cells, settings.modes,
                                                          settings.trees)]))
-    # Said once, before the first runs, when a wheel has yet to compile on this machine.
-    warned = settings.tools != "wheel" or all(tools.compiled(t) for t in ("yosys", dev.family.pnr))
+    # Said once, before the first runs, when a wheel has yet to compile on this machine (a
+    # cluster's workers have caches of their own).
+    warned = (settings.tools != "wheel" or not executor.here
+              or all(tools.compiled(t) for t in ("yosys", dev.family.pnr)))
     progress, broken = Progress(echo), False
     measurements = cached = 0
     margin = model.margin(dev.name)

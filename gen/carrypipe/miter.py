@@ -3,7 +3,7 @@
 The reference is the unit kind's specification written out directly (`units.Kind.reference`:
 `a + b + cin`, `a - b - bin`, the comparisons, the running total) from the inputs, then
 `latency` registers that load on every enabled edge; `in_valid` travels through `latency`
-registers of its own that `rst` clears (even while `en` is low).  The miter's single output
+registers of its own that the reset (`rst` or `rst_n`) clears (even while `en` is low).  The miter's single output
 `ok` is high when the unit's outputs equal the reference's.  Only the plan's module name,
 latency and port list and the kind's reference are read, so any pipeline shape the generator
 emits is covered.

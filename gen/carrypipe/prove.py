@@ -4,7 +4,8 @@ manifest's latency, from any state.
 Method (see docs/verification.md for the soundness argument):
   1. The miter (`miter.py`) compares the unit with the specification (the kind's
      reference: `a + b + cin` for the adder, `a * b` for the multiplier, ...) delayed by
-     `latency` registers, `in_valid` delayed alike and cleared by `rst`.
+     `latency` registers, `in_valid` delayed alike and cleared by the reset (`rst`, or
+     `rst_n` active low).
   2. The init values of every register are removed, so the solver may start the unit (and
      the reference) in any register state.  Yosys's SAT engine then shows that `ok` holds on
      cycle L+1 for every start state and every input sequence (`sat -seq L+1 -prove-skip L`).
@@ -13,7 +14,7 @@ Method (see docs/verification.md for the soundness argument):
      is one of the "any" start states.
   3. With `enable`, the SAT proof runs with `en` held high, and a structural check of the
      unit's netlist shows that every flip-flop is clocked by `clk` and enabled by `en`, that
-     only flip-flops outside the cone of the results have the sync reset `rst`, and that
+     only flip-flops outside the cone of the results have the reset, and that
      every output bit is a flip-flop output or a constant: a run with `en` is then the
      always-enabled run with cycles repeated, so the proof carries over.
 """
@@ -66,10 +67,10 @@ def structure(plan: Plan, net: dict) -> str | None:
     """The structural check of clocking, enable and reset; returns what is wrong, or None.
 
     Every flip-flop is clocked by the rising edge of clk and (with `enable`) enabled by en
-    alone; a flip-flop with a reset is reset by rst, in the config's way (sync or async), to
-    0; with `reset_data` every flip-flop has that reset, else none in the fan-in of a data
-    output does (the valid bits have it); every output bit is a flip-flop output or a
-    constant.
+    alone; a flip-flop with a reset is reset by the reset port, in the config's way (sync or
+    async, active high or low), to 0; with `reset_data` every flip-flop has that reset, else
+    none in the fan-in of a data output does (the valid bits have it); every output bit is a
+    flip-flop output or a constant.
     """
     c = plan.config
     mod = net["modules"][c.name]

@@ -11,15 +11,18 @@ ACTIVE = ("high", "low")
 
 @dataclass(frozen=True)
 class ResetPort:
+    """A unit's reset: its kind (`reset`) and the level at which it acts (`reset_active`)."""
     kind: str  # none, sync, async
     active: str = "high"
 
     @property
     def low(self) -> bool:
+        """Whether the reset acts while its port is low."""
         return self.active == "low"
 
     @property
     def name(self) -> str:
+        """The port's name: `rst_n` when active low, the usual mark, else `rst`."""
         return "rst_n" if self.low else "rst"
 
     @property
@@ -41,7 +44,7 @@ class ResetPort:
         return f"{self.name} held {'high' if self.low else 'low'}"
 
     def inactive_set(self) -> str:
-        """Yosys `sat` options holding the reset inactive."""
+        """Yosys `sat` options holding the reset inactive (the unit must have one)."""
         return f"-set {self.name} {self.level(False)} "
 
     def words(self) -> str:
@@ -50,4 +53,8 @@ class ResetPort:
 
 
 def of(config) -> ResetPort:
+    """The reset of a unit's config."""
     return ResetPort(config.reset, config.reset_active)
+
+
+NAMES = tuple(ResetPort("sync", active).name for active in ACTIVE)  # every reset port name

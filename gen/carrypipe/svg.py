@@ -179,3 +179,10 @@ class Svg:
     def text(self, x, y, body, size=11.0, anchor="start", fill=INK, weight=None, **attrs):
         self.add("text", body, x=float(x), y=float(y), font_size=float(size),
                  text_anchor=anchor, fill=fill, font_weight=weight, **attrs)
+
+    def paragraph(self, x, y, body, size, room, step, **attrs) -> float:
+        """`body` wrapped to `room` px, a line every `step` px from baseline y; returns the
+        last line's baseline."""
+        for k, line in enumerate(wrap(body, size, room)):
+            self.text(x, y + k * step, line, size=size, **attrs)
+        return y + k * step

@@ -13,75 +13,81 @@ CARRYPIPE_TB_NO_FATAL for a simulator that lacks `$fatal`).
 
 from __future__ import annotations
 
+import textwrap
+
 from . import reset
 from .header import command, comment
 from .verilog import LINE, const
-from .vectors import TAG_BITS, field_widths, output_ports
+from .vectors import TAG_BITS, field_widths, output_ports, settled
 
 
 def vector_file(plan) -> str:
     return f"{plan.config.name}_vectors.hex"
 
 
-def reset_task(plan, rst, ins) -> list[str]:
-    """`reset_check`, run after the vectors: the reset asserted between two edges, with `en`
-    low, clears out_valid (and with reset_data every output) at once when asynchronous, at
-    the next rising edge when synchronous."""
+def condition(terms: list[str], op: str, pad: str, negate: bool = False) -> str:
+    """`if (...) begin` over `terms` joined by `op`, a term a line when one line is too long."""
+    head, tail = (f"{pad}if (!(", ")) begin") if negate else (f"{pad}if (", ") begin")
+    line = head + f" {op} ".join(terms) + tail
+    return line if len(line) <= LINE else head + f"\n{pad}    {op} ".join(terms) + tail
+
+
+def reset_task(plan, rst, pass_line: str) -> list[str]:
+    """`reset_check`, run after the vectors: a vector whose results hang on nothing before it
+    (`vectors.settled`) for LATENCY edges; its results must be there; then the reset asserted
+    between two edges, with `en` low, must clear out_valid (with reset_data every output) at
+    once when asynchronous, at the next rising edge and not before when synchronous.  Each
+    check stops the run on FAIL; PASS comes only after the last (else, never fall-through)."""
     c = plan.config
+    vec, want = settled(plan)
+    outs = output_ports(plan)
     on, off = (f"{rst.name} = 1'b{rst.level(a)};" for a in (True, False))
-    terms = ((["out_valid === 1'b0"] if c.valid else [])
-             + ([f"{p.name} === {const(0, p.width)}" for p in output_ports(plan)]
-                if c.reset_data else []))
-    test = f"      if (!({' && '.join(terms)})) begin"
-    if len(test) > LINE:  # a term a line
-        test = "      if (!(" + "\n          && ".join(terms) + ")) begin"
+    held = ((["out_valid === 1'b1"] if c.valid else [])
+            + [f"{p.name} === {const(want[p.name], p.width)}" for p in outs])
+    cleared = ((["out_valid === 1'b0"] if c.valid else [])
+               + ([f"{p.name} === {const(0, p.width)}" for p in outs] if c.reset_data else []))
     what = " and ".join((["out_valid"] if c.valid else [])
                         + (["every output"] if c.reset_data else []))
+    asynchronous = c.reset == "async"
+    # (lines before the check, terms that must hold, the FAIL message's two parts)
+    steps = [
+        (["repeat (LATENCY) @(posedge clk);", "#1 en = 1'b0;"], held,
+         ("FAIL reset check: the results of the inputs above", " were not there before the reset")),
+        ([on, "#1;"], cleared if asynchronous else held,
+         (f"FAIL reset check: {rst.name} did not clear {what}", " before the next edge")
+         if asynchronous else
+         (f"FAIL reset check: the synchronous {rst.name} acted", " before the clock edge")),
+        (["@(posedge clk);", "#1;"], cleared,
+         (f"FAIL reset check: {rst.name} did not clear {what}", " at the next edge")),
+    ]
+    said = ("After the vectors: inputs whose results hang on nothing before them, with in_valid "
+            "high, for LATENCY edges; then the reset asserted between two edges with en low (it "
+            f"acts all the same). It clears {what} "
+            + ("at once (asynchronous)." if asynchronous
+               else "at the next rising edge (synchronous), not before."))
     lines = [
-        "  // After the vectors: LATENCY edges of all-ones inputs with in_valid high, then the",
-        "  // reset asserted between two edges with en low (it acts all the same).",
-        f"  // It clears {what} "
-        + ("at once (asynchronous)." if c.reset == "async"
-           else "at the next rising edge (synchronous), not before."),
+        *(f"  // {line}" for line in textwrap.wrap(said, LINE - len("  // "))),
         "  task reset_check;",
         "    begin",
-        *(f"      {p.name} = {const((1 << p.width) - 1, p.width)};" for p in ins),
+        *(f"      {p.name} = {const(vec.inputs[p.name], p.width)};"
+          for p in plan.operand_inputs()),
         "      in_valid = 1'b1;",
         "      en = 1'b1;",
-        "      repeat (LATENCY) @(posedge clk);",
-        "      #1 en = 1'b0;",
     ]
-    if c.valid:
-        lines += ["      if (out_valid !== 1'b1) begin",
-                  "        $display(\"FAIL reset check: out_valid=%b before the reset\", "
-                  "out_valid);",
-                  "        fail;",
-                  "      end"]
-    lines += [f"      {on}", "      #1;"]
-    if c.reset == "async":
-        lines += [test,
-                  f"        $write(\"FAIL reset check: {rst.name} did not clear {what}\");",
-                  "        $display(\" before the next edge\");",
-                  "        fail;",
-                  "      end"]
-    elif c.valid:
-        lines += ["      if (out_valid !== 1'b1) begin",
-                  f"        $write(\"FAIL reset check: the synchronous {rst.name}\");",
-                  "        $display(\" cleared out_valid before the clock edge\");",
-                  "        fail;",
-                  "      end"]
-    lines += ["      @(posedge clk);",
-              "      #1;",
-              test,
-              f"        $write(\"FAIL reset check: {rst.name} did not clear {what}\");",
-              "        $display(\" at the next edge\");",
-              "        fail;",
-              "      end",
-              f"      {off}",
-              "    end",
-              "  endtask",
-              ""]
-    return lines
+    pad = "      "
+    for before, terms, (first, second) in steps:
+        lines += [f"{pad}{x}" for x in before]
+        lines += [condition(terms, "&&", pad, negate=True),
+                  f'{pad}  $write("{first}");',
+                  f'{pad}  $display("{second}");',
+                  f"{pad}  fail;",
+                  f"{pad}end else begin"]
+        pad += "  "
+    lines += [f"{pad}{off}", f"{pad}{pass_line}", f"{pad}$finish;"]
+    for _ in steps:
+        pad = pad[:-2]
+        lines.append(f"{pad}end")
+    return lines + ["    end", "  endtask", ""]
 
 
 def testbench(plan, count: int) -> str:
@@ -114,9 +120,8 @@ def testbench(plan, count: int) -> str:
              + ([(" valid=%b", "out_valid")] if c.valid else []))
     terms = ([f"{p.name} !== {f(p.name, 'mem[k]')}" for p in outs]
              + ([f"out_valid !== {f('valid', 'mem[k]')}"] if c.valid else []))
-    compare = f"      if ({' || '.join(terms)}) begin"
-    if len(compare) > LINE:  # a term a line
-        compare = "      if (" + "\n          || ".join(terms) + ") begin"
+    compare = condition(terms, "||", "      ")
+    passed = '$display("PASS %0d vectors, latency %0d", checked, LATENCY);'
     lines = [
         *comment([f"Self-checking testbench for {name} (carrypipe).",
                   f"Reads {vector_file(plan)} (or +vectors=FILE): VECTORS vectors; +vcd writes "
@@ -189,7 +194,7 @@ def testbench(plan, count: int) -> str:
         "    end",
         "  endtask",
         "",
-        *(reset_task(plan, rst, ins) if resets else []),
+        *(reset_task(plan, rst, passed) if resets else []),
         "  // Compare the outputs with vector k's expected values (an X or Z never matches).",
         "  task check;",
         "    begin",
@@ -251,9 +256,8 @@ def testbench(plan, count: int) -> str:
         "            $display(\"FAIL checked %0d of %0d vectors\", checked, VECTORS);",
         "            fail;",
         "          end else begin",
-        *(["            reset_check;"] if resets else []),
-        "            $display(\"PASS %0d vectors, latency %0d\", checked, LATENCY);",
-        "            $finish;",
+        *(["            reset_check;  // PASS, or FAIL"] if resets
+          else [f"            {passed}", "            $finish;"]),
         "          end",
         "        end else begin",
         "          check;",

@@ -91,9 +91,9 @@ WARMUP_NOTE = ("note: the first call of a WebAssembly tool (yowasp-*) on a machi
 
 def compiled(tool: str) -> bool:
     """Whether the wheel of `tool` ("yosys", "nextpnr-ecp5", ...) has its WebAssembly module
-    compiled on this machine.  yowasp-runtime (1.x, as pinned: read from its source) keeps
-    each compiled module in its cache folder under the SHA-1 of the module, and compiles
-    one it does not find there, for about a minute.  False when that cannot be told (the
+    compiled on this machine.  yowasp-runtime (1.x, as the pinned wheels require; read from
+    its source) keeps each compiled module in its cache folder under the SHA-1 of the module,
+    and compiles one it does not find there, for about a minute.  False when that cannot be told (the
     wheel not importable here, say), so a caller says too much rather than too little."""
     import hashlib
     from importlib import resources

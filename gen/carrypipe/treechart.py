@@ -24,7 +24,7 @@ from html import escape
 from . import report
 from .header import plural
 from .svg import (FAINT, FONT, INK, MARGIN, MIN_WIDTH, REGISTER_COLOURS, SLOW, Svg,
-                  measured_basis, num, register_table, slowest, stage_block, thousands, wrap)
+                  measured_basis, num, register_table, slowest, stage_block, thousands)
 from .svg import band as bands
 
 MAX_COLUMNS = 96
@@ -53,21 +53,15 @@ def svg(plan, said, measured: Mapping[int, float] | None = None,
     y = MARGIN + 16
     out.text(MARGIN, y, f"{c.name} — stage chart", size=18, weight="bold")
     room = page_w - 2 * MARGIN
-
-    def lines(y: float, text: str, size: float, step: float, **kw) -> float:
-        """`text` wrapped to the page, from baseline y; returns the last line's baseline."""
-        for k, line in enumerate(wrap(text, size, room)):
-            out.text(MARGIN, y + k * step, line, size=size, **kw)
-        return y + k * step
-
-    y = lines(y + 20, f"{report.unit_phrase(plan)}; {plural(len(plan.stages), 'stage')}; "
-                      f"latency {plural(plan.latency, 'cycle')}", 12, 15)
-    y = lines(y + 17, "Result bits across (most significant on the left), clock edges down: "
-                      f"{said.block}.", 11, 14, fill=FAINT)
+    y = out.paragraph(MARGIN, y + 20, f"{report.unit_phrase(plan)}; "
+                      f"{plural(len(plan.stages), 'stage')}; latency "
+                      f"{plural(plan.latency, 'cycle')}", 12, room, 15)
+    y = out.paragraph(MARGIN, y + 17, "Result bits across (most significant on the left), "
+                      f"clock edges down: {said.block}.", 11, room, 14, fill=FAINT)
     if band > 1:
-        y = lines(y + 16, f"Grouped into bands to stay readable: one column = {band} bits (a "
-                          "dot stands for the register bits of its row in those columns).", 11,
-                  14, fill=SLOW, weight="bold", data_role="banding")
+        y = out.paragraph(MARGIN, y + 16, "Grouped into bands to stay readable: one column = "
+                          f"{band} bits (a dot stands for the register bits of its row in those "
+                          "columns).", 11, room, 14, fill=SLOW, weight="bold", data_role="banding")
     y += 24
     for j in range(columns):
         if j % max(1, math.ceil(30 / cw)) == 0 or j == columns - 1:

@@ -23,7 +23,7 @@ from .miter import chained, signed_overflow
 from .netlist import Cmp, Const, Expr, Mux, Rep, bit, cat, part
 
 
-CONTROL_PORTS = ("clk", "rst", "rst_n", "en")  # a unit's clock, reset and enable
+CONTROL_PORTS = ("clk", *reset.NAMES, "en")  # a unit's clock, reset and enable
 
 
 # The operations that form a carry-out port from the chain bit (and flags): the expression

@@ -38,6 +38,32 @@ def expected(plan, vecs: list[Vector]) -> list[dict]:
     return out
 
 
+def settled(plan) -> tuple[Vector, dict]:
+    """A valid vector whose results do not hang on what came before it (the same after
+    other vectors as alone) and are not all zero, with those results: what a check after
+    the vectors can drive and expect whatever the unit holds, and see a reset clear.  Tried
+    in order: every input all ones, then with the 1-bit inputs (flags) zero, then with one
+    input zero."""
+    ins = plan.operand_inputs()
+    ones = {p.name: (1 << p.width) - 1 for p in ins}
+    flags = [p.name for p in ins if p.width == 1]
+    tries = [ones, {**ones, **dict.fromkeys(flags, 0)}, *({**ones, p.name: 0} for p in ins)]
+    before = [Vector(t, valid) for t in tries for valid in (1, 0)]
+
+    def after(w: Vector, v: Vector) -> dict | None:
+        try:
+            return expected(plan, [w, v])[1]
+        except ValueError:  # a sequence the reference refuses (an accumulator not cleared)
+            return None
+
+    for inputs in tries:
+        v = Vector(inputs)
+        alone = expected(plan, [v])[0]
+        if any(alone.values()) and all(after(w, v) in (alone, None) for w in before):
+            return v, alone
+    raise AssertionError(f"no settled vector for {plan.config.name}")
+
+
 def directed(plan) -> list[Vector]:
     return [Vector(i) for i in plan.unit.directed(plan.config)]
 
