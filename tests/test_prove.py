@@ -236,17 +236,24 @@ def test_prove_reads_the_build_folder_as_it_is_on_disk(tmp_path):
 def test_an_edited_unit_that_is_no_longer_the_unit_fails(tmp_path, edit, says):
     # The unit on disk is what is proved: when it no longer reads as the documented module
     # and ports, the design failed (exit 1), not the tool (exit 3).
+    unit, res = _prove_edited(tmp_path, "name: u\nwidth: 8\nslice_width: 4\nvalid: true\n",
+                              edit)
+    assert res.exit_code == 1, res.output
+    assert res.output.startswith(f"{unit}: {says}"), res.output
+
+
+def _prove_edited(tmp_path, config_text: str, edit):
+    """Build the unit `u` of `config_text`, apply `edit` to its Verilog on disk and prove
+    the folder: (the unit's path, the command's result)."""
     cfg = tmp_path / "u.yaml"
-    cfg.write_text("name: u\nwidth: 8\nslice_width: 4\nvalid: true\n")
+    cfg.write_text(config_text)
     runner = CliRunner()
     assert runner.invoke(main, ["build", str(cfg), "-o", str(tmp_path / "b")]).exit_code == 0
     unit = tmp_path / "b" / "u.v"
     text = unit.read_text()
     unit.write_text(edit(text))
     assert unit.read_text() != text
-    res = runner.invoke(main, ["prove", str(tmp_path / "b")])
-    assert res.exit_code == 1, res.output
-    assert res.output.startswith(f"{unit}: {says}"), res.output
+    return unit, runner.invoke(main, ["prove", str(tmp_path / "b")])
 
 
 @pytest.mark.parametrize("edit, says", [
@@ -258,16 +265,8 @@ def test_an_edited_unit_that_is_no_longer_the_unit_fails(tmp_path, edit, says):
 def test_an_always_block_yosys_cannot_make_flip_flops_of_fails_the_design(tmp_path, edit, says):
     """Found by a trial: Yosys's `proc` refuses these edits; that is the unit's fault (exit 1,
     not proved), not a broken tool (exit 3)."""
-    cfg = tmp_path / "u.yaml"
-    cfg.write_text("name: u\nwidth: 6\nslice_width: 3\nenable: true\nvalid: true\n"
-                   "reset: async\n")
-    runner = CliRunner()
-    assert runner.invoke(main, ["build", str(cfg), "-o", str(tmp_path / "b")]).exit_code == 0
-    unit = tmp_path / "b" / "u.v"
-    text = unit.read_text()
-    unit.write_text(edit(text))
-    assert unit.read_text() != text
-    res = runner.invoke(main, ["prove", str(tmp_path / "b")])
+    unit, res = _prove_edited(tmp_path, "name: u\nwidth: 6\nslice_width: 3\nenable: true\n"
+                              "valid: true\nreset: async\n", edit)
     assert res.exit_code == 1, res.output
     assert res.output.startswith(f"{unit}: not proved: Yosys cannot read the unit u: {says}")
 

@@ -13,10 +13,8 @@ CARRYPIPE_TB_NO_FATAL for a simulator that lacks `$fatal`).
 
 from __future__ import annotations
 
-import textwrap
-
 from . import reset
-from .header import command, comment
+from .header import command, comment, wrapped
 from .verilog import LINE, const
 from .vectors import TAG_BITS, field_widths, output_ports, settled
 
@@ -41,7 +39,7 @@ def reset_task(plan, rst, pass_line: str) -> list[str]:
     c = plan.config
     vec, want = settled(plan)
     outs = output_ports(plan)
-    on, off = (f"{rst.name} = 1'b{rst.level(a)};" for a in (True, False))
+    on, off = (f"{rst.name} = {const(rst.level(a), 1)};" for a in (True, False))
     held = ((["out_valid === 1'b1"] if c.valid else [])
             + [f"{p.name} === {const(want[p.name], p.width)}" for p in outs])
     cleared = ((["out_valid === 1'b0"] if c.valid else [])
@@ -66,7 +64,7 @@ def reset_task(plan, rst, pass_line: str) -> list[str]:
             + ("at once (asynchronous)." if asynchronous
                else "at the next rising edge (synchronous), not before."))
     lines = [
-        *(f"  // {line}" for line in textwrap.wrap(said, LINE - len("  // "))),
+        *wrapped(said, "  // ", "  // "),
         "  task reset_check;",
         "    begin",
         *(f"      {p.name} = {const(vec.inputs[p.name], p.width)};"
